@@ -1,0 +1,119 @@
+"""Result types of the analysis of one experiment (one stack at one Tc).
+
+These frozen dataclasses are the contract between the pipeline, the exports, the CLI and
+the GUI. Field names carry units. Coordinates: x = column, y = row, pixel centres at
+integers, top-left pixel = (0, 0). Times are seconds from the isothermal start (the
+moment the sample reached Tc), not from the first frame. Unknown values are ``None``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .edits import Edit
+
+#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate.
+STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded")
+SOURCES = ("auto", "manual")
+NUCLEATION_MODES = ("athermal", "thermal", "mixed")
+
+
+@dataclass(frozen=True)
+class Spherulite:
+    """One spherulite: its nucleus, its growth fit and how it may be used."""
+
+    id: int
+    x_px: float
+    y_px: float
+    nucleation_time_s: float | None
+    first_seen_s: float | None
+    growth_rate_um_per_min: float | None
+    growth_rate_ci95_um_per_min: float | None
+    r2: float | None
+    n_points: int
+    status: str
+    source: str = "auto"
+
+    def radius_um_at(self, time_s: float) -> float | None:
+        """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
+        if self.growth_rate_um_per_min is None or self.nucleation_time_s is None:
+            return None
+        return max(0.0, self.growth_rate_um_per_min * (time_s - self.nucleation_time_s) / 60.0)
+
+
+@dataclass(frozen=True)
+class RadiusSeries:
+    """Measured radii of one spherulite: the data the growth fit is made on.
+
+    ``free_fraction`` is the fraction of directions around the centre along which the
+    front was still growing freely (not impinged, not outside the field) at that frame.
+    """
+
+    id: int
+    time_s: np.ndarray
+    radius_um: np.ndarray
+    free_fraction: np.ndarray
+    used: np.ndarray  # bool: the sample entered the fit (not ignored, front free enough)
+
+
+@dataclass(frozen=True)
+class PooledGrowthRate:
+    value: float | None
+    ci95_low: float | None
+    ci95_high: float | None
+    n: int
+
+
+@dataclass(frozen=True)
+class Nucleation:
+    count: int
+    mode: str | None
+    density_per_mm2: float | None
+    density_per_mm3: float | None
+    rate_per_mm2_per_min: float | None
+    rate_per_mm3_per_min: float | None
+    induction_time_s: float | None
+    mode_test: str = ""  # the statistical criterion used and its outcome, in words
+
+
+@dataclass(frozen=True)
+class AvramiParameters:
+    """X(t) = 1 - exp(-k t^n), t in minutes from the isothermal start (or induction)."""
+
+    n: float | None
+    k_per_min_n: float | None
+    t_half_min: float | None
+    geometry: str | None = None  # "film-2d" or "bulk-3d" for predictions
+    r2: float | None = None
+
+
+@dataclass(frozen=True)
+class ExperimentResult:
+    """Everything the analysis of one stack found, with the user's edits applied."""
+
+    stack: str
+    frames: int
+    um_per_px: float
+    interval_s: float | None
+    temperature_c: float | None
+    thickness_um: float | None
+    spherulites: tuple[Spherulite, ...]
+    radii: tuple[RadiusSeries, ...]
+    growth_rate: PooledGrowthRate
+    nucleation: Nucleation
+    area_fraction_time_s: np.ndarray
+    area_fraction: np.ndarray
+    avrami_film: AvramiParameters | None
+    avrami_predicted: AvramiParameters | None
+    unapplied_edits: tuple[Edit, ...] = ()
+    warnings: tuple[str, ...] = ()
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def spherulite(self, spherulite_id: int) -> Spherulite:
+        for s in self.spherulites:
+            if s.id == spherulite_id:
+                return s
+        raise KeyError(spherulite_id)

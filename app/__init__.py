@@ -1,0 +1,1 @@
+"""spherokin desktop application (PySide6 + pyqtgraph). All Qt code lives here."""
