@@ -26,12 +26,17 @@ VIDEO_SUFFIXES = {".avi", ".mp4", ".mov", ".mkv", ".m4v"}
 
 
 def _rgb_or_grey(frame: np.ndarray) -> np.ndarray:
-    """Convert an OpenCV BGR(A) frame to RGB, or to grey when all channels agree."""
+    """Convert an OpenCV BGR(A) frame to RGB, or to grey when all channels agree.
+
+    Lossy codecs leave a grey recording's channels a count or two apart, hence the
+    small tolerance.
+    """
     if frame.ndim == 2:
         return frame
     frame = frame[..., :3]
-    if np.array_equal(frame[..., 0], frame[..., 1]) and np.array_equal(frame[..., 1], frame[..., 2]):
-        return np.ascontiguousarray(frame[..., 0])
+    spread = np.ptp(frame.astype(np.int32), axis=2).max()
+    if spread <= 2 * max(1, np.iinfo(frame.dtype).max // 255 if frame.dtype.kind == "u" else 1):
+        return np.ascontiguousarray(frame[..., 1])
     return np.ascontiguousarray(frame[..., ::-1])
 
 
@@ -238,7 +243,7 @@ class VideoSource:
         if not ok or frame is None or self.count < 1:
             raise InputError("video holds no frames", path)
         first = _rgb_or_grey(frame)
-        self._grey = first.ndim == 2
+        self._grey = first.ndim == 2  # decided once, from the first frame
         self.frame_shape, self.dtype = first.shape, first.dtype
         self._next = 1
         fps = self._capture.get(cv2.CAP_PROP_FPS)
@@ -254,7 +259,7 @@ class VideoSource:
         if not ok or frame is None:
             raise InputError(f"frame {index} cannot be read (the video may be truncated)", self.path)
         self._next = index + 1
-        frame = frame[..., 0].copy() if self._grey else np.ascontiguousarray(frame[..., 2::-1])
+        frame = frame[..., 1].copy() if self._grey else np.ascontiguousarray(frame[..., 2::-1])
         return frame
 
     def close(self) -> None:
