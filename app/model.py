@@ -60,9 +60,9 @@ def recipe_of(experiment: Any) -> tuple:
 
 def new_empty_project() -> Any:
     """An empty, unsaved project."""
-    from analysis.project import Project
+    from analysis.project import new_project
 
-    return Project(experiments=())
+    return new_project()
 
 
 class ProjectModel(QObject):

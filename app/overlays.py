@@ -1,0 +1,201 @@
+"""Detection overlays drawn over the stack: fitted fronts, centres and ids.
+
+Every mark is drawn twice, a dark halo under a bright stroke, so it stays readable on
+the dark melt, on red-magenta and on blue/yellow interference colours alike. Fronts
+change with the frame; centres and ids only change when the analysis does, so a frame
+change rebuilds only one painter path per status.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Sequence
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtGui import QColor, QFont, QPainterPath, QPen
+from PySide6.QtWidgets import QGraphicsPathItem, QGraphicsSimpleTextItem
+
+#: Our status palette (bright strokes; a dark halo goes underneath).
+STATUS_COLOURS = {
+    "ok": "#4cf2c2",          # mint
+    "edge": "#ffb347",        # apricot
+    "few-points": "#c9a7ff",  # lilac
+    "nonlinear": "#ff6f91",   # rose
+    "excluded": "#b8c0c8",    # pewter, drawn dashed
+}
+SELECTED_COLOUR = "#ffffff"
+HALO = QColor(10, 12, 20, 190)
+STATUS_WORDS = {
+    "ok": "used in the pooled G",
+    "edge": "nucleated outside the field",
+    "few-points": "too few radius points",
+    "nonlinear": "radius not linear in time",
+    "excluded": "excluded by you",
+}
+
+
+def status_colour(status: str) -> QColor:
+    return QColor(STATUS_COLOURS.get(status, "#e0e0e0"))
+
+
+@dataclass(frozen=True)
+class OverlayMark:
+    """One spherulite as the overlay needs it (pixels on frame 0's grid)."""
+
+    id: int
+    x_px: float
+    y_px: float
+    status: str
+    manual: bool
+    spherulite: Any
+
+
+def marks_from_result(result: Any) -> list[OverlayMark]:
+    if result is None:
+        return []
+    return [
+        OverlayMark(s.id, s.x_px, s.y_px, s.status, s.source == "manual", s)
+        for s in result.spherulites
+    ]
+
+
+def front_radii_px(marks: Sequence[OverlayMark], time_s: float, um_per_px: float) -> np.ndarray:
+    """Radius in pixels of each mark's fitted front at ``time_s`` (NaN: no fit)."""
+    radii = np.full(len(marks), np.nan)
+    for i, mark in enumerate(marks):
+        radius_um = mark.spherulite.radius_um_at(time_s)
+        if radius_um is not None:
+            radii[i] = radius_um / um_per_px
+    return radii
+
+
+def _pen(colour: QColor, width: float, style=Qt.SolidLine) -> QPen:
+    pen = QPen(colour, width)
+    pen.setCosmetic(True)
+    pen.setStyle(style)
+    return pen
+
+
+class _HaloPath:
+    """A path drawn as dark halo + coloured stroke (two graphics items)."""
+
+    def __init__(self, parent, colour: QColor, width: float, style=Qt.SolidLine):
+        self.halo = QGraphicsPathItem(parent)
+        self.halo.setPen(_pen(HALO, width + 2.5))
+        self.stroke = QGraphicsPathItem(parent)
+        self.stroke.setPen(_pen(colour, width, style))
+        for item in (self.halo, self.stroke):
+            item.setZValue(10)
+
+    def set_path(self, path: QPainterPath) -> None:
+        self.halo.setPath(path)
+        self.stroke.setPath(path)
+
+    def set_visible(self, visible: bool) -> None:
+        self.halo.setVisible(visible)
+        self.stroke.setVisible(visible)
+
+
+class OverlayLayer:
+    """Fronts, centres and ids of one experiment over a pyqtgraph ViewBox."""
+
+    def __init__(self, view_box: pg.ViewBox):
+        self._root = pg.ItemGroup()
+        view_box.addItem(self._root, ignoreBounds=True)
+        self._fronts = {s: _HaloPath(self._root, status_colour(s), 1.6,
+                                     Qt.DashLine if s == "excluded" else Qt.SolidLine)
+                        for s in STATUS_COLOURS}
+        self._selected = _HaloPath(self._root, QColor(SELECTED_COLOUR), 2.6)
+        self._centres = {s: _HaloPath(self._root, status_colour(s), 1.4) for s in STATUS_COLOURS}
+        self._labels: list[QGraphicsSimpleTextItem] = []
+        self._marks: list[OverlayMark] = []
+        self._selected_id = -1
+        self._offset = QPointF(0, 0)
+        self.visible = {"fronts": True, "centres": True, "ids": True}
+        self._label_font = QFont()
+        self._label_font.setPixelSize(12)
+        self._label_font.setBold(True)
+
+    @property
+    def marks(self) -> list[OverlayMark]:
+        return self._marks
+
+    def set_marks(self, marks: Sequence[OverlayMark], selected_id: int = -1) -> None:
+        """New analysis: rebuild centres and ids (fronts follow on ``update_fronts``)."""
+        self._marks = list(marks)
+        self._selected_id = selected_id
+        self._build_centres()
+        self._build_labels()
+
+    def set_selected(self, spherulite_id: int) -> None:
+        self._selected_id = spherulite_id
+
+    def set_offset(self, dx_px: float, dy_px: float) -> None:
+        """Shift the whole layer (frame drift relative to frame 0)."""
+        self._root.setPos(dx_px, dy_px)
+
+    def set_visible(self, name: str, visible: bool) -> None:
+        self.visible[name] = visible
+        for path in self._centres.values():
+            path.set_visible(self.visible["centres"])
+        for label in self._labels:
+            label.setVisible(self.visible["ids"])
+        fronts_on = self.visible["fronts"]
+        for path in self._fronts.values():
+            path.set_visible(fronts_on)
+        self._selected.set_visible(fronts_on or self.visible["centres"])
+
+    def update_fronts(self, time_s: float | None, um_per_px: float | None) -> None:
+        """Redraw the fitted fronts at ``time_s`` (seconds from the isothermal start)."""
+        paths = {s: QPainterPath() for s in self._fronts}
+        selected = QPainterPath()
+        if time_s is not None and um_per_px and self._marks:
+            radii = front_radii_px(self._marks, time_s, um_per_px)
+            for mark, radius in zip(self._marks, radii):
+                if not radius > 0:
+                    continue
+                rect = QRectF(mark.x_px - radius, mark.y_px - radius, 2 * radius, 2 * radius)
+                target = selected if mark.id == self._selected_id else paths.get(mark.status)
+                (target if target is not None else paths["ok"]).addEllipse(rect)
+        for status, path in paths.items():
+            self._fronts[status].set_path(path)
+        self._selected.set_path(selected)
+
+    def _build_centres(self) -> None:
+        paths = {s: QPainterPath() for s in self._centres}
+        for mark in self._marks:
+            path = paths.get(mark.status, paths["ok"])
+            x, y, size = mark.x_px, mark.y_px, 4.0
+            if mark.manual:  # a diamond for nuclei the user placed
+                path.moveTo(x, y - size)
+                path.lineTo(x + size, y)
+                path.lineTo(x, y + size)
+                path.lineTo(x - size, y)
+                path.closeSubpath()
+            else:  # a plus for automatic detections
+                path.moveTo(x - size, y)
+                path.lineTo(x + size, y)
+                path.moveTo(x, y - size)
+                path.lineTo(x, y + size)
+        for status, path in paths.items():
+            self._centres[status].set_path(path)
+
+    def _build_labels(self) -> None:
+        scene = self._root.scene()
+        for label in self._labels:
+            label.setParentItem(None)
+            if scene is not None:
+                scene.removeItem(label)
+        self._labels = []
+        for mark in self._marks:
+            label = QGraphicsSimpleTextItem(str(mark.id), self._root)
+            label.setFont(self._label_font)
+            label.setBrush(status_colour(mark.status))
+            label.setPen(_pen(HALO, 0.8))
+            label.setFlag(QGraphicsSimpleTextItem.ItemIgnoresTransformations, True)
+            label.setPos(mark.x_px + 3, mark.y_px + 3)
+            label.setZValue(11)
+            label.setVisible(self.visible["ids"])
+            self._labels.append(label)
