@@ -1,0 +1,293 @@
+"""Growth fits: the arrival-time cone of each territory, linearity, and the pooled rate.
+
+Inside its territory a spherulite growing at a constant radial rate G from a nucleus at
+c born at t0 is reached at t(p) = t0 + |p - c| / G (Johnson & Mehl 1939, Trans. AIME 135,
+416). A robust least-squares fit of this cone over the territory's pixels gives the
+sub-pixel centre, the back-extrapolated nucleation time and G, and it is unaffected by
+extinction wedges or any other part of the front that the images do not show.
+
+Units: positions in px, times in s, the fitted slope as s per px; conversions to
+um/min happen in :func:`growth_rate_um_per_min`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize, stats
+
+
+@dataclass(frozen=True)
+class ConeFit:
+    """Result of one cone fit (all uncertainties already inflated, see :func:`fit_cone`).
+
+    ``slope_s_per_px`` is 1/G. ``n_levels`` is the effective sample size (number of
+    distinct frames among the fitted pixels) used for the confidence intervals.
+    ``ok`` is False when the fit could not be made; ``reason`` then says why.
+    """
+
+    x_px: float
+    y_px: float
+    t0_s: float
+    slope_s_per_px: float
+    se_x_px: float
+    se_y_px: float
+    se_t0_s: float
+    se_slope_s_per_px: float
+    dof: int
+    r2: float
+    n_pixels: int
+    n_levels: int
+    ok: bool = True
+    reason: str = ""
+
+    @property
+    def g_px_per_s(self) -> float:
+        return 1.0 / self.slope_s_per_px
+
+    def g_ci95_px_per_s(self) -> float | None:
+        """95 % half-width of G (t-quantile with ``dof`` degrees of freedom), px/s."""
+        if not self.ok or self.dof < 1 or not np.isfinite(self.se_slope_s_per_px):
+            return None
+        se_g = self.se_slope_s_per_px / self.slope_s_per_px ** 2
+        return float(stats.t.ppf(0.975, self.dof) * se_g)
+
+
+def failed_fit(reason: str, n_pixels: int = 0, n_levels: int = 0) -> ConeFit:
+    nan = float("nan")
+    return ConeFit(nan, nan, nan, nan, nan, nan, nan, nan, 0, nan, n_pixels, n_levels,
+                   ok=False, reason=reason)
+
+
+def growth_rate_um_per_min(g_px_per_s: float | None, um_per_px: float) -> float | None:
+    """Convert px/s to um/min (None passes through)."""
+    return None if g_px_per_s is None else float(g_px_per_s) * um_per_px * 60.0
+
+
+def model_arrival_map(shape: tuple[int, int], centres_xy, t0_s, g_px_per_s) -> np.ndarray:
+    """Johnson-Mehl arrival map min_i(t0_i + |p - c_i| / G_i) on a pixel grid, s.
+
+    The fitted model of a whole field: shows where the fits put every front, including
+    behind extinction wedges. ``+inf`` where there is no nucleus at all.
+    """
+    yy, xx = np.mgrid[: shape[0], : shape[1]]
+    out = np.full(shape, np.inf)
+    g_all = np.broadcast_to(np.asarray(g_px_per_s, dtype=float), (len(t0_s),))
+    for (cx, cy), t0, g in zip(np.asarray(centres_xy, float).reshape(-1, 2), t0_s, g_all):
+        np.minimum(out, t0 + np.hypot(xx - cx, yy - cy) / g, out=out)
+    return out
+
+
+def dequantised(arrival_s: np.ndarray, times_s: np.ndarray) -> np.ndarray:
+    """Arrival times moved from frame times to the middle of their frame interval.
+
+    A pixel first seen crystalline in frame f was reached some time in (t_{f-1}, t_f]; when
+    the map holds exactly frame times (at least 90 % of its finite values), the midpoint
+    is the unbiased estimate and removes a bias of half an interval from every t0. Maps
+    interpolated between frames pass unchanged.
+    """
+    arrival = np.asarray(arrival_s, dtype=np.float64)
+    times = np.asarray(times_s, dtype=np.float64)
+    finite = np.isfinite(arrival)
+    values = arrival[finite]
+    if values.size == 0 or times.size < 2:
+        return arrival.copy()
+    idx = np.clip(np.searchsorted(times, values), 0, times.size - 1)
+    tol = 1e-6 * max(1.0, float(np.abs(times).max()))
+    on_frame = np.abs(times[idx] - values) <= tol
+    if on_frame.mean() < 0.9:
+        return arrival.copy()
+    previous = np.where(idx > 0, times[np.maximum(idx - 1, 0)], times[0])
+    shifted = np.where(on_frame & (idx > 0), 0.5 * (previous + times[idx]), values)
+    out = arrival.copy()
+    out[finite] = shifted
+    return out
+
+
+def _residuals(p, x, y, t):
+    return p[2] + p[3] * np.hypot(x - p[0], y - p[1]) - t
+
+
+def _jacobian(p, x, y, t):
+    dx, dy = x - p[0], y - p[1]
+    r = np.maximum(np.hypot(dx, dy), 1e-9)
+    return np.column_stack([-p[3] * dx / r, -p[3] * dy / r, np.ones_like(r), r])
+
+
+def _linear_start(x, y, t, cx, cy) -> tuple[float, float]:
+    r = np.hypot(x - cx, y - cy)
+    if np.ptp(r) <= 0:
+        return float(np.min(t)), 1.0
+    slope, intercept = np.polyfit(r, t, 1)
+    return float(intercept), float(max(slope, 1e-6))
+
+
+def _covariance(jac: np.ndarray, resid: np.ndarray, n_params: int) -> np.ndarray:
+    n = resid.size
+    sigma2 = float(resid @ resid) / max(n - n_params, 1)
+    try:
+        return np.linalg.inv(jac.T @ jac) * sigma2
+    except np.linalg.LinAlgError:
+        return np.full((n_params, n_params), np.nan)
+
+
+def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool = False,
+             field_shape: tuple[int, int] | None = None) -> ConeFit:
+    """Robust least-squares fit of t = t0 + s |p - c| over one territory's pixels.
+
+    Parameters
+    ----------
+    x, y, t : arrays
+        Pixel columns, rows (px) and arrival times (s).
+    levels : array of int
+        Frame index of each pixel; the number of distinct values is the effective sample
+        size.
+    start_xy : (float, float)
+        Starting centre (the marker), or the imposed centre when ``fixed_centre``.
+    f_scale_s : float
+        Residual scale of the soft-L1 loss, s (about half a frame interval): residuals
+        beyond it (noise, a neighbour's pixels at the boundary) are down-weighted.
+    fixed_centre : bool
+        Fit only t0 and s with the centre held at ``start_xy`` (user-moved centre).
+    field_shape : (H, W), optional
+        Bounds the centre to within one field size of the field.
+
+    Notes
+    -----
+    Standard errors come from the Jacobian scaled by the residual variance. Neighbouring
+    pixels share a frame and so share that frame's segmentation error (threshold,
+    flicker): they are not independent. The errors are therefore inflated by
+    sqrt(n_pixels / n_levels), i.e. each frame counts as one observation, and the
+    t-quantile uses n_levels - n_params degrees of freedom. Coverage of the resulting
+    95 % interval is checked in tests/benchmarks/accuracy.py.
+    """
+    x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
+    n_levels = int(np.unique(levels).size)
+    n_params = 2 if fixed_centre else 4
+    if t.size < 3 * n_params or n_levels < n_params + 1:
+        return failed_fit(f"{n_levels} frames of data are too few for a cone fit", t.size, n_levels)
+    cx, cy = start_xy
+    t0, s = _linear_start(x, y, t, cx, cy)
+    if fixed_centre:
+        fit = optimize.least_squares(
+            lambda q: _residuals((cx, cy, q[0], q[1]), x, y, t), [t0, s],
+            jac=lambda q: _jacobian((cx, cy, q[0], q[1]), x, y, t)[:, 2:],
+            loss="soft_l1", f_scale=f_scale_s)
+        p = np.array([cx, cy, *fit.x])
+        jac = _jacobian(p, x, y, t)[:, 2:]
+    else:
+        lo, hi = _centre_bounds(field_shape)
+        x0 = np.array([np.clip(cx, lo[0], hi[0]), np.clip(cy, lo[1], hi[1]), t0, s])
+        fit = optimize.least_squares(_residuals, x0, jac=_jacobian, args=(x, y, t),
+                                     loss="soft_l1", f_scale=f_scale_s,
+                                     bounds=(lo + [-np.inf, 1e-9], hi + [np.inf, np.inf]))
+        p = fit.x
+        jac = _jacobian(p, x, y, t)
+    if p[3] <= 0 or not np.all(np.isfinite(p)):
+        return failed_fit("cone fit did not converge to a growing front", t.size, n_levels)
+    return _summarise(p, jac, _residuals(p, x, y, t), t, n_levels, n_params, fixed_centre)
+
+
+def _centre_bounds(field_shape):
+    if field_shape is None:
+        return [-np.inf, -np.inf], [np.inf, np.inf]
+    h, w = field_shape
+    return [-float(w), -float(h)], [2.0 * w, 2.0 * h]
+
+
+def _summarise(p, jac, resid, t, n_levels, n_params, fixed_centre) -> ConeFit:
+    cov = _covariance(jac, resid, n_params)
+    inflate = math.sqrt(max(t.size / n_levels, 1.0))
+    se = np.sqrt(np.clip(np.diag(cov), 0, None)) * inflate
+    if fixed_centre:
+        se = np.concatenate([[0.0, 0.0], se])
+    ss_tot = float(np.sum((t - t.mean()) ** 2))
+    r2 = 1.0 - float(resid @ resid) / ss_tot if ss_tot > 0 else float("nan")
+    return ConeFit(float(p[0]), float(p[1]), float(p[2]), float(p[3]), float(se[0]),
+                   float(se[1]), float(se[2]), float(se[3]), n_levels - n_params, r2,
+                   int(t.size), n_levels)
+
+
+@dataclass(frozen=True)
+class LinearityTest:
+    """Outcome of the test for non-linear growth on one radius series."""
+
+    nonlinear: bool
+    p_value: float | None
+    slope_change: float | None
+    description: str
+
+
+def linearity_test(time_s, radius_um, *, alpha: float = 0.01,
+                   min_slope_change: float = 0.10) -> LinearityTest:
+    """Is r(t) curved? Quadratic against straight line by an extra-sum-of-squares F-test.
+
+    The straight line r = a + b t is nested in r = a + b t + c t^2. The F statistic
+    F = (SS_lin - SS_quad) / (SS_quad / (m - 3)) with (1, m - 3) degrees of freedom tests
+    c = 0 (Draper & Smith 1998, Applied Regression Analysis, 3rd ed., Wiley, ch. 6).
+    Growth is called non-linear when p < ``alpha`` AND the fitted slope changes by more
+    than ``min_slope_change`` (relative) across the fitted time span, so that a
+    statistically detectable but physically negligible curvature of a long, precise series
+    does not reject a good spherulite. Diffusion-limited growth (r proportional to the
+    square root of time) shows up as a falling slope.
+    """
+    t = np.asarray(time_s, dtype=float)
+    r = np.asarray(radius_um, dtype=float)
+    m = t.size
+    if m < 6:
+        return LinearityTest(False, None, None, f"not tested: {m} radii (need 6)")
+    tc = t - t.mean()
+    lin = np.polyfit(tc, r, 1)
+    quad = np.polyfit(tc, r, 2)
+    ss_lin = float(np.sum((r - np.polyval(lin, tc)) ** 2))
+    ss_quad = float(np.sum((r - np.polyval(quad, tc)) ** 2))
+    if ss_quad <= 0 or lin[0] <= 0:
+        return LinearityTest(False, None, None, "not tested: degenerate radius series")
+    f_stat = (ss_lin - ss_quad) / (ss_quad / (m - 3))
+    p = float(stats.f.sf(f_stat, 1, m - 3))
+    change = float(abs(2.0 * quad[0] * np.ptp(t)) / lin[0])
+    nonlinear = p < alpha and change > min_slope_change
+    text = (f"quadratic vs linear F-test p = {p:.3g}; slope changes by {change:.0%} over the "
+            f"series ({'non-linear' if nonlinear else 'linear'} at p < {alpha} and > "
+            f"{min_slope_change:.0%})")
+    return LinearityTest(nonlinear, p, change, text)
+
+
+@dataclass(frozen=True)
+class PooledRate:
+    value: float | None
+    ci95_half_width: float | None
+    n: int
+    tau2: float | None
+    description: str
+
+
+def pooled_rate(values, standard_errors) -> PooledRate:
+    """Inverse-variance weighted mean of per-spherulite rates, random effects if needed.
+
+    DerSimonian & Laird 1986 (Controlled Clinical Trials 7, 177): the between-spherulite
+    variance tau^2 = max(0, (Q - (k - 1)) / (S1 - S2 / S1)), with Q the weighted sum of
+    squared deviations and S1, S2 the sums of the weights and squared weights; weights
+    become 1 / (se_i^2 + tau^2). The 95 % interval uses the t-quantile with k - 1 degrees
+    of freedom (wider than the normal one for few spherulites).
+    """
+    g = np.asarray(values, dtype=float)
+    se = np.asarray(standard_errors, dtype=float)
+    keep = np.isfinite(g) & np.isfinite(se) & (se > 0)
+    g, se = g[keep], se[keep]
+    k = g.size
+    if k == 0:
+        return PooledRate(None, None, 0, None, "no spherulite with a usable growth rate")
+    w = 1.0 / se ** 2
+    mean = float(np.sum(w * g) / np.sum(w))
+    if k == 1:
+        return PooledRate(mean, float(1.96 * se[0]), 1, None, "single spherulite")
+    q = float(np.sum(w * (g - mean) ** 2))
+    tau2 = max(0.0, (q - (k - 1)) / (np.sum(w) - np.sum(w ** 2) / np.sum(w)))
+    w_star = 1.0 / (se ** 2 + tau2)
+    mean = float(np.sum(w_star * g) / np.sum(w_star))
+    half = float(stats.t.ppf(0.975, k - 1) / math.sqrt(np.sum(w_star)))
+    kind = "random-effects (DerSimonian-Laird)" if tau2 > 0 else "fixed-effect"
+    return PooledRate(mean, half, k, tau2, f"{kind} inverse-variance mean of {k}, Q = {q:.3g}")

@@ -1,0 +1,150 @@
+"""Nuclei and territories from an arrival-time map.
+
+Isothermal crystallization is irreversible, so each pixel has one arrival time: the time
+the growth front reached it. Inside one spherulite the arrival time rises away from the
+nucleus as a cone, so nuclei are the *regional minima* of the arrival map, and the basin
+of each minimum under a watershed flooding is the spherulite's territory: the
+Johnson-Mehl tessellation of the field (Johnson & Mehl 1939, Trans. AIME 135, 416).
+
+Conventions: arrays in (row, column) order; pixel centres at integers; marker positions
+are returned as (x_px, y_px) = (column, row); times in seconds on the recording clock.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+from scipy import ndimage as ndi
+from skimage.morphology import h_minima
+from skimage.segmentation import watershed
+
+
+@dataclass(frozen=True)
+class Markers:
+    """Seed regions of the watershed, one per detected nucleus.
+
+    Attributes
+    ----------
+    labels : np.ndarray
+        int32 (H, W): marker k occupies the pixels equal to k (1-based); 0 elsewhere.
+    xy_px : np.ndarray
+        float (n, 2): centroid (x, y) of each marker region, px.
+    min_time_s : np.ndarray
+        float (n,): smoothed arrival time at the marker, s.
+    on_border : np.ndarray
+        bool (n,): the marker touches the field border (candidate edge spherulite).
+    """
+
+    labels: np.ndarray
+    xy_px: np.ndarray
+    min_time_s: np.ndarray
+    on_border: np.ndarray
+
+
+def frame_interval_s(times_s: np.ndarray) -> float:
+    """Median spacing of the frame times, s (1.0 when there is a single frame)."""
+    steps = np.diff(np.asarray(times_s, dtype=float))
+    steps = steps[np.isfinite(steps) & (steps > 0)]
+    return float(np.median(steps)) if steps.size else 1.0
+
+
+def working_map(arrival_s: np.ndarray, times_s: np.ndarray, *, smooth_px: float = 1.0) -> np.ndarray:
+    """Finite, lightly smoothed copy of the arrival map for minimum detection and flooding.
+
+    Unusable pixels (NaN: dust, extinction wedges left open) take the value of the nearest
+    usable pixel, so a wedge or a speck of dust neither creates nor hides a minimum.
+    Never-crystallised pixels (+inf) become a plateau above the last frame. A 3x3 median
+    removes isolated outliers before a Gaussian of ``smooth_px`` (0 = none).
+    """
+    arrival = np.asarray(arrival_s, dtype=np.float32)
+    work = arrival.copy()
+    never = np.isposinf(work)
+    work[never] = float(np.max(times_s)) + 2.0 * frame_interval_s(times_s)
+    unusable = ~np.isfinite(work)
+    if unusable.all():
+        return np.zeros_like(work)
+    if unusable.any():
+        _, (iy, ix) = ndi.distance_transform_edt(unusable, return_indices=True)
+        work = work[iy, ix]
+    work = cv2.medianBlur(np.ascontiguousarray(work), 3)
+    if smooth_px > 0:
+        work = cv2.GaussianBlur(work, (0, 0), smooth_px)
+    return work
+
+
+def crystallised_mask(arrival_s: np.ndarray) -> np.ndarray:
+    """Pixels that crystallised during the record or were unusable (everything but +inf)."""
+    return ~np.isposinf(np.asarray(arrival_s))
+
+
+def find_markers(work: np.ndarray, arrival_s: np.ndarray, times_s: np.ndarray, *,
+                 depth_frames: float = 1.0, min_territory_px: int = 20) -> Markers:
+    """Regional minima of the working map that are deep and large enough to be nuclei.
+
+    A minimum must be at least ``depth_frames`` frame intervals deeper than the saddle
+    to its neighbours (h-minima transform), so quantisation to frame times and pixel
+    noise do not split a spherulite; its territory must hold at least
+    ``min_territory_px`` pixels, else it is a noise pit and is dropped (the flooding is
+    then redone without it). A late nucleus in a melt pocket qualifies once it has grown
+    for about one frame interval before meeting its neighbours.
+    """
+    h = max(depth_frames, 0.05) * frame_interval_s(times_s)
+    valid = crystallised_mask(arrival_s)
+    seeds = h_minima(work, h).astype(bool) & valid
+    labels, _ = ndi.label(seeds, structure=np.ones((3, 3), bool))
+    for _ in range(3):
+        territories = watershed(work, labels, mask=valid)
+        area = np.bincount(territories.ravel(), minlength=labels.max() + 1)
+        small = np.flatnonzero(area[1:] < min_territory_px) + 1
+        if small.size == 0:
+            break
+        labels[np.isin(labels, small)] = 0
+        labels, _ = ndi.label(labels > 0, structure=np.ones((3, 3), bool))
+    return markers_from_labels(labels, work)
+
+
+def markers_from_labels(labels: np.ndarray, work: np.ndarray) -> Markers:
+    """Describe marker regions (centroids, depth, border contact) of a label image."""
+    labels = labels.astype(np.int32)
+    n = int(labels.max())
+    index = np.arange(1, n + 1)
+    if n == 0:
+        empty = np.zeros((0,))
+        return Markers(labels, np.zeros((0, 2)), empty, np.zeros(0, bool))
+    cy_cx = np.array(ndi.center_of_mass(np.ones_like(labels), labels, index)).reshape(n, 2)
+    min_t = np.asarray(ndi.minimum(work, labels, index), dtype=float).reshape(n)
+    border = np.zeros(labels.shape, bool)
+    border[0, :] = border[-1, :] = border[:, 0] = border[:, -1] = True
+    touches = np.zeros(n + 1, bool)
+    touches[np.unique(labels[border])] = True
+    return Markers(labels, cy_cx[:, ::-1].copy(), min_t, touches[1:])
+
+
+def territories(work: np.ndarray, arrival_s: np.ndarray, marker_labels: np.ndarray) -> np.ndarray:
+    """Watershed of the working map from the markers: int32 territory labels, 0 = none.
+
+    Never-crystallised pixels stay 0, so a melt pocket never separates two territories.
+    """
+    valid = crystallised_mask(arrival_s)
+    return watershed(work, marker_labels, mask=valid).astype(np.int32)
+
+
+def snap_to_minimum(work: np.ndarray, x_px: float, y_px: float, radius_px: float) -> tuple[int, int]:
+    """(row, col) of the lowest working-map pixel within ``radius_px`` of a click.
+
+    A nucleus added by hand is seeded at the local minimum near the click, because a seed
+    on a slope of the cone would flood only the uphill side.
+    """
+    h, w = work.shape
+    r = max(int(round(radius_px)), 0)
+    row, col = int(round(y_px)), int(round(x_px))
+    row, col = min(max(row, 0), h - 1), min(max(col, 0), w - 1)
+    y0, y1, x0, x1 = max(row - r, 0), min(row + r + 1, h), max(col - r, 0), min(col + r + 1, w)
+    window = work[y0:y1, x0:x1]
+    yy, xx = np.mgrid[y0:y1, x0:x1]
+    inside = (yy - y_px) ** 2 + (xx - x_px) ** 2 <= r * r + 0.5
+    masked = np.where(inside, window, np.inf)
+    k = int(np.argmin(masked))
+    return int(yy.ravel()[k]), int(xx.ravel()[k])

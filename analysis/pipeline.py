@@ -1,0 +1,681 @@
+"""From a time-lapse stack to an :class:`ExperimentResult`, and the user's edits replayed.
+
+Stages: one streaming pass over the frames builds the arrival-time map
+(:mod:`analysis.arrival`); nuclei are its regional minima and territories the watershed
+basins (:mod:`analysis.nuclei`); a cone fit per territory gives centre, nucleation time
+and G (:mod:`analysis.growth`); radii along free directions are measured from the map
+(:mod:`analysis.fronts`); nucleation statistics and X(t) follow
+(:mod:`analysis.nucleation`). Edits change only markers, statuses and frame masks, so
+:func:`apply_edits` re-partitions and refits from cached state without touching frames.
+
+Edit semantics (replayed in list order; a target is the detection whose centre is
+nearest to the edit's point within ``AnalysisSettings.edit_tolerance_px``):
+``add_nucleus`` seeds a new territory at the arrival-map minimum within 3 px of the
+click (source ``manual``); ``delete_detection`` removes the detection and leaves its
+territory *unassigned* (no neighbour absorbs it: a deleted detection is usually dust or
+a scratch whose pixels would spoil the neighbours' cone fits; its area still counts as
+crystallised in X(t)); ``merge_detections`` joins the second territory to the first;
+``move_centre`` holds the centre at the new point and refits t0 and G; ``exclude`` and
+``include`` set the status (``include`` also forces an automatic reject to ``ok`` when
+it has a growth rate); ``ignore_frames`` removes the frames from one spherulite's data or,
+without a position, from the whole experiment (fits, radii and X(t)).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+from dataclasses import dataclass, field
+from typing import Any, Generator, Sequence
+
+import numpy as np
+
+from . import export, growth, nuclei
+from .edits import Edit, nearest_index
+from .errors import InputError
+from .fronts import blocked_distance, front_radii
+from .nucleation import MeltExposure, area_fraction, field_area_mm2, nucleation_statistics
+from .progress import Progress, run_to_completion, scaled
+from .results import (AvramiParameters, ExperimentResult, PooledGrowthRate, RadiusSeries,
+                      Spherulite)
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Tunable analysis settings, stored with the experiment (``to_dict``/``from_dict``).
+
+    Attributes
+    ----------
+    arrival : dict
+        Settings of the arrival-map pass (``analysis.arrival.ArrivalSettings`` fields).
+    sensitivity_frames : float
+        Minimum depth of an arrival-map minimum below its saddle, in frame intervals, for
+        it to count as a nucleus. Lower finds later/closer nuclei but risks splits.
+    min_territory_px : int
+        Smallest territory kept, px.
+    smooth_px : float
+        Gaussian smoothing of the arrival map before detection, px.
+    boundary_band_px : int
+        Pixels this close to another territory are left out of the cone fit.
+    max_fit_pixels : int
+        Territories with more usable pixels are subsampled (evenly) for the fit.
+    n_sectors : int
+        Angular sectors for the radius measurement.
+    min_free_fraction : float
+        A radius enters the linearity test when at least this fraction of directions is free.
+    min_points : int
+        Fewer frames than this of free growth -> status ``few-points``.
+    nonlinear_alpha, nonlinear_min_change : float
+        Significance and minimum relative slope change of the non-linear growth test.
+    edit_tolerance_px : float
+        How far from a detection's centre an edit may point and still find it.
+    """
+
+    arrival: dict = field(default_factory=dict)
+    sensitivity_frames: float = 1.0
+    min_territory_px: int = 20
+    smooth_px: float = 1.0
+    boundary_band_px: int = 2
+    max_fit_pixels: int = 4000
+    n_sectors: int = 36
+    min_free_fraction: float = 0.25
+    min_points: int = 4
+    nonlinear_alpha: float = 0.01
+    nonlinear_min_change: float = 0.10
+    edit_tolerance_px: float = 15.0
+
+    def to_dict(self) -> dict[str, Any]:
+        return dataclasses.asdict(self)
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any] | None, *, path: str | None = None) -> "AnalysisSettings":
+        """Settings from a stored dict; unknown keys are ignored, bad values raise InputError."""
+        d = dict(d or {})
+        known = {f.name: f for f in dataclasses.fields(cls)}
+        values = {k: v for k, v in d.items() if k in known}
+        try:
+            settings = cls(**values)
+        except TypeError as exc:
+            raise InputError(f"bad analysis settings: {exc}", path) from None
+        settings.validate(path)
+        return settings
+
+    def validate(self, path: str | None = None) -> None:
+        checks = [("sensitivity_frames", self.sensitivity_frames > 0),
+                  ("min_territory_px", self.min_territory_px >= 1),
+                  ("smooth_px", self.smooth_px >= 0), ("boundary_band_px", self.boundary_band_px >= 0),
+                  ("max_fit_pixels", self.max_fit_pixels >= 50), ("n_sectors", self.n_sectors >= 8),
+                  ("min_free_fraction", 0 <= self.min_free_fraction <= 1),
+                  ("min_points", self.min_points >= 2), ("nonlinear_alpha", 0 < self.nonlinear_alpha < 1),
+                  ("edit_tolerance_px", self.edit_tolerance_px > 0),
+                  ("arrival", isinstance(self.arrival, dict))]
+        for name, ok in checks:
+            try:
+                good = bool(ok)
+            except (TypeError, ValueError):
+                good = False
+            if not good:
+                raise InputError(f"analysis setting {name} = {getattr(self, name)!r} is out of range", path)
+
+
+@dataclass(frozen=True)
+class _Context:
+    """Everything about the experiment that the replay needs, computed once."""
+
+    stack: str
+    frames: int
+    shape: tuple[int, int]
+    times_s: np.ndarray
+    interval_s: float
+    um_per_px: float
+    isothermal_start_s: float
+    temperature_c: float | None
+    thickness_um: float | None
+    geometry: str
+    work: np.ndarray
+    fit_arrival: np.ndarray
+    frame_index: np.ndarray
+    at_start: np.ndarray
+    arrival_s: np.ndarray
+    markers: nuclei.Markers
+    base_territories: np.ndarray
+    auto_lookup_xy: np.ndarray
+    cache: dict = field(default_factory=dict, compare=False, repr=False)
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """An analysed stack: the arrival map, the result with edits applied, cached state."""
+
+    arrival: Any
+    result: ExperimentResult
+    settings: AnalysisSettings = AnalysisSettings()
+    edits: tuple = ()
+    _context: _Context | None = field(default=None, repr=False, compare=False)
+
+
+# ---------------------------------------------------------------- detections and replay
+@dataclass
+class _Detection:
+    id: int
+    seeds: list  # flat pixel indices of the marker(s)
+    lookup_xy: tuple[float, float]
+    source: str = "auto"
+    fixed_xy: tuple[float, float] | None = None
+    excluded: bool | None = None
+    ignored: list = field(default_factory=list)
+    deleted: bool = False
+    merged: bool = False
+
+
+def _auto_detections(ctx: _Context) -> list[_Detection]:
+    flat = ctx.markers.labels.ravel()
+    order = np.argsort(flat, kind="stable")
+    bounds = np.searchsorted(flat[order], np.arange(1, ctx.markers.xy_px.shape[0] + 2))
+    return [_Detection(k + 1, [order[bounds[k]:bounds[k + 1]]], tuple(ctx.auto_lookup_xy[k]))
+            for k in range(ctx.markers.xy_px.shape[0])]
+
+
+def _find(dets, x, y, tol) -> _Detection | None:
+    live = [d for d in dets if not (d.deleted or d.merged)]
+    k = nearest_index(x, y, [d.lookup_xy for d in live], tol)
+    return None if k is None else live[k]
+
+
+def _replay(ctx, edits, settings) -> tuple[list[_Detection], list, list]:
+    dets = _auto_detections(ctx)
+    global_ignored: list[tuple[int, int]] = []
+    unapplied: list[Edit] = []
+    for edit in edits:
+        if not _apply_one(ctx, dets, global_ignored, edit, settings.edit_tolerance_px):
+            unapplied.append(edit)
+    return dets, global_ignored, unapplied
+
+
+def _frame_range(ctx, edit) -> tuple[int, int] | None:
+    first, last = int(edit.first_frame), int(edit.last_frame)
+    if first > last or last < 0 or first >= ctx.frames:
+        return None
+    return max(first, 0), min(last, ctx.frames - 1)
+
+
+def _apply_one(ctx, dets, global_ignored, edit, tol) -> bool:
+    kind = edit.kind
+    if kind == "add_nucleus":
+        return _add_nucleus(ctx, dets, edit.x_px, edit.y_px)
+    if kind == "ignore_frames":
+        span = _frame_range(ctx, edit)
+        if span is None:
+            return False
+        if edit.x_px is None or edit.y_px is None:
+            global_ignored.append(span)
+            return True
+        target = _find(dets, edit.x_px, edit.y_px, tol)
+        return target is not None and (target.ignored.append(span) or True)
+    target = _find(dets, edit.x_px, edit.y_px, tol)
+    if target is None:
+        return False
+    if kind == "delete_detection":
+        target.deleted = True
+    elif kind == "merge_detections":
+        other = _find(dets, edit.other_x_px, edit.other_y_px, tol)
+        if other is None or other is target:
+            return False
+        target.seeds.extend(other.seeds)
+        other.merged = True
+    elif kind == "move_centre":
+        h, w = ctx.shape
+        if not (-0.5 <= edit.new_x_px <= w - 0.5 and -0.5 <= edit.new_y_px <= h - 0.5):
+            return False
+        target.fixed_xy = (float(edit.new_x_px), float(edit.new_y_px))
+        target.lookup_xy = target.fixed_xy
+    elif kind in ("exclude", "include"):
+        target.excluded = kind == "exclude"
+    else:
+        return False
+    return True
+
+
+def _add_nucleus(ctx, dets, x, y) -> bool:
+    h, w = ctx.shape
+    if not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5):
+        return False
+    row, col = nuclei.snap_to_minimum(ctx.work, x, y, 3.0)
+    taken = set()
+    for d in dets:
+        if not d.deleted:
+            for s in d.seeds:
+                taken.update(s.tolist())
+    candidates = [row * w + col, int(round(y)) * w + int(round(x))]
+    free = [c for c in candidates if c not in taken and np.isfinite(ctx.arrival_s.flat[c])]
+    if not free:
+        return False
+    new_id = max((d.id for d in dets), default=0) + 1
+    dets.append(_Detection(new_id, [np.array([free[0]])], (float(x), float(y)), source="manual"))
+    return True
+
+
+def _territories(ctx, dets) -> np.ndarray:
+    """Watershed from the current seeds (cached); deleted territories become 0."""
+    seeds = np.zeros(ctx.shape, np.int32)
+    live_or_deleted = [d for d in dets if not d.merged]
+    key = hashlib.sha1()
+    for d in live_or_deleted:
+        for s in d.seeds:
+            seeds.flat[s] = d.id
+            key.update(np.asarray(s, np.int64).tobytes())
+        key.update(b"|%d" % d.id)
+    digest = ("territories", key.hexdigest())
+    labels = ctx.cache.get(digest)
+    if labels is None:
+        auto_only = all(d.source == "auto" for d in live_or_deleted) and len(live_or_deleted) == \
+            ctx.markers.xy_px.shape[0] and all(len(d.seeds) == 1 for d in live_or_deleted)
+        labels = ctx.base_territories if auto_only else nuclei.territories(ctx.work, ctx.arrival_s, seeds)
+        ctx.cache.clear() if len(ctx.cache) > 2000 else None
+        ctx.cache[digest] = labels
+    deleted = [d.id for d in dets if d.deleted]
+    if deleted:
+        labels = np.where(np.isin(labels, deleted), 0, labels)
+    return labels
+
+
+def _boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
+    """Pixels within ``band`` px of another territory (melt and unassigned are neutral)."""
+    import cv2
+
+    if band <= 0:
+        return np.zeros(labels.shape, bool)
+    kernel = np.ones((2 * band + 1, 2 * band + 1), np.uint8)
+    lab = labels.astype(np.float32)
+    hi = cv2.dilate(lab, kernel)
+    lo = cv2.erode(np.where(labels > 0, lab, np.float32(3e7)), kernel)
+    return (labels > 0) & ((hi != lab) | (lo != lab))
+
+
+def _pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
+    flat = labels.ravel()
+    order = np.argsort(flat, kind="stable")
+    ids, starts = np.unique(flat[order], return_index=True)
+    ends = np.append(starts[1:], flat.size)
+    return {int(i): order[a:b] for i, a, b in zip(ids, starts, ends) if i > 0}
+
+
+# ---------------------------------------------------------------- per-spherulite fits
+def _ignored_mask(frames: np.ndarray, spans) -> np.ndarray:
+    bad = np.zeros(frames.shape, bool)
+    for first, last in spans:
+        bad |= (frames >= first) & (frames <= last)
+    return bad
+
+
+def _fit_pixels(ctx, pix, band, spans, settings):
+    frames = ctx.frame_index.flat[pix]
+    t = ctx.fit_arrival.flat[pix]
+    usable = np.isfinite(t) & ~ctx.at_start.flat[pix] & (frames >= 0) & ~_ignored_mask(frames, spans)
+    inner = usable & ~band.flat[pix]
+    chosen = pix[inner] if np.count_nonzero(inner) >= 30 else pix[usable]
+    step = max(1, int(np.ceil(chosen.size / settings.max_fit_pixels)))
+    return chosen[::step]
+
+
+def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
+    chosen = _fit_pixels(ctx, pix, band, spans, settings)
+    key = ("cone", hashlib.sha1(chosen.tobytes()).hexdigest(), det.fixed_xy)
+    if key in ctx.cache:
+        return ctx.cache[key]
+    y, x = np.divmod(chosen, ctx.shape[1])
+    start = det.fixed_xy
+    if start is None:
+        seeds = np.concatenate(det.seeds)
+        sy, sx = np.divmod(seeds, ctx.shape[1])
+        start = (float(sx.mean()), float(sy.mean()))
+    fit = growth.fit_cone(x, y, ctx.fit_arrival.flat[chosen], ctx.frame_index.flat[chosen],
+                          start_xy=start, f_scale_s=0.5 * ctx.interval_s,
+                          fixed_centre=det.fixed_xy is not None, field_shape=ctx.shape)
+    ctx.cache[key] = fit
+    return fit
+
+
+def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
+    frames = ctx.frame_index.flat[pix]
+    keep = frames >= 0
+    y, x = np.divmod(pix[keep], ctx.shape[1])
+    reach = float(np.max(np.hypot(x - cx, y - cy))) + 3.0 if x.size else 3.0
+    blocked = blocked_distance(labels, det_id, cx, cy, n_sectors=settings.n_sectors, reach_px=reach)
+    samples = front_radii(x, y, frames[keep], blocked, cx, cy, ctx.frames)
+    ok = np.isfinite(samples.radius_px)
+    frame_ids = np.flatnonzero(ok)
+    used = (samples.free_fraction[ok] >= settings.min_free_fraction) & \
+        (samples.radius_px[ok] >= 2.0) & ~_ignored_mask(frame_ids, spans)
+    return RadiusSeries(det_id, ctx.times_s[ok] - ctx.isothermal_start_s,
+                        samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
+
+
+def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
+    """Status and the linearity test's description."""
+    if fit.ok:
+        h, w = ctx.shape
+        outside = not (-0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5)
+    lin = growth.linearity_test(series.time_s[series.used], series.radius_um[series.used],
+                                alpha=settings.nonlinear_alpha,
+                                min_slope_change=settings.nonlinear_min_change)
+    if det.excluded:
+        return "excluded", lin.description
+    if not fit.ok:
+        return "few-points", fit.reason
+    if det.excluded is False:
+        return "ok", lin.description
+    if outside and det.fixed_xy is None:
+        return "edge", lin.description
+    if np.count_nonzero(series.used) < settings.min_points:
+        return "few-points", lin.description
+    return ("nonlinear" if lin.nonlinear else "ok"), lin.description
+
+
+def _spherulite(ctx, det, pix, labels, band, global_spans, settings):
+    spans = global_spans + det.ignored
+    fit = _cone(ctx, det, pix, band, spans, settings)
+    if fit.ok:
+        cx, cy = fit.x_px, fit.y_px
+    else:
+        seeds = np.concatenate(det.seeds)
+        sy, sx = np.divmod(seeds, ctx.shape[1])
+        cx, cy = det.fixed_xy or (float(sx.mean()), float(sy.mean()))
+    series = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
+    status, _ = _status(ctx, det, fit, series, settings)
+    frames = ctx.frame_index.flat[pix]
+    seen = frames[frames >= 0]
+    g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None
+    ci = fit.g_ci95_px_per_s()
+    sph = Spherulite(
+        id=det.id, x_px=float(cx), y_px=float(cy),
+        nucleation_time_s=float(fit.t0_s - ctx.isothermal_start_s) if fit.ok else None,
+        first_seen_s=float(ctx.times_s[seen.min()] - ctx.isothermal_start_s) if seen.size else None,
+        growth_rate_um_per_min=g,
+        growth_rate_ci95_um_per_min=growth.growth_rate_um_per_min(ci, ctx.um_per_px),
+        r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
+        n_points=int(fit.n_levels), status=status, source=det.source)
+    return sph, series, fit
+
+
+# ---------------------------------------------------------------- whole result
+def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
+    """Territories redrawn as the Johnson-Mehl cells of the fitted cones.
+
+    A watershed of the arrival map floods plateaus in arrival order, so where two
+    neighbours started at different times its boundary can slide by several pixels
+    along their common border. Each pixel of a well-fitted territory is given to the
+    fitted cone (of its own or a nearby territory) that reaches it first, which is the
+    Johnson-Mehl rule itself. Unassigned pixels and failed fits keep their labels.
+    """
+    h, w = ctx.shape
+    best = np.full(ctx.shape, np.inf)
+    owner = labels.copy()
+    margin = 12
+    for det_id, fit in fits.items():
+        pix = groups.get(det_id)
+        if pix is None or pix.size == 0 or not fit.ok:
+            continue
+        y, x = np.divmod(pix, w)
+        y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
+        x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
+        yy, xx = np.ogrid[y0:y1, x0:x1]
+        cone = fit.t0_s + fit.slope_s_per_px * np.hypot(xx - fit.x_px, yy - fit.y_px)
+        view, own = best[y0:y1, x0:x1], owner[y0:y1, x0:x1]
+        better = cone < view
+        view[better] = cone[better]
+        own[better] = det_id
+    movable = np.isin(labels, [k for k, f in fits.items() if f.ok]) & np.isfinite(best)
+    return np.where(movable, owner, labels).astype(np.int32)
+
+
+def _partition(ctx, dets, global_spans, settings):
+    """Watershed territories, first cone fits, then the cone-based partition."""
+    labels = _territories(ctx, dets)
+    band = _boundary_band(labels, settings.boundary_band_px)
+    groups = _pixel_groups(labels)
+    empty = np.zeros(0, np.int64)
+    live = [d for d in dets if not (d.deleted or d.merged)]
+    fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings)
+            for d in live}
+    return _cone_partition(ctx, labels, groups, fits)
+
+
+def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
+    labels = _partition(ctx, dets, global_spans, settings)
+    band = _boundary_band(labels, settings.boundary_band_px)
+    groups = _pixel_groups(labels)
+    empty = np.zeros(0, np.int64)
+    spherulites, radii, fits = [], [], []
+    for det in dets:
+        if det.deleted or det.merged:
+            continue
+        sph, series, fit = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
+                                       global_spans, settings)
+        spherulites.append(sph)
+        radii.append(series)
+        fits.append(fit)
+    pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
+    time_s, fraction = _area_fraction(ctx, global_spans)
+    nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
+    film = _film_avrami(time_s, fraction, nucleation.induction_time_s)
+    predicted = _predicted_avrami(ctx, pooled, nucleation, burst_density)
+    return ExperimentResult(
+        stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
+        temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
+        spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
+        nucleation=nucleation, area_fraction_time_s=time_s, area_fraction=fraction,
+        avrami_film=film, avrami_predicted=predicted, unapplied_edits=tuple(unapplied),
+        warnings=tuple(_warnings(ctx, spherulites)),
+        extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
+               "geometry": ctx.geometry})
+
+
+def _pooled(spherulites, fits, um_per_px) -> tuple[PooledGrowthRate, str]:
+    g, se = [], []
+    for s, f in zip(spherulites, fits):
+        if s.status == "ok" and f.ok and f.dof >= 1:
+            g.append(s.growth_rate_um_per_min)
+            se_slope = f.se_slope_s_per_px / f.slope_s_per_px ** 2
+            se.append(growth.growth_rate_um_per_min(se_slope, um_per_px))
+    pooled = growth.pooled_rate(g, se)
+    if pooled.value is None:
+        return PooledGrowthRate(None, None, None, 0), pooled.description
+    return PooledGrowthRate(pooled.value, pooled.value - pooled.ci95_half_width,
+                            pooled.value + pooled.ci95_half_width, pooled.n), pooled.description
+
+
+def _area_fraction(ctx, global_spans):
+    fraction = area_fraction(ctx.arrival_s, ctx.times_s)
+    keep = ~_ignored_mask(np.arange(ctx.frames), global_spans)
+    return ctx.times_s[keep] - ctx.isothermal_start_s, fraction[keep]
+
+
+def _nucleation(ctx, spherulites, fits, time_s, fraction):
+    h, w = ctx.shape
+    t0, se = [], []
+    for s, f in zip(spherulites, fits):
+        inside = -0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5
+        if not inside or s.status == "edge":
+            continue
+        if s.nucleation_time_s is not None:
+            t0.append(s.nucleation_time_s)
+            se.append(f.se_t0_s)
+        elif s.first_seen_s is not None:
+            t0.append(s.first_seen_s - 0.5 * ctx.interval_s)
+    area = field_area_mm2(ctx.shape, ctx.um_per_px)
+    exposure = MeltExposure.from_fraction(time_s, fraction, area)
+    end = float(time_s[-1]) if time_s.size else 0.0
+    return nucleation_statistics(t0, exposure=exposure, field_area_mm2=area,
+                                 interval_s=ctx.interval_s, thickness_um=ctx.thickness_um,
+                                 end_s=end, t0_se_s=se)
+
+
+def _film_avrami(time_s, fraction, induction_s) -> AvramiParameters | None:
+    """Avrami fit of the image's X(t) (2-D law), in min from the induction time."""
+    from .avrami import fit_avrami_curve
+
+    origin = induction_s or 0.0
+    fit = fit_avrami_curve((np.asarray(time_s) - origin) / 60.0, fraction)
+    return fit.to_parameters("film-2d") if fit else None
+
+
+def _predicted_avrami(ctx, pooled, nucleation, burst_density) -> AvramiParameters | None:
+    """Avrami n, k, t_half predicted from N (burst part), Ndot and pooled G."""
+    from .avrami import predict_avrami
+
+    if pooled.value is None or nucleation.mode is None:
+        return None
+    h_mm = ctx.thickness_um * 1e-3 if ctx.thickness_um else None
+    density = burst_density if nucleation.mode != "thermal" else None
+    rate = nucleation.rate_per_mm2_per_min
+    if ctx.geometry == "bulk-3d":
+        if h_mm is None:
+            return None
+        density = None if density is None else density / h_mm
+        rate = None if rate is None else rate / h_mm
+    try:
+        return predict_avrami(ctx.geometry, pooled.value, density_per_mm_d=density,
+                              rate_per_mm_d_per_min=rate).to_parameters()
+    except InputError:
+        return None
+
+
+def _warnings(ctx, spherulites) -> list[str]:
+    out = []
+    if not spherulites:
+        out.append("no spherulite found in the arrival map")
+    if np.all(ctx.at_start | ~np.isfinite(ctx.arrival_s)):
+        out.append("the field is crystalline in the first frame: nothing grows in the record")
+    return out
+
+
+# ---------------------------------------------------------------- public API
+def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, temperature_c,
+                          thickness_um, geometry) -> Generator[Progress, None, _Context]:
+    times = np.asarray(arrival.times_s, dtype=float)
+    arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
+    yield Progress("finding nuclei", 0.1)
+    work = nuclei.working_map(arrival_s, times, smooth_px=settings.smooth_px)
+    markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
+                                  min_territory_px=settings.min_territory_px)
+    base = nuclei.territories(work, arrival_s, markers.labels)
+    at_start = np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0])
+    ctx = _Context(stack=stack, frames=times.size, shape=arrival_s.shape, times_s=times,
+                   interval_s=nuclei.frame_interval_s(times), um_per_px=float(arrival.um_per_px),
+                   isothermal_start_s=float(isothermal_start_s), temperature_c=temperature_c,
+                   thickness_um=thickness_um, geometry=geometry, work=work,
+                   fit_arrival=growth.dequantised(arrival_s, times),
+                   frame_index=np.asarray(arrival.frame_index, np.int32), at_start=at_start,
+                   arrival_s=arrival_s, markers=markers, base_territories=base,
+                   auto_lookup_xy=markers.xy_px.copy())
+    yield Progress("fitting growth cones", 0.5)
+    dets = _auto_detections(ctx)
+    labels = _territories(ctx, dets)
+    band = _boundary_band(labels, settings.boundary_band_px)
+    groups = _pixel_groups(labels)
+    empty = np.zeros(0, np.int64)
+    for det in dets:
+        fit = _cone(ctx, det, groups.get(det.id, empty), band, [], settings)
+        if fit.ok:
+            ctx.auto_lookup_xy[det.id - 1] = (fit.x_px, fit.y_px)
+    return ctx
+
+
+def _check_inputs(arrival, thickness_um, geometry, path) -> None:
+    if not (np.isfinite(arrival.um_per_px) and arrival.um_per_px > 0):
+        raise InputError(f"pixel size {arrival.um_per_px!r} um must be positive", path)
+    times = np.asarray(arrival.times_s, dtype=float)
+    if times.size < 2 or not np.all(np.isfinite(times)) or np.any(np.diff(times) <= 0):
+        raise InputError("frame times must be finite and increasing over at least 2 frames", path)
+    if thickness_um is not None and not (np.isfinite(thickness_um) and thickness_um > 0):
+        raise InputError(f"film thickness {thickness_um!r} um must be positive", path)
+    if geometry not in ("film-2d", "bulk-3d"):
+        raise InputError(f"unknown geometry {geometry!r} (film-2d or bulk-3d)", path)
+
+
+def analyze_arrival_iter(arrival, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
+                         isothermal_start_s: float = 0.0, temperature_c: float | None = None,
+                         thickness_um: float | None = None, stack: str = "",
+                         geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+    """Analyse an existing arrival map (no frames needed); see :func:`analyze_iter`."""
+    _check_inputs(arrival, thickness_um, geometry, stack or None)
+    ctx = yield from _context_from_arrival(
+        arrival, settings, stack=stack, isothermal_start_s=isothermal_start_s,
+        temperature_c=temperature_c, thickness_um=thickness_um, geometry=geometry)
+    yield Progress("applying edits", 0.9)
+    analysis = _with_edits(arrival, ctx, settings, edits)
+    yield Progress("done", 1.0)
+    return analysis
+
+
+def analyze_arrival(arrival, **kwargs) -> Analysis:
+    return run_to_completion(analyze_arrival_iter(arrival, **kwargs))
+
+
+def apply_edits(analysis: Analysis, edits: Sequence[Edit]) -> Analysis:
+    """The analysis with ``edits`` (the whole list) replayed over the automatic detections.
+
+    No pass over frames: markers, territories and fits are recomputed from cached state,
+    and unchanged territories reuse their cached fits.
+    """
+    if analysis._context is None:
+        raise ValueError("this Analysis carries no replay state")
+    return _with_edits(analysis.arrival, analysis._context, analysis.settings, edits)
+
+
+def _with_edits(arrival, ctx, settings, edits) -> Analysis:
+    edits = tuple(edits)
+    dets, spans, unapplied = _replay(ctx, edits, settings)
+    result = _result(ctx, dets, spans, unapplied, settings)
+    return Analysis(arrival, result, settings, edits, ctx)
+
+
+def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
+                 isothermal_start_s: float = 0.0, temperature_c: float | None = None,
+                 thickness_um: float | None = None,
+                 geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+    """Analyse a :class:`FrameStack`: arrival map, nuclei, growth fits, nucleation, X(t).
+
+    Yields :class:`Progress`; returns an :class:`Analysis`. Times in the result are
+    seconds from ``isothermal_start_s`` (on the stack's clock). InputError when the
+    stack lacks its calibration.
+    """
+    from .arrival import arrival_map_iter, settings_from_dict
+
+    stack.require_calibration()
+    arrival = yield from scaled(
+        arrival_map_iter(stack, settings=settings_from_dict(settings.arrival)), 0.0, 0.85)
+    analysis = yield from scaled(analyze_arrival_iter(
+        arrival, settings=settings, edits=edits, isothermal_start_s=isothermal_start_s,
+        temperature_c=temperature_c, thickness_um=thickness_um, stack=str(stack.path),
+        geometry=geometry), 0.85, 1.0)
+    return analysis
+
+
+def analyze(stack, **kwargs) -> Analysis:
+    return run_to_completion(analyze_iter(stack, **kwargs))
+
+
+def analyze_experiment_iter(experiment) -> Generator[Progress, None, Analysis]:
+    """Analyse a project :class:`Experiment` with its settings, calibration and edits."""
+    from .project import open_experiment_stack
+
+    stack = open_experiment_stack(experiment)
+    settings = AnalysisSettings.from_dict(experiment.settings, path=experiment.stack_path)
+    return (yield from analyze_iter(
+        stack, settings=settings, edits=tuple(experiment.edits),
+        isothermal_start_s=experiment.isothermal_start_s or 0.0,
+        temperature_c=experiment.temperature_c, thickness_um=experiment.thickness_um,
+        geometry=getattr(experiment, "geometry", "film-2d") or "film-2d"))
+
+
+def analyze_experiment(experiment) -> Analysis:
+    return run_to_completion(analyze_experiment_iter(experiment))
+
+
+add_cli_arguments = export.add_cli_arguments
+
+
+def run_cli(args) -> int:
+    return export.run_cli(args, analyze_iter=analyze_iter, settings_cls=AnalysisSettings)
