@@ -1,0 +1,662 @@
+"""Isothermal calorimetry: import delimited exports, baseline, X(t), Avrami fit.
+
+Public API (stable; the GUI codes against it)
+---------------------------------------------
+``sniff_calorimetry_file(path, *, max_rows=8) -> CalorimetryPreview``
+    Detected ``delimiter`` ("," ";" "\\t" or " " for whitespace), ``decimal`` ("." or ","),
+    ``header_line`` (0-based line index of the column row, or None), ``columns``,
+    ``metadata`` lines, first data ``rows`` (strings), suggested ``time_col`` /
+    ``heat_flow_col`` (0-based indexes), ``time_unit`` / ``heat_flow_unit`` read from the
+    column names (or None), ``mass_mg`` found in the metadata (or None).
+``read_isotherm(path, *, time_col=None, heat_flow_col=None, time_unit=None,
+heat_flow_unit=None) -> Isotherm``
+    Columns by name (case-insensitive, with or without the unit) or 0-based index.
+    ``Isotherm``: ``time_min``, ``heat_flow`` (in ``heat_flow_unit``: "mW" or "W/g"),
+    ``mass_mg`` from the file's metadata, ``warnings``.
+``analyze_isotherm(isotherm, *, exotherm="auto", window=(0.03, 0.20), mass_mg=None,
+material=None, baseline="linear", baseline_start_min=None, baseline_end_min=None,
+transient_end_min=None) -> CalorimetryResult``
+``analyze_calorimetry_file(path, **options) -> CalorimetryResult`` (read + analyse)
+``analyze_source(source) -> CalorimetryResult`` for a ``project.CalorimetrySource``
+``write_calorimetry_outputs(result, out_dir)``: ``calorimetry.json`` + ``conversion.csv``
+``add_cli_arguments(parser)`` / ``run_cli(args) -> int`` for ``spherokin calorimetry``
+(DESIGN options plus ``--lag-s`` for the optional thermal-lag correction).
+
+All times are in minutes from the start of the isotherm. Any malformed input raises
+``errors.InputError`` with one line naming the file and the problem.
+
+Method
+------
+1. Start-up transient: the record is cut at the first minimum of the smoothed deviation
+   from the final level (where the quench transient has died away and the exotherm has
+   not begun), or at ``transient_end_min``; an exponential decay fitted before the
+   exotherm is subtracted so that its tail does not lift the baseline start.
+2. Exotherm direction: sign of the area between the signal and the final level
+   (``exotherm="up"``/``"down"`` overrides).
+3. Baseline: straight line between the mean signal at an automatic start (lowest
+   smoothed point between transient and peak) and end (first point after the peak back
+   within noise of the final level), both overridable; or ``"flat"`` at the end level.
+4. X(t): cumulative trapezoid integral of the baseline-corrected heat flow, normalised.
+5. Induction time t0: onset of a three-parameter fit X = 1 - exp(-k (t - t0)^n) to the
+   primary conversion (2-80 %), which absorbs most of the instrument lag; the Avrami
+   window fit (default 3-20 %, Lorenzo et al. 2007 Polymer Testing 26, 222, from memory),
+   the whole-curve fit, the fitted t_half = (ln 2 / k)^(1/n) and the measured t_half
+   (X = 0.5) are all counted from t0.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import os
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+from scipy import integrate, ndimage, optimize, signal
+
+from .avrami import AvramiFit, FitFailure, fit_avrami_curve, fit_avrami_window
+from .errors import InputError
+
+__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "add_cli_arguments",
+           "analyze_calorimetry_file", "analyze_isotherm", "analyze_source", "parse_window",
+           "read_isotherm", "run_cli", "sniff_calorimetry_file", "write_calorimetry_outputs"]
+
+_DIALECTS = (("\t", "."), ("\t", ","), (";", "."), (";", ","), (",", "."), (" ", "."), (" ", ","))
+_TIME_FACTORS = {"s": 1 / 60, "sec": 1 / 60, "second": 1 / 60, "seconds": 1 / 60,
+                 "min": 1.0, "minute": 1.0, "minutes": 1.0, "h": 60.0, "hr": 60.0}
+_FLOW_FACTORS = {"mw": ("mW", 1.0), "w": ("mW", 1e3), "uw": ("mW", 1e-3), "µw": ("mW", 1e-3),
+                 "w/g": ("W/g", 1.0), "mw/mg": ("W/g", 1.0), "mw/g": ("W/g", 1e-3)}
+_UNIT_RE = re.compile(r"(?:\(([^()]*)\)|\[([^\[\]]*)\]|/\s*([^/()\[\]]+)$|\bin\s+(\S+)$)\s*$")
+MIN_ROWS = 20
+
+
+# ---------------------------------------------------------------- reading
+@dataclass(frozen=True)
+class CalorimetryPreview:
+    path: str
+    delimiter: str
+    decimal: str
+    header_line: int | None
+    columns: tuple[str, ...]
+    metadata: tuple[str, ...]
+    rows: tuple[tuple[str, ...], ...]
+    data_line: int
+    n_rows: int
+    time_col: int | None
+    heat_flow_col: int | None
+    time_unit: str | None
+    heat_flow_unit: str | None
+    mass_mg: float | None
+
+
+@dataclass(frozen=True)
+class Isotherm:
+    path: str
+    time_min: np.ndarray
+    heat_flow: np.ndarray
+    heat_flow_unit: str
+    time_column: str
+    heat_flow_column: str
+    mass_mg: float | None = None
+    warnings: tuple[str, ...] = ()
+
+
+def _split(line: str, delimiter: str) -> list[str]:
+    return line.split() if delimiter == " " else line.split(delimiter)
+
+
+def _number(text: str, decimal: str) -> float | None:
+    s = text.strip().strip('"').strip()
+    if decimal == ",":
+        if "." in s:
+            return None
+        s = s.replace(",", ".")
+    try:
+        return float(s)
+    except ValueError:
+        return None
+
+
+def _numeric_row(fields: list[str], decimal: str) -> list[float] | None:
+    """Values of a data row (empty fields -> NaN), or None if it is not a data row."""
+    values = [math.nan if not f.strip() else _number(f, decimal) for f in fields]
+    if len(values) < 2 or any(v is None for v in values):
+        return None
+    if sum(1 for f in fields if f.strip()) < 2:
+        return None
+    return values
+
+
+def _runs(lines: list[str], delimiter: str, decimal: str):
+    """Runs of consecutive data rows with equal field count: list of (start, stop, width)."""
+    runs, start, width = [], None, None
+    for i, line in enumerate([*lines, ""]):
+        row = _numeric_row(_split(line, delimiter), decimal) if line.strip() else None
+        w = None if row is None else len(row)
+        if start is not None and w != width:
+            runs.append((start, i, width))
+            start = None
+        if w is not None and start is None:
+            start, width = i, w
+    return runs
+
+
+def _read_lines(path) -> list[str]:
+    try:
+        raw = Path(path).read_bytes()
+    except OSError as err:
+        raise InputError(f"cannot read calorimetry file ({err.strerror})", path) from None
+    if b"\x00" in raw[:4096]:
+        raise InputError("binary file, not a delimited text export", path)
+    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
+        try:
+            return raw.decode(encoding).splitlines()
+        except UnicodeDecodeError:
+            continue
+    raise InputError("cannot decode the file as text", path)  # pragma: no cover - latin-1 decodes all
+
+
+def _best_dialect(lines: list[str], path):
+    best = None
+    for delimiter, decimal in _DIALECTS:
+        runs = _runs(lines, delimiter, decimal)
+        if runs:
+            main = max(runs, key=lambda r: r[1] - r[0])
+            score = main[1] - main[0]
+            if best is None or score > best[0]:
+                best = (score, delimiter, decimal, main, runs)
+    if best is None:
+        raise InputError("no numeric data rows found (need at least two numeric columns)", path)
+    return best[1:]
+
+
+def _unit_of(name: str) -> str | None:
+    match = _UNIT_RE.search(name.strip())
+    if not match:
+        return None
+    return next(g for g in match.groups() if g is not None).strip()
+
+
+def _bare_name(name: str) -> str:
+    return _UNIT_RE.sub("", name.strip()).strip().casefold()
+
+
+def _guess_columns(columns: list[str]) -> tuple[int | None, int | None]:
+    bare = [_bare_name(c) for c in columns]
+    time_col = next((i for i, b in enumerate(bare) if b in ("time", "t") or "time" in b), None)
+    flow_col = next((i for i, b in enumerate(bare) if i != time_col and (
+        "heat" in b or "flow" in b or b in ("hf", "dsc", "q"))), None)
+    if len(columns) == 2 and flow_col is None:
+        time_col = 0 if time_col is None else time_col
+        flow_col = 1 - time_col
+    return time_col, flow_col
+
+
+def _mass_from_metadata(metadata: list[str], decimal: str) -> float | None:
+    for line in metadata:
+        if "mass" in line.casefold() or "weight" in line.casefold():
+            match = re.search(r"(-?\d+(?:[.,]\d+)?)\s*(mg|g)?\s*[\"']?\s*$", line.strip())
+            if match:
+                value = float(match.group(1).replace(",", "."))
+                unit = match.group(2) or ("mg" if "mg" in line else None)
+                if unit == "mg":
+                    return value
+                if unit == "g":
+                    return value * 1e3
+    return None
+
+
+def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:
+    """Detect the dialect, column row and columns of a delimited export (for a mapping dialog)."""
+    lines = _read_lines(path)
+    delimiter, decimal, (start, stop, width), runs = _best_dialect(lines, path)
+    for other in runs:
+        if other[0] != start and other[2] == width and other[1] - other[0] >= 5:
+            cut = stop if other[0] > start else other[1]
+            raise InputError(f"numeric data interrupted at line {cut + 1}: "
+                             f"{lines[cut].strip()[:40]!r}", path)
+    header = None
+    for i in range(start - 1, -1, -1):
+        if lines[i].strip():
+            fields = [f.strip().strip('"') for f in _split(lines[i], delimiter)]
+            if len(fields) == width:
+                header = i
+            break
+    columns = ([f.strip().strip('"') for f in _split(lines[header], delimiter)]
+               if header is not None else [f"column {j + 1}" for j in range(width)])
+    metadata = [ln for ln in lines[: header if header is not None else start] if ln.strip()]
+    time_col, flow_col = _guess_columns(columns)
+    rows = tuple(tuple(f.strip() for f in _split(ln, delimiter)) for ln in lines[start:stop][:max_rows])
+    return CalorimetryPreview(
+        path=os.fspath(path), delimiter=delimiter, decimal=decimal, header_line=header,
+        columns=tuple(columns), metadata=tuple(metadata), rows=rows, data_line=start,
+        n_rows=stop - start,
+        time_col=time_col, heat_flow_col=flow_col,
+        time_unit=None if time_col is None else _time_unit(_unit_of(columns[time_col])),
+        heat_flow_unit=None if flow_col is None else _flow_unit(_unit_of(columns[flow_col]))[0],
+        mass_mg=_mass_from_metadata(metadata, decimal))
+
+
+def _time_unit(unit: str | None) -> str | None:
+    if unit is None:
+        return None
+    key = unit.casefold()
+    return key if key in _TIME_FACTORS else None
+
+
+def _flow_unit(unit: str | None) -> tuple[str | None, float]:
+    if unit is None:
+        return None, 1.0
+    return _FLOW_FACTORS.get(unit.casefold().replace(" ", ""), (None, 1.0))
+
+
+def _resolve_column(choice, columns: tuple[str, ...], role: str, path) -> int:
+    if choice is None:
+        raise InputError(f"no {role} column recognised among {list(columns)}; choose it by "
+                         "name or 0-based index", path)
+    if isinstance(choice, (int, np.integer)) or str(choice).strip().isdigit():
+        index = int(choice)
+        if not 0 <= index < len(columns):
+            raise InputError(f"{role} column index {index} out of range (file has "
+                             f"{len(columns)} columns: {list(columns)})", path)
+        return index
+    wanted = str(choice).strip().casefold()
+    for i, name in enumerate(columns):
+        if wanted in (name.casefold(), _bare_name(name)):
+            return i
+    raise InputError(f"{role} column {choice!r} not found; columns are {list(columns)}", path)
+
+
+def _column_values(path, lines, preview, index: int, role: str) -> np.ndarray:
+    block = lines[preview.data_line: preview.data_line + preview.n_rows]
+    data = np.asarray([_numeric_row(_split(ln, preview.delimiter), preview.decimal)[index]
+                       for ln in block], dtype=float)
+    bad = ~np.isfinite(data)
+    if bad.any():
+        first = int(np.argmax(bad))
+        raise InputError(f"{role} column {preview.columns[index]!r} has {int(bad.sum())} "
+                         f"missing/NaN values (first at data row {first + 1})", path)
+    return data
+
+
+def read_isotherm(path, *, time_col=None, heat_flow_col=None, time_unit: str | None = None,
+                  heat_flow_unit: str | None = None) -> Isotherm:
+    """Read time (converted to min) and heat flow ("mW" or "W/g") from a delimited export."""
+    preview = sniff_calorimetry_file(path)
+    lines = _read_lines(path)
+    t_idx = _resolve_column(time_col if time_col is not None else preview.time_col,
+                            preview.columns, "time", path)
+    q_idx = _resolve_column(heat_flow_col if heat_flow_col is not None else preview.heat_flow_col,
+                            preview.columns, "heat-flow", path)
+    if t_idx == q_idx:
+        raise InputError(f"time and heat-flow columns are the same ({preview.columns[t_idx]!r})", path)
+    warnings = []
+    t_unit = time_unit or _time_unit(_unit_of(preview.columns[t_idx]))
+    if t_unit is None:
+        t_unit = "min"
+        warnings.append("time unit not stated in the file; assumed min")
+    if t_unit not in _TIME_FACTORS:
+        raise InputError(f"time unit {t_unit!r} not supported (use s or min)", path)
+    q_unit, q_factor = _flow_unit(heat_flow_unit or _unit_of(preview.columns[q_idx]))
+    if q_unit is None:
+        if heat_flow_unit:
+            raise InputError(f"heat-flow unit {heat_flow_unit!r} not supported (use mW or W/g)", path)
+        q_unit = "mW"
+        warnings.append("heat-flow unit not stated in the file; assumed mW")
+    time_min = _column_values(path, lines, preview, t_idx, "time") * _TIME_FACTORS[t_unit]
+    heat = _column_values(path, lines, preview, q_idx, "heat-flow") * q_factor
+    if time_min.size < MIN_ROWS:
+        raise InputError(f"only {time_min.size} data rows; need at least {MIN_ROWS}", path)
+    steps = np.diff(time_min)
+    if np.any(steps <= 0):
+        row = int(np.argmax(steps <= 0)) + 2
+        raise InputError(f"time is not strictly increasing (data row {row})", path)
+    return Isotherm(os.fspath(path), time_min, heat, q_unit, preview.columns[t_idx],
+                    preview.columns[q_idx], preview.mass_mg, tuple(warnings))
+
+
+# ---------------------------------------------------------------- analysis
+@dataclass(frozen=True)
+class CalorimetryResult:
+    """Analysis of one isotherm. Times in min from the start of the isotherm.
+
+    ``relative_crystallinity`` is aligned with ``time_min`` (0 before the baseline start,
+    1 after its end). ``avrami`` (window fit) and ``avrami_curve`` (whole curve) are
+    ``AvramiFit`` or a falsy ``FitFailure``, in (t - induction_time_min).
+    """
+
+    path: str
+    time_min: np.ndarray
+    heat_flow: np.ndarray
+    heat_flow_unit: str
+    baseline: np.ndarray
+    exotherm: str
+    transient_end_min: float
+    baseline_start_min: float
+    baseline_end_min: float
+    induction_time_min: float
+    relative_crystallinity: np.ndarray
+    enthalpy_j_per_g: float | None
+    crystallinity: float | None
+    window: tuple[float, float]
+    avrami: AvramiFit | FitFailure
+    avrami_curve: AvramiFit | FitFailure
+    t_half_measured_min: float | None
+    material: str | None = None
+    warnings: tuple[str, ...] = field(default=())
+
+    def conversion_table(self) -> tuple[np.ndarray, np.ndarray]:
+        """(time_min, X) between the baseline start and end, X clipped to [0, 1]."""
+        sel = (self.time_min >= self.baseline_start_min) & (self.time_min <= self.baseline_end_min)
+        return self.time_min[sel], np.clip(self.relative_crystallinity[sel], 0.0, 1.0)
+
+    def to_json_dict(self) -> dict:
+        """The ``calorimetry.json`` document (DESIGN.md)."""
+        fit = self.avrami
+        return {
+            "schema": 1, "file": self.path, "induction_time_min": self.induction_time_min,
+            "enthalpy_j_per_g": self.enthalpy_j_per_g, "crystallinity": self.crystallinity,
+            "window": list(self.window),
+            "avrami": {"n": fit.n if fit else None, "k_per_min_n": fit.k_per_min_n if fit else None,
+                       "t_half_min": fit.t_half_min if fit else None, "r2": fit.r2 if fit else None},
+            "t_half_measured_min": self.t_half_measured_min,
+        }
+
+
+def _smooth(y: np.ndarray, width: int) -> np.ndarray:
+    width = max(1, int(width) | 1)
+    return ndimage.uniform_filter1d(ndimage.median_filter(y, size=width, mode="nearest"),
+                                    size=width, mode="nearest")
+
+
+def _noise_sigma(y: np.ndarray) -> float:
+    """Robust white-noise level from the median absolute successive difference."""
+    return float(np.median(np.abs(np.diff(y))) / (0.6745 * math.sqrt(2.0))) or 1e-12
+
+
+def _index_at(time_min: np.ndarray, value: float | None, default: int) -> int:
+    if value is None:
+        return default
+    return int(np.clip(np.searchsorted(time_min, value), 0, time_min.size - 1))
+
+
+def _first_local_minimum(y: np.ndarray) -> int:
+    inner = np.nonzero((y[1:-1] <= y[:-2]) & (y[1:-1] < y[2:]))[0]
+    return int(inner[0] + 1) if inner.size else int(np.argmin(y))
+
+
+def _local_level(q: np.ndarray, i: int, half: int) -> float:
+    return float(np.mean(q[max(0, i - half): i + half + 1]))
+
+
+def _locate_exotherm(t, q, exotherm, transient_end_min, path):
+    """Transient end index, orientation sign, peak index and smoothed oriented deviation."""
+    width = max(5, t.size // 100)
+    smooth = _smooth(q, width)
+    tail = slice(int(0.9 * t.size), t.size)
+    dev = smooth - float(np.median(smooth[tail]))
+    i_tr = _index_at(t, transient_end_min, _first_local_minimum(_smooth(np.abs(dev), 3 * width)))
+    if exotherm == "auto":
+        area = float(np.sum(dev[i_tr:]))
+        sign = 1.0 if area > 0 else -1.0
+    elif exotherm in ("up", "down"):
+        sign = 1.0 if exotherm == "up" else -1.0
+    else:
+        raise InputError(f"exotherm must be up, down or auto, got {exotherm!r}", path)
+    oriented = sign * dev
+    if i_tr >= t.size - 3:
+        raise InputError("no data left after the start-up transient", path)
+    peak = i_tr + int(np.argmax(oriented[i_tr:]))
+    sigma = _noise_sigma(q) / math.sqrt(width)
+    if oriented[peak] < 5 * _noise_sigma(q):
+        raise InputError("no crystallization exotherm stands out of the noise", path)
+    return i_tr, sign, peak, oriented, width, sigma
+
+
+def _baseline_anchors(t, oriented, i_tr, peak, width, sigma, start_min, end_min):
+    start = i_tr + int(np.argmin(oriented[i_tr: peak + 1]))
+    threshold = max(3 * sigma, 0.001 * oriented[peak])
+    after = np.nonzero(oriented[peak:] < threshold)[0]
+    end = peak + int(after[0]) if after.size else t.size - 1
+    end = min(t.size - 1, end + width)
+    return _index_at(t, start_min, start), _index_at(t, end_min, end)
+
+
+def _onset_fit(t, x, start_min) -> float:
+    """Induction time: onset t0 of X = 1 - exp(-ln2 ((t - t0)/th)^n) fitted over 2-80 %.
+
+    The range skips the first per cent, where instrument lag distorts the shape most.
+    """
+    sel = (x >= 0.02) & (x <= 0.8)
+    if np.count_nonzero(sel) < 5:
+        return start_min
+    t_first = float(t[np.argmax(x >= 0.01)])
+    half = float(np.interp(0.5, np.maximum.accumulate(x), t))
+
+    def model(tt, n, th, t0):
+        return -np.expm1(-math.log(2.0) * (np.clip(tt - t0, 0.0, None) / th) ** n)
+
+    p0 = (3.0, max(half - start_min, 1e-6), min(start_min, 0.999 * t_first))
+    bounds = ([0.5, 1e-9, min(0.0, p0[2])], [8.0, np.inf, t_first])
+    try:
+        params, _ = optimize.curve_fit(model, t[sel], x[sel], p0=p0, bounds=bounds)
+    except (RuntimeError, ValueError):
+        return start_min
+    return float(params[2])
+
+
+def _lag_corrected(isotherm: Isotherm, lag_s: float) -> np.ndarray:
+    """First-order lag (Tian) correction q + tau dq/dt, derivative by Savitzky-Golay."""
+    if not lag_s:
+        return isotherm.heat_flow
+    if not (np.isfinite(lag_s) and lag_s > 0):
+        raise InputError(f"lag time constant must be positive, got {lag_s!r} s", isotherm.path)
+    t, q = isotherm.time_min, isotherm.heat_flow
+    step = float(np.median(np.diff(t)))
+    window = max(7, int(round(4 * lag_s / 60.0 / step)) | 1)
+    slope = signal.savgol_filter(q, window, 2, deriv=1, delta=step, mode="interp")
+    return q + (lag_s / 60.0) * slope
+
+
+def _transient_tail(t, q, start) -> np.ndarray:
+    """Start-up transient A exp(-t / tau) fitted before the exotherm, extended under it.
+
+    The quench transient decays towards the isothermal baseline; its tail would otherwise
+    lift the baseline start. Returns zeros when the decay cannot be resolved.
+    """
+    zeros = np.zeros_like(q)
+    if start < 8:
+        return zeros
+    tt, qq = t[: start + 1] - t[0], q[: start + 1]
+
+    def model(x, c, a, tau):
+        return c + a * np.exp(-x / tau)
+
+    span = float(tt[-1])
+    p0 = (float(qq[-1]), float(qq[0] - qq[-1]), span / 5)
+    try:
+        (c, a, tau), _ = optimize.curve_fit(model, tt, qq, p0=p0,
+                                            bounds=([-np.inf, -np.inf, span / 200], [np.inf, np.inf, span / 2]))
+    except (RuntimeError, ValueError):
+        return zeros
+    if abs(a) < 3 * _noise_sigma(qq):
+        return zeros
+    return a * np.exp(-(t - t[0]) / tau)
+
+
+def _enthalpy(area_unit_min: float, unit: str, mass_mg: float | None):
+    if unit == "W/g":
+        return area_unit_min * 60.0
+    return area_unit_min * 60.0 / mass_mg if mass_mg else None
+
+
+def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=(0.03, 0.20),
+                     mass_mg: float | None = None, material: str | None = None,
+                     baseline: str = "linear", baseline_start_min: float | None = None,
+                     baseline_end_min: float | None = None,
+                     transient_end_min: float | None = None,
+                     lag_s: float = 0.0) -> CalorimetryResult:
+    """Baseline, X(t), induction time, enthalpy and Avrami fits of one isotherm (see module doc).
+
+    ``lag_s`` is the instrument's first-order time constant (s, from a calibration such as
+    the trailing edge of an indium melting peak); when given, the heat flow is corrected
+    q + tau dq/dt before the analysis. 0 (default) means no correction.
+    """
+    path, t, q = isotherm.path, isotherm.time_min, _lag_corrected(isotherm, lag_s)
+    window = parse_window(window, path)
+    if baseline not in ("linear", "flat"):
+        raise InputError(f"baseline must be linear or flat, got {baseline!r}", path)
+    i_tr, sign, peak, oriented, width, sigma = _locate_exotherm(t, q, exotherm,
+                                                                transient_end_min, path)
+    start, end = _baseline_anchors(t, oriented, i_tr, peak, width, sigma, baseline_start_min,
+                                   baseline_end_min)
+    if not start < peak < end:
+        raise InputError(f"baseline start {t[start]:g} min and end {t[end]:g} min do not "
+                         f"bracket the exotherm peak at {t[peak]:g} min", path)
+    half = max(1, width // 2)
+    q = q - _transient_tail(t, q, start)
+    level_s, level_e = _local_level(q, start, half), _local_level(q, end, half)
+    if baseline == "flat":
+        line = np.full_like(q, level_e)
+    else:
+        line = level_s + (level_e - level_s) * (t - t[start]) / (t[end] - t[start])
+    signal = sign * (q - line)
+    seg = slice(start, end + 1)
+    cumulative = integrate.cumulative_trapezoid(signal[seg], t[seg], initial=0.0)
+    total = float(cumulative[-1])
+    if not total > 0:
+        raise InputError("the exotherm area after baseline subtraction is not positive", path)
+    x = np.zeros_like(t)
+    x[seg] = cumulative / total
+    x[end + 1:] = 1.0
+    t0 = _onset_fit(t[seg], x[seg], float(t[start]))
+    return _finish(isotherm, t, q, line, sign, i_tr, start, end, t0, x, total, window,
+                   mass_mg, material)
+
+
+def _measured_half_time(t, x, t0) -> float | None:
+    above = np.nonzero(x >= 0.5)[0]
+    if not above.size or above[0] == 0:
+        return None
+    i = int(above[0])
+    t_half = t[i - 1] + (0.5 - x[i - 1]) * (t[i] - t[i - 1]) / (x[i] - x[i - 1])
+    return float(t_half - t0)
+
+
+def _finish(iso, t, q, line, sign, i_tr, start, end, t0, x, total, window, mass_mg, material):
+    warnings = list(iso.warnings)
+    mass = mass_mg if mass_mg is not None else iso.mass_mg
+    enthalpy = _enthalpy(total, iso.heat_flow_unit, mass)
+    if enthalpy is None:
+        warnings.append("no sample mass: enthalpy in J/g not computed")
+    crystallinity = None
+    if material is not None and enthalpy is not None:
+        from .materials import get_material
+
+        dh0 = get_material(material).dh0_j_per_g
+        crystallinity = None if dh0 is None else enthalpy / dh0
+    seg = slice(start, end + 1)
+    fit = fit_avrami_window(t[seg] - t0, x[seg], window)
+    curve = fit_avrami_curve(t[seg] - t0, x[seg])
+    for label, result in (("window", fit), ("whole-curve", curve)):
+        if not result:
+            warnings.append(f"Avrami {label} fit failed: {result.reason}")
+    return CalorimetryResult(
+        path=iso.path, time_min=t, heat_flow=q, heat_flow_unit=iso.heat_flow_unit, baseline=line,
+        exotherm="up" if sign > 0 else "down", transient_end_min=float(t[i_tr]),
+        baseline_start_min=float(t[start]), baseline_end_min=float(t[end]),
+        induction_time_min=t0, relative_crystallinity=x, enthalpy_j_per_g=enthalpy,
+        crystallinity=crystallinity, window=window, avrami=fit, avrami_curve=curve,
+        t_half_measured_min=_measured_half_time(t, x, t0), material=material,
+        warnings=tuple(warnings))
+
+
+def parse_window(window, path=None) -> tuple[float, float]:
+    """Conversion window as fractions. Accepts (lo, hi) or "lo,hi"; values > 1 are percent.
+
+    "3,20" and (0.03, 0.2) both mean 3-20 %.
+    """
+    if isinstance(window, str):
+        parts = window.replace(";", ",").split(",")
+        try:
+            window = tuple(float(p) for p in parts)
+        except ValueError:
+            raise InputError(f"window {window!r} is not two numbers like 3,20", path) from None
+    if len(window) != 2:
+        raise InputError(f"window needs two values (low, high), got {window!r}", path)
+    lo, hi = (float(v) for v in window)
+    if lo > 1 or hi > 1:
+        lo, hi = lo / 100.0, hi / 100.0
+    if not (0 < lo < hi < 1):
+        raise InputError(f"window {lo:.0%}-{hi:.0%} must satisfy 0 < low < high < 100 %", path)
+    return lo, hi
+
+
+def analyze_calorimetry_file(path, *, time_col=None, heat_flow_col=None, time_unit=None,
+                             heat_flow_unit=None, **options) -> CalorimetryResult:
+    """``read_isotherm`` then ``analyze_isotherm`` (options as there)."""
+    iso = read_isotherm(path, time_col=time_col, heat_flow_col=heat_flow_col,
+                        time_unit=time_unit, heat_flow_unit=heat_flow_unit)
+    return analyze_isotherm(iso, **options)
+
+
+def analyze_source(source) -> CalorimetryResult:
+    """Analyse a ``project.CalorimetrySource`` (column mapping, units, window, baseline)."""
+    return analyze_calorimetry_file(
+        source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
+        time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit,
+        exotherm=source.exotherm or "auto", window=source.window or (0.03, 0.20),
+        mass_mg=source.mass_mg, material=source.material,
+        baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min,
+        lag_s=getattr(source, "lag_s", None) or 0.0)
+
+
+# ---------------------------------------------------------------- output and CLI
+def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
+    """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity)."""
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    json_path, csv_path = out / "calorimetry.json", out / "conversion.csv"
+    json_path.write_text(json.dumps(result.to_json_dict(), indent=2) + "\n", encoding="utf-8")
+    t, x = result.conversion_table()
+    with open(csv_path, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["time_min", "relative_crystallinity"])
+        writer.writerows((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))
+    return json_path, csv_path
+
+
+def add_cli_arguments(parser) -> None:
+    """Options of ``spherokin calorimetry`` (DESIGN.md)."""
+    parser.add_argument("file", help="delimited text export of an isothermal DSC run")
+    parser.add_argument("--out", required=True, help="output directory")
+    parser.add_argument("--time-col", help="time column: name or 0-based index")
+    parser.add_argument("--heat-flow-col", help="heat-flow column: name or 0-based index")
+    parser.add_argument("--time-unit", choices=("s", "min"), help="unit of the time column")
+    parser.add_argument("--exotherm", choices=("up", "down"), help="sign of the exotherm "
+                        "(default: detected)")
+    parser.add_argument("--window", default="3,20", help="Avrami conversion window LO,HI in "
+                        "percent (3,20) or as fractions (0.03,0.2); default 3,20")
+    parser.add_argument("--mass-mg", type=float, help="sample mass in mg (for J/g with mW data)")
+    parser.add_argument("--material", help="material name for crystallinity = dH / dH0")
+    parser.add_argument("--lag-s", type=float, default=0.0, help="instrument time constant in s "
+                        "for a first-order lag correction (default 0: none)")
+
+
+def run_cli(args) -> int:
+    result = analyze_calorimetry_file(
+        args.file, time_col=args.time_col, heat_flow_col=args.heat_flow_col,
+        time_unit=args.time_unit, exotherm=args.exotherm or "auto", window=args.window,
+        mass_mg=args.mass_mg, material=args.material, lag_s=args.lag_s)
+    json_path, csv_path = write_calorimetry_outputs(result, args.out)
+    fit = result.avrami
+    summary = (f"n = {fit.n:.3f}, k = {fit.k_per_min_n:.4g} min^-n, t1/2 = {fit.t_half_min:.4g} min"
+               if fit else f"Avrami fit failed: {fit.reason}")
+    print(f"{result.path}: induction {result.induction_time_min:.4g} min; {summary}; "
+          f"wrote {json_path} and {csv_path}")
+    for warning in result.warnings:
+        print(f"warning: {warning}")
+    return 0
