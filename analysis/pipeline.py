@@ -81,7 +81,7 @@ class AnalysisSettings:
     min_free_fraction: float = 0.25
     min_points: int = 4
     nonlinear_alpha: float = 0.01
-    nonlinear_min_change: float = 0.10
+    nonlinear_min_change: float = 0.20
     edit_tolerance_px: float = 15.0
 
     def to_dict(self) -> dict[str, Any]:
@@ -346,7 +346,7 @@ def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
     ok = np.isfinite(samples.radius_px)
     frame_ids = np.flatnonzero(ok)
     used = (samples.free_fraction[ok] >= settings.min_free_fraction) & \
-        (samples.radius_px[ok] >= 2.0) & ~_ignored_mask(frame_ids, spans)
+        (samples.radius_px[ok] >= 3.0) & ~_ignored_mask(frame_ids, spans)
     return RadiusSeries(det_id, ctx.times_s[ok] - ctx.isothermal_start_s,
                         samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
 

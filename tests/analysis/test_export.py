@@ -1,0 +1,74 @@
+"""Files written by ``analyze``: columns, JSON schema, escaping and the overlay."""
+
+import csv
+import dataclasses
+import json
+import types
+
+import cv2
+import numpy as np
+import pytest
+
+from analysis import export, growth, pipeline
+from analysis.errors import InputError
+
+
+@pytest.fixture(scope="module")
+def result():
+    times = np.arange(0.0, 200.0, 4.0)
+    exact = growth.model_arrival_map((90, 110), [[30.0, 40.0], [80.0, 50.0]], [0.0, 8.0], 0.5)
+    idx = np.searchsorted(times, exact)
+    never = idx >= times.size
+    arrival = types.SimpleNamespace(
+        arrival_s=np.where(never, np.inf, times[np.minimum(idx, times.size - 1)]).astype(np.float32),
+        frame_index=np.where(never, -1, idx).astype(np.int32), crystalline_at_start=idx == 0,
+        shifts_px=np.zeros((times.size, 2)), times_s=times, um_per_px=1.25)
+    return pipeline.analyze_arrival(arrival, stack="/data/run-12.tif", temperature_c=128.0).result
+
+
+def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
+    export.write_analysis_outputs(result, tmp_path)
+    with open(tmp_path / "spherulites.csv", newline="") as fh:
+        rows = list(csv.reader(fh))
+    assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
+                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
+                       "status", "source"]
+    assert len(rows) == 1 + len(result.spherulites)
+    assert float(rows[1][3]) == pytest.approx(float(rows[1][1]) * 1.25)
+    with open(tmp_path / "radii.csv", newline="") as fh:
+        radii = list(csv.reader(fh))
+    assert radii[0] == ["id", "time_s", "radius_um", "free_fraction"] and len(radii) > 10
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
+                             "thickness_um", "growth_rate_um_per_min", "nucleation", "area_fraction",
+                             "avrami_film", "avrami_predicted"]
+    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n"]
+    assert list(summary["nucleation"]) == ["count", "mode", "density_per_mm2", "density_per_mm3",
+                                           "rate_per_mm2_per_min", "rate_per_mm3_per_min",
+                                           "induction_time_s"]
+    assert list(summary["avrami_film"]) == ["n", "k_per_min_n", "t_half_min"]
+    assert list(summary["avrami_predicted"]) == ["geometry", "n", "k_per_min_n", "t_half_min"]
+    assert summary["thickness_um"] is None and summary["nucleation"]["density_per_mm3"] is None
+    assert summary["growth_rate_um_per_min"]["value"] == pytest.approx(37.5, rel=0.02)
+    assert len(summary["area_fraction"]["time_s"]) == 50
+
+
+def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
+    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x")
+    export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path)
+    with open(tmp_path / "spherulites.csv", newline="") as fh:
+        row = list(csv.reader(fh))[1]
+    assert row[-2:] == ["'=cmd()", "'@x"]
+
+
+def test_overlay_is_drawn_at_the_field_size(result, tmp_path):
+    export.write_analysis_outputs(result, tmp_path)
+    image = cv2.imread(str(tmp_path / "overlay.png"))
+    assert image.shape == (90, 110, 3) and image.max() > 0
+
+
+def test_unwritable_output_folder_is_an_input_error(result, tmp_path):
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    with pytest.raises(InputError, match="output folder"):
+        export.write_analysis_outputs(result, blocker / "out")

@@ -1,0 +1,77 @@
+"""Nuclei as regional minima of the arrival map and territories as its watershed basins."""
+
+import numpy as np
+
+from analysis import growth, nuclei
+
+
+def _quantised(arrival, times):
+    """What a frame-by-frame pass records: the first frame time at or after the arrival."""
+    idx = np.searchsorted(times, arrival)
+    return np.where(idx < times.size, times[np.minimum(idx, times.size - 1)], np.inf).astype(np.float32)
+
+
+def _detect(arrival, times, **kw):
+    work = nuclei.working_map(arrival, times)
+    return nuclei.find_markers(work, arrival, times, **kw), work
+
+
+def test_minima_of_a_johnson_mehl_map_are_the_nuclei():
+    # Johnson & Mehl 1939 (Trans. AIME 135, 416): each nucleus is the unique minimum of
+    # the arrival time in its cell.
+    rng = np.random.default_rng(3)
+    centres = np.array([[40.0, 40.0], [120.0, 50.0], [80.0, 130.0], [150.0, 140.0]])
+    times = np.arange(0.0, 200.0, 2.0)
+    exact = growth.model_arrival_map((170, 190), centres, [0.0, 3.0, 6.0, 1.0], 0.6)
+    noisy = _quantised(exact + rng.normal(0, 0.6, exact.shape), times)
+    markers, _ = _detect(noisy, times)
+    assert markers.xy_px.shape[0] == 4
+    for cx, cy in centres:
+        assert np.min(np.hypot(*(markers.xy_px - [cx, cy]).T)) < 1.5
+
+
+def test_late_nucleus_in_a_melt_pocket_and_close_pair_are_found():
+    times = np.arange(0.0, 150.0, 1.0)
+    # A pair 12 px apart born together, and a late nucleus (t0 = 60 s) far from both.
+    centres = np.array([[50.0, 60.0], [62.0, 60.0], [150.0, 60.0]])
+    exact = growth.model_arrival_map((120, 200), centres, [0.0, 0.0, 60.0], 1.0)
+    markers, _ = _detect(_quantised(exact, times), times)
+    assert markers.xy_px.shape[0] == 3
+    late = np.argmin(np.hypot(*(markers.xy_px - [150.0, 60.0]).T))
+    assert markers.min_time_s[late] > 55.0
+
+
+def test_noise_pits_do_not_become_nuclei():
+    rng = np.random.default_rng(0)
+    times = np.arange(0.0, 300.0, 2.0)
+    exact = growth.model_arrival_map((150, 150), [[75.0, 75.0]], [0.0], 0.5)
+    noisy = _quantised(exact + rng.normal(0, 1.0, exact.shape), times)
+    markers, _ = _detect(noisy, times)
+    assert markers.xy_px.shape[0] == 1
+
+
+def test_unusable_pixels_are_filled_and_melt_is_never_a_territory():
+    times = np.arange(0.0, 40.0, 1.0)
+    exact = growth.model_arrival_map((80, 80), [[40.0, 40.0]], [0.0], 1.0)
+    arrival = _quantised(exact, times)
+    arrival[38:43, 10:30] = np.nan  # a dust streak
+    work = nuclei.working_map(arrival, times)
+    assert np.all(np.isfinite(work))
+    markers = nuclei.find_markers(work, arrival, times)
+    labels = nuclei.territories(work, arrival, markers.labels)
+    assert markers.xy_px.shape[0] == 1
+    assert np.all(labels[np.isposinf(arrival)] == 0)
+    assert np.all(labels[np.isfinite(arrival)] == 1)
+
+
+def test_minimum_on_the_border_is_flagged():
+    times = np.arange(0.0, 100.0, 1.0)
+    exact = growth.model_arrival_map((80, 120), [[-10.0, 40.0], [80.0, 40.0]], [0.0, 0.0], 1.0)
+    markers, _ = _detect(_quantised(exact, times), times)
+    left = np.argmin(markers.xy_px[:, 0])
+    assert markers.on_border[left] and not markers.on_border[1 - left]
+
+
+def test_snap_to_minimum_finds_the_cone_apex_near_a_click():
+    exact = growth.model_arrival_map((60, 60), [[30.0, 25.0]], [0.0], 1.0).astype(np.float32)
+    assert nuclei.snap_to_minimum(exact, 32.0, 27.0, 3.0) == (25, 30)
