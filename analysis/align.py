@@ -1,0 +1,252 @@
+"""Stage drift: estimating it between frames and putting frames back on frame 0's grid.
+
+The specimen drifts on the stage while dust, scratches and uneven illumination stay fixed
+to the camera. We therefore register images in which everything fixed to the camera has
+already been cancelled: the crystalline-evidence image of :mod:`analysis.segment`
+(difference against a melt reference taken in camera coordinates). What is left moves
+with the specimen: spherulite interiors with their extinction crosses, bands and fibrils.
+
+Each frame is compared with a *key frame* (a recent frame with its own cumulative shift),
+not with frame 0, because frame 0 may hold no crystal at all and growth changes the
+content steadily. A coarse shift from phase correlation (OpenCV) is refined by a few
+Lucas-Kanade least-squares steps on the band-passed image, with pixels that changed
+(moving fronts) rejected as outliers; this reaches a few hundredths of a pixel where
+cv2's own sub-pixel peak estimate is only good to about 0.2 px. The key frame is renewed
+when the content has grown markedly or after a fixed number of frames, so errors
+accumulate only over key-frame changes.
+
+Conventions: a shift ``(dy, dx)`` is the displacement of the specimen on the sensor in a
+frame relative to frame 0 (pixels, rows then columns). :func:`warp_onto_reference`
+maps such a frame back onto frame 0's grid: ``out(p) = frame(p + shift)``.
+
+Registration modes (``ArrivalSettings.registration``):
+
+- ``"off"``: no estimation, every shift is zero.
+- ``"on"``: estimate and warp every frame.
+- ``"auto"`` (default): estimate every frame (cheap, on a crop) but warp only when the
+  cumulative shift exceeds :data:`AUTO_WARP_TOLERANCE_PX`, so a steady stage costs no
+  resampling (and no interpolation smoothing) at all.
+
+While no frame has enough specimen texture (a featureless melt), drift cannot be seen
+and is not needed; the shift is held at its last value until content appears.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+__all__ = [
+    "REGISTRATION_MODES", "AUTO_WARP_TOLERANCE_PX", "ShiftEstimate", "DriftTracker",
+    "bandpass", "estimate_shift", "warp_onto_reference", "drift_path",
+]
+
+REGISTRATION_MODES = ("auto", "on", "off")
+AUTO_WARP_TOLERANCE_PX = 0.05
+_FINE_SIGMA_PX = 1.0
+_COARSE_SIGMA_PX = 6.0
+_MARGIN_PX = 16
+_REFINE_STEPS = 4
+
+
+@dataclass(frozen=True)
+class ShiftEstimate:
+    """Displacement of a moving image's content relative to a reference.
+
+    Attributes
+    ----------
+    dy, dx : float
+        Shift in pixels (rows, columns).
+    response : float
+        Phase-correlation peak strength (about 0 for unrelated images, up to ~1).
+    """
+
+    dy: float
+    dx: float
+    response: float
+
+
+def bandpass(image: np.ndarray, *, fine_sigma_px: float = _FINE_SIGMA_PX,
+             coarse_sigma_px: float = _COARSE_SIGMA_PX) -> np.ndarray:
+    """Difference of Gaussians: keeps texture, drops noise and slow illumination trends."""
+    image = np.asarray(image, np.float32)
+    return cv2.GaussianBlur(image, (0, 0), fine_sigma_px) - cv2.GaussianBlur(image, (0, 0), coarse_sigma_px)
+
+
+def warp_onto_reference(image: np.ndarray, shift_yx, *, border_value: float = 0.0) -> np.ndarray:
+    """Resample a drifted frame onto frame 0's grid, ``out(p) = image(p + shift)``.
+
+    Parameters
+    ----------
+    image : ndarray, (H, W) or (H, W, C)
+    shift_yx : (float, float)
+        Specimen displacement of this frame relative to frame 0, px.
+    border_value : float
+        Value for pixels that were outside the camera's field in this frame.
+    """
+    dy, dx = float(shift_yx[0]), float(shift_yx[1])
+    matrix = np.float32([[1, 0, dx], [0, 1, dy]])
+    height, width = image.shape[:2]
+    return cv2.warpAffine(image, matrix, (width, height), flags=cv2.INTER_LINEAR | cv2.WARP_INVERSE_MAP,
+                          borderMode=cv2.BORDER_CONSTANT, borderValue=border_value)
+
+
+def _crop(image: np.ndarray, origin_yx, size: int, shift_yx=(0.0, 0.0)) -> np.ndarray:
+    """A size×size window of ``image`` at ``origin + shift`` (sub-pixel, bicubic: bilinear
+    smoothing would bias the fit towards whole-pixel shifts)."""
+    y0, x0 = origin_yx
+    matrix = np.float32([[1, 0, x0 + shift_yx[1]], [0, 1, y0 + shift_yx[0]]])
+    return cv2.warpAffine(image, matrix, (size, size), flags=cv2.INTER_CUBIC | cv2.WARP_INVERSE_MAP,
+                          borderMode=cv2.BORDER_REFLECT)
+
+
+def estimate_shift(reference: np.ndarray, moving: np.ndarray, *, window: np.ndarray | None = None,
+                   refine_steps: int = _REFINE_STEPS) -> ShiftEstimate:
+    """Sub-pixel displacement of ``moving``'s content relative to ``reference``.
+
+    Both images should already be band-passed and of equal square size. Phase
+    correlation gives the coarse shift; Lucas-Kanade steps refine it, ignoring pixels
+    whose residual is an outlier (content that changed rather than moved).
+    """
+    reference = np.asarray(reference, np.float32)
+    moving = np.asarray(moving, np.float32)
+    if window is None:
+        window = cv2.createHanningWindow(reference.shape[::-1], cv2.CV_32F)
+    # Copies: some OpenCV releases apply the window to the inputs in place.
+    (dx, dy), response = cv2.phaseCorrelate(reference.copy(), moving.copy(), window)
+    if not np.isfinite(dx + dy):
+        return ShiftEstimate(0.0, 0.0, 0.0)
+    fine_dy, fine_dx = _refine(reference, moving, window, (dy, dx), refine_steps)
+    if np.hypot(fine_dy - dy, fine_dx - dx) > 1.0:  # refinement wandered off: no real match
+        return ShiftEstimate(float(dy), float(dx), 0.0)
+    dy, dx = fine_dy, fine_dx
+    return ShiftEstimate(float(dy), float(dx), float(response))
+
+
+def _refine(reference, moving, window, shift_yx, steps):
+    """Lucas-Kanade refinement of a translation plus a brightness gain (growing or
+    flickering content brightens without moving), with outlier rejection (IRLS, 4·MAD)."""
+    grad_y = cv2.Sobel(reference, cv2.CV_32F, 0, 1, ksize=1, scale=0.5)
+    grad_x = cv2.Sobel(reference, cv2.CV_32F, 1, 0, ksize=1, scale=0.5)
+    basis = (grad_y, grad_x, reference)
+    slope = np.hypot(grad_y, grad_x)
+    textured = slope > 0.5 * np.sqrt(np.mean(slope * slope))
+    size = reference.shape[0]
+    shift, gain = np.array(shift_yx, float), 1.0
+    for _ in range(steps):
+        residual = _crop(moving, (0, 0), size, shift) / gain - reference
+        # Spread judged on textured pixels only: flat areas have tiny residuals whatever the shift.
+        spread = 1.4826 * np.median(np.abs(residual[textured])) + 1e-12
+        weight = window * (np.abs(residual) < 4.0 * spread)
+        normal = np.array([[np.sum(weight * u * v) for v in basis] for u in basis])
+        rhs = np.array([np.sum(weight * u * residual) for u in basis])
+        if np.linalg.cond(normal) > 1e7:
+            break
+        step = np.linalg.solve(normal, rhs)
+        shift -= step[:2]
+        gain *= 1.0 + step[2]
+        if np.max(np.abs(step[:2])) < 1e-3:
+            break
+    return shift
+
+
+class DriftTracker:
+    """Cumulative specimen drift relative to frame 0, one frame at a time.
+
+    Feed it one registration image per frame, in order (camera coordinates, with
+    everything fixed to the camera already cancelled, e.g. crystalline evidence).
+
+    Parameters
+    ----------
+    crop_px : int
+        Side of the square window used for registration (clipped to the frame).
+    min_response : float
+        Phase-correlation strength below which a frame is judged featureless and its
+        shift is held at the previous value.
+    refresh_frames : int
+        A key frame is renewed at the latest after this many frames.
+    refresh_gain : float
+        ... or as soon as the band-passed content energy has grown by this factor.
+    max_step_px : float
+        A frame whose shift differs from the previous frame's by more than this is
+        treated as a failed match (stage drift is slow).
+    """
+
+    def __init__(self, *, crop_px: int = 256, min_response: float = 0.2,
+                 refresh_frames: int = 40, refresh_gain: float = 1.6, max_step_px: float = 3.0):
+        self.crop_px = int(crop_px)
+        self.min_response = float(min_response)
+        self.refresh_frames = int(refresh_frames)
+        self.refresh_gain = float(refresh_gain)
+        self.max_step_px = float(max_step_px)
+        self._key = None
+        self._key_shift = np.zeros(2)
+        self._key_energy = 0.0
+        self._key_age = 0
+        self._origin = (0, 0)
+        self._window = None
+        self.shift_yx = np.zeros(2)
+
+    def update(self, image: np.ndarray) -> np.ndarray:
+        """Register the next frame's image; returns its cumulative shift (dy, dx), px."""
+        image = np.asarray(image, np.float32)
+        if self._key is None:
+            self._start(image)
+            return self.shift_yx.copy()
+        current = self._patch(image)
+        energy = float(np.mean(current * current))
+        found = estimate_shift(self._key, current, window=self._window)
+        candidate = self._key_shift + (found.dy, found.dx)
+        plausible = np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px
+        if found.response >= self.min_response and self._key_energy > 0 and plausible:
+            self.shift_yx = candidate
+        self._key_age += 1
+        if energy > self.refresh_gain * self._key_energy or self._key_age >= self.refresh_frames:
+            self._renew(image)
+        return self.shift_yx.copy()
+
+    def _start(self, image):
+        size = min(self.crop_px, image.shape[0] - 2 * _MARGIN_PX, image.shape[1] - 2 * _MARGIN_PX)
+        if size < 32:
+            raise ValueError(f"frames of {image.shape[:2]} px are too small to register")
+        self.crop_px = int(size)
+        self._window = cv2.createHanningWindow((self.crop_px, self.crop_px), cv2.CV_32F)
+        self._renew(image)
+
+    def _renew(self, image):
+        """Make this frame the key frame, choosing the window with the most texture."""
+        self._origin = self._busiest_origin(image)
+        self._key = self._patch(image)
+        self._key_energy = float(np.mean(self._key * self._key))
+        self._key_shift = self.shift_yx.copy()
+        self._key_age = 0
+
+    def _patch(self, image):
+        y0, x0 = self._origin
+        size = self.crop_px
+        region = image[max(y0 - _MARGIN_PX, 0):y0 + size + _MARGIN_PX, max(x0 - _MARGIN_PX, 0):x0 + size + _MARGIN_PX]
+        passed = bandpass(region)
+        oy, ox = y0 - max(y0 - _MARGIN_PX, 0), x0 - max(x0 - _MARGIN_PX, 0)
+        return np.ascontiguousarray(passed[oy:oy + size, ox:ox + size])
+
+    def _busiest_origin(self, image):
+        """Top-left corner of the crop (on a 3×3 grid of candidates) with most texture."""
+        height, width = image.shape[:2]
+        size = self.crop_px
+        best, best_energy = (max((height - size) // 2, 0), max((width - size) // 2, 0)), -1.0
+        small = cv2.resize(image, (max(width // 4, 1), max(height // 4, 1)), interpolation=cv2.INTER_AREA)
+        texture = np.abs(small - cv2.GaussianBlur(small, (0, 0), 2.0))
+        for y0 in np.linspace(_MARGIN_PX, height - size - _MARGIN_PX, 3).astype(int):
+            for x0 in np.linspace(_MARGIN_PX, width - size - _MARGIN_PX, 3).astype(int):
+                energy = float(texture[y0 // 4:(y0 + size) // 4, x0 // 4:(x0 + size) // 4].sum())
+                if energy > best_energy * 1.05:
+                    best, best_energy = (int(y0), int(x0)), energy
+        return best
+
+
+def drift_path(images, **tracker_options) -> np.ndarray:
+    """Cumulative shifts (n, 2) of a sequence of registration images relative to the first."""
+    tracker = DriftTracker(**tracker_options)
+    return np.array([tracker.update(image) for image in images])
