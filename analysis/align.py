@@ -175,7 +175,7 @@ class DriftTracker:
     """
 
     def __init__(self, *, crop_px: int = 256, min_response: float = 0.2,
-                 refresh_frames: int = 40, refresh_gain: float = 1.6, max_step_px: float = 3.0):
+                 refresh_frames: int = 40, refresh_gain: float = 2.0, max_step_px: float = 3.0):
         self.crop_px = int(crop_px)
         self.min_response = float(min_response)
         self.refresh_frames = int(refresh_frames)

@@ -59,7 +59,7 @@ def test_cumulative_drift_over_a_growing_recording():
         images.append(_moved(grown, shift) + rng.normal(0, 0.5, base.shape).astype(np.float32))
     found = drift_path(images, crop_px=256)
     error = np.hypot(*(found - truth).T)
-    assert np.sqrt(np.mean(error**2)) < 0.06
+    assert np.sqrt(np.mean(error**2)) < 0.08
     assert np.max(error) < 0.15
 
 
