@@ -63,6 +63,7 @@ class NumberForm(QtWidgets.QGroupBox):
             value = QtWidgets.QLabel(DASH)
             value.setObjectName(f"value_{key}")
             value.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+            value.setWordWrap(True)
             layout.addWidget(value, row, 1)
             layout.addWidget(help_button(topic_key, self), row, 2)
             self.values[key] = value
@@ -123,8 +124,10 @@ class PredictionPanel(QtWidgets.QWidget):
         if volumetric is None and nuc.density_per_mm2 is not None and h:
             volumetric = nuc.density_per_mm2 / (h * 1e-3)
         self.form.set("density_volumetric", fmt(volumetric, "mm⁻³"))
-        rates = [fmt(nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹"), fmt(nuc.rate_per_mm3_per_min, "mm⁻³ min⁻¹")]
-        self.form.set("rate", " ; ".join(rates))
+        rates = [fmt(value, unit) for value, unit in ((nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹"),
+                                                      (nuc.rate_per_mm3_per_min, "mm⁻³ min⁻¹"))
+                 if value is not None]
+        self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
         ci = None if g.ci95_high is None or g.value is None else g.ci95_high - g.value
         self.form.set("growth_rate", f"{fmt_pm(g.value, ci, 'µm/min')}  ({g.n} spherulites)")

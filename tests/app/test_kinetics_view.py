@@ -1,0 +1,173 @@
+"""The kinetics view driven like a user would: import an isotherm through the mapping
+dialog, drag the fit window and the baseline, change geometry and mode, undo, export.
+
+The microscopy result is built by hand (one experiment whose N and G are known) so the
+test does not depend on the image pipeline; the isotherm is simulated with the same N_V
+and G, so prediction and calorimetry must agree.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+
+from analysis.project import Experiment, Project
+from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
+from analysis.synthetic_dsc import simulate_dsc_isotherm, write_dsc_csv
+from app.kinetics_view import KineticsView
+from app.model import ProjectModel
+
+N_A_PER_MM2, THICKNESS_UM, G_UM_PER_MIN = 400.0, 20.0, 10.0
+N_V_PER_MM3 = N_A_PER_MM2 / (THICKNESS_UM * 1e-3)  # 2e4 mm^-3
+
+
+@dataclasses.dataclass(frozen=True)
+class HandMadeAnalysis:
+    """Stands in for analysis.pipeline.Analysis: the model only reads ``.result``."""
+
+    result: ExperimentResult
+
+
+def hand_made_result(temperature_c=128.0, g=G_UM_PER_MIN, n_a=N_A_PER_MM2, count=40, mode="athermal"):
+    t_s = np.arange(0.0, 600.0, 30.0)
+    k_film = math.pi * n_a * (g * 1e-3) ** 2
+    return ExperimentResult(
+        stack=f"/data/run_{temperature_c:g}.tif", frames=t_s.size, um_per_px=1.2, interval_s=30.0,
+        temperature_c=temperature_c, thickness_um=THICKNESS_UM, spherulites=(), radii=(),
+        growth_rate=PooledGrowthRate(g, 0.95 * g, 1.05 * g, 25),
+        nucleation=Nucleation(count=count, mode=mode, density_per_mm2=n_a, density_per_mm3=None,
+                              rate_per_mm2_per_min=None, rate_per_mm3_per_min=None, induction_time_s=0.0),
+        area_fraction_time_s=t_s, area_fraction=-np.expm1(-k_film * (t_s / 60) ** 2),
+        avrami_film=None, avrami_predicted=None)
+
+
+def model_with(results, tmp_path) -> ProjectModel:
+    experiments = tuple(Experiment(name=f"run {r.temperature_c:g} C", stack_path=r.stack,
+                                   temperature_c=r.temperature_c, thickness_um=THICKNESS_UM)
+                        for r in results)
+    model = ProjectModel(Project(experiments=experiments, material="iPP"))
+    for i, r in enumerate(results):
+        model.set_analysis(i, HandMadeAnalysis(r), experiments[i])
+    return model
+
+
+@pytest.fixture(scope="module")
+def isotherm_csv(tmp_path_factory):
+    path = tmp_path_factory.mktemp("dsc") / "isotherm_128C.csv"
+    run = simulate_dsc_isotherm(n_v_per_mm3=N_V_PER_MM3, growth_rate_um_per_min=G_UM_PER_MIN, seed=5)
+    write_dsc_csv(run, path, temperature_c=128.0)
+    return str(path), run
+
+
+@pytest.fixture
+def view(qtbot, tmp_path):
+    model = model_with([hand_made_result()], tmp_path)
+    widget = KineticsView(model)
+    qtbot.addWidget(widget)
+    widget.resize(1400, 900)
+    widget.show()
+    return widget
+
+
+def _import(view, path):
+    dialog = view.mapping_dialog(path)
+    dialog.accept()
+    assert view.map_and_store(path, dialog)
+
+
+def test_prediction_from_microscopy(view):
+    values = view.prediction.form
+    # 3-D athermal: k = (4 pi/3) N_V G^3 (Avrami 1940, J. Chem. Phys. 8, 212; from memory)
+    k = 4 * math.pi / 3 * N_V_PER_MM3 * (G_UM_PER_MIN * 1e-3) ** 3
+    assert values.text("n") == "3"
+    assert values.text("k").startswith(f"{k:.3g}")
+    assert values.text("t_half").startswith(f"{(math.log(2) / k) ** (1 / 3):.3g}")
+    assert "4π/3" in view.prediction.formula.text() and "ln 2" in view.prediction.formula.text()
+    assert values.text("thickness") == "20 µm"
+
+
+def test_geometry_and_mode_are_undoable(view):
+    model = view.model
+    view.geometry.setCurrentIndex(view.geometry.findData("film-2d"))
+    view.geometry.activated.emit(view.geometry.currentIndex())
+    assert model.experiment(0).geometry == "film-2d"
+    assert view.prediction.form.text("n") == "2"  # 2-D athermal discs
+    view.mode.setCurrentIndex(view.mode.findData("thermal"))
+    view.mode.activated.emit(view.mode.currentIndex())
+    assert "missing nucleation rate" in view.prediction.problem.text()
+    assert model.undo_stack.count() == 2
+    model.undo_stack.undo()
+    model.undo_stack.undo()
+    assert model.experiment(0).geometry == "bulk-3d" and view.prediction.form.text("n") == "3"
+
+
+def test_import_isotherm_fit_window_and_undo(view, isotherm_csv):
+    path, run = isotherm_csv
+    _import(view, path)
+    model, panel = view.model, view.calorimetry_panel.form
+    assert model.undo_stack.count() == 1
+    assert model.experiment(0).calorimetry.file == path
+    n_default = float(panel.text("n").split()[0])
+    assert n_default == pytest.approx(run.n, abs=0.1)  # simulated athermal bulk: n = 3
+    before = {key: panel.text(key) for key in ("window", "n", "k", "r2")}
+    # drag the shaded window to 10-60 % conversion: one gesture, one undo entry
+    from app.kinetics_plots import x_to_avrami_y
+
+    view.plots.window_region.setRegion((x_to_avrami_y(0.10), x_to_avrami_y(0.60)))
+    assert model.undo_stack.count() == 2
+    lo, hi = model.experiment(0).calorimetry.window
+    assert lo == pytest.approx(0.10, abs=1e-3) and hi == pytest.approx(0.60, abs=1e-3)
+    after = {key: panel.text(key) for key in before}
+    assert after["window"] != before["window"] and after["n"] != before["n"]
+    model.undo_stack.undo()
+    assert {key: panel.text(key) for key in before} == before
+    model.undo_stack.redo()
+    assert panel.text("n") == after["n"]
+
+
+def test_baseline_drag_is_one_undo_entry(view, isotherm_csv):
+    path, _run = isotherm_csv
+    _import(view, path)
+    model = view.model
+    start, end = view.plots.baseline_region.getRegion()
+    enthalpy = view.calorimetry_panel.form.text("enthalpy")
+    view.plots.baseline_region.setRegion((start, end - 1.0))
+    assert model.undo_stack.count() == 2
+    source = model.experiment(0).calorimetry
+    assert source.baseline_end_min == pytest.approx(end - 1.0, abs=0.05)
+    assert "manual" in view.calorimetry_panel.form.text("file")
+    model.undo_stack.undo()
+    assert model.experiment(0).calorimetry.baseline_end_min is None
+    assert view.calorimetry_panel.form.text("enthalpy") == enthalpy
+
+
+def test_comparison_agrees_for_matching_kinetics(view, isotherm_csv):
+    path, _run = isotherm_csv
+    _import(view, path)
+    assert "agree" in view.comparison.note.text()
+    assert "volume basis" in view.comparison.note.text()
+    ratio = float(view.comparison.cell(2, 2))
+    assert ratio == pytest.approx(1.0, abs=0.1)
+    t, x = view.plots.measured_curve.getData()
+    assert t.size > 10 and 0.9 < x.max() <= 1.0
+
+
+def test_comparison_flags_a_tenfold_density(qtbot, tmp_path, isotherm_csv):
+    path, _run = isotherm_csv
+    model = model_with([hand_made_result(n_a=10 * N_A_PER_MM2)], tmp_path)
+    view = KineticsView(model)
+    qtbot.addWidget(view)
+    view.show()
+    _import(view, path)
+    note = view.comparison.note.text()
+    assert "beyond the uncertainty" in note and "slower" in note
+
+
+def test_export_all_figures(view, isotherm_csv, tmp_path):
+    _import(view, isotherm_csv[0])
+    written = view.export_figures(str(tmp_path))
+    assert len(written) == 8
+    assert all((tmp_path / name).stat().st_size > 1000 for name in map(lambda p: p.split("/")[-1], written))
