@@ -203,7 +203,7 @@ def add_cli_arguments(parser) -> None:
                         help="time on the recording clock when the sample reached Tc, s")
     parser.add_argument("--sensitivity", type=float, default=None, metavar="FRAMES",
                         help="minimum depth of a nucleus below its surroundings, frame intervals "
-                             "(default 1; lower finds more)")
+                             "(default 0.5; lower finds more)")
     parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
                         help="geometry of the predicted Avrami kinetics")
 

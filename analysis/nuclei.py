@@ -50,16 +50,52 @@ def frame_interval_s(times_s: np.ndarray) -> float:
     return float(np.median(steps)) if steps.size else 1.0
 
 
-def working_map(arrival_s: np.ndarray, times_s: np.ndarray, *, smooth_px: float = 1.0) -> np.ndarray:
+def mean_slope_s_per_px(arrival_s: np.ndarray, usable: np.ndarray) -> float:
+    """Mean arrival-time gradient |grad t| over usable pixels, s/px (about 1/G).
+
+    Quantisation to frames turns the cone into steps, but a central difference spreads
+    each step over two pixels, so the mean gradient is still the mean of 1/G. The top
+    percent (impingement creases) is clipped.
+    """
+    gy, gx = np.gradient(np.where(usable, arrival_s, np.nan).astype(np.float64))
+    grad = np.hypot(gx, gy)
+    grad = grad[np.isfinite(grad)]
+    if grad.size == 0:
+        return 1.0
+    return float(np.mean(np.minimum(grad, np.percentile(grad, 99)))) or 1.0
+
+
+def _extend_below_start(work, at_start, times_s) -> np.ndarray:
+    """Inside regions already crystalline in frame 0, continue the cones downwards.
+
+    Those pixels only tell that the front passed before the first frame: a flat
+    plateau that hides how many nuclei it holds. Its distance to the plateau edge times
+    the mean slope continues each cone below the first frame time, so overlapping discs
+    present at the start get one minimum each (the classic distance-transform split).
+    """
+    usable = np.isfinite(work) & ~at_start
+    slope = mean_slope_s_per_px(work, usable)
+    depth = ndi.distance_transform_edt(at_start)
+    out = work.copy()
+    out[at_start] = float(times_s[0]) - depth[at_start] * slope
+    return out
+
+
+def working_map(arrival_s: np.ndarray, times_s: np.ndarray, *, smooth_px: float = 1.0,
+                at_start: np.ndarray | None = None) -> np.ndarray:
     """Finite, lightly smoothed copy of the arrival map for minimum detection and flooding.
 
     Unusable pixels (NaN: dust, extinction wedges left open) take the value of the nearest
     usable pixel, so a wedge or a speck of dust neither creates nor hides a minimum.
-    Never-crystallised pixels (+inf) become a plateau above the last frame. A 3x3 median
-    removes isolated outliers before a Gaussian of ``smooth_px`` (0 = none).
+    Never-crystallised pixels (+inf) become a plateau above the last frame. Pixels
+    crystalline at the start (``at_start``) are extended below the first frame time
+    (see :func:`_extend_below_start`). A 3x3 median removes isolated outliers before a
+    Gaussian of ``smooth_px`` (0 = none).
     """
     arrival = np.asarray(arrival_s, dtype=np.float32)
     work = arrival.copy()
+    if at_start is not None and np.any(at_start):
+        work = _extend_below_start(work, np.asarray(at_start, bool), times_s).astype(np.float32)
     never = np.isposinf(work)
     work[never] = float(np.max(times_s)) + 2.0 * frame_interval_s(times_s)
     unusable = ~np.isfinite(work)

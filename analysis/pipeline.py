@@ -72,7 +72,7 @@ class AnalysisSettings:
     """
 
     arrival: dict = field(default_factory=dict)
-    sensitivity_frames: float = 1.0
+    sensitivity_frames: float = 0.5
     min_territory_px: int = 20
     smooth_px: float = 1.0
     boundary_band_px: int = 2
@@ -362,7 +362,8 @@ def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
     if det.excluded:
         return "excluded", lin.description
     if not fit.ok:
-        return "few-points", fit.reason
+        on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
+        return ("edge" if on_border else "few-points"), fit.reason
     if det.excluded is False:
         return "ok", lin.description
     if outside and det.fixed_xy is None:
@@ -556,11 +557,11 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     times = np.asarray(arrival.times_s, dtype=float)
     arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
     yield Progress("finding nuclei", 0.1)
-    work = nuclei.working_map(arrival_s, times, smooth_px=settings.smooth_px)
+    at_start = np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0])
+    work = nuclei.working_map(arrival_s, times, smooth_px=settings.smooth_px, at_start=at_start)
     markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
                                   min_territory_px=settings.min_territory_px)
     base = nuclei.territories(work, arrival_s, markers.labels)
-    at_start = np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0])
     ctx = _Context(stack=stack, frames=times.size, shape=arrival_s.shape, times_s=times,
                    interval_s=nuclei.frame_interval_s(times), um_per_px=float(arrival.um_per_px),
                    isothermal_start_s=float(isothermal_start_s), temperature_c=temperature_c,
