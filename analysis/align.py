@@ -156,72 +156,97 @@ class DriftTracker:
     """Cumulative specimen drift relative to frame 0, one frame at a time.
 
     Feed it one registration image per frame, in order (camera coordinates, with
-    everything fixed to the camera already cancelled, e.g. crystalline evidence).
+    everything fixed to the camera already cancelled, e.g. crystalline evidence), and
+    optionally a mask of *settled* pixels: content that no longer changes except by
+    drift (spherulite interiors). Growing fronts are not a translation; registering on
+    them would read the growth of an off-centre spherulite as drift.
 
     Parameters
     ----------
     crop_px : int
         Side of the square window used for registration (clipped to the frame).
     min_response : float
-        Phase-correlation strength below which a frame is judged featureless and its
-        shift is held at the previous value.
+        Phase-correlation strength below which a match is rejected.
     refresh_frames : int
         A key frame is renewed at the latest after this many frames.
     refresh_gain : float
-        ... or as soon as the band-passed content energy has grown by this factor.
+        ... or as soon as its settled content (mask area, or band-passed energy when no
+        mask is given) has grown by this factor.
     max_step_px : float
         A frame whose shift differs from the previous frame's by more than this is
         treated as a failed match (stage drift is slow).
+    min_settled_px : int
+        Fewer settled pixels than this in the key frame's window: no estimate, the shift
+        is held.
     """
 
-    def __init__(self, *, crop_px: int = 256, min_response: float = 0.2,
-                 refresh_frames: int = 40, refresh_gain: float = 2.0, max_step_px: float = 3.0):
+    def __init__(self, *, crop_px: int = 256, min_response: float = 0.2, refresh_frames: int = 40,
+                 refresh_gain: float = 2.0, max_step_px: float = 3.0, min_settled_px: int = 300):
         self.crop_px = int(crop_px)
         self.min_response = float(min_response)
         self.refresh_frames = int(refresh_frames)
         self.refresh_gain = float(refresh_gain)
         self.max_step_px = float(max_step_px)
+        self.min_settled_px = int(min_settled_px)
         self._key = None
+        self._key_weight = None
         self._key_shift = np.zeros(2)
-        self._key_energy = 0.0
+        self._key_content = 0.0
         self._key_age = 0
         self._origin = (0, 0)
         self._window = None
         self.shift_yx = np.zeros(2)
 
-    def update(self, image: np.ndarray) -> np.ndarray:
+    def update(self, image: np.ndarray, settled: np.ndarray | None = None) -> np.ndarray:
         """Register the next frame's image; returns its cumulative shift (dy, dx), px."""
         image = np.asarray(image, np.float32)
         if self._key is None:
-            self._start(image)
+            self._start(image, settled)
             return self.shift_yx.copy()
         current = self._patch(image)
-        energy = float(np.mean(current * current))
-        found = estimate_shift(self._key, current, window=self._window)
-        candidate = self._key_shift + (found.dy, found.dx)
-        plausible = np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px
-        if found.response >= self.min_response and self._key_energy > 0 and plausible:
-            self.shift_yx = candidate
+        if self._key_content > 0 and self._usable_key():
+            weight = self._window * self._key_weight
+            found = estimate_shift(self._key * self._key_weight, current * self._key_weight, window=weight)
+            candidate = self._key_shift + (found.dy, found.dx)
+            if found.response >= self.min_response and np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px:
+                self.shift_yx = candidate
         self._key_age += 1
-        if energy > self.refresh_gain * self._key_energy or self._key_age >= self.refresh_frames:
-            self._renew(image)
+        if self._content(image, current, settled) > self.refresh_gain * self._key_content \
+                or self._key_age >= self.refresh_frames:
+            self._renew(image, settled)
         return self.shift_yx.copy()
 
-    def _start(self, image):
+    def _usable_key(self):
+        return float(np.count_nonzero(self._key_weight > 0.5)) >= self.min_settled_px
+
+    def _content(self, image, patch, settled):
+        if settled is None:
+            return float(np.mean(patch * patch))
+        return float(np.count_nonzero(self._crop_of(settled)))
+
+    def _start(self, image, settled):
         size = min(self.crop_px, image.shape[0] - 2 * _MARGIN_PX, image.shape[1] - 2 * _MARGIN_PX)
         if size < 32:
             raise ValueError(f"frames of {image.shape[:2]} px are too small to register")
         self.crop_px = int(size)
         self._window = cv2.createHanningWindow((self.crop_px, self.crop_px), cv2.CV_32F)
-        self._renew(image)
+        self._renew(image, settled)
 
-    def _renew(self, image):
+    def _renew(self, image, settled):
         """Make this frame the key frame, choosing the window with the most texture."""
-        self._origin = self._busiest_origin(image)
+        self._origin = self._busiest_origin(image if settled is None else image * settled)
         self._key = self._patch(image)
-        self._key_energy = float(np.mean(self._key * self._key))
+        if settled is None:
+            self._key_weight = np.ones_like(self._key)
+        else:  # soft edges, so that the mask border itself carries no gradient
+            self._key_weight = cv2.GaussianBlur(self._crop_of(settled).astype(np.float32), (0, 0), 2.0)
+        self._key_content = self._content(image, self._key, settled)
         self._key_shift = self.shift_yx.copy()
         self._key_age = 0
+
+    def _crop_of(self, full):
+        y0, x0 = self._origin
+        return full[y0:y0 + self.crop_px, x0:x0 + self.crop_px]
 
     def _patch(self, image):
         y0, x0 = self._origin

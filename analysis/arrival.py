@@ -1,0 +1,476 @@
+"""The arrival-time map: when each pixel of the specimen first became crystalline.
+
+Isothermal crystallization is irreversible, so one streaming pass over the frames can
+record, per pixel, the time the growing front reached it. Memory stays O(H·W) whatever
+the number of frames: a few maps plus a short evidence history for the pixels that the
+front is crossing right now.
+
+Per frame (see :func:`arrival_map_iter`):
+
+1. crystalline evidence against the melt, in camera coordinates (:mod:`analysis.segment`:
+   flicker gain, per-channel noise units, dust and illumination cancelled);
+2. drift of the specimen, estimated on that evidence (:mod:`analysis.align`) and
+   undone by resampling the evidence onto frame 0's grid;
+3. detection: a melt pixel whose evidence reaches the threshold starts being *tracked*;
+   it must stay above ``hysteresis × threshold`` for ``persistence_frames`` frames
+   (flicker and noise spikes do not), otherwise it goes back to melt;
+4. timing: a tracked pixel keeps the evidence of the frame before detection and of the
+   next ``track_frames`` frames. Its arrival is where the evidence crossed *half of its
+   own plateau* (linear interpolation between the two frames around the crossing). A
+   soft front reaches half its contrast when it is centred on the pixel, whatever that
+   pixel's contrast (bright quadrant, near-extinction fringe, dark band), so the time
+   does not depend on the detection threshold. Then the pixel is crystalline for good.
+
+After the pass, pixels that never gave evidence but are enclosed by growth (extinction
+wedges, dark bands, dust over crystal) receive the earliest arrival consistent with the
+measured growth speed (:func:`analysis.segment.complete_wedges`), flagged in ``filled``.
+The growth-analysis stage may exclude ``filled`` pixels from cone fits (they are
+consistent with, but not independent of, their neighbours) and use them for territories
+and transformed fractions.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, fields
+from typing import Any, Generator
+
+import cv2
+import numpy as np
+
+from . import segment
+from .align import AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, warp_onto_reference
+from .errors import InputError
+from .progress import Progress, run_to_completion
+
+__all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
+
+_STAGE = "arrival times"
+_NEVER, _UNUSABLE = -1, -2
+_MELT, _TRACKING, _DONE = 0, 1, 2
+
+
+@dataclass(frozen=True)
+class ArrivalSettings:
+    """User-tunable settings of the arrival-time pass (stored with the experiment).
+
+    Attributes
+    ----------
+    sensitivity : float
+        Scales the automatic detection threshold down (>1 finds fainter crystals, more
+        false alarms) or up (<1).
+    min_size_px : int
+        Crystalline patches smaller than this (px) in the final map are noise and removed;
+        also the smallest object accepted as crystalline in frame 0.
+    reference_frames : int
+        Frames averaged (where still melt) into the melt reference.
+    channel : str
+        ``"auto"``, ``"grey"`` or ``"colour"`` (retardation plate recordings).
+    registration : str
+        ``"auto"``, ``"on"`` or ``"off"`` (see :mod:`analysis.align`).
+    persistence_frames : int
+        Consecutive frames the evidence must stay up before a pixel counts as crystalline.
+    hysteresis : float
+        Fraction of the threshold the evidence must keep during the persistence frames.
+    track_frames : int
+        Frames of evidence kept after detection to find the plateau and the half-way time.
+    smoothing_px : float
+        Gaussian sigma applied to the difference from the melt, px.
+    fill_wedges : bool
+        Fill pixels without evidence (extinction wedges, dark bands) from the growth geometry.
+    """
+
+    sensitivity: float = 1.0
+    min_size_px: int = 12
+    reference_frames: int = 3
+    channel: str = "auto"
+    registration: str = "auto"
+    persistence_frames: int = 2
+    hysteresis: float = 0.6
+    track_frames: int = 12
+    smoothing_px: float = 1.0
+    fill_wedges: bool = True
+
+    def __post_init__(self):
+        problems = []
+        if not (math.isfinite(self.sensitivity) and self.sensitivity > 0):
+            problems.append("sensitivity must be a positive number")
+        if self.min_size_px < 1:
+            problems.append("min_size_px must be at least 1")
+        if self.reference_frames < 1:
+            problems.append("reference_frames must be at least 1")
+        if self.channel not in segment.CHANNEL_MODES:
+            problems.append(f"channel must be one of {segment.CHANNEL_MODES}")
+        if self.registration not in REGISTRATION_MODES:
+            problems.append(f"registration must be one of {REGISTRATION_MODES}")
+        if self.persistence_frames < 1:
+            problems.append("persistence_frames must be at least 1")
+        if not 0 < self.hysteresis <= 1:
+            problems.append("hysteresis must be in (0, 1]")
+        if self.track_frames < max(3, self.persistence_frames + 1):
+            problems.append("track_frames must be at least 3 and exceed persistence_frames")
+        if not (math.isfinite(self.smoothing_px) and 0 < self.smoothing_px <= 10):
+            problems.append("smoothing_px must be in (0, 10]")
+        if problems:
+            raise InputError("arrival settings: " + "; ".join(problems))
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "ArrivalSettings":
+        """Build from a stored dict; unknown keys are an error, missing keys take defaults."""
+        known = {f.name: f.type for f in fields(cls)}
+        unknown = sorted(set(data) - set(known))
+        if unknown:
+            raise InputError(f"arrival settings: unknown keys {unknown}")
+        defaults = cls()
+        values = {}
+        for name, value in data.items():
+            kind = type(getattr(defaults, name))
+            try:
+                values[name] = kind(value) if kind is not bool else _as_bool(value)
+            except (TypeError, ValueError):
+                raise InputError(f"arrival settings: {name} must be of type {kind.__name__}") from None
+        return cls(**values)
+
+
+def _as_bool(value) -> bool:
+    if isinstance(value, bool):
+        return value
+    raise ValueError(value)
+
+
+@dataclass(frozen=True)
+class ArrivalMap:
+    """Per-pixel arrival times on frame 0's pixel grid.
+
+    Attributes
+    ----------
+    arrival_s : ndarray, float32, (H, W)
+        Time (s, recording clock) the pixel first became crystalline; +inf never within
+        the record; NaN unusable.
+    frame_index : ndarray, int32, (H, W)
+        First frame in which the pixel is crystalline; -1 never; -2 unusable.
+    crystalline_at_start : ndarray of bool, (H, W)
+        Already crystalline in frame 0 (arrival_s = times_s[0], an upper bound).
+    shifts_px : ndarray, float64, (n_frames, 2)
+        (dy, dx) specimen drift of each frame relative to frame 0, px.
+    times_s : ndarray, float64, (n_frames,)
+        Frame times used, s.
+    um_per_px : float
+    unusable : ndarray of bool, (H, W)
+        Pixels hidden by dense dust (NaN in ``arrival_s``).
+    filled : ndarray of bool, (H, W)
+        Arrival inferred from the growth geometry, not seen (extinction wedges, bands).
+    contrast : ndarray, float32, (H, W)
+        Plateau evidence after the front passed, in noise units (0 where not measured).
+    evidence_threshold : float
+        Detection threshold used, noise units.
+    slowness_s_per_px : float
+        Median |∇t| used to fill wedges (1/G in s/px); NaN when not measured.
+    channel : str
+        Channel mode used (``"grey"`` or ``"colour"``).
+    """
+
+    arrival_s: np.ndarray
+    frame_index: np.ndarray
+    crystalline_at_start: np.ndarray
+    shifts_px: np.ndarray
+    times_s: np.ndarray
+    um_per_px: float
+    unusable: np.ndarray
+    filled: np.ndarray
+    contrast: np.ndarray
+    evidence_threshold: float
+    slowness_s_per_px: float
+    channel: str
+
+    @property
+    def crystalline_fraction(self) -> np.ndarray:
+        """Crystalline fraction of the usable field at each frame time."""
+        usable = self.arrival_s[~self.unusable]
+        ordered = np.sort(usable.ravel())
+        return np.searchsorted(ordered, self.times_s, side="right") / max(ordered.size, 1)
+
+
+def _checked_stack(stack) -> tuple[np.ndarray, float]:
+    path = getattr(stack, "path", None)
+    if len(stack) < 2:
+        raise InputError("needs at least two frames to measure arrival times", path)
+    if stack.times_s is None:
+        raise InputError("frame times are unknown (give the frame interval)", path)
+    times = np.asarray(stack.times_s, np.float64)
+    if times.shape != (len(stack),) or not np.all(np.isfinite(times)) or np.any(np.diff(times) <= 0):
+        raise InputError("frame times must be finite and strictly increasing, one per frame", path)
+    um = stack.um_per_px
+    if um is None or not (math.isfinite(um) and um > 0):
+        raise InputError("pixel size (um per px) is unknown or not positive", path)
+    shape = tuple(stack.frame_shape)
+    if len(shape) < 2 or shape[0] < 48 or shape[1] < 48:
+        raise InputError(f"frames of shape {shape} are too small to analyse (48×48 px at least)", path)
+    return times, float(um)
+
+
+class _Tracker:
+    """Pixels the front is crossing now: their flat indices and short evidence histories."""
+
+    def __init__(self, width: int):
+        self.width = width
+        self.index = np.empty(0, np.int64)
+        self.first = np.empty(0, np.int32)      # frame index of detection
+        self.history = np.empty((0, width), np.float32)
+        self.count = np.empty(0, np.int16)      # filled history columns
+
+    def add(self, index, frame, before, now):
+        rows = np.zeros((index.size, self.width), np.float32)
+        rows[:, 0], rows[:, 1] = before, now
+        self.index = np.concatenate([self.index, index])
+        self.first = np.concatenate([self.first, np.full(index.size, frame, np.int32)])
+        self.history = np.concatenate([self.history, rows])
+        self.count = np.concatenate([self.count, np.full(index.size, 2, np.int16)])
+
+    def record(self, evidence_flat):
+        if self.index.size:
+            self.history[np.arange(self.index.size), self.count] = evidence_flat[self.index]
+            self.count += 1
+
+    def take(self, chosen):
+        """Remove the chosen rows and return them (index, first, history, count)."""
+        taken = (self.index[chosen], self.first[chosen], self.history[chosen], self.count[chosen])
+        keep = ~chosen
+        self.index, self.first = self.index[keep], self.first[keep]
+        self.history, self.count = self.history[keep], self.count[keep]
+        return taken
+
+
+def _half_plateau_times(history, count, first, times, threshold):
+    """Arrival time and plateau of retired pixels from their evidence histories.
+
+    Column j of a history holds frame ``first + j - 1``. The plateau is the mean of the
+    last (up to) three columns; the arrival is where the evidence first reached half of
+    it (never before the pre-detection value), linearly interpolated in time.
+    """
+    n, width = history.shape
+    cols = np.arange(width)
+    valid = cols[None, :] < count[:, None]
+    tail = valid & (cols[None, :] >= np.maximum(count - 3, 1)[:, None])
+    plateau = np.where(tail, history, 0).sum(axis=1) / tail.sum(axis=1)
+    level = np.maximum(0.5 * plateau, np.minimum(history[:, 0] + 1e-3 * threshold, history[:, 1]))
+    above = valid & (cols[None, :] >= 1) & (history >= level[:, None])
+    j = np.argmax(above, axis=1)
+    j = np.where(above.any(axis=1), j, 1)
+    rows = np.arange(n)
+    lo, hi = history[rows, j - 1], history[rows, j]
+    fraction = np.clip((level - lo) / np.maximum(hi - lo, 1e-6), 0.0, 1.0)
+    frame_hi = np.minimum(first + j - 1, times.size - 1)
+    frame_lo = np.maximum(frame_hi - 1, 0)
+    arrival = times[frame_lo] + fraction * (times[frame_hi] - times[frame_lo])
+    return arrival.astype(np.float32), plateau.astype(np.float32)
+
+
+class _PassState:
+    """Everything the streaming pass keeps between frames (all O(H·W))."""
+
+    def __init__(self, shape, n_frames, settings):
+        size = shape[0] * shape[1]
+        self.shape = shape
+        self.status = np.zeros(size, np.uint8)
+        self.arrival = np.full(size, np.inf, np.float32)
+        self.contrast = np.zeros(size, np.float32)
+        self.previous = np.zeros(size, np.float32)
+        self.shifts = np.zeros((n_frames, 2))
+        self.tracker = _Tracker(settings.track_frames + 1)
+        self.settings = settings
+
+
+def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
+                     ) -> Generator[Progress, None, ArrivalMap]:
+    """One streaming pass over ``stack``; yields :class:`Progress`, returns :class:`ArrivalMap`.
+
+    Parameters
+    ----------
+    stack : FrameStack-like
+        ``len``, ``times_s`` (s), ``um_per_px``, ``frame_shape``, ``iter_frames()``, ``path``.
+    settings : ArrivalSettings
+
+    Raises
+    ------
+    InputError
+        Missing calibration or times, too few or too small frames, a frame of the wrong
+        shape or containing NaN.
+    """
+    times, um_per_px = _checked_stack(stack)
+    n = len(stack)
+    frames = stack.iter_frames()
+    raw0 = _checked_frame(next(frames), stack, 0)
+    raw1 = _checked_frame(next(frames), stack, 1)
+    mode = segment.resolve_channel_mode(settings.channel, raw0)
+    first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
+    model, threshold, at_start = _set_up(first, second, settings, mode)
+    state = _PassState(first.shape[:2], n, settings)
+    state.status[at_start.ravel()] = _DONE
+    state.arrival[at_start.ravel()] = times[0]
+    drift = None if settings.registration == "off" else DriftTracker()
+    if drift is not None:
+        drift.update(np.zeros(first.shape[:2], np.float32), np.zeros(first.shape[:2], np.float32))
+    usable_sample = ~(model.blind | at_start)[::4, ::4]
+    reference_sum = first.astype(np.float64)
+    reference_count = np.ones(first.shape[:2], np.float64)
+    camera_previous = np.zeros(first.shape[:2], np.float32)
+    yield Progress(_STAGE, 1.0 / n, f"frame 1 of {n}")
+    for k in range(1, n):
+        image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode)
+        sample = (camera_previous[::4, ::4] < 0.5 * threshold) & usable_sample
+        gain = segment.frame_gain(image, model, sample)
+        camera = segment.evidence(image, model, gain)
+        if k < settings.reference_frames:
+            _update_reference(model, reference_sum, reference_count, image, gain, camera < 0.5 * threshold)
+        state.shifts[k] = state.shifts[k - 1] if drift is None else drift.update(
+            camera, _settled_in_camera(state, at_start, state.shifts[k - 1]))
+        specimen = _onto_frame0(camera, state.shifts[k], settings.registration)
+        _step(state, specimen.ravel(), k, times, threshold)
+        camera_previous = camera
+        yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
+    _retire(state, np.ones(state.tracker.index.size, bool), times, threshold, final=True)
+    return _finish(state, times, um_per_px, threshold, at_start, model, mode)
+
+
+def arrival_map(stack, *, settings: ArrivalSettings = ArrivalSettings(), on_progress=None) -> ArrivalMap:
+    """Eager wrapper of :func:`arrival_map_iter`."""
+    return run_to_completion(arrival_map_iter(stack, settings=settings), on_progress)
+
+
+def _checked_frame(frame, stack, index) -> np.ndarray:
+    frame = np.asarray(frame)
+    path = getattr(stack, "path", None)
+    if frame.shape != tuple(stack.frame_shape):
+        raise InputError(f"frame {index} has shape {frame.shape}, expected {tuple(stack.frame_shape)}", path)
+    if frame.dtype.kind == "f" and not np.all(np.isfinite(frame)):
+        raise InputError(f"frame {index} contains NaN or infinite values", path)
+    return frame
+
+
+def _set_up(first, second, settings, mode):
+    """Melt model, detection threshold and frame-0 crystals from the first two frames."""
+    noise = segment.temporal_noise(first, second)
+    model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
+                              smoothing_px=settings.smoothing_px)
+    model.blind = segment.blind_pixels(model.level, noise)
+    ones = np.ones(model.channels, np.float32)
+    trial = segment.evidence(second, model, ones)
+    provisional = segment.evidence_threshold(trial[::2, ::2], settings.sensitivity)
+    at_start = segment.initial_crystalline(first, model, provisional, min_size_px=settings.min_size_px, mode=mode)
+    melt = ~(at_start | model.blind) & (trial < provisional)
+    threshold = segment.evidence_threshold(trial[melt][::3], settings.sensitivity)
+    return model, threshold, at_start
+
+
+def _update_reference(model, total, count, image, gain, still_melt):
+    """Average early frames into the melt level where the pixel is still melt."""
+    corrected = image * (gain if model.channels > 1 else gain[0])
+    weight = still_melt if model.channels == 1 else still_melt[..., None]
+    total += np.where(weight, corrected, 0.0)
+    count += still_melt
+    model.level = (total / (count if model.channels == 1 else count[..., None])).astype(np.float32)
+
+
+def _settled_in_camera(state, at_start, shift):
+    """Pixels crystalline for a while (tracking finished), where they sit on the sensor;
+    frame-0 crystals are left out: the melt reference contains them, so they show no
+    evidence to register on."""
+    settled = ((state.status == _DONE).reshape(state.shape) & ~at_start).astype(np.float32)
+    if not np.any(shift):
+        return settled
+    return warp_onto_reference(settled, -np.asarray(shift))
+
+
+def _onto_frame0(camera, shift, mode):
+    if mode == "off" or (mode == "auto" and np.max(np.abs(shift)) < AUTO_WARP_TOLERANCE_PX):
+        return camera
+    return warp_onto_reference(camera, shift, border_value=0.0)
+
+
+def _step(state, evidence_flat, k, times, threshold):
+    """Detect, track and retire pixels for frame k."""
+    settings, tracker = state.settings, state.tracker
+    tracker.record(evidence_flat)
+    age = tracker.count - 2
+    checking = age < settings.persistence_frames
+    dropped = checking & (tracker.history[np.arange(age.size), np.maximum(tracker.count - 1, 0)]
+                          < settings.hysteresis * threshold)
+    if dropped.any():
+        index = tracker.take(dropped)[0]
+        state.status[index] = _MELT
+    full = tracker.count >= tracker.width
+    if full.any():
+        _retire(state, full, times, threshold)
+    fresh = np.flatnonzero((evidence_flat >= threshold) & (state.status == _MELT))
+    if fresh.size:
+        tracker.add(fresh, k, state.previous[fresh], evidence_flat[fresh])
+        state.status[fresh] = _TRACKING
+    state.previous = evidence_flat
+
+
+def _retire(state, chosen, times, threshold, final=False):
+    index, first, history, count = state.tracker.take(chosen)
+    if index.size == 0:
+        return
+    if final:  # pixels detected in the last frames: keep those that held up so far
+        cols = np.arange(history.shape[1])[None, :]
+        low = (cols >= 1) & (cols < count[:, None]) & (history < state.settings.hysteresis * threshold)
+        held = ~low.any(axis=1)
+        state.status[index[~held]] = _MELT
+        index, first, history, count = index[held], first[held], history[held], count[held]
+    arrival, plateau = _half_plateau_times(history, count, first, times, threshold)
+    state.arrival[index] = arrival
+    state.contrast[index] = plateau
+    state.status[index] = _DONE
+
+
+def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> ArrivalMap:
+    shape = state.shape
+    arrival = state.arrival.reshape(shape).astype(np.float32)
+    contrast = state.contrast.reshape(shape)
+    arrival = _drop_specks(arrival, state.settings.min_size_px)
+    unusable = _unusable(model.blind, state.shifts)
+    filled = np.zeros(shape, bool)
+    slowness = float("nan")
+    if state.settings.fill_wedges:
+        reliable = np.isfinite(arrival) & ~at_start & (contrast >= 4.0 * threshold)
+        slowness = segment.estimate_slowness(arrival, reliable)
+        completed = segment.complete_wedges(np.where(reliable | at_start, arrival, np.inf), slowness)
+        gap = ~np.isfinite(arrival) & (completed <= times[-1])
+        weak = np.isfinite(arrival) & ~reliable & ~at_start & (completed < arrival)
+        filled = gap
+        arrival = np.where(gap | weak, completed, arrival).astype(np.float32)
+    arrival[unusable] = np.nan
+    filled &= ~unusable
+    index = np.searchsorted(times, arrival.astype(np.float64), side="left").astype(np.int32)
+    index = np.where(np.isfinite(arrival), np.minimum(index, times.size - 1), _NEVER).astype(np.int32)
+    index[unusable] = _UNUSABLE
+    return ArrivalMap(
+        arrival_s=arrival, frame_index=index, crystalline_at_start=at_start & ~unusable,
+        shifts_px=state.shifts, times_s=times, um_per_px=um_per_px, unusable=unusable,
+        filled=filled, contrast=contrast, evidence_threshold=float(threshold),
+        slowness_s_per_px=slowness, channel=mode,
+    )
+
+
+def _drop_specks(arrival, min_size_px):
+    """Isolated crystalline patches smaller than ``min_size_px`` are noise."""
+    found = np.isfinite(arrival).astype(np.uint8)
+    _, labels, stats, _ = cv2.connectedComponentsWithStats(found, connectivity=8)
+    small = stats[:, cv2.CC_STAT_AREA] < min_size_px
+    small[0] = False
+    return np.where(small[labels], np.float32(np.inf), arrival)
+
+
+def _unusable(blind, shifts):
+    """Blind camera pixels on frame 0's grid, widened by how far the specimen drifted
+    (the dust swept over that much specimen)."""
+    reach = int(np.ceil(np.max(np.abs(shifts)))) if shifts.size else 0
+    if reach == 0 or not blind.any():
+        return blind.copy()
+    kernel = np.ones((2 * reach + 1, 2 * reach + 1), np.uint8)
+    return cv2.dilate(blind.astype(np.uint8), kernel).astype(bool)
