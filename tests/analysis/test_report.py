@@ -1,0 +1,95 @@
+"""Report assembly from hand-made experiment results (no image analysis needed)."""
+
+import json
+import math
+import xml.etree.ElementTree as ET
+
+import cv2
+import numpy as np
+import pytest
+from openpyxl import load_workbook
+
+from analysis.calorimetry import analyze_calorimetry_file
+from analysis.errors import InputError
+from analysis.project import Experiment, Project
+from analysis.report import build_report, series_constants
+from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
+from analysis.synthetic import simulate_dsc_isotherm, write_dsc_csv
+from analysis.tables import ReportEntry
+from analysis.temperature_series import LHConstants, lh_growth_rate
+
+CONST = LHConstants(tm0_c=185.0, tg_c=-10.0)
+
+
+def fixture_b_rate(tc):
+    # Synthetic fixture B (REFERENCES.md 2.5, derived here; Lauritzen & Hoffman 1960 J. Res.
+    # NBS 64A, 73 # from memory): regime III below 137 C, regime II above
+    if tc <= 137.0:
+        return float(lh_growth_rate([tc], math.exp(32.542025), 5.5e5, CONST)[0])
+    return float(lh_growth_rate([tc], math.exp(17.756191), 2.75e5, CONST)[0])
+
+
+def make_result(tc, n_mm3=2e4):
+    g = fixture_b_rate(tc)
+    t_s = np.linspace(0, 600, 40)
+    k = 4 * math.pi / 3 * 0.02 * (g * 1e-3) ** 2 * 1e3  # film-like area fraction, invented demo
+    return ExperimentResult(
+        stack=f"demo_{tc:g}.tif", frames=40, um_per_px=0.5, interval_s=15.0, temperature_c=tc,
+        thickness_um=25.0, spherulites=(), radii=(),
+        growth_rate=PooledGrowthRate(g, 0.97 * g, 1.03 * g, 15),
+        nucleation=Nucleation(60, "athermal", n_mm3 * 0.025, n_mm3, None, None, 0.0),
+        area_fraction_time_s=t_s, area_fraction=1 - np.exp(-k * (t_s / 60) ** 2),
+        avrami_film=None, avrami_predicted=None)
+
+
+@pytest.fixture(scope="module")
+def calorimetry(tmp_path_factory):
+    path = tmp_path_factory.mktemp("dsc") / "run_130.csv"
+    write_dsc_csv(simulate_dsc_isotherm(n_v_per_mm3=2e4, growth_rate_um_per_min=fixture_b_rate(130.0) * 2,
+                                        seed=2), path, delimiter=";", decimal=",")
+    return analyze_calorimetry_file(path)
+
+
+def test_build_report_writes_everything(tmp_path, calorimetry):
+    temps = [125.0, 127.5, 130.0, 132.5, 135.0, 137.5, 140.0, 142.5, 145.0, 147.5, 150.0]
+    entries = [ReportEntry(f"Tc {t:g}", make_result(t), calorimetry=calorimetry if t == 130.0 else None)
+               for t in temps]
+    summary = build_report(entries, tmp_path, constants=CONST, material="iPP")
+    names = {p.rsplit("/", 1)[-1] for p in summary.files}
+    for stem in ("growth_rate_vs_temperature", "lauritzen_hoffman", "avrami_microscopy",
+                 "avrami_calorimetry", "conversion_comparison"):
+        assert {stem + ".png", stem + ".svg"} <= names
+        image = cv2.imread(str(tmp_path / (stem + ".png")))
+        assert image is not None and image.shape[1] >= 1000  # 300 dpi, single column
+        root = ET.parse(tmp_path / (stem + ".svg")).getroot()
+        assert root.tag.endswith("svg")
+    lines = (tmp_path / "growth_vs_temperature.csv").read_text().splitlines()
+    assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,growth_rate_um_per_min")
+    doc = json.loads((tmp_path / "secondary_nucleation.json").read_text())
+    # the break of fixture B (137 C) is found within 2 K and the ratio is 2 (REFERENCES.md 2.5)
+    assert len(doc["regimes"]) == 2 and abs(doc["regimes"][0]["t_high_c"] - 137.0) <= 2.0
+    assert doc["regime_ratio"] == pytest.approx(2.0, rel=0.01)
+    book = load_workbook(tmp_path / "growth_vs_temperature.xlsx")
+    assert book.sheetnames == ["growth_vs_temperature", "kinetics_comparison"]
+    comparison = book["kinetics_comparison"]
+    assert comparison.max_row == 2 and comparison["A2"].value == "Tc 130"
+    assert comparison["K2"].value in ("agree", "disagree") and comparison["L2"].value
+
+
+def test_report_needs_entries_and_skips_lh_without_constants(tmp_path):
+    with pytest.raises(InputError):
+        build_report([], tmp_path)
+    summary = build_report([ReportEntry("one", make_result(130.0))], tmp_path / "o")
+    assert summary.lauritzen_hoffman is None
+    assert any("Lauritzen-Hoffman" in p for p in summary.problems)
+    assert not (tmp_path / "o" / "secondary_nucleation.json").exists()
+
+
+def test_series_constants_from_project_or_material():
+    exp = Experiment(name="a", stack_path="/nowhere/a.tif")
+    explicit = Project(experiments=(exp,), series={"tm0_c": 186.0, "tg_c": -8.0, "t_inf_c": -40.0})
+    constants, _ = series_constants(explicit)
+    assert (constants.tm0_c, constants.tg_c, constants.t_inf) == (186.0, -8.0, -40.0)
+    from_material, note = series_constants(Project(experiments=(exp,), material="PP"))
+    assert from_material.tm0_c == 185.0 and "material table" in note  # iPP, Clark & Hoffman 1984 # from memory
+    assert series_constants(Project(experiments=(exp,)))[0] is None
