@@ -426,7 +426,7 @@ def add_cli_arguments(parser: argparse.ArgumentParser) -> None:
         if f.name in _SKIPPED_FIELDS:
             continue
         flag = _OPTION_NAMES.get(f.name, "--" + f.name.replace("_", "-"))
-        text = f"{f.metadata['help']} (default {f.default})"
+        text = f.metadata["help"] + ("" if f.default is None else f" (default {f.default})")
         if f.type in (bool, "bool"):
             names = [flag, "--rgb"] if f.name == "retardation_plate" else [flag]
             parser.add_argument(*names, dest=f.name, action="store_true", help=text)
