@@ -93,3 +93,42 @@ def test_series_constants_from_project_or_material():
     from_material, note = series_constants(Project(experiments=(exp,), material="PP"))
     assert from_material.tm0_c == 185.0 and "material table" in note  # iPP, Clark & Hoffman 1984 # from memory
     assert series_constants(Project(experiments=(exp,)))[0] is None
+
+
+def test_project_report_wiring(tmp_path, monkeypatch):
+    """report_project: every experiment analysed, calorimetry read from the project's mapping,
+    bad experiments reported and skipped. The image pipeline is replaced by hand-made
+    results here (it has its own tests); everything downstream is real."""
+    import analysis.pipeline as pipeline
+    from analysis.progress import Progress
+    from analysis.project import CalorimetrySource
+    from analysis.report import report_project
+
+    dsc = tmp_path / "dsc_130.txt"
+    write_dsc_csv(simulate_dsc_isotherm(seed=5), dsc, delimiter="\t")
+
+    class Done:
+        def __init__(self, result):
+            self.result = result
+
+    def fake_iter(experiment):
+        yield Progress("fake", 0.5)
+        if experiment.temperature_c is None:
+            raise InputError("stack has no calibration", experiment.stack_path)
+        return Done(make_result(experiment.temperature_c))
+
+    monkeypatch.setattr(pipeline, "analyze_experiment_iter", fake_iter)
+    cal = CalorimetrySource(file=str(dsc), time_col="Time (min)", heat_flow_col=1, mass_mg=5.0)
+    exps = [Experiment(name=f"T{t:g}", stack_path=f"/data/{t:g}.tif", temperature_c=t,
+                       calorimetry=cal if t == 130.0 else None) for t in (125.0, 127.5, 130.0, 132.5)]
+    exps.append(Experiment(name="broken", stack_path="/data/x.tif"))
+    project = Project(experiments=tuple(exps), material="iPP", series={"tm0_c": 185.0, "tg_c": -10.0})
+    summary = report_project(project, tmp_path / "out")
+    assert any(p.startswith("broken: skipped") for p in summary.problems)
+    rows = (tmp_path / "out" / "growth_vs_temperature.csv").read_text().splitlines()
+    assert len(rows) == 5
+    t130 = dict(zip(rows[0].split(","), rows[3].split(",")))
+    assert float(t130["dsc_avrami_n"]) == pytest.approx(3.0, abs=0.05)
+    # 4 temperatures of regime III of fixture B: one regime, Kg refit (REFERENCES.md 2.5)
+    doc = json.loads((tmp_path / "out" / "secondary_nucleation.json").read_text())
+    assert len(doc["regimes"]) == 1 and doc["kg_k2"] == pytest.approx(5.5e5, rel=1e-6)
