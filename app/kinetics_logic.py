@@ -115,107 +115,55 @@ class ComparisonView:
     measured_curve: tuple
 
 
-def _scaled_result(result, *, growth_factor: float, density_factor: float):
-    """A copy of ``result`` with G and the nucleation densities/rates scaled (for bounds)."""
-    import dataclasses
 
-    g, nuc = result.growth_rate, result.nucleation
-    scale = lambda value: None if value is None else value * density_factor
-    return dataclasses.replace(
-        result,
-        growth_rate=dataclasses.replace(g, value=None if g.value is None else g.value * growth_factor),
-        nucleation=dataclasses.replace(
-            nuc, density_per_mm2=scale(nuc.density_per_mm2), density_per_mm3=scale(nuc.density_per_mm3),
-            rate_per_mm2_per_min=scale(nuc.rate_per_mm2_per_min),
-            rate_per_mm3_per_min=scale(nuc.rate_per_mm3_per_min)))
-
-
-def predicted_half_time_range(result, mode_override: str | None) -> tuple[float, float] | None:
-    """Bulk t½ predicted at the ends of G's 95 % interval and of the nucleus count's 95 %
-    Poisson interval (1 ± 1.96/√count), each prediction made by ``analysis.avrami``."""
-    g, nuc = result.growth_rate, result.nucleation
-    if g.value is None or g.ci95_low is None or g.ci95_high is None or not nuc.count:
-        return None
-    spread = min(0.95, 1.96 / np.sqrt(nuc.count))
-    bounds = []
-    for growth, density in (((g.ci95_high / g.value), 1 + spread), ((g.ci95_low / g.value), 1 - spread)):
-        if growth <= 0:
-            return None
-        scaled = _scaled_result(result, growth_factor=growth, density_factor=density)
-        bounds.append(predict_model_from_result(scaled, "bulk-3d", mode_override).t_half_min)
-    return min(bounds), max(bounds)
-
-
-def _measured_fit(calorimetry, material):
-    """Calorimetry X(t) on a volume basis and its window fit; mass basis without densities."""
-    from analysis.avrami import fit_avrami_window, volume_fraction_from_mass
+def _measured_curve(calorimetry, material):
+    """Calorimetry X(t − t0) on a volume basis (mass basis, with the reason, without densities)."""
+    from analysis.avrami import volume_fraction_from_mass
 
     t, x = calorimetry.conversion_table()
     tau = t - calorimetry.induction_time_min
     keep = tau > 0
     tau, x = tau[keep], x[keep]
     if material is None:
-        return tau, x, calorimetry.avrami, "mass (no material chosen, so no density ratio)"
+        return tau, x, "mass basis (choose a material for the density ratio)"
     try:
-        x_volume = volume_fraction_from_mass(x, material=material)
+        return tau, volume_fraction_from_mass(x, material=material), "volume basis"
     except InputError as error:
-        return tau, x, calorimetry.avrami, f"mass ({error.problem})"
-    return tau, x_volume, fit_avrami_window(tau, x_volume, calorimetry.window), "volume"
+        return tau, x, f"mass basis ({error.problem})"
 
 
-def _ratio(a, b) -> str:
-    return "—" if a is None or b is None or not b else f"{a / b:.2f}"
+def _ratio(measured, predicted) -> str:
+    return "—" if measured is None or predicted is None or not predicted else f"{measured / predicted:.2f}"
 
 
 def compare(result, experiment, calorimetry, material) -> ComparisonView:
-    """Bulk prediction from microscopy against the calorimetry fit: table rows, note, curve."""
+    """Bulk prediction against the calorimetry fit (``analysis.tables.compare_kinetics``):
+    table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve."""
+    from analysis.tables import ReportEntry, compare_kinetics
+
     from .kinetics_panels import DASH, fmt, k_unit
 
     empty = (DASH, DASH, DASH)
     if calorimetry is None:
         return ComparisonView((empty,) * 3, "Import a calorimetry isotherm to compare.", (None, None))
-    tau, x_measured, fit, basis = _measured_fit(calorimetry, material)
-    predicted = None if result is None else safe_prediction(result, _as_bulk(experiment))
-    curve = (tau, x_measured)
-    if not fit or predicted is None:
-        why = fit.reason if not fit else "no bulk prediction from microscopy (see above)"
-        return ComparisonView((empty,) * 3, f"No comparison: {why}.", curve)
+    tau, x, basis = _measured_curve(calorimetry, material)
+    curve_note = f"The plotted calorimetry curve is on a {basis}."
+    if result is None:
+        return ComparisonView((empty,) * 3, f"No microscopy result to compare with. {curve_note}", (tau, x))
+    entry = ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override, calorimetry)
+    c = compare_kinetics(entry)
+    if c is None:
+        why = (calorimetry.avrami.reason if not calorimetry.avrami
+               else "no bulk prediction from microscopy (see the prediction above)")
+        return ComparisonView((empty,) * 3, f"No comparison: {why}. {curve_note}", (tau, x))
+    root = lambda k, n: k ** (1.0 / n)
     rows = (
-        (f"{predicted.n:.2f}", f"{fit.n:.2f}", _ratio(predicted.n, fit.n)),
-        (fmt(predicted.k_per_min_n, k_unit(predicted.n)), fmt(fit.k_per_min_n, k_unit(fit.n)),
-         f"{_ratio(predicted.k_per_min_n ** (1 / predicted.n), fit.k_per_min_n ** (1 / fit.n))} (k^(1/n))"),
-        (fmt(predicted.t_half_min), fmt(fit.t_half_min), _ratio(predicted.t_half_min, fit.t_half_min)),
+        (f"{c.predicted_n:.2f}", f"{c.measured_n:.2f}", _ratio(c.measured_n, c.predicted_n)),
+        (fmt(c.predicted_k_per_min_n, k_unit(c.predicted_n)), fmt(c.measured_k_per_min_n, k_unit(c.measured_n)),
+         f"{_ratio(root(c.measured_k_per_min_n, c.measured_n), root(c.predicted_k_per_min_n, c.predicted_n))}"
+         " (k^(1/n))"),
+        (fmt(c.predicted_t_half_min), fmt(c.measured_t_half_min),
+         f"{c.t_half_ratio:.2f} (×/÷ {c.ratio_uncertainty:.2g})"),
     )
-    note = _agreement_note(predicted, fit, predicted_half_time_range(result, experiment.mode_override))
-    return ComparisonView(rows, f"{note} Calorimetry on a {basis} basis.", curve)
-
-
-def _as_bulk(experiment):
-    import dataclasses
-
-    return dataclasses.replace(experiment, geometry="bulk-3d")
-
-
-def _agreement_note(predicted, fit, t_half_range) -> str:
-    if t_half_range is None:
-        return ("The uncertainty of the prediction is unknown (no confidence interval for G or no "
-                "nucleus count), so agreement cannot be judged.")
-    low, high = t_half_range
-    if low <= fit.t_half_min <= high:
-        return (f"The half-times agree: calorimetry {fit.t_half_min:.3g} min lies within the "
-                f"{low:.3g}-{high:.3g} min that G and N allow.")
-    factor = fit.t_half_min / predicted.t_half_min
-    faster = "slower" if factor > 1 else "faster"
-    text = (f"The calorimetry sample crystallizes {max(factor, 1 / factor):.2g} times {faster} than "
-            f"microscopy predicts ({fit.t_half_min:.3g} min against {low:.3g}-{high:.3g} min), "
-            "beyond the uncertainty of G and N. ")
-    if factor < 1:
-        text += ("More nuclei in the bulk pan than in the film (pan surfaces, additives, a different "
-                 "melt history) is the usual reason. ")
-    else:
-        text += ("Fewer active nuclei in the bulk sample, surface nuclei counted in the thin film, "
-                 "or a film thickness set too large (N_V = N_A/h) are the usual reasons. ")
-    if abs(fit.n - predicted.n) > 0.5:
-        text += (f"The exponents also differ (n = {fit.n:.2f} against {predicted.n:.2f}): check the "
-                 "induction time and that the fit window stays before secondary crystallization.")
-    return text.strip()
+    verdict = "Agree." if c.agree else "Disagree beyond the uncertainty."
+    return ComparisonView(rows, f"{verdict} {c.note} {curve_note}", (tau, x))

@@ -195,7 +195,7 @@ class ComparisonTable(QtWidgets.QWidget):
         box = QtWidgets.QGroupBox("Microscopy (bulk prediction) against calorimetry", self)
         self.table = QtWidgets.QTableWidget(len(self.QUANTITIES), 3, box)
         self.table.setObjectName("comparison_table")
-        self.table.setHorizontalHeaderLabels(["microscopy", "calorimetry", "ratio"])
+        self.table.setHorizontalHeaderLabels(["microscopy", "calorimetry", "calorimetry / microscopy"])
         self.table.setVerticalHeaderLabels(list(self.QUANTITIES))
         self.table.setEditTriggers(QtWidgets.QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.horizontalHeader().setSectionResizeMode(QtWidgets.QHeaderView.ResizeMode.Stretch)

@@ -1,0 +1,129 @@
+"""The temperature-series view: table (sort, copy, CSV/XLSX read back), Lauritzen-Hoffman
+constants as undoable edits, the fit on an exact synthetic G(Tc) series, Hoffman-Weeks."""
+
+from __future__ import annotations
+
+import csv
+
+import openpyxl
+import pytest
+from PySide6 import QtCore, QtWidgets
+
+from app.temperature_view import TemperatureView
+from test_kinetics_view import hand_made_result, model_with
+
+# Synthetic single-regime G(Tc) series generated from the LH equation with Tm0 = 185 °C,
+# Tg = -10 °C, T_inf = Tg - 30 K, U* = 6270 J/mol, Kg = 5.5e5 K^2 (exact by construction;
+# LH form: Lauritzen & Hoffman 1960, J. Res. NBS 64A, 73, from memory; Hoffman 1983, Polymer 24, 3,
+# from memory).
+FIXTURE_A = {120.0: 92.5056, 125.0: 24.8726, 130.0: 5.0, 135.0: 0.691541, 140.0: 0.0583348,
+             145.0: 0.00250379}
+
+
+@pytest.fixture
+def view(qtbot, tmp_path):
+    results = [hand_made_result(temperature_c=tc, g=g) for tc, g in FIXTURE_A.items()]
+    model = model_with(results, tmp_path)
+    widget = TemperatureView(model)
+    qtbot.addWidget(widget)
+    widget.resize(1500, 950)
+    widget.show()
+    return widget
+
+
+def _set_spin(spin, value):
+    spin.setValue(value)
+    spin.editingFinished.emit()
+
+
+def test_table_sorts_and_copies_tsv(view):
+    table = view.table
+    assert table.proxy.rowCount() == len(FIXTURE_A)
+    header = table.header()
+    assert "Tc (°C)" in header and "G (µm/min)" in header and "G 95 % low (µm/min)" in header
+    tc_col, g_col = header.index("Tc (°C)"), header.index("G (µm/min)")
+    table.view.sortByColumn(g_col, QtCore.Qt.SortOrder.AscendingOrder)
+    rows = table.shown_rows()
+    assert [float(r[tc_col]) for r in rows] == sorted(FIXTURE_A, reverse=True)  # G falls with Tc
+    text = table.copy_to_clipboard()
+    assert QtWidgets.QApplication.clipboard().text() == text
+    lines = text.splitlines()
+    assert len(lines) == 1 + len(FIXTURE_A) and lines[0].split("\t") == header
+
+
+def test_lh_fit_needs_constants_and_undo_restores(view):
+    model = view.model
+    assert "Tm0" in view.lh_results.message.text()  # nothing fitted without constants
+    _set_spin(view.constants.tm0, 185.0)
+    _set_spin(view.constants.tg, -10.0)
+    assert model.undo_stack.count() == 2
+    assert model.project.series["tm0_c"] == 185.0
+    kg_text = view.lh_results.form.text("kg")
+    assert kg_text.startswith("5.5 × 10^5"), kg_text  # exact data: Kg recovered
+    x, y = view.plots.lh_points.getData()
+    assert len(x) == len(FIXTURE_A)
+    _set_spin(view.constants.tm0, 190.0)
+    assert view.lh_results.form.text("kg") != kg_text  # Kg depends on Tm0
+    model.undo_stack.undo()
+    assert view.lh_results.form.text("kg") == kg_text
+    model.undo_stack.undo()
+    assert model.project.series.get("tg_c") is None
+    assert view.lh_results.form.text("kg") == "—"
+
+
+def test_material_fills_tm0_and_tg_in_one_step(view):
+    index = view.constants.material.findData("iPP")
+    view.constants.material.setCurrentIndex(index)
+    view.constants.material.activated.emit(index)
+    project = view.model.project
+    assert project.material == "iPP" and project.series["tm0_c"] is not None
+    assert view.model.undo_stack.count() == 1
+    assert view.constants.tm0.value() == pytest.approx(project.series["tm0_c"])
+
+
+def test_hoffman_weeks_helper(view):
+    # Tm0 = 186 °C, gamma = 2: Tc 130 -> Tm 158, Tc 140 -> Tm 163 (Hoffman & Weeks 1962,
+    # J. Res. NBS 66A, 13, from memory; values derived from the formula).
+    hw = view.hw
+    hw.add_row()
+    hw.add_row()
+    assert hw.table.rowCount() == 2
+    for row, (tc, tm) in enumerate(((130, 158), (140, 163))):
+        hw.table.item(row, 0).setText(str(tc))
+        hw.table.item(row, 1).setText(str(tm))
+    assert view.model.project.series["hoffman_weeks_pairs"] == [[130.0, 158.0], [140.0, 163.0]]
+    assert "Tm0 = 186.0 °C" in hw.result.text() and "γ = 2.00" in hw.result.text()
+    hw.adopt.click()
+    assert view.model.project.series["tm0_c"] == pytest.approx(186.0)
+    view.model.undo_stack.undo()
+    assert view.model.project.series.get("tm0_c") is None
+
+
+def test_export_csv_and_xlsx_read_back(view, tmp_path):
+    csv_path = view.export_table("csv", str(tmp_path / "series.csv"))
+    with open(csv_path, newline="", encoding="utf-8") as handle:
+        rows = list(csv.reader(handle))
+    assert rows[0][:3] == ["experiment", "temperature_c", "growth_rate_um_per_min"]
+    assert len(rows) == 1 + len(FIXTURE_A)
+    xlsx_path = view.export_table("xlsx", str(tmp_path / "series.xlsx"))
+    book = openpyxl.load_workbook(xlsx_path)
+    sheet = book["growth_vs_temperature"]
+    values = list(sheet.iter_rows(values_only=True))
+    assert values[0][1] == "temperature_c"
+    by_tc = {row[1]: row[2] for row in values[1:]}
+    assert by_tc == pytest.approx(FIXTURE_A)
+    assert not list(tmp_path.glob(".*"))  # no temporary files left behind
+
+
+def test_export_into_missing_folder_reports_the_file(view, tmp_path, monkeypatch):
+    shown = []
+    monkeypatch.setattr(QtWidgets.QMessageBox, "critical", lambda *args: shown.append(args[2]))
+    assert view.export_table("csv", str(tmp_path / "nowhere" / "series.csv")) is None
+    assert "series.csv" in shown[0]
+
+
+def test_export_figures(view, tmp_path):
+    _set_spin(view.constants.tm0, 185.0)
+    _set_spin(view.constants.tg, -10.0)
+    written = view.export_figures(str(tmp_path))
+    assert len(written) == 8 and all(p.endswith((".png", ".svg")) for p in written)
