@@ -138,6 +138,8 @@ class AvramiPrediction:
     def n(self) -> float:
         """Exponent: d or d + 1, or for mixed the local slope d ln X_ex / d ln t at t_half."""
         d, t = self.dimension, self.t_half_min
+        if self.sporadic_k == 0.0 or self.athermal_k == 0.0:
+            return float(d if self.sporadic_k == 0.0 else d + 1)
         a, s = self.athermal_k * t ** d, self.sporadic_k * t ** (d + 1)
         return (d * a + (d + 1) * s) / (a + s)
 
