@@ -8,13 +8,18 @@ failed export never damages an earlier good file. The report runs in the shared
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import tempfile
+from dataclasses import dataclass
 from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
+from analysis.calorimetry import analyze_source
 from analysis.errors import InputError
+from analysis.progress import Progress, scaled
+from analysis.report import build_report, project_entries_iter, series_constants
 from analysis.tables import ReportEntry, comparison_table, growth_vs_temperature_table, write_csv, write_xlsx
 
 #: Display names for the table's columns (the files keep the snake_case names).
@@ -86,6 +91,62 @@ def _atomic(path: str, write) -> str:
     return str(target)
 
 
+
+@dataclass(frozen=True)
+class ReportSnapshot:
+    """What the report needs, taken in the GUI thread: the project and every fresh result."""
+
+    project: object
+    results: tuple  # ExperimentResult or None (to be analysed in the worker), per experiment
+
+
+def report_snapshot(model) -> ReportSnapshot:
+    from .model import STATUS_DONE
+
+    results = tuple(model.result(i) if model.status(i) == STATUS_DONE else None
+                    for i in range(model.experiment_count()))
+    return ReportSnapshot(model.project, results)
+
+
+def _entry_with_calorimetry(experiment, result, material) -> ReportEntry:
+    calorimetry, problem = None, None
+    source = experiment.calorimetry
+    if source is not None:
+        if source.material is None and material is not None:
+            source = dataclasses.replace(source, material=material)
+        try:
+            calorimetry = analyze_source(source)
+        except InputError as error:
+            problem = str(error)
+    return ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override,
+                       calorimetry, problem)
+
+
+def report_iter(snapshot: ReportSnapshot, folder: str):
+    """The same folder as ``spherokin report``: cached analyses are reused, the others run here.
+
+    Runs in the worker thread; touches only the frozen snapshot.
+    """
+    project = snapshot.project
+    missing = tuple(e for e, r in zip(project.experiments, snapshot.results) if r is None)
+    ready = [(e, r) for e, r in zip(project.experiments, snapshot.results) if r is not None]
+    entries, problems = [], []
+    if missing:
+        sub_project = dataclasses.replace(project, experiments=missing)
+        entries, problems = yield from scaled(project_entries_iter(sub_project), 0.0, 0.8)
+    for number, (experiment, result) in enumerate(ready):
+        yield Progress("calorimetry", 0.8 + 0.1 * number / max(1, len(ready)), experiment.name)
+        entry = _entry_with_calorimetry(experiment, result, project.material)
+        if entry.calorimetry_problem:
+            problems.append(f"{experiment.name}: calorimetry skipped ({entry.calorimetry_problem})")
+        entries.append(entry)
+    constants, note = series_constants(project)
+    yield Progress("writing report", 0.9, note)
+    summary = build_report(entries, folder, constants=constants, material=project.material,
+                           problems=problems)
+    yield Progress("writing report", 1.0)
+    return summary
+
 class ReportJob(QtCore.QObject):
     """Runs one report at a time in a ``GeneratorWorker``: progress bar, Cancel, errors in a dialog."""
 
@@ -124,7 +185,7 @@ class ReportJob(QtCore.QObject):
         self.worker = GeneratorWorker(make_generator)
         signals = self.worker.signals
         signals.yielded.connect(self._progressed)
-        signals.returned.connect(lambda _value: self._done(True, folder))
+        signals.returned.connect(lambda summary: self._done(True, _summary_text(summary, folder)))
         signals.errored.connect(lambda error: self._done(False, str(error)))
         signals.aborted.connect(lambda: self._done(False, "cancelled"))
         self.bar.setValue(0)
@@ -149,3 +210,10 @@ class ReportJob(QtCore.QObject):
         if not ok and detail != "cancelled" and self._parent.isVisible():
             QtWidgets.QMessageBox.critical(self._parent, "Report not written", detail)
         self.finished.emit(ok, detail)
+
+
+def _summary_text(summary, folder: str) -> str:
+    text = f"{len(summary.files)} files written to {folder}"
+    if summary.problems:
+        text += ". Not included: " + "; ".join(summary.problems)
+    return text

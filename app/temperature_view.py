@@ -90,6 +90,11 @@ class TemperatureView(QtWidgets.QWidget):
         layout.addLayout(bar)
         layout.addWidget(split, 1)
         layout.addWidget(self.report_job.bar_widget)
+        self.report_status = QtWidgets.QLabel("", objectName="report_status")
+        self.report_status.setWordWrap(True)
+        layout.addWidget(self.report_status)
+        self.report_job.finished.connect(
+            lambda ok, detail: self.report_status.setText(("Report: " if ok else "Report not written: ") + detail))
 
     def _make_actions(self) -> list:
         table = [
@@ -224,7 +229,8 @@ class TemperatureView(QtWidgets.QWidget):
             folder = QtWidgets.QFileDialog.getExistingDirectory(self, "Folder for the report")
             if not folder:
                 return False
-        return self.report_job.start(lambda: temperature_export.report_generator(self.model, folder), folder)
+        snapshot = temperature_export.report_snapshot(self.model)  # the worker never reads the model
+        return self.report_job.start(lambda: temperature_export.report_iter(snapshot, folder), folder)
 
 
 def _run_alone(argv: list[str]) -> int:  # pragma: no cover - manual use

@@ -127,3 +127,20 @@ def test_export_figures(view, tmp_path):
     _set_spin(view.constants.tg, -10.0)
     written = view.export_figures(str(tmp_path))
     assert len(written) == 8 and all(p.endswith((".png", ".svg")) for p in written)
+
+
+def test_report_runs_in_worker_and_writes_the_report_folder(view, tmp_path, qtbot):
+    _set_spin(view.constants.tm0, 185.0)
+    _set_spin(view.constants.tg, -10.0)
+    out = tmp_path / "report"
+    with qtbot.waitSignal(view.report_job.finished, timeout=60000) as done:
+        assert view.write_report(str(out))
+        assert view.report_job.bar_widget.isVisibleTo(view)
+        assert not view.write_report(str(out))  # one report at a time
+    ok, detail = done.args
+    assert ok, detail
+    names = {p.name for p in out.iterdir()}
+    assert {"growth_vs_temperature.csv", "growth_vs_temperature.xlsx",
+            "secondary_nucleation.json", "lauritzen_hoffman.png", "lauritzen_hoffman.svg"} <= names
+    assert "files written" in view.report_status.text()
+    assert not view.report_job.bar_widget.isVisibleTo(view)
