@@ -40,7 +40,7 @@ import numpy as np
 
 __all__ = [
     "REGISTRATION_MODES", "AUTO_WARP_TOLERANCE_PX", "ShiftEstimate", "DriftTracker",
-    "bandpass", "estimate_shift", "warp_onto_reference", "drift_path",
+    "bandpass", "estimate_shift", "warp_onto_reference", "extrapolate_unseen_drift", "drift_path",
 ]
 
 REGISTRATION_MODES = ("auto", "on", "off")
@@ -69,10 +69,12 @@ class ShiftEstimate:
 
 
 def bandpass(image: np.ndarray, *, fine_sigma_px: float = _FINE_SIGMA_PX,
-             coarse_sigma_px: float = _COARSE_SIGMA_PX) -> np.ndarray:
-    """Difference of Gaussians: keeps texture, drops noise and slow illumination trends."""
+             coarse_sigma_px: float | None = _COARSE_SIGMA_PX) -> np.ndarray:
+    """Difference of Gaussians: keeps texture, drops noise and slow illumination trends
+    (``coarse_sigma_px=None``: only the noise-suppressing fine blur)."""
     image = np.asarray(image, np.float32)
-    return cv2.GaussianBlur(image, (0, 0), fine_sigma_px) - cv2.GaussianBlur(image, (0, 0), coarse_sigma_px)
+    fine = cv2.GaussianBlur(image, (0, 0), fine_sigma_px)
+    return fine if coarse_sigma_px is None else fine - cv2.GaussianBlur(image, (0, 0), coarse_sigma_px)
 
 
 def warp_onto_reference(image: np.ndarray, shift_yx, *, border_value: float = 0.0) -> np.ndarray:
@@ -178,10 +180,16 @@ class DriftTracker:
     min_settled_px : int
         Fewer settled pixels than this in the key frame's window: no estimate, the shift
         is held.
+    coarse_sigma_px : float or None
+        Low cut of the band-pass applied before registering. ``None`` for images that
+        have no slow background to remove (a difference from the melt): a high-pass would
+        spread the change at a growing front into the settled interior.
     """
 
     def __init__(self, *, crop_px: int = 256, min_response: float = 0.2, refresh_frames: int = 40,
-                 refresh_gain: float = 2.0, max_step_px: float = 3.0, min_settled_px: int = 300):
+                 refresh_gain: float = 2.0, max_step_px: float = 3.0, min_settled_px: int = 200,
+                 coarse_sigma_px: float | None = _COARSE_SIGMA_PX):
+        self.coarse_sigma_px = coarse_sigma_px
         self.crop_px = int(crop_px)
         self.min_response = float(min_response)
         self.refresh_frames = int(refresh_frames)
@@ -196,6 +204,7 @@ class DriftTracker:
         self._origin = (0, 0)
         self._window = None
         self.shift_yx = np.zeros(2)
+        self.measured = False  # whether the last update found a match (else the shift was held)
 
     def update(self, image: np.ndarray, settled: np.ndarray | None = None) -> np.ndarray:
         """Register the next frame's image; returns its cumulative shift (dy, dx), px."""
@@ -204,12 +213,14 @@ class DriftTracker:
             self._start(image, settled)
             return self.shift_yx.copy()
         current = self._patch(image)
+        self.measured = False
         if self._key_content > 0 and self._usable_key():
             weight = self._window * self._key_weight
-            found = estimate_shift(self._key * self._key_weight, current * self._key_weight, window=weight)
+            found = estimate_shift(self._key, current, window=weight)
             candidate = self._key_shift + (found.dy, found.dx)
             if found.response >= self.min_response and np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px:
                 self.shift_yx = candidate
+                self.measured = True
         self._key_age += 1
         if self._content(image, current, settled) > self.refresh_gain * self._key_content \
                 or self._key_age >= self.refresh_frames:
@@ -252,7 +263,7 @@ class DriftTracker:
         y0, x0 = self._origin
         size = self.crop_px
         region = image[max(y0 - _MARGIN_PX, 0):y0 + size + _MARGIN_PX, max(x0 - _MARGIN_PX, 0):x0 + size + _MARGIN_PX]
-        passed = bandpass(region)
+        passed = bandpass(region, coarse_sigma_px=self.coarse_sigma_px)
         oy, ox = y0 - max(y0 - _MARGIN_PX, 0), x0 - max(x0 - _MARGIN_PX, 0)
         return np.ascontiguousarray(passed[oy:oy + size, ox:ox + size])
 
@@ -269,6 +280,30 @@ class DriftTracker:
                 if energy > best_energy * 1.05:
                     best, best_energy = (int(y0), int(x0)), energy
         return best
+
+
+def extrapolate_unseen_drift(shifts_yx: np.ndarray, measured: np.ndarray, *, fit_frames: int = 40
+                             ) -> tuple[np.ndarray, np.ndarray]:
+    """Drift during the frames before anything could be registered, by linear extrapolation.
+
+    Until some specimen texture exists the tracker holds the shift at zero, so every
+    later shift is relative to the frame where measurement began, not to frame 0. A
+    straight line fitted to the first ``fit_frames`` measured shifts is extended back to
+    frame 0. Returns the corrected shifts and the constant offset that was added (zero
+    when measurement started at once or too few frames were measured).
+    """
+    shifts_yx = np.asarray(shifts_yx, float)
+    frames = np.flatnonzero(measured)
+    if frames.size < 5 or frames[0] <= 1:
+        return shifts_yx.copy(), np.zeros(2)
+    used = frames[:fit_frames]
+    design = np.column_stack([np.ones(used.size), used])
+    coef, *_ = np.linalg.lstsq(design, shifts_yx[used], rcond=None)
+    offset = -coef[0]
+    corrected = shifts_yx + offset
+    early = np.arange(frames[0])
+    corrected[early] = np.outer(early, coef[1])
+    return corrected, offset
 
 
 def drift_path(images, **tracker_options) -> np.ndarray:

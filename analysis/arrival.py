@@ -39,7 +39,8 @@ import cv2
 import numpy as np
 
 from . import segment
-from .align import AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, warp_onto_reference
+from .align import (AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, extrapolate_unseen_drift,
+                    warp_onto_reference)
 from .errors import InputError
 from .progress import Progress, run_to_completion
 
@@ -48,6 +49,7 @@ __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
 _STAGE = "arrival times"
 _NEVER, _UNUSABLE = -1, -2
 _MELT, _TRACKING, _DONE = 0, 1, 2
+_SETTLE_FRAMES = 3  # frames after detection before a pixel's content is steady enough to register on
 
 
 @dataclass(frozen=True)
@@ -279,7 +281,9 @@ class _PassState:
         self.arrival = np.full(size, np.inf, np.float32)
         self.contrast = np.zeros(size, np.float32)
         self.previous = np.zeros(size, np.float32)
+        self.detected = np.full(size, np.iinfo(np.int32).max, np.int32)   # frame of detection
         self.shifts = np.zeros((n_frames, 2))
+        self.measured = np.zeros(n_frames, bool)
         self.tracker = _Tracker(settings.track_frames + 1)
         self.settings = settings
 
@@ -311,7 +315,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     state = _PassState(first.shape[:2], n, settings)
     state.status[at_start.ravel()] = _DONE
     state.arrival[at_start.ravel()] = times[0]
-    drift = None if settings.registration == "off" else DriftTracker()
+    drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None)
     if drift is not None:
         drift.update(np.zeros(first.shape[:2], np.float32), np.zeros(first.shape[:2], np.float32))
     usable_sample = ~(model.blind | at_start)[::4, ::4]
@@ -326,13 +330,18 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
         camera = segment.evidence(image, model, gain)
         if k < settings.reference_frames:
             _update_reference(model, reference_sum, reference_count, image, gain, camera < 0.5 * threshold)
-        state.shifts[k] = state.shifts[k - 1] if drift is None else drift.update(
-            camera, _settled_in_camera(state, at_start, state.shifts[k - 1]))
+        if drift is None:
+            state.shifts[k] = state.shifts[k - 1]
+        else:
+            state.shifts[k] = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
+            state.measured[k] = drift.measured
         specimen = _onto_frame0(camera, state.shifts[k], settings.registration)
         _step(state, specimen.ravel(), k, times, threshold)
         camera_previous = camera
         yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
     _retire(state, np.ones(state.tracker.index.size, bool), times, threshold, final=True)
+    if drift is not None:
+        _regrid_unseen_drift(state, at_start, times[0])
     return _finish(state, times, um_per_px, threshold, at_start, model, mode)
 
 
@@ -375,14 +384,33 @@ def _update_reference(model, total, count, image, gain, still_melt):
     model.level = (total / (count if model.channels == 1 else count[..., None])).astype(np.float32)
 
 
-def _settled_in_camera(state, at_start, shift):
-    """Pixels crystalline for a while (tracking finished), where they sit on the sensor;
-    frame-0 crystals are left out: the melt reference contains them, so they show no
-    evidence to register on."""
-    settled = ((state.status == _DONE).reshape(state.shape) & ~at_start).astype(np.float32)
+def _settled_in_camera(state, at_start, k, shift):
+    """Pixels the front passed a few frames ago, where they sit on the sensor. Frame-0
+    crystals are left out: the melt reference contains them, so they show no evidence
+    to register on."""
+    settled = (state.detected <= k - _SETTLE_FRAMES).reshape(state.shape) & ~at_start
+    settled = settled.astype(np.float32)
     if not np.any(shift):
         return settled
     return warp_onto_reference(settled, -np.asarray(shift))
+
+
+def _regrid_unseen_drift(state, at_start, start_s):
+    """Move the map by the drift that happened before registration could begin
+    (:func:`analysis.align.extrapolate_unseen_drift`); frame-0 crystals stay where they are."""
+    state.shifts, offset = extrapolate_unseen_drift(state.shifts, state.measured)
+    if np.max(np.abs(offset)) < AUTO_WARP_TOLERANCE_PX:
+        return
+    arrival = state.arrival.reshape(state.shape)
+    known = np.isfinite(arrival) & ~at_start
+    weight = warp_onto_reference(known.astype(np.float32), offset)
+    moved = warp_onto_reference(np.where(known, arrival, 0.0).astype(np.float32), offset)
+    contrast = warp_onto_reference(state.contrast.reshape(state.shape), offset)
+    keep = weight > 0.5
+    arrival = np.where(keep, moved / np.maximum(weight, 1e-6), np.inf).astype(np.float32)
+    arrival[at_start] = start_s
+    state.arrival = arrival.ravel()
+    state.contrast = np.where(keep, contrast / np.maximum(weight, 1e-6), 0.0).astype(np.float32).ravel()
 
 
 def _onto_frame0(camera, shift, mode):
@@ -402,6 +430,7 @@ def _step(state, evidence_flat, k, times, threshold):
     if dropped.any():
         index = tracker.take(dropped)[0]
         state.status[index] = _MELT
+        state.detected[index] = np.iinfo(np.int32).max
     full = tracker.count >= tracker.width
     if full.any():
         _retire(state, full, times, threshold)
@@ -409,6 +438,7 @@ def _step(state, evidence_flat, k, times, threshold):
     if fresh.size:
         tracker.add(fresh, k, state.previous[fresh], evidence_flat[fresh])
         state.status[fresh] = _TRACKING
+        state.detected[fresh] = k
     state.previous = evidence_flat
 
 
@@ -421,6 +451,7 @@ def _retire(state, chosen, times, threshold, final=False):
         low = (cols >= 1) & (cols < count[:, None]) & (history < state.settings.hysteresis * threshold)
         held = ~low.any(axis=1)
         state.status[index[~held]] = _MELT
+        state.detected[index[~held]] = np.iinfo(np.int32).max
         index, first, history, count = index[held], first[held], history[held], count[held]
     arrival, plateau = _half_plateau_times(history, count, first, times, threshold)
     state.arrival[index] = arrival
