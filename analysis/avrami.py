@@ -330,9 +330,13 @@ def fit_avrami_window(t_min, x, window=(0.03, 0.20)) -> AvramiFit | FitFailure:
         return FitFailure(f"Avrami slope {fit.slope:.3g} is not positive")
     m = int(np.count_nonzero(sel))
     ci = float(stats.t.ppf(0.975, m - 2) * fit.stderr) if m > 2 else None
-    k = math.exp(fit.intercept)
+    with np.errstate(over="ignore"):
+        k = float(np.exp(fit.intercept))
+        t_half = float(np.float64(LN2 / k) ** (1.0 / fit.slope)) if k > 0 else math.inf
+    if not (np.isfinite(k) and np.isfinite(t_half) and k > 0):
+        return FitFailure("Avrami fit gives no finite rate constant and half-time")
     r2 = float(fit.rvalue ** 2) if np.isfinite(fit.rvalue) else 1.0
-    return AvramiFit(n=float(fit.slope), k_per_min_n=k, t_half_min=half_time(fit.slope, k),
+    return AvramiFit(n=float(fit.slope), k_per_min_n=k, t_half_min=t_half,
                      r2=r2, n_points=m, window=(lo, hi), method="window-linear", n_ci95=ci)
 
 
