@@ -140,6 +140,7 @@ class _Context:
     markers: nuclei.Markers
     base_territories: np.ndarray
     auto_lookup_xy: np.ndarray
+    slope_s_per_px: float
     cache: dict = field(default_factory=dict, compare=False, repr=False)
 
 
@@ -401,23 +402,24 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings):
 
 # ---------------------------------------------------------------- whole result
 def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
-    """Territories redrawn as the Johnson-Mehl cells of the fitted cones.
+    """Territories redrawn as the Johnson-Mehl cells of the given cones.
 
-    A watershed of the arrival map floods plateaus in arrival order, so where two
-    neighbours started at different times its boundary can slide by several pixels
-    along their common border. Each pixel of a well-fitted territory is given to the
-    fitted cone (of its own or a nearby territory) that reaches it first, which is the
-    Johnson-Mehl rule itself. Unassigned pixels and failed fits keep their labels.
+    A watershed of the arrival map floods in arrival order, and where two cones meet
+    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
+    off the true one. Each pixel of a territory with a cone is given instead to the
+    cone (of its own or a nearby territory) that reaches it first, which is the
+    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
+    without a usable cone keep their labels.
     """
     h, w = ctx.shape
     best = np.full(ctx.shape, np.inf)
     owner = labels.copy()
-    margin = 12
     for det_id, fit in fits.items():
         pix = groups.get(det_id)
         if pix is None or pix.size == 0 or not fit.ok:
             continue
         y, x = np.divmod(pix, w)
+        margin = 12 + int(0.5 * max(np.ptp(y), np.ptp(x)))
         y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
         x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
         yy, xx = np.ogrid[y0:y1, x0:x1]
@@ -430,16 +432,32 @@ def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
     return np.where(movable, owner, labels).astype(np.int32)
 
 
+def _provisional_cones(ctx, live) -> dict:
+    """A cone per single-seed detection from its seed (apex, lowest working-map time)
+    and the field's mean slope; merged detections get none (they keep their flooding)."""
+    cones = {}
+    for d in live:
+        if len(d.seeds) != 1:
+            continue
+        sy, sx = np.divmod(d.seeds[0], ctx.shape[1])
+        t0 = float(np.min(ctx.work.flat[d.seeds[0]]))
+        cones[d.id] = growth.ConeFit(float(sx.mean()), float(sy.mean()), t0, ctx.slope_s_per_px,
+                                     0, 0, 0, 0, 0, 1.0, 0, 0)
+    return cones
+
+
 def _partition(ctx, dets, global_spans, settings):
-    """Watershed territories, first cone fits, then the cone-based partition."""
+    """Flooded territories, redrawn from provisional cones, fitted, redrawn from the fits."""
+    live = [d for d in dets if not (d.deleted or d.merged)]
     labels = _territories(ctx, dets)
+    labels = _cone_partition(ctx, labels, _pixel_groups(labels), _provisional_cones(ctx, live))
     band = _boundary_band(labels, settings.boundary_band_px)
     groups = _pixel_groups(labels)
     empty = np.zeros(0, np.int64)
-    live = [d for d in dets if not (d.deleted or d.merged)]
     fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings)
             for d in live}
-    return _cone_partition(ctx, labels, groups, fits)
+    single = {d.id for d in live if len(d.seeds) == 1}
+    return _cone_partition(ctx, labels, groups, {k: f for k, f in fits.items() if k in single})
 
 
 def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
@@ -569,17 +587,11 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    fit_arrival=growth.dequantised(arrival_s, times),
                    frame_index=np.asarray(arrival.frame_index, np.int32), at_start=at_start,
                    arrival_s=arrival_s, markers=markers, base_territories=base,
-                   auto_lookup_xy=markers.xy_px.copy())
+                   auto_lookup_xy=markers.xy_px.copy(),
+                   slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
     yield Progress("fitting growth cones", 0.5)
-    dets = _auto_detections(ctx)
-    labels = _territories(ctx, dets)
-    band = _boundary_band(labels, settings.boundary_band_px)
-    groups = _pixel_groups(labels)
-    empty = np.zeros(0, np.int64)
-    for det in dets:
-        fit = _cone(ctx, det, groups.get(det.id, empty), band, [], settings)
-        if fit.ok:
-            ctx.auto_lookup_xy[det.id - 1] = (fit.x_px, fit.y_px)
+    for sph in _result(ctx, _auto_detections(ctx), [], [], settings).spherulites:
+        ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
     return ctx
 
 
