@@ -120,6 +120,7 @@ def validate_params(params: StackParams) -> None:
 
 
 _CHUNK_POINTS = 1 << 18
+_MAX_CANDIDATES = 1 << 22  # (points × nearest nuclei) per KD-tree query
 _MAX_NUCLEI = 2_000_000
 
 
@@ -159,24 +160,30 @@ def johnson_mehl_arrival(points_yx, centres_yx, birth_s, growth_px_per_s, *, hor
         return arrival, owner
     tree = cKDTree(centres_yx)
     earliest = float(np.min(birth_s))
-    for start in range(0, len(points_yx), _CHUNK_POINTS):
-        pending = np.arange(start, min(start + _CHUNK_POINTS, len(points_yx)))
-        k = min(8 + int(exclude_self), n)
-        while pending.size:
-            dist, idx = tree.query(points_yx[pending], k=k, workers=-1)
-            dist, idx = dist.reshape(len(pending), k), idx.reshape(len(pending), k)
-            candidate = birth_s[idx] + dist / growth_px_per_s
-            if exclude_self:
-                candidate[idx == pending[:, None]] = np.inf
-            best_col = np.argmin(candidate, axis=1)
-            best = candidate[np.arange(len(pending)), best_col]
-            reach = growth_px_per_s * (np.minimum(best, horizon_s) - earliest)
-            done = (k >= n) | (dist[:, -1] >= reach)
-            within = done & (best <= horizon_s)
-            arrival[pending[within]] = best[within]
-            owner[pending[within]] = idx[within, best_col[within]]
-            pending = pending[~done]
-            k = min(4 * k, n)
+    k0 = min(8 + int(exclude_self), n)
+    work = [(np.arange(i, min(i + _CHUNK_POINTS, len(points_yx))), k0)
+            for i in range(0, len(points_yx), _CHUNK_POINTS)]
+    while work:
+        pending, k = work.pop()
+        if len(pending) > 1 and len(pending) * k > _MAX_CANDIDATES:  # bound the memory
+            half = len(pending) // 2
+            work += [(pending[:half], k), (pending[half:], k)]
+            continue
+        dist, idx = tree.query(points_yx[pending], k=k, workers=-1)
+        dist, idx = dist.reshape(len(pending), k), idx.reshape(len(pending), k)
+        candidate = birth_s[idx] + dist / growth_px_per_s
+        if exclude_self:
+            candidate[idx == pending[:, None]] = np.inf
+        best_col = np.argmin(candidate, axis=1)
+        best = candidate[np.arange(len(pending)), best_col]
+        # a nucleus farther than every candidate cannot beat min(best, horizon)
+        reach = growth_px_per_s * (np.minimum(best, horizon_s) - earliest)
+        done = (k >= n) | (dist[:, -1] >= reach)
+        within = done & (best <= horizon_s)
+        arrival[pending[within]] = best[within]
+        owner[pending[within]] = idx[within, best_col[within]]
+        if not np.all(done):
+            work.append((pending[~done], min(4 * k, n)))
     return arrival, owner
 
 
@@ -274,6 +281,21 @@ def _sample_nuclei(params, lo_px, hi_px, horizon_s, rng):
     return centres[order], birth[order]
 
 
+def _arrival_on_grid(shape, pad, centres, birth, g_px_per_s, horizon):
+    """Arrival (float32) and owner (int32) maps of a grid whose [0, 0] is pixel (-pad, -pad)."""
+    arrival = np.empty(shape, np.float32)
+    owner = np.empty(shape, np.int32)
+    rows_per_block = max(1, _CHUNK_POINTS // shape[1])
+    cols = np.arange(shape[1], dtype=float) - pad
+    for r0 in range(0, shape[0], rows_per_block):
+        rows = np.arange(r0, min(r0 + rows_per_block, shape[0]), dtype=float) - pad
+        points = np.column_stack([np.repeat(rows, len(cols)), np.tile(cols, len(rows))])
+        a, o = johnson_mehl_arrival(points, centres, birth, g_px_per_s, horizon_s=horizon)
+        arrival[r0:r0 + len(rows)] = a.reshape(len(rows), -1)
+        owner[r0:r0 + len(rows)] = o.reshape(len(rows), -1)
+    return arrival, owner
+
+
 def simulate_film_kinetics(params: StackParams, *, nuclei=None) -> FilmKinetics:
     """Nuclei, arrival-time and owner maps of a film (no rendering).
 
@@ -300,13 +322,10 @@ def simulate_film_kinetics(params: StackParams, *, nuclei=None) -> FilmKinetics:
         survivors = ~(covered_at < birth - 1e-9 * max(1.0, abs(horizon)))
     else:
         survivors = np.ones(len(centres), bool)
-    rows, cols = np.indices(shape, dtype=np.float32)
-    grid = np.column_stack([rows.ravel() - pad, cols.ravel() - pad])
-    arrival, owner = johnson_mehl_arrival(grid, centres[survivors], birth[survivors], g_px_per_s,
-                                          horizon_s=horizon)
+    arrival, owner = _arrival_on_grid(shape, pad, centres[survivors], birth[survivors], g_px_per_s, horizon)
     return FilmKinetics(
         params=params, centres_yx=centres[survivors], birth_s=birth[survivors],
-        arrival_pad_s=arrival.reshape(shape).astype(np.float32), owner_pad=owner.reshape(shape),
+        arrival_pad_s=arrival, owner_pad=owner,
         pad_px=pad, guard_band_um=guard_px * params.um_per_px,
         phantom_centres_yx=centres[~survivors], phantom_birth_s=birth[~survivors],
     )

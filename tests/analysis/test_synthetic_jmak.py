@@ -28,6 +28,7 @@ import numpy as np
 import pytest
 from scipy import integrate, optimize
 
+from analysis import synthetic
 from analysis.synthetic import StackParams, johnson_mehl_arrival, simulate_film_kinetics
 
 SIZE_PX = 400
@@ -112,7 +113,7 @@ def test_surviving_sporadic_nuclei_count_follows_johnson_mehl():
     assert abs(sum(counts) - expected) <= 4 * math.sqrt(expected)
 
 
-def test_arrival_map_is_exact_against_brute_force():
+def test_arrival_map_is_exact_against_brute_force(monkeypatch):
     """t(p) = min_i (t_i + |p − c_i| / G): the Johnson-Mehl arrival time (Johnson & Mehl
     1939); the KD-tree search must give exactly the brute-force minimum."""
     rng = np.random.default_rng(5)
@@ -127,6 +128,10 @@ def test_arrival_map_is_exact_against_brute_force():
     late = brute.min(axis=1) > 150.0
     assert np.all(np.isinf(capped[late])) and np.all(capped_owner[late] == -1)
     np.testing.assert_allclose(capped[~late], brute.min(axis=1)[~late], rtol=1e-12)
+    monkeypatch.setattr(synthetic, "_CHUNK_POINTS", 700)  # the memory-bounded path: small batches
+    monkeypatch.setattr(synthetic, "_MAX_CANDIDATES", 100)
+    small_batches, _ = johnson_mehl_arrival(points, centres, birth, 0.4)
+    np.testing.assert_array_equal(small_batches, arrival)
 
 
 def test_phantoms_are_exactly_the_nuclei_born_inside_crystal():
