@@ -25,7 +25,7 @@ import argparse
 import json
 import math
 import os
-from dataclasses import MISSING, asdict, dataclass, field, fields, replace
+from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
@@ -35,7 +35,9 @@ from scipy.spatial import cKDTree
 
 from . import synthetic_optics as optics
 from .errors import InputError
-from .synthetic_dsc import DscIsotherm, simulate_dsc_isotherm, write_dsc_csv
+from .synthetic_dsc import (
+    DscIsotherm, add_dsc_cli_arguments, simulate_dsc_for_film, simulate_dsc_isotherm, write_dsc_csv,
+)
 from .synthetic_optics import SyntheticStack
 
 __all__ = [
@@ -422,20 +424,6 @@ def write_stack(sim: SyntheticStack, out_dir: str | os.PathLike, *, compression:
 
 _OPTION_NAMES = {"n_frames": "--frames", "retardation_plate": "--retardation-plate"}
 _SKIPPED_FIELDS = ("height_px", "width_px")  # given together as --size
-_DSC_HELP = {
-    "mass_mg": "DSC sample mass, mg",
-    "enthalpy_j_per_g": "total crystallization enthalpy, J/g",
-    "lag_s": "first-order instrument lag, s",
-    "baseline_drift_mw_per_min": "linear baseline drift, mW/min",
-    "baseline_offset_mw": "baseline offset, mW",
-    "transient_amplitude_mw": "start-up transient after the quench, mW",
-    "transient_tau_s": "decay time of that transient, s",
-    "noise_mw": "Gaussian noise, mW",
-    "interval_s": "DSC sampling interval, s",
-    "duration_s": "DSC run length, s (default: until X = 0.999, plus half again)",
-}
-
-
 def add_cli_arguments(parser: argparse.ArgumentParser) -> None:
     """Options of ``spherokin simulate``: one per StackParams field, plus output and DSC options."""
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder")
@@ -457,33 +445,7 @@ def add_cli_arguments(parser: argparse.ArgumentParser) -> None:
                         help="lossless compression inside stack.tif (default none)")
     parser.add_argument("--write-maps", action="store_true",
                         help="also write truth_maps.npz (true arrival-time and owner maps)")
-    _add_dsc_arguments(parser)
-
-
-def _add_dsc_arguments(parser: argparse.ArgumentParser) -> None:
-    dsc = parser.add_argument_group("DSC isotherm (bulk sample, same Tc, G and induction time)")
-    dsc.add_argument("--dsc", nargs="?", const="dsc.csv", metavar="NAME",
-                     help="also write a DSC isotherm export (default name dsc.csv)")
-    dsc.add_argument("--thickness-um", type=float, default=20.0,
-                     help="film thickness h, µm: the DSC uses N_V = N_A / h, Ndot_V = Ndot_A / h")
-    dsc.add_argument("--dsc-n-v-per-mm3", type=float, help="override N_V, nuclei per mm³")
-    dsc.add_argument("--dsc-ndot-v-per-mm3-per-s", type=float, help="override Ndot_V, per mm³ per s")
-    defaults = {name: p.default for name, p in _dsc_signature().items()}
-    for name, text in _DSC_HELP.items():
-        dsc.add_argument("--dsc-" + name.replace("_", "-"), dest="dsc_" + name, type=float,
-                         default=defaults[name], help=f"{text} (default {defaults[name]})")
-    dsc.add_argument("--dsc-exotherm", choices=("up", "down"), default="up", help="exotherm direction")
-    dsc.add_argument("--dsc-dialect", choices=("comma", "semicolon"), default="comma",
-                     help="comma: ',' and decimal point; semicolon: ';' and decimal comma")
-    dsc.add_argument("--dsc-time-unit", choices=("min", "s"), default="min", help="time column unit")
-    dsc.add_argument("--temperature-c", type=float, help="crystallization temperature, °C (metadata)")
-    dsc.add_argument("--sample-name", default="simulated sample", help="sample name in the DSC header")
-
-
-def _dsc_signature():
-    import inspect
-
-    return inspect.signature(simulate_dsc_isotherm).parameters
+    add_dsc_cli_arguments(parser)
 
 
 def _parse_size(text: str) -> tuple[int, int]:
@@ -506,21 +468,6 @@ def params_from_args(args: argparse.Namespace) -> StackParams:
     params = StackParams(height_px=height, width_px=width, **values)
     validate_params(params)
     return params
-
-
-def simulate_dsc_for_film(params: StackParams, args: argparse.Namespace) -> DscIsotherm:
-    """DSC isotherm of a bulk sample with the film's kinetics (N_V = N_A / h)."""
-    if not args.thickness_um > 0:
-        raise InputError(f"--thickness-um must be positive, got {args.thickness_um}")
-    h_mm = args.thickness_um * 1e-3
-    n_v = args.dsc_n_v_per_mm3 if args.dsc_n_v_per_mm3 is not None else params.n_athermal_per_mm2 / h_mm
-    ndot_v = (args.dsc_ndot_v_per_mm3_per_s if args.dsc_ndot_v_per_mm3_per_s is not None
-              else params.ndot_per_mm2_per_s / h_mm)
-    extra = {name: getattr(args, "dsc_" + name) for name in _DSC_HELP}
-    return simulate_dsc_isotherm(
-        n_v_per_mm3=n_v, ndot_v_per_mm3_per_s=ndot_v, growth_rate_um_per_min=params.growth_rate_um_per_min,
-        induction_time_s=params.induction_time_s, exotherm=args.dsc_exotherm, seed=params.seed, **extra,
-    )
 
 
 def run_cli(args: argparse.Namespace) -> int:

@@ -13,6 +13,8 @@ an exponential start-up transient (the quench to Tc), with Gaussian noise.
 
 from __future__ import annotations
 
+import argparse
+import inspect
 import math
 import os
 from dataclasses import dataclass, field
@@ -295,3 +297,56 @@ def write_dsc_csv(
         lines.append(delimiter.join(row))
     with open(path, "w", encoding="utf-8", newline="") as handle:
         handle.write("\r\n".join(lines) + "\r\n")
+
+
+# ----------------------------------------------------------------------------- command line
+
+_DSC_HELP = {
+    "mass_mg": "DSC sample mass, mg",
+    "enthalpy_j_per_g": "total crystallization enthalpy, J/g",
+    "lag_s": "first-order instrument lag, s",
+    "baseline_drift_mw_per_min": "linear baseline drift, mW/min",
+    "baseline_offset_mw": "baseline offset, mW",
+    "transient_amplitude_mw": "start-up transient after the quench, mW",
+    "transient_tau_s": "decay time of that transient, s",
+    "noise_mw": "Gaussian noise, mW",
+    "interval_s": "DSC sampling interval, s",
+    "duration_s": "DSC run length, s (default: until X = 0.999, plus half again)",
+}
+
+
+def add_dsc_cli_arguments(parser: argparse.ArgumentParser) -> None:
+    """DSC options of ``spherokin simulate`` (the isotherm of a bulk sample of the film's material)."""
+    dsc = parser.add_argument_group("DSC isotherm (bulk sample, same Tc, G and induction time)")
+    dsc.add_argument("--dsc", nargs="?", const="dsc.csv", metavar="NAME",
+                     help="also write a DSC isotherm export (default name dsc.csv)")
+    dsc.add_argument("--thickness-um", type=float, default=20.0,
+                     help="film thickness h, µm: the DSC uses N_V = N_A / h, Ndot_V = Ndot_A / h")
+    dsc.add_argument("--dsc-n-v-per-mm3", type=float, help="override N_V, nuclei per mm³")
+    dsc.add_argument("--dsc-ndot-v-per-mm3-per-s", type=float, help="override Ndot_V, per mm³ per s")
+    defaults = {name: p.default for name, p in inspect.signature(simulate_dsc_isotherm).parameters.items()}
+    for name, text in _DSC_HELP.items():
+        dsc.add_argument("--dsc-" + name.replace("_", "-"), dest="dsc_" + name, type=float,
+                         default=defaults[name],
+                         help=text if defaults[name] is None else f"{text} (default {defaults[name]})")
+    dsc.add_argument("--dsc-exotherm", choices=("up", "down"), default="up", help="exotherm direction")
+    dsc.add_argument("--dsc-dialect", choices=("comma", "semicolon"), default="comma",
+                     help="comma: ',' and decimal point; semicolon: ';' and decimal comma")
+    dsc.add_argument("--dsc-time-unit", choices=("min", "s"), default="min", help="time column unit")
+    dsc.add_argument("--temperature-c", type=float, help="crystallization temperature, °C (metadata)")
+    dsc.add_argument("--sample-name", default="simulated sample", help="sample name in the DSC header")
+
+
+def simulate_dsc_for_film(params, args: argparse.Namespace) -> DscIsotherm:
+    """DSC isotherm of a bulk sample with the film's kinetics (N_V = N_A / h)."""
+    if not args.thickness_um > 0:
+        raise InputError(f"--thickness-um must be positive, got {args.thickness_um}")
+    h_mm = args.thickness_um * 1e-3
+    n_v = args.dsc_n_v_per_mm3 if args.dsc_n_v_per_mm3 is not None else params.n_athermal_per_mm2 / h_mm
+    ndot_v = (args.dsc_ndot_v_per_mm3_per_s if args.dsc_ndot_v_per_mm3_per_s is not None
+              else params.ndot_per_mm2_per_s / h_mm)
+    extra = {name: getattr(args, "dsc_" + name) for name in _DSC_HELP}
+    return simulate_dsc_isotherm(
+        n_v_per_mm3=n_v, ndot_v_per_mm3_per_s=ndot_v, growth_rate_um_per_min=params.growth_rate_um_per_min,
+        induction_time_s=params.induction_time_s, exotherm=args.dsc_exotherm, seed=params.seed, **extra,
+    )
