@@ -365,11 +365,13 @@ def _set_up(first, second, settings, mode):
     noise = segment.temporal_noise(first, second)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
                               smoothing_px=settings.smoothing_px)
-    model.blind = segment.blind_pixels(model.level, noise)
     ones = np.ones(model.channels, np.float32)
     trial = segment.evidence(second, model, ones)
     provisional = segment.evidence_threshold(trial[::2, ::2], settings.sensitivity)
     at_start = segment.initial_crystalline(first, model, provisional, min_size_px=settings.min_size_px, mode=mode)
+    model.blind = segment.blind_pixels(model.level, noise, exclude=at_start)
+    at_start &= ~model.blind
+    trial[model.blind] = 0.0
     melt = ~(at_start | model.blind) & (trial < provisional)
     threshold = segment.evidence_threshold(trial[melt][::3], settings.sensitivity)
     return model, threshold, at_start
@@ -446,10 +448,10 @@ def _retire(state, chosen, times, threshold, final=False):
     index, first, history, count = state.tracker.take(chosen)
     if index.size == 0:
         return
-    if final:  # pixels detected in the last frames: keep those that held up so far
+    if final:  # pixels detected in the last frames: keep those that held up for two frames
         cols = np.arange(history.shape[1])[None, :]
         low = (cols >= 1) & (cols < count[:, None]) & (history < state.settings.hysteresis * threshold)
-        held = ~low.any(axis=1)
+        held = ~low.any(axis=1) & (count >= 3)
         state.status[index[~held]] = _MELT
         state.detected[index[~held]] = np.iinfo(np.int32).max
         index, first, history, count = index[held], first[held], history[held], count[held]

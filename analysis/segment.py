@@ -101,13 +101,22 @@ def temporal_noise(first: np.ndarray, second: np.ndarray) -> np.ndarray:
     return np.maximum(1.4826 * mad / np.sqrt(2.0), _NOISE_FLOOR).astype(np.float32)
 
 
-def blind_pixels(level: np.ndarray, noise: np.ndarray) -> np.ndarray:
-    """Pixels much darker than the melt around them (dense dust), where the melt is
-    bright enough for dust to show at all (it cannot be seen on a black melt)."""
+def blind_pixels(level: np.ndarray, noise: np.ndarray, exclude: np.ndarray | None = None) -> np.ndarray:
+    """Pixels much darker than the melt around them (dense dust).
+
+    Only looked for when the melt itself is bright (retardation plate, bright field):
+    on the black melt of crossed polarizers dust cannot be told from melt, and there it
+    simply hides the crystal behind it like an extinction wedge. ``exclude`` marks
+    pixels that are not melt (crystals present in frame 0).
+    """
     total = level if level.ndim == 2 else level.sum(axis=2)
-    background = cv2.blur(total, (31, 31))
-    visible = background > 20.0 * float(np.sum(noise))
-    blind = visible & (total < _BLIND_TRANSMISSION * background)
+    melt = total if exclude is None else total[~exclude]
+    if melt.size == 0 or np.median(melt) < 20.0 * float(np.sum(noise)):
+        return np.zeros(total.shape, bool)
+    background = _coarse_background(total.astype(np.float32))
+    blind = total < _BLIND_TRANSMISSION * background
+    if exclude is not None:
+        blind &= ~exclude
     return cv2.dilate(blind.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
 
 
