@@ -357,7 +357,7 @@ def simulate_stack(params: StackParams, *, nuclei=None) -> SyntheticStack:
 
 
 def visible_nuclei(sim: SyntheticStack) -> list[dict[str, Any]]:
-    """Nuclei inside the field, or outside it but owning field pixels within the record.
+    """Nuclei born by the last frame, inside the field or outside it but owning field pixels.
 
     ``id`` indexes ``sim.kinetics.centres_yx`` (the values of ``sim.owner``).
     """
@@ -366,10 +366,11 @@ def visible_nuclei(sim: SyntheticStack) -> list[dict[str, Any]]:
     inside = (y >= -0.5) & (y < p.height_px - 0.5) & (x >= -0.5) & (x < p.width_px - 0.5)
     owns = np.zeros(len(y), bool)
     owns[np.unique(sim.owner[sim.owner >= 0])] = True
+    born = k.birth_s <= sim.times_s[-1] - p.isothermal_start_s
     return [
         {"id": int(i), "x_px": float(x[i]), "y_px": float(y[i]), "t_s": float(k.birth_s[i]),
          "t_recording_s": float(k.birth_s[i] + p.isothermal_start_s), "inside": bool(inside[i])}
-        for i in np.flatnonzero(inside | owns)
+        for i in np.flatnonzero((inside | owns) & born)
     ]
 
 
