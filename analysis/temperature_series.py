@@ -8,7 +8,8 @@ to Tg - 30 K; ``.t_inf``/``.tm0_k`` properties.
 y = ln G + U*/(R (T - T_inf)).
 ``lh_growth_rate(tc_c, g0_um_per_min, kg_k2, constants) -> G``.
 ``fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants,
-detect_regimes=True, material=None, single_regime="II") -> LHAnalysis`` with ``overall``
+detect_regimes=True, material=None, single_regime="II", break_model="continuous") ->
+LHAnalysis`` with ``overall``
 (one line over all points), ``regimes`` (one or two ``RegimeFit``), ``regime_ratio``,
 ``break_c``, ``aicc_one``/``aicc_two``, ``sigma_sigma_e_j2_per_m4``, ``sigma_j_m2``,
 ``sigma_e_j_m2`` (None without material data), ``warnings``.
@@ -38,7 +39,7 @@ from __future__ import annotations
 import csv
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -181,13 +182,17 @@ def _hinge_rss(tb_c, tc, x, y, w, constants, absolute=False):
     return rss, coef, cov, xb
 
 
+def _gaps(tc):
+    """(low, high) temperature gaps with at least 3 points on each side."""
+    temps = np.unique(tc)
+    return [(lo, hi) for lo, hi in zip(temps[:-1], temps[1:])
+            if np.count_nonzero(tc <= lo) >= 3 and np.count_nonzero(tc >= hi) >= 3]
+
+
 def _best_break(tc, x, y, w, constants):
-    """Continuous two-segment fit; the break is searched between every admissible pair."""
-    order = np.argsort(tc)
-    ts = tc[order]
+    """Continuous two-segment fit: (rss, break temperature), searched within every gap."""
     best = None
-    for i in range(2, tc.size - 3):  # at least 3 points on each side
-        lo, hi = ts[i], ts[i + 1]
+    for lo, hi in _gaps(tc):
         res = optimize.minimize_scalar(lambda tb: _hinge_rss(tb, tc, x, y, w, constants)[0],
                                        bounds=(lo, hi), method="bounded",
                                        options={"xatol": 1e-6})
@@ -196,9 +201,29 @@ def _best_break(tc, x, y, w, constants):
     return best
 
 
+def _best_free_split(tc, x, y, w):
+    """Two independent lines: (rss, break temperature = middle of the best gap)."""
+    best = None
+    for lo, hi in _gaps(tc):
+        below = tc <= lo
+        rss = sum(_wls(np.column_stack([np.ones(m.sum()), x[m]]), y[m], w[m], False)[2]
+                  for m in (below, ~below))
+        if best is None or rss < best[0]:
+            best = (float(rss), float((lo + hi) / 2))
+    return best
+
+
 def _regime_names(kg_low_t: float, kg_high_t: float) -> tuple[str, str]:
     """Tentative names: the larger Kg is regime III below / regime I above regime II."""
     return ("III", "II") if kg_low_t >= kg_high_t else ("II", "I")
+
+
+def _free_regimes(tc, x, y, w, tb, absolute):
+    below = tc <= tb
+    low, _ = _line_fit(x[below], y[below], w[below], tc[below], "", absolute)
+    high, _ = _line_fit(x[~below], y[~below], w[~below], tc[~below], "", absolute)
+    names = _regime_names(low.kg_k2, high.kg_k2)
+    return (replace(low, name=names[0], t_high_c=tb), replace(high, name=names[1], t_low_c=tb))
 
 
 def _two_regimes(tc, x, y, w, constants, tb, absolute):
@@ -257,10 +282,13 @@ def _surface_energies(regimes, material, constants, warnings):
 
 def fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants: LHConstants,
                           detect_regimes: bool = True, material: str | None = None,
-                          single_regime: str = "II", path=None) -> LHAnalysis:
+                          single_regime: str = "II", break_model: str = "continuous",
+                          path=None) -> LHAnalysis:
     """Weighted LH fit of G(Tc), with optional automatic detection of one regime break.
 
-    ``single_regime`` names the regime assumed when one line suffices (sets n = 2 or 4 in
+    ``break_model``: "continuous" (two lines meeting at a free break temperature, 4
+    parameters) or "free" (two independent lines split between two measured temperatures,
+    5 parameters counting the split). ``single_regime`` names the regime assumed when one line suffices (sets n = 2 or 4 in
     sigma*sigma_e). Raises InputError for fewer than 3 temperatures, G <= 0 or Tc outside
     (T_inf, Tm0).
     """
@@ -277,12 +305,19 @@ def fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants
     absolute = ci95_um_per_min is not None
     overall, rss1 = _line_fit(x, y, w, tc, f"{single_regime} (assumed)", absolute)
     regimes, ratio, break_c, aicc1, aicc2 = (overall,), None, None, None, None
-    if detect_regimes and tc.size >= 7:
+    if break_model not in ("continuous", "free"):
+        raise InputError(f"break model must be continuous or free, got {break_model!r}", path)
+    free = break_model == "free"
+    k_two = 5 if free else 4
+    best = None
+    if detect_regimes and tc.size > k_two + 1:
+        best = _best_free_split(tc, x, y, w) if free else _best_break(tc, x, y, w, constants)
+    if best is not None:
         floor = 1e-20 * float(np.sum(w * (y - np.average(y, weights=w)) ** 2) + 1e-300)
-        best = _best_break(tc, x, y, w, constants)
-        aicc1, aicc2 = _aicc(rss1, tc.size, 2, floor), _aicc(best[0], tc.size, 4, floor)
+        aicc1, aicc2 = _aicc(rss1, tc.size, 2, floor), _aicc(best[0], tc.size, k_two, floor)
         if aicc2 < aicc1:
-            regimes = _two_regimes(tc, x, y, w, constants, best[1], absolute)
+            regimes = (_free_regimes(tc, x, y, w, best[1], absolute) if free else
+                       _two_regimes(tc, x, y, w, constants, best[1], absolute))
             kgs = sorted(r.kg_k2 for r in regimes)
             ratio, break_c = kgs[1] / kgs[0], best[1]
     warnings = [f"Kg = {r.kg_k2:.3g} K^2 is outside the usual 1e4-2e6 K^2 ({r.name})"

@@ -80,6 +80,20 @@ def test_fixture_b_break_found():
     assert fit.aicc_two < fit.aicc_one
 
 
+def test_free_break_model_and_repeated_temperatures():
+    # Fixture B with two independent lines (REFERENCES.md 2.5, derived here)
+    fit = fit_lauritzen_hoffman(B_T, B_G, constants=CONST, break_model="free")
+    assert len(fit.regimes) == 2 and abs(fit.break_c - 137.0) <= 2.0
+    assert fit.regimes[0].kg_k2 == pytest.approx(KG_III, rel=1e-5)
+    assert fit.regimes[1].kg_k2 == pytest.approx(KG_II, rel=1e-5)
+    # each temperature measured twice: still one break near 137 C
+    twice = fit_lauritzen_hoffman(np.repeat(B_T, 2), np.repeat(B_G, 2) * np.tile([0.99, 1.01], B_T.size),
+                                  constants=CONST)
+    assert len(twice.regimes) == 2 and abs(twice.break_c - 137.0) <= 2.0
+    with pytest.raises(InputError, match="break model"):
+        fit_lauritzen_hoffman(B_T, B_G, constants=CONST, break_model="kinked")
+
+
 def test_noisy_break_and_weighted_ci():
     # Fixture B with 3 % scatter and stated CIs: the break is still found within 2 K
     rng = np.random.default_rng(4)
