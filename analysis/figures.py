@@ -6,7 +6,8 @@ Every function returns a ``Figure``; ``save_figure(fig, stem)`` writes ``stem.pn
 
 ``growth_rate_figure(entries)``, ``lauritzen_hoffman_figure(lh)``,
 ``avrami_figure(curves, title)`` with ``AvramiCurve(label, t_min, x, fit)``,
-``conversion_comparison_figure(entries, material=None)``.
+``conversion_comparison_figure(entries, material=None)``,
+``hoffman_weeks_figure(tc_c, tm_c, hw)``.
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 __all__ = ["AvramiCurve", "avrami_figure", "conversion_comparison_figure", "growth_rate_figure",
-           "lauritzen_hoffman_figure", "save_figure"]
+           "hoffman_weeks_figure", "lauritzen_hoffman_figure", "save_figure"]
 
 _SIZE_IN = (3.5, 2.7)  # single-column journal figure
 _PALETTE = ("#1b4f72", "#b9770e", "#1e8449", "#922b21", "#6c3483", "#5d6d7e")
@@ -173,4 +174,21 @@ def conversion_comparison_figure(entries, material: str | None = None):
         ax.set_xlim(left=0)
     else:
         _message(ax, "no temperature with both microscopy and calorimetry")
+    return fig
+
+
+def hoffman_weeks_figure(tc_c, tm_c, hw):
+    """Tm against Tc, the fitted line extended to its crossing with Tm = Tc."""
+    fig, ax = _figure()
+    tc, tm = np.asarray(tc_c, float), np.asarray(tm_c, float)
+    ax.plot(tc, tm, "o", ms=3.5, color=_PALETTE[0], label="data")
+    span = np.array([tc.min() - 5.0, hw.tm0_c + 5.0])
+    ax.plot(span, hw.intercept_c + hw.slope * span, "-", lw=1.2, color=_PALETTE[1],
+            label=f"Tm = {hw.intercept_c:.1f} + {hw.slope:.3f} Tc")
+    ax.plot(span, span, "--", lw=0.8, color="0.4", label="Tm = Tc")
+    ax.plot([hw.tm0_c], [hw.tm0_c], "s", ms=4, color=_PALETTE[3],
+            label=f"Tm0 = {hw.tm0_c:.1f} °C (γ = {hw.gamma:.2f})")
+    ax.set_xlabel("Crystallization temperature Tc (°C)")
+    ax.set_ylabel("Melting temperature Tm (°C)")
+    ax.legend(fontsize=6, frameon=False)
     return fig

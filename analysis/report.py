@@ -8,7 +8,8 @@ Public API
     kinetics_comparison), ``kinetics_comparison.csv``, ``secondary_nucleation.json`` (when
     constants and at least 3 temperatures are available) and the figures
     ``growth_rate_vs_temperature``, ``lauritzen_hoffman``, ``avrami_microscopy``,
-    ``avrami_calorimetry``, ``conversion_comparison`` (each .png and .svg).
+    ``avrami_calorimetry``, ``conversion_comparison`` (each .png and .svg); with
+    ``hoffman_weeks_pairs`` also ``hoffman_weeks.json`` and its figure.
 ``project_entries_iter(project) -> Generator[Progress, None, (entries, problems)]``
     Analyses every experiment (``pipeline.analyze_experiment_iter``) and its calorimetry.
 ``report_project_iter(project, out_dir)`` / ``report_project(project, out_dir)``
@@ -19,6 +20,7 @@ Public API
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -29,9 +31,13 @@ from .errors import InputError
 from .progress import Progress, run_to_completion, scaled
 from .tables import (ReportEntry, comparison_table, growth_vs_temperature_table, write_csv,
                      write_xlsx)
-from .temperature_series import LHConstants, fit_lauritzen_hoffman, write_secondary_nucleation
+from .temperature_series import (LHConstants, fit_lauritzen_hoffman, hoffman_weeks,
+                                 write_secondary_nucleation)
 
-__all__ = ["ReportSummary", "add_cli_arguments", "build_report", "project_entries_iter",
+#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
+HW_PAIRS_KEY = "hoffman_weeks_pairs"
+
+__all__ = ["HW_PAIRS_KEY", "ReportSummary", "add_cli_arguments", "build_report", "project_entries_iter",
            "report_project", "report_project_iter", "run_cli", "series_constants"]
 
 
@@ -110,9 +116,32 @@ def _write_figures(entries, lh, material, out: Path) -> list[Path]:
     return paths
 
 
+def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
+    """``hoffman_weeks.json`` and its figure from (Tc, Tm) pairs in deg C, if there are any."""
+    pairs = [p for p in (pairs or []) if p is not None and len(p) == 2 and None not in p]
+    if not pairs:
+        return []
+    tc, tm = (np.array(v, dtype=float) for v in zip(*pairs))
+    hw = hoffman_weeks(tc, tm)
+    if not hw:
+        problems.append(f"Hoffman-Weeks skipped: {hw.reason}")
+        return []
+    doc = {"schema": 1, "pairs": [[float(a), float(b)] for a, b in zip(tc, tm)],
+           "tm0_c": hw.tm0_c, "gamma": hw.gamma, "slope": hw.slope,
+           "intercept_c": hw.intercept_c, "r2": hw.r2, "caveat": hw.caveat}
+    path = out / "hoffman_weeks.json"
+    path.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    return [path, *figures.save_figure(figures.hoffman_weeks_figure(tc, tm, hw),
+                                       out / "hoffman_weeks")]
+
+
 def build_report(entries, out_dir, *, constants: LHConstants | None = None,
-                 material: str | None = None, problems=()) -> ReportSummary:
-    """Write every table, fit and figure for ready entries (see module doc)."""
+                 material: str | None = None, problems=(),
+                 hoffman_weeks_pairs=None) -> ReportSummary:
+    """Write every table, fit and figure for ready entries (see module doc).
+
+    ``hoffman_weeks_pairs``: optional [(Tc, Tm), ...] in deg C for ``hoffman_weeks.json``.
+    """
     entries = list(entries)
     if not entries:
         raise InputError("the project has no analysable experiment; nothing to report")
@@ -128,6 +157,7 @@ def build_report(entries, out_dir, *, constants: LHConstants | None = None,
     if lh is not None:
         files.append(write_secondary_nucleation(lh, out))
     files.extend(_write_figures(entries, lh, material, out))
+    files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return ReportSummary(str(out), tuple(str(f) for f in files), lh, tuple(problems))
 
 
@@ -191,7 +221,8 @@ def report_project_iter(project, out_dir):
     constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
-                           problems=problems)
+                           problems=problems,
+                           hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
     yield Progress("writing report", 1.0)
     return summary
 

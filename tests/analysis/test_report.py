@@ -122,7 +122,10 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     exps = [Experiment(name=f"T{t:g}", stack_path=f"/data/{t:g}.tif", temperature_c=t,
                        calorimetry=cal if t == 130.0 else None) for t in (125.0, 127.5, 130.0, 132.5)]
     exps.append(Experiment(name="broken", stack_path="/data/x.tif"))
-    project = Project(experiments=tuple(exps), material="iPP", series={"tm0_c": 185.0, "tg_c": -10.0})
+    # Hoffman-Weeks pairs for Tm0 = 186 C, gamma = 2 (REFERENCES.md 5, derived here)
+    project = Project(experiments=tuple(exps), material="iPP",
+                      series={"tm0_c": 185.0, "tg_c": -10.0,
+                              "hoffman_weeks_pairs": [[130.0, 158.0], [140.0, 163.0], [135.0, 160.5]]})
     summary = report_project(project, tmp_path / "out")
     assert any(p.startswith("broken: skipped") for p in summary.problems)
     rows = (tmp_path / "out" / "growth_vs_temperature.csv").read_text().splitlines()
@@ -132,3 +135,6 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     # 4 temperatures of regime III of fixture B: one regime, Kg refit (REFERENCES.md 2.5)
     doc = json.loads((tmp_path / "out" / "secondary_nucleation.json").read_text())
     assert len(doc["regimes"]) == 1 and doc["kg_k2"] == pytest.approx(5.5e5, rel=1e-6)
+    hw = json.loads((tmp_path / "out" / "hoffman_weeks.json").read_text())
+    assert hw["tm0_c"] == pytest.approx(186.0) and hw["gamma"] == pytest.approx(2.0)
+    assert (tmp_path / "out" / "hoffman_weeks.svg").exists()
