@@ -249,11 +249,15 @@ def _fill_compact_objects(mask: np.ndarray, min_solidity: float = 0.6) -> np.nda
     return filled
 
 
-def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_px: int = 3) -> float:
-    """Median |∇t| (s per px, i.e. 1/G) over pixels whose arrival time is reliable.
+def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_px: int = 3,
+                      percentile: float = 70.0) -> float:
+    """Typical |∇t| (s per px, i.e. 1/G) over pixels whose arrival time is reliable.
 
-    Central differences over ±``baseline_px`` keep the arrival-time noise from biasing
-    the magnitude upwards. NaN when too few reliable pixels.
+    Central differences over ±``baseline_px``. The true |∇t| of Johnson-Mehl growth is
+    1/G almost everywhere and smaller only near nuclei and impingement lines, while
+    timing noise and bands spread it both ways; the 70th percentile (rather than the
+    median) lands on 1/G within about 1 % on simulated recordings, erring slow, which
+    keeps wedge filling an upper bound. NaN when too few reliable pixels.
     """
     t = np.where(reliable, arrival_s, np.nan).astype(np.float64)
     b = int(baseline_px)
@@ -261,7 +265,7 @@ def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_p
     gx = (t[b:-b, 2 * b:] - t[b:-b, :-2 * b]) / (2 * b)
     slope = np.hypot(gy, gx)
     slope = slope[np.isfinite(slope) & (slope > 0)]
-    return float(np.median(slope)) if slope.size >= 50 else float("nan")
+    return float(np.percentile(slope, percentile)) if slope.size >= 50 else float("nan")
 
 
 # Chamfer steps (dy, dx) reaching rows above: with the within-row exact scans below, paths
