@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 import tifffile
+from scipy import optimize
 from scipy.spatial import cKDTree
 
 from . import synthetic_optics as optics
@@ -254,17 +255,22 @@ def _guard_band_um(params: StackParams, horizon_s: float) -> float:
     """Width of the band outside the field where nuclei are sampled.
 
     A nucleus farther out than G·(horizon − induction) cannot reach the field within the
-    record. The band is capped at the larger of the field diagonal and the radius that
-    holds ~30 nuclei on average (beyond it, an empty disc has probability ~e^-30).
+    record. The band is also capped at G·τ where the extended fraction reaches 30: by τ
+    every point is covered (probability 1 − e^-30) by a nucleus closer than G·τ, and
+    anything farther would arrive later still.
     """
     if params.guard_band_um is not None:
         return float(params.guard_band_um)
-    growing_s = max(horizon_s - params.induction_time_s, 0.0)
-    reach = params.growth_rate_um_per_min / 60.0 * growing_s
-    per_um2 = (params.n_athermal_per_mm2 + 0.5 * params.ndot_per_mm2_per_s * growing_s) * 1e-6
-    crowd = math.sqrt(30.0 / (math.pi * per_um2)) if per_um2 > 0 else math.inf
-    diagonal = math.hypot(params.height_px, params.width_px) * params.um_per_px
-    return min(reach, max(diagonal, crowd))
+    g_um_per_s = params.growth_rate_um_per_min / 60.0
+    reach = g_um_per_s * max(horizon_s - params.induction_time_s, 0.0)
+    n_um2, ndot_um2_s = params.n_athermal_per_mm2 * 1e-6, params.ndot_per_mm2_per_s * 1e-6
+    if n_um2 == 0 and ndot_um2_s == 0:
+        return 0.0
+    extended = lambda r: math.pi * n_um2 * r**2 + (math.pi / 3.0) * ndot_um2_s * r**3 / g_um_per_s
+    covered = 1.0
+    while extended(covered) < 30.0:
+        covered *= 2.0
+    return min(reach, optimize.brentq(lambda r: extended(r) - 30.0, 0.0, covered))
 
 
 def _sample_nuclei(params, lo_px, hi_px, horizon_s, rng):
