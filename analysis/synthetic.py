@@ -125,6 +125,7 @@ def validate_params(params: StackParams) -> None:
 _CHUNK_POINTS = 1 << 18
 _MAX_CANDIDATES = 1 << 22  # (points × nearest nuclei) per KD-tree query
 _MAX_NUCLEI = 2_000_000
+TRUTH_FORMAT = "spherokin-synthetic-truth"
 
 
 def johnson_mehl_arrival(points_yx, centres_yx, birth_s, growth_px_per_s, *, horizon_s=math.inf,
@@ -384,7 +385,7 @@ def stack_truth(sim: SyntheticStack) -> dict[str, Any]:
     """Everything ``truth.json`` holds (JSON-ready)."""
     p = sim.params
     return {
-        "format": "spherokin-synthetic-truth", "schema": 1, "simulated": True,
+        "format": TRUTH_FORMAT, "schema": 1, "simulated": True,
         "um_per_px": p.um_per_px, "interval_s": p.interval_s,
         "times_s": [float(t) for t in sim.times_s],
         "isothermal_start_s": p.isothermal_start_s, "induction_time_s": p.induction_time_s,
@@ -410,27 +411,48 @@ def write_stack(sim: SyntheticStack, out_dir: str | os.PathLike, *, compression:
     the arrival map (recording clock) and owner map on frame 0's grid. Returns the folder.
     """
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    _check_output_folder(out)
     p = sim.params
     shape = (p.n_frames, p.height_px, p.width_px) + ((3,) if p.retardation_plate else ())
-    with tifffile.TiffWriter(out / "stack.tif", imagej=True) as tif:
-        tif.write(
-            sim.frames(), shape=shape, dtype=np.uint8 if p.bit_depth == 8 else np.uint16,
-            resolution=(1.0 / p.um_per_px, 1.0 / p.um_per_px),
-            metadata={"axes": "TYXS" if p.retardation_plate else "TYX", "unit": "um",
-                      "finterval": p.interval_s},
-            photometric="rgb" if p.retardation_plate else "minisblack", compression=compression,
-        )
-    (out / "truth.json").write_text(json.dumps(stack_truth(sim), indent=1), encoding="utf-8")
-    if write_maps:
-        np.savez_compressed(out / "truth_maps.npz", arrival_s=sim.arrival_s, owner=sim.owner)
+    try:
+        with tifffile.TiffWriter(out / "stack.tif", imagej=True) as tif:
+            tif.write(
+                sim.frames(), shape=shape, dtype=np.uint8 if p.bit_depth == 8 else np.uint16,
+                resolution=(1.0 / p.um_per_px, 1.0 / p.um_per_px),
+                metadata={"axes": "TYXS" if p.retardation_plate else "TYX", "unit": "um",
+                          "finterval": p.interval_s},
+                photometric="rgb" if p.retardation_plate else "minisblack", compression=compression,
+            )
+        (out / "truth.json").write_text(json.dumps(stack_truth(sim), indent=1), encoding="utf-8")
+        if write_maps:
+            np.savez_compressed(out / "truth_maps.npz", arrival_s=sim.arrival_s, owner=sim.owner)
+    except OSError as exc:
+        raise InputError(f"cannot write the simulated stack: {exc.strerror or exc}", out) from exc
     return out
+
+
+def _check_output_folder(out: Path) -> None:
+    """Create ``out``; refuse to overwrite a stack.tif that this simulator did not write."""
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder: {exc.strerror or exc}", out) from exc
+    if not (out / "stack.tif").exists():
+        return
+    try:
+        ours = json.loads((out / "truth.json").read_text(encoding="utf-8")).get("format") == TRUTH_FORMAT
+    except (OSError, ValueError, AttributeError):
+        ours = False
+    if not ours:
+        raise InputError("holds a stack.tif that is not a simulated stack; choose another folder", out)
 
 
 # ----------------------------------------------------------------------------- command line
 
 _OPTION_NAMES = {"n_frames": "--frames", "retardation_plate": "--retardation-plate"}
 _SKIPPED_FIELDS = ("height_px", "width_px")  # given together as --size
+
+
 def add_cli_arguments(parser: argparse.ArgumentParser) -> None:
     """Options of ``spherokin simulate``: one per StackParams field, plus output and DSC options."""
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder")

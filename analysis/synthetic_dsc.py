@@ -295,8 +295,11 @@ def write_dsc_csv(
         if temperature_c is not None:
             row.append(fmt(temperature_c + 0.01 * rng.standard_normal(), 2))
         lines.append(delimiter.join(row))
-    with open(path, "w", encoding="utf-8", newline="") as handle:
-        handle.write("\r\n".join(lines) + "\r\n")
+    try:
+        with open(path, "w", encoding="utf-8", newline="") as handle:
+            handle.write("\r\n".join(lines) + "\r\n")
+    except OSError as exc:
+        raise InputError(f"cannot write the DSC export: {exc.strerror or exc}", path) from exc
 
 
 # ----------------------------------------------------------------------------- command line

@@ -191,3 +191,14 @@ def test_absurd_parameters_are_input_errors():
     with pytest.raises(InputError, match="nuclei"):
         simulate_film_kinetics(StackParams(n_athermal_per_mm2=1e9, height_px=2000, width_px=2000))
     assert stack_truth(simulate_stack(StackParams(**SMALL, n_athermal_per_mm2=0.0)))["nuclei"] == []
+
+
+def test_write_stack_never_overwrites_a_real_recording(tmp_path):
+    (tmp_path / "stack.tif").write_bytes(b"someone's recording")
+    sim = simulate_stack(StackParams(**SMALL))
+    with pytest.raises(InputError, match="not a simulated stack"):
+        write_stack(sim, tmp_path)
+    assert (tmp_path / "stack.tif").read_bytes() == b"someone's recording"
+    (tmp_path / "stack.tif").unlink()
+    write_stack(sim, tmp_path)
+    write_stack(sim, tmp_path)  # a simulated stack may be replaced
