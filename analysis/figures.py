@@ -98,6 +98,14 @@ def lauritzen_hoffman_figure(lh):
     return fig
 
 
+def _thin(values: np.ndarray, count: int) -> np.ndarray:
+    """Indexes of about ``count`` points spread evenly along ``values`` (sorted ascending)."""
+    if values.size <= count:
+        return np.arange(values.size)
+    targets = np.linspace(values[0], values[-1], count)
+    return np.unique(np.clip(np.searchsorted(values, targets), 0, values.size - 1))
+
+
 @dataclass(frozen=True)
 class AvramiCurve:
     label: str
@@ -120,16 +128,19 @@ def avrami_figure(curves, title: str = ""):
         if np.count_nonzero(ok) < 2:
             continue
         color = _PALETTE[i % len(_PALETTE)]
-        ln_t = np.log(t[ok])
-        ax.plot(ln_t, np.log(-np.log1p(-x[ok])), ".", ms=1.5, color=color, label=curve.label)
+        ln_t, y = np.log(t[ok]), np.log(-np.log1p(-x[ok]))
+        keep = _thin(ln_t, 250)  # dense DSC records would bloat the SVG
+        label = curve.label + (f" (n = {curve.fit.n:.2f})" if curve.fit else "")
+        ax.plot(ln_t[keep], y[keep], ".", ms=1.8, color=color, label=label)
         if curve.fit:
             lo, hi = curve.fit.window if curve.fit.method == "window-linear" else (0.01, 0.99)
-            span = np.log(curve.fit.t_half_min) + np.log(-np.log1p(-np.array([lo, hi])) / math.log(2)) / curve.fit.n
-            ax.plot(span, math.log(curve.fit.k_per_min_n) + curve.fit.n * span, "-", lw=1.2,
-                    color=_PALETTE[(i + 3) % len(_PALETTE)], label=f"fit: n = {curve.fit.n:.2f}")
+            span = np.log(curve.fit.t_half_min) + np.log(
+                -np.log1p(-np.array([lo, hi])) / math.log(2)) / curve.fit.n
+            ax.plot(span, math.log(curve.fit.k_per_min_n) + curve.fit.n * span, "-", lw=0.9,
+                    color="0.05", zorder=3)
         drawn += 1
     if drawn:
-        ax.legend(fontsize=6, frameon=False, markerscale=4)
+        ax.legend(fontsize=6, frameon=False, markerscale=4, loc="lower right")
     else:
         _message(ax, "no conversion data")
     return fig
@@ -154,24 +165,31 @@ def conversion_comparison_figure(entries, material: str | None = None):
     fig, ax = _figure(4.2)
     ax.set_xlabel("Time from onset (min)")
     ax.set_ylabel("Relative crystallinity X")
-    drawn = 0
+    drawn, halves = 0, []
     for entry in entries:
         pred, cal = entry.bulk_prediction(), entry.calorimetry
         if pred is None or cal is None:
             continue
         color = _PALETTE[drawn % len(_PALETTE)]
         tt, xv, label = _dsc_volume_curve(cal, material)
+        keep = _thin(tt, 400)
+        tt, xv = tt[keep], xv[keep]
         tc = entry.result.temperature_c
         name = f"{tc:g} °C" if tc is not None else entry.name
         ax.plot(tt, xv, "-", lw=1.2, color=color, label=f"{name} {label}")
         t_end = max(float(tt.max()), 3 * pred.t_half_min)
         grid = np.linspace(0, t_end, 300)
         ax.plot(grid, pred.conversion(grid), "--", lw=1.0, color=color, label=f"{name} predicted 3-D")
+        halves.append(pred.t_half_min)
         drawn += 1
     if drawn:
         ax.legend(fontsize=6, frameon=False)
         ax.set_ylim(-0.02, 1.02)
-        ax.set_xlim(left=0)
+        if max(halves) > 10 * min(halves):  # several decades of time: a log axis keeps all legible
+            ax.set_xscale("log")
+            ax.set_xlim(left=0.2 * min(halves))
+        else:
+            ax.set_xlim(left=0)
     else:
         _message(ax, "no temperature with both microscopy and calorimetry")
     return fig
