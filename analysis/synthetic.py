@@ -509,7 +509,8 @@ def run_cli(args: argparse.Namespace) -> int:
     if dsc is not None:
         semicolon = args.dsc_dialect == "semicolon"
         write_dsc_csv(dsc, out / args.dsc, delimiter=";" if semicolon else ",", decimal="," if semicolon else ".",
-                      time_unit=args.dsc_time_unit, sample_name=args.sample_name, temperature_c=args.temperature_c)
+                      time_unit=args.dsc_time_unit, heat_flow_unit=args.dsc_heat_flow_unit,
+                      sample_name=args.sample_name, temperature_c=args.temperature_c)
         truth = json.loads((out / "truth.json").read_text(encoding="utf-8"))
         truth["dsc"] = dict(dsc.truth_dict(), file=args.dsc, thickness_um=args.thickness_um)
         (out / "truth.json").write_text(json.dumps(truth, indent=1), encoding="utf-8")

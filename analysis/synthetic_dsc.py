@@ -14,6 +14,7 @@ an exponential start-up transient (the quench to Tc), with Gaussian noise.
 from __future__ import annotations
 
 import argparse
+import csv
 import inspect
 import math
 import os
@@ -262,42 +263,45 @@ def write_dsc_csv(
     delimiter: str = ",",
     decimal: str = ".",
     time_unit: str = "min",
+    heat_flow_unit: str = "mW",
     sample_name: str = "simulated sample",
     temperature_c: float | None = None,
 ) -> None:
     """Write a delimited text export: a few ``key<delimiter>value`` header lines, then
     the column row (units in the names) and the data.
 
-    Columns: ``Time (min)`` or ``Time (s)``, ``Heat flow (mW)`` and, when
-    ``temperature_c`` is given, ``Sample temperature (°C)``. ``decimal=","`` with
-    ``delimiter=";"`` gives the decimal-comma dialect.
+    Columns: ``Time (min)`` or ``Time (s)``, ``Heat flow (mW)`` or ``Heat flow (W/g)``
+    and, when ``temperature_c`` is given, ``Sample temperature (°C)``. ``decimal=","``
+    with ``delimiter=";"`` gives the decimal-comma dialect. Text containing the delimiter
+    is quoted (RFC 4180).
     """
     if time_unit not in ("min", "s"):
         raise InputError(f"time_unit must be 'min' or 's', got {time_unit!r}", path)
+    if heat_flow_unit not in ("mW", "W/g"):
+        raise InputError(f"heat_flow_unit must be 'mW' or 'W/g', got {heat_flow_unit!r}", path)
     if decimal not in (".", ",") or delimiter == decimal or len(delimiter) != 1:
         raise InputError(f"delimiter {delimiter!r} and decimal mark {decimal!r} clash", path)
     fmt = lambda v, digits: f"{v:.{digits}f}".replace(".", decimal)
-    header = [
-        ("Sample", sample_name),
-        ("Mass (mg)", fmt(isotherm.mass_mg, 3)),
-        ("Isothermal temperature (°C)", "" if temperature_c is None else fmt(temperature_c, 1)),
-        ("Segment", "isothermal hold after quench from the melt"),
-        ("Origin", "simulated data (spherokin synthetic generator)"),
+    rows = [
+        ["Sample", sample_name],
+        ["Mass (mg)", fmt(isotherm.mass_mg, 3)],
+        ["Isothermal temperature (°C)", "" if temperature_c is None else fmt(temperature_c, 1)],
+        ["Segment", "isothermal hold after quench from the melt"],
+        ["Origin", "simulated data (spherokin synthetic generator)"],
+        [f"Time ({time_unit})", f"Heat flow ({heat_flow_unit})"]
+        + ([] if temperature_c is None else ["Sample temperature (°C)"]),
     ]
-    columns = [f"Time ({time_unit})", "Heat flow (mW)"]
-    if temperature_c is not None:
-        columns.append("Sample temperature (°C)")
-    rng = np.random.default_rng(int(isotherm.params.get("seed", 0)) + 1)
     times = isotherm.time_s / 60.0 if time_unit == "min" else isotherm.time_s
-    lines = [delimiter.join(item) for item in header] + [delimiter.join(columns)]
-    for t, q in zip(times, isotherm.heat_flow_mw):
-        row = [fmt(t, 5 if time_unit == "min" else 2), fmt(q, 5)]
+    flows = isotherm.heat_flow_mw / (isotherm.mass_mg if heat_flow_unit == "W/g" else 1.0)  # mW/mg = W/g
+    rng = np.random.default_rng(int(isotherm.params.get("seed", 0)) + 1)
+    for t, q in zip(times, flows):
+        row = [fmt(t, 5 if time_unit == "min" else 2), fmt(q, 5 if heat_flow_unit == "mW" else 7)]
         if temperature_c is not None:
             row.append(fmt(temperature_c + 0.01 * rng.standard_normal(), 2))
-        lines.append(delimiter.join(row))
+        rows.append(row)
     try:
         with open(path, "w", encoding="utf-8", newline="") as handle:
-            handle.write("\r\n".join(lines) + "\r\n")
+            csv.writer(handle, delimiter=delimiter, lineterminator="\r\n").writerows(rows)
     except OSError as exc:
         raise InputError(f"cannot write the DSC export: {exc.strerror or exc}", path) from exc
 
@@ -336,6 +340,7 @@ def add_dsc_cli_arguments(parser: argparse.ArgumentParser) -> None:
     dsc.add_argument("--dsc-dialect", choices=("comma", "semicolon"), default="comma",
                      help="comma: ',' and decimal point; semicolon: ';' and decimal comma")
     dsc.add_argument("--dsc-time-unit", choices=("min", "s"), default="min", help="time column unit")
+    dsc.add_argument("--dsc-heat-flow-unit", choices=("mW", "W/g"), default="mW", help="heat-flow column unit")
     dsc.add_argument("--temperature-c", type=float, help="crystallization temperature, °C (metadata)")
     dsc.add_argument("--sample-name", default="simulated sample", help="sample name in the DSC header")
 

@@ -126,18 +126,20 @@ def _read_export(path, delimiter, decimal):
     return rows[:head], rows[head], data
 
 
-@pytest.mark.parametrize("delimiter, decimal, unit", [(",", ".", "min"), (";", ",", "s")])
-def test_csv_export_round_trip_in_both_dialects(tmp_path, delimiter, decimal, unit):
+@pytest.mark.parametrize("delimiter, decimal, unit, flow_unit",
+                         [(",", ".", "min", "mW"), (";", ",", "s", "W/g")])
+def test_csv_export_round_trip_in_both_dialects(tmp_path, delimiter, decimal, unit, flow_unit):
     iso = simulate_dsc_isotherm(mass_mg=5.25, seed=2)
     path = tmp_path / "run.csv"
-    write_dsc_csv(iso, path, delimiter=delimiter, decimal=decimal, time_unit=unit,
-                  sample_name="grade X at 128 C", temperature_c=128.0)
+    write_dsc_csv(iso, path, delimiter=delimiter, decimal=decimal, time_unit=unit, heat_flow_unit=flow_unit,
+                  sample_name="grade X; lot 7, 128 C", temperature_c=128.0)
     header, columns, data = _read_export(path, delimiter, decimal)
-    assert columns == [f"Time ({unit})", "Heat flow (mW)", "Sample temperature (°C)"]
-    assert ["Mass (mg)", f"5{decimal}250"] in header
+    assert columns == [f"Time ({unit})", f"Heat flow ({flow_unit})", "Sample temperature (°C)"]
+    assert ["Mass (mg)", f"5{decimal}250"] in header and ["Sample", "grade X; lot 7, 128 C"] in header
     scale = 60.0 if unit == "min" else 1.0
+    per_mass = 5.25 if flow_unit == "W/g" else 1.0
     np.testing.assert_allclose(data[:, 0] * scale, iso.time_s, atol=1e-3)
-    np.testing.assert_allclose(data[:, 1], iso.heat_flow_mw, atol=1e-5)
+    np.testing.assert_allclose(data[:, 1] * per_mass, iso.heat_flow_mw, atol=1e-5)
     assert np.all(np.abs(data[:, 2] - 128.0) < 0.1)
 
 
