@@ -44,7 +44,7 @@ from .synthetic_optics import SyntheticStack
 __all__ = [
     "DscIsotherm", "simulate_dsc_isotherm", "write_dsc_csv",
     "StackParams", "FilmKinetics", "SyntheticStack", "simulate_film_kinetics",
-    "simulate_stack", "write_stack", "stack_truth", "johnson_mehl_arrival",
+    "simulate_stack", "write_stack", "stack_truth", "visible_nuclei", "johnson_mehl_arrival",
     "add_cli_arguments", "run_cli",
 ]
 
