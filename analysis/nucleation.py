@@ -65,8 +65,10 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     """Nucleation mode from the nucleation times; returns (mode, rate per mm^2 per s,
     number of nuclei in the initial burst, the criterion and its outcome in words).
 
-    Criterion. Nuclei born within ``burst_window_s`` of the first one form the initial
-    burst; the rest are late births. (1) If at most max(1, 5 %) of the nuclei are late
+    Criterion. The initial burst is the densest group of births within
+    ``burst_window_s`` (the window holding most nucleation times, the earliest such
+    window on ties; a stray early estimate cannot move it); births after it are late
+    births, births before it count with the burst. (1) If at most max(1, 5 %) of the nuclei are late
     births, nucleation is *athermal* (all nuclei predetermined). (2) Otherwise the late
     births estimate a constant nucleation rate per untransformed area,
     Ndot = n_late / ∫ (1 - X) A dt over (end of burst, end of record) — nuclei cannot
@@ -78,12 +80,14 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     """
     t = np.sort(np.asarray(t0_s, dtype=float))
     n = t.size
-    t_first = float(t[0])
+    in_window = np.searchsorted(t, t + burst_window_s, side="right") - np.arange(n)
+    t_first = float(t[int(np.argmax(in_window))])
     burst_end = t_first + burst_window_s
     n_burst = int(np.count_nonzero(t <= burst_end))
     late = t[t > burst_end]
-    allowed = max(1, int(0.05 * n))
-    head = f"{n} nuclei; {n_burst} within {burst_window_s:.3g} s of the first, {late.size} later"
+    allowed = max(1, int(0.10 * n))
+    head = (f"{n} nuclei; {n_burst} up to {burst_window_s:.3g} s after the start of the densest "
+            f"burst, {late.size} later")
     if late.size <= allowed:
         return "athermal", None, n_burst, f"{head} (at most {allowed} allowed): athermal"
     melt_late = exposure.between(burst_end, end_s)
@@ -99,7 +103,7 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
             f"exceeds that rate with Poisson p = {p_burst:.3g} ({mode} at p < {alpha}); "
             f"constant-rate KS p = {p_ks:.3g}")
     if mode == "thermal":
-        rate = (n - 1) / max(exposure.between(t_first, end_s), 1e-300)
+        rate = (n - 1) / max(exposure.between(float(t[0]), end_s), 1e-300)
     return mode, rate, n_burst, text
 
 

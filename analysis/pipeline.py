@@ -136,6 +136,7 @@ class _Context:
     fit_arrival: np.ndarray
     frame_index: np.ndarray
     at_start: np.ndarray
+    filled: np.ndarray
     arrival_s: np.ndarray
     markers: nuclei.Markers
     base_territories: np.ndarray
@@ -312,7 +313,8 @@ def _ignored_mask(frames: np.ndarray, spans) -> np.ndarray:
 def _fit_pixels(ctx, pix, band, spans, settings):
     frames = ctx.frame_index.flat[pix]
     t = ctx.fit_arrival.flat[pix]
-    usable = np.isfinite(t) & ~ctx.at_start.flat[pix] & (frames >= 0) & ~_ignored_mask(frames, spans)
+    usable = np.isfinite(t) & ~ctx.at_start.flat[pix] & ~ctx.filled.flat[pix] & (frames >= 0) & \
+        ~_ignored_mask(frames, spans)
     inner = usable & ~band.flat[pix]
     chosen = pix[inner] if np.count_nonzero(inner) >= 30 else pix[usable]
     step = max(1, int(np.ceil(chosen.size / settings.max_fit_pixels)))
@@ -367,7 +369,8 @@ def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
         return ("edge" if on_border else "few-points"), fit.reason
     if det.excluded is False:
         return "ok", lin.description
-    if outside and det.fixed_xy is None:
+    on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
+    if (outside or on_border) and det.fixed_xy is None:
         return "edge", lin.description
     if np.count_nonzero(series.used) < settings.min_points:
         return "few-points", lin.description
@@ -576,7 +579,10 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
     yield Progress("finding nuclei", 0.1)
     at_start = np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0])
-    work = nuclei.working_map(arrival_s, times, smooth_px=settings.smooth_px, at_start=at_start)
+    filled = np.asarray(getattr(arrival, "filled", np.zeros(arrival_s.shape, bool)), bool)
+    # Inferred (filled) arrivals are not evidence of a minimum: detect on measured pixels.
+    work = nuclei.working_map(np.where(filled, np.float32(np.nan), arrival_s), times,
+                              smooth_px=settings.smooth_px, at_start=at_start)
     markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
                                   min_territory_px=settings.min_territory_px)
     base = nuclei.territories(work, arrival_s, markers.labels)
@@ -586,6 +592,7 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    thickness_um=thickness_um, geometry=geometry, work=work,
                    fit_arrival=growth.dequantised(arrival_s, times),
                    frame_index=np.asarray(arrival.frame_index, np.int32), at_start=at_start,
+                   filled=filled,
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
@@ -654,11 +661,11 @@ def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edit
     seconds from ``isothermal_start_s`` (on the stack's clock). InputError when the
     stack lacks its calibration.
     """
-    from .arrival import arrival_map_iter, settings_from_dict
+    from .arrival import ArrivalSettings, arrival_map_iter
 
     stack.require_calibration()
-    arrival = yield from scaled(
-        arrival_map_iter(stack, settings=settings_from_dict(settings.arrival)), 0.0, 0.85)
+    arrival_settings = ArrivalSettings.from_dict(settings.arrival)
+    arrival = yield from scaled(arrival_map_iter(stack, settings=arrival_settings), 0.0, 0.85)
     analysis = yield from scaled(analyze_arrival_iter(
         arrival, settings=settings, edits=edits, isothermal_start_s=isothermal_start_s,
         temperature_c=temperature_c, thickness_um=thickness_um, stack=str(stack.path),
