@@ -138,3 +138,30 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     hw = json.loads((tmp_path / "out" / "hoffman_weeks.json").read_text())
     assert hw["tm0_c"] == pytest.approx(186.0) and hw["gamma"] == pytest.approx(2.0)
     assert (tmp_path / "out" / "hoffman_weeks.svg").exists()
+
+
+def test_demo_project_end_to_end(tmp_path):
+    """``spherokin report`` on the shipped demo project (invented scenario, sample_images/).
+
+    The demo's growth rates follow one Lauritzen-Hoffman regime with Kg = 4.6e5 K^2 and its
+    DSC isotherms an athermal 3-D law, n = 3 (values of the demo's generator, see
+    sample_images/README.md; equation: Lauritzen & Hoffman 1960 J. Res. NBS 64A, 73 # from memory).
+    """
+    from pathlib import Path
+
+    from analysis.cli import main
+
+    demo = Path(__file__).resolve().parents[2] / "sample_images" / "demo.spherokin.json"
+    assert main(["report", str(demo), "--out", str(tmp_path)]) == 0
+    doc = json.loads((tmp_path / "secondary_nucleation.json").read_text())
+    assert len(doc["regimes"]) == 1
+    assert doc["kg_k2"] == pytest.approx(4.6e5, rel=0.02)
+    rows = (tmp_path / "growth_vs_temperature.csv").read_text(encoding="utf-8").splitlines()
+    assert len(rows) == 6
+    import csv as _csv
+
+    table = list(_csv.DictReader(rows))
+    for row in table:
+        if row["temperature_c"] in ("127", "130", "133"):
+            assert float(row["dsc_avrami_n"]) == pytest.approx(3.0, abs=0.15)
+    assert (tmp_path / "lauritzen_hoffman.svg").exists()
