@@ -83,7 +83,7 @@ class StackParams:
     spherulite_sign: str = _p("positive", "optical sign of the spherulites", choices=("positive", "negative"))
     band_period_um: float = _p(0.0, "banding period, µm (0: no bands)", lo=0.0)
     band_contrast: float = _p(0.7, "banding depth, 0..1", lo=0.0, hi=1.0)
-    texture_contrast: float = _p(0.25, "fibrillar texture contrast, 0..1", lo=0.0, hi=1.0)
+    texture_contrast: float = _p(0.3, "fibrillar texture contrast, 0..1", lo=0.0, hi=1.0)
     front_width_px: float = _p(1.0, "width of the soft growth front, px", lo=0.05, hi=50.0)
     melt_level: float = _p(0.03, "melt brightness between crossed polarizers, 0..1", lo=0.0, hi=1.0)
     brightness: float = _p(0.75, "brightest spherulite level, 0..1", lo=0.0, hi=1.0, open_lo=True)

@@ -23,7 +23,8 @@ import cv2
 import numpy as np
 from scipy import ndimage
 
-_TEXTURE_SAMPLES = 360
+_FIBRIL_ROOT_SAMPLES = 48  # fibrils around a young spherulite
+_FIBRIL_PX = 2.5  # arc length of one texture sample, px (a fibril spans a few samples)
 _LUT_MAX_NM = 2500
 
 # Approximate camera channel sensitivities as Gaussians (centre nm, width nm). These are
@@ -94,8 +95,9 @@ def crystal_appearance(owner, centres_yx, origin_yx, params, rng) -> np.ndarray:
     dy = rows + origin_yx[0] - centres_yx[safe, 0].astype(np.float32)
     dx = cols + origin_yx[1] - centres_yx[safe, 1].astype(np.float32)
     azimuth = np.arctan2(dy, dx)
-    radius_um = np.hypot(dy, dx) * np.float32(params.um_per_px)
-    strength = _band_factor(radius_um, params) * _texture(azimuth, owner, len(centres_yx), params, rng)
+    radius_px = np.hypot(dy, dx)
+    strength = _band_factor(radius_px * np.float32(params.um_per_px), params) * _texture(
+        azimuth, radius_px, owner, len(centres_yx), params, rng)
     pol = math.radians(params.polarizer_angle_deg)
     melted = owner < 0
     if params.retardation_plate:
@@ -118,16 +120,44 @@ def _band_factor(radius_um, params) -> np.ndarray:
     return (1.0 - c) + c * np.cos(np.float32(math.pi / params.band_period_um) * radius_um) ** 2
 
 
-def _texture(azimuth, owner, n_owners, params, rng) -> np.ndarray:
-    """Radial fibrils: 1 + c·f(φ + offset of the spherulite), f a smooth periodic noise."""
+def _texture(azimuth, radius_px, owner, n_owners, params, rng) -> np.ndarray:
+    """Radial fibrils that branch outwards: 1 + c·f(φ, r), fixed per spherulite.
+
+    f is angular noise whose number of samples doubles with every octave of radius, each
+    octave refining the previous one, so fibrils keep a width of a few pixels, continue
+    outwards and split. Each spherulite sees the pattern turned by its own offset.
+    """
     if params.texture_contrast <= 0:
         return np.ones_like(azimuth)
-    table = ndimage.gaussian_filter1d(rng.standard_normal(_TEXTURE_SAMPLES), 1.2, mode="wrap")
-    table = (table / table.std()).astype(np.float32)
-    offsets = rng.integers(0, _TEXTURE_SAMPLES, size=max(n_owners, 1))
-    index = (azimuth + np.float32(math.pi)) * np.float32(_TEXTURE_SAMPLES / (2 * math.pi))
-    index = (index.astype(np.int64) + offsets[np.maximum(owner, 0)]) % _TEXTURE_SAMPLES
-    return np.clip(1.0 + np.float32(params.texture_contrast) * table[index], 0.0, None)
+    r0 = _FIBRIL_ROOT_SAMPLES * _FIBRIL_PX / (2 * math.pi)
+    levels = max(2, int(math.ceil(math.log2(max(float(radius_px.max()), r0) / r0))) + 2)
+    tables = _fibril_tables(levels, rng)
+    starts = np.cumsum([0] + [len(t) for t in tables[:-1]])
+    flat = np.concatenate(tables)
+    octave = np.log2(np.maximum(radius_px, np.float32(r0)) / np.float32(r0))
+    level = np.minimum(octave.astype(np.int64), levels - 2)
+    blend = np.clip(octave - level, 0.0, 1.0).astype(np.float32)
+    turn = rng.random(max(n_owners, 1))[np.maximum(owner, 0)]
+    where = (azimuth + np.float32(math.pi)) / np.float32(2 * math.pi) + turn  # in turns
+
+    def sample(lv):
+        length = _FIBRIL_ROOT_SAMPLES * (2 ** lv)
+        return flat[starts[lv] + (where * length).astype(np.int64) % length]
+
+    pattern = (1.0 - blend) * sample(level) + blend * sample(level + 1)
+    return np.clip(1.0 + np.float32(params.texture_contrast) * pattern, 0.0, None)
+
+
+def _fibril_tables(levels: int, rng) -> list[np.ndarray]:
+    """Periodic angular noise per radius octave, unit variance; octave b has
+    ROOT·2^b samples and keeps the fibrils of octave b − 1 (repeated, smoothed)."""
+    unit = lambda a: ((a - a.mean()) / (a.std() + 1e-12)).astype(np.float32)
+    smooth = lambda a: ndimage.gaussian_filter1d(a, 1.0, mode="wrap")
+    tables = [unit(smooth(rng.standard_normal(_FIBRIL_ROOT_SAMPLES)))]
+    for _ in range(1, levels):
+        kept = smooth(np.repeat(tables[-1], 2))
+        tables.append(unit(0.75 * unit(kept) + 0.66 * unit(smooth(rng.standard_normal(kept.size)))))
+    return tables
 
 
 def sensor_transmission(shape, params, rng) -> np.ndarray:
