@@ -208,17 +208,22 @@ def _result_inputs(result: ExperimentResult, d: int) -> tuple[float | None, floa
 
 def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
                               mode: str | None = None) -> AvramiPrediction:
-    """Model from an experiment's pooled G and nucleation (mode from the result if None).
+    """Model from an experiment's pooled G and nucleation (mode from the result if None;
+    if the result states none either, from which of density and rate are known).
 
     For "bulk-3d" the volumetric values are used, or N_A / h when only areal values and
     the film thickness h are known. Missing inputs raise InputError naming the stack.
     """
     d = _dimension(geometry)
-    mode_key = _MODE_ALIASES.get(mode or result.nucleation.mode or "", None)
-    if mode_key is None:
-        raise InputError(f"nucleation mode {mode or result.nucleation.mode!r} unknown; "
-                         "use athermal, thermal or mixed", result.stack)
     density, rate = _result_inputs(result, d)
+    wanted = mode or result.nucleation.mode
+    if wanted is None:  # no mode stated: use whatever nucleation data there are
+        wanted = {(True, True): "mixed", (False, True): "thermal"}.get(
+            (density is not None, rate is not None), "athermal")
+    mode_key = _MODE_ALIASES.get(wanted)
+    if mode_key is None:
+        raise InputError(f"nucleation mode {wanted!r} unknown; use athermal, thermal or mixed",
+                         result.stack)
     if mode_key == "athermal":
         rate = None
     elif mode_key == "thermal":

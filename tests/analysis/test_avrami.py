@@ -144,6 +144,10 @@ def test_predict_from_result_mode_override_and_errors():
     assert predict_model_from_result(res, mode="sporadic").n == 4
     with pytest.raises(InputError, match="demo.tif.*nucleus density"):
         predict_from_result(make_result(n_mm2=100.0), "bulk-3d")  # no thickness
+    assert predict_model_from_result(make_result(mode=None, n_mm3=1e3)).mode == "athermal"
+    assert predict_model_from_result(make_result(mode=None, rate_mm3=10.0)).mode == "thermal"
+    with pytest.raises(InputError, match="mode 'burst' unknown"):
+        predict_model_from_result(res, mode="burst")
     with pytest.raises(InputError, match="geometry"):
         predict_from_result(res, "bulk-4d")
     with pytest.raises(InputError, match="growth rate"):
