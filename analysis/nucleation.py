@@ -66,9 +66,9 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     number of nuclei in the initial burst, the criterion and its outcome in words).
 
     Criterion. The initial burst is the densest group of births within
-    ``burst_window_s`` (the window holding most nucleation times, the earliest such
-    window on ties; a stray early estimate cannot move it); births after it are late
-    births, births before it count with the burst. (1) If at most max(1, 5 %) of the nuclei are late
+    ``burst_window_s`` among windows opening at one of the earliest quarter (at least
+    three) of the nucleation times, so that a stray early estimate cannot move it; births
+    after it are late births, births before it count with the burst. (1) If at most max(1, 5 %) of the nuclei are late
     births, nucleation is *athermal* (all nuclei predetermined). (2) Otherwise the late
     births estimate a constant nucleation rate per untransformed area,
     Ndot = n_late / ∫ (1 - X) A dt over (end of burst, end of record) — nuclei cannot
@@ -80,7 +80,8 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     """
     t = np.sort(np.asarray(t0_s, dtype=float))
     n = t.size
-    in_window = np.searchsorted(t, t + burst_window_s, side="right") - np.arange(n)
+    early = max(3, n // 4)
+    in_window = np.searchsorted(t, t[:early] + burst_window_s, side="right") - np.arange(min(early, n))
     t_first = float(t[int(np.argmax(in_window))])
     burst_end = t_first + burst_window_s
     n_burst = int(np.count_nonzero(t <= burst_end))
@@ -94,7 +95,7 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     if melt_late <= 0:
         return "athermal", None, n_burst, f"{head}; no melt left after the burst: athermal"
     rate = late.size / melt_late
-    expected = rate * exposure.between(t_first, burst_end)
+    expected = rate * exposure.between(float(t[0]), burst_end)
     p_burst = _poisson_tail(n_burst - 1, expected)
     mode = "mixed" if p_burst < alpha else "thermal"
     u = np.array([exposure.between(burst_end, ti) for ti in late]) / melt_late
