@@ -48,7 +48,7 @@ AUTO_WARP_TOLERANCE_PX = 0.05
 _FINE_SIGMA_PX = 1.0
 _COARSE_SIGMA_PX = 6.0
 _MARGIN_PX = 16
-_REFINE_STEPS = 4
+_REFINE_STEPS = 6
 
 
 @dataclass(frozen=True)
@@ -105,12 +105,15 @@ def _crop(image: np.ndarray, origin_yx, size: int, shift_yx=(0.0, 0.0)) -> np.nd
 
 
 def estimate_shift(reference: np.ndarray, moving: np.ndarray, *, window: np.ndarray | None = None,
-                   refine_steps: int = _REFINE_STEPS) -> ShiftEstimate:
+                   refine_steps: int = _REFINE_STEPS, guess_yx=None) -> ShiftEstimate:
     """Sub-pixel displacement of ``moving``'s content relative to ``reference``.
 
     Both images should already be band-passed and of equal square size. Phase
-    correlation gives the coarse shift; Lucas-Kanade steps refine it, ignoring pixels
-    whose residual is an outlier (content that changed rather than moved).
+    correlation gives the coarse shift (and the match strength); Lucas-Kanade steps
+    refine it, ignoring pixels whose residual is an outlier (content that changed rather
+    than moved). When the refinement ends far from the coarse shift (OpenCV's sub-pixel
+    peak can be off by half a pixel on weak texture), it is retried from ``guess_yx``
+    (e.g. the previous frame's shift).
     """
     reference = np.asarray(reference, np.float32)
     moving = np.asarray(moving, np.float32)
@@ -121,6 +124,9 @@ def estimate_shift(reference: np.ndarray, moving: np.ndarray, *, window: np.ndar
     if not np.isfinite(dx + dy):
         return ShiftEstimate(0.0, 0.0, 0.0)
     fine_dy, fine_dx = _refine(reference, moving, window, (dy, dx), refine_steps)
+    if np.hypot(fine_dy - dy, fine_dx - dx) > 1.0 and guess_yx is not None:
+        dy, dx = float(guess_yx[0]), float(guess_yx[1])
+        fine_dy, fine_dx = _refine(reference, moving, window, (dy, dx), refine_steps)
     if np.hypot(fine_dy - dy, fine_dx - dx) > 1.0:  # refinement wandered off: no real match
         return ShiftEstimate(float(dy), float(dx), 0.0)
     dy, dx = fine_dy, fine_dx
@@ -137,11 +143,12 @@ def _refine(reference, moving, window, shift_yx, steps):
     textured = slope > 0.5 * np.sqrt(np.mean(slope * slope))
     size = reference.shape[0]
     shift, gain = np.array(shift_yx, float), 1.0
-    for _ in range(steps):
+    for step_number in range(steps):
         residual = _crop(moving, (0, 0), size, shift) / gain - reference
-        # Spread judged on textured pixels only: flat areas have tiny residuals whatever the shift.
+        # Spread judged on textured pixels only: flat areas have tiny residuals whatever the
+        # shift. No rejection on the first step, while misalignment still dominates.
         spread = 1.4826 * np.median(np.abs(residual[textured])) + 1e-12
-        weight = window * (np.abs(residual) < 4.0 * spread)
+        weight = window if step_number == 0 else window * (np.abs(residual) < 4.0 * spread)
         normal = np.array([[np.sum(weight * u * v) for v in basis] for u in basis])
         rhs = np.array([np.sum(weight * u * residual) for u in basis])
         if np.linalg.cond(normal) > 1e7:
@@ -149,7 +156,7 @@ def _refine(reference, moving, window, shift_yx, steps):
         step = np.linalg.solve(normal, rhs)
         shift -= step[:2]
         gain *= 1.0 + step[2]
-        if np.max(np.abs(step[:2])) < 1e-3:
+        if np.max(np.abs(step[:2])) < 1e-3 and step_number > 0:
             break
     return shift
 
@@ -170,30 +177,38 @@ class DriftTracker:
     min_response : float
         Phase-correlation strength below which a match is rejected.
     refresh_frames : int
-        A key frame is renewed at the latest after this many frames.
+        A key frame is renewed at the latest after this many frames, or when the
+        specimen has moved ``refresh_shift_px`` away from it ...
     refresh_gain : float
         ... or as soon as its settled content (mask area, or band-passed energy when no
-        mask is given) has grown by this factor.
+        mask is given) has grown by this factor. Each renewal adds the error of one
+        match to all later shifts, so renewals are kept rare.
     max_step_px : float
         A frame whose shift differs from the previous frame's by more than this is
         treated as a failed match (stage drift is slow).
     min_settled_px : int
         Fewer settled pixels than this in the key frame's window: no estimate, the shift
         is held.
+    fine_sigma_px : float
+        High cut of the band-pass (noise fixed to the camera, e.g. in a melt reference
+        that was subtracted, would otherwise pull the match towards zero shift).
     coarse_sigma_px : float or None
         Low cut of the band-pass applied before registering. ``None`` for images that
         have no slow background to remove (a difference from the melt): a high-pass would
         spread the change at a growing front into the settled interior.
     """
 
-    def __init__(self, *, crop_px: int = 256, min_response: float = 0.2, refresh_frames: int = 40,
-                 refresh_gain: float = 2.0, max_step_px: float = 3.0, min_settled_px: int = 200,
-                 coarse_sigma_px: float | None = _COARSE_SIGMA_PX):
+    def __init__(self, *, crop_px: int = 256, min_response: float = 0.2, refresh_frames: int = 80,
+                 refresh_gain: float = 4.0, refresh_shift_px: float = 4.0, max_step_px: float = 3.0,
+                 min_settled_px: int = 200,
+                 coarse_sigma_px: float | None = _COARSE_SIGMA_PX, fine_sigma_px: float = _FINE_SIGMA_PX):
         self.coarse_sigma_px = coarse_sigma_px
+        self.fine_sigma_px = fine_sigma_px
         self.crop_px = int(crop_px)
         self.min_response = float(min_response)
         self.refresh_frames = int(refresh_frames)
         self.refresh_gain = float(refresh_gain)
+        self.refresh_shift_px = float(refresh_shift_px)
         self.max_step_px = float(max_step_px)
         self.min_settled_px = int(min_settled_px)
         self._key = None
@@ -216,14 +231,15 @@ class DriftTracker:
         self.measured = False
         if self._key_content > 0 and self._usable_key():
             weight = self._window * self._key_weight
-            found = estimate_shift(self._key, current, window=weight)
+            found = estimate_shift(self._key, current, window=weight, guess_yx=self.shift_yx - self._key_shift)
             candidate = self._key_shift + (found.dy, found.dx)
             if found.response >= self.min_response and np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px:
                 self.shift_yx = candidate
                 self.measured = True
         self._key_age += 1
-        if self._content(image, current, settled) > self.refresh_gain * self._key_content \
-                or self._key_age >= self.refresh_frames:
+        stale = (self._key_age >= self.refresh_frames
+                 or np.max(np.abs(self.shift_yx - self._key_shift)) > self.refresh_shift_px)
+        if stale or self._content(image, current, settled) > self.refresh_gain * self._key_content:
             self._renew(image, settled)
         return self.shift_yx.copy()
 
@@ -263,7 +279,10 @@ class DriftTracker:
         y0, x0 = self._origin
         size = self.crop_px
         region = image[max(y0 - _MARGIN_PX, 0):y0 + size + _MARGIN_PX, max(x0 - _MARGIN_PX, 0):x0 + size + _MARGIN_PX]
-        passed = bandpass(region, coarse_sigma_px=self.coarse_sigma_px)
+        # A 5×5 median first: small specks fixed to the camera (dust on crystal) would
+        # otherwise pull the match towards zero shift.
+        passed = bandpass(cv2.medianBlur(np.ascontiguousarray(region), 5), fine_sigma_px=self.fine_sigma_px,
+                          coarse_sigma_px=self.coarse_sigma_px)
         oy, ox = y0 - max(y0 - _MARGIN_PX, 0), x0 - max(x0 - _MARGIN_PX, 0)
         return np.ascontiguousarray(passed[oy:oy + size, ox:ox + size])
 
