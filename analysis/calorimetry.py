@@ -456,11 +456,13 @@ def _lag_corrected(isotherm: Isotherm, lag_s: float) -> np.ndarray:
         raise InputError(f"lag time constant must be positive, got {lag_s!r} s", isotherm.path)
     t, q = isotherm.time_min, isotherm.heat_flow
     step = float(np.median(np.diff(t)))
-    window = max(7, int(round(4 * lag_s / 60.0 / step)) | 1)
+    # cubic Savitzky-Golay over about two lag times: smooth enough for noise, short
+    # enough to follow an exotherm only a few lag times wide
+    window = max(7, int(round(2 * lag_s / 60.0 / step)) | 1)
     if window > t.size // 4:
         raise InputError(f"lag time constant {lag_s:g} s is too long for a record of "
                          f"{t.size} points at {step * 60:g} s", isotherm.path)
-    slope = signal.savgol_filter(q, window, 2, deriv=1, delta=step, mode="interp")
+    slope = signal.savgol_filter(q, window, 3, deriv=1, delta=step, mode="interp")
     return q + (lag_s / 60.0) * slope
 
 

@@ -94,6 +94,9 @@ def test_dialects_units_and_columns(tmp_path):
     ({"noise_mw": 0.01, "seed": 5}, "\t", ".", "min"),
     ({"lag_s": 3.0, "transient_amplitude_mw": 1.0, "baseline_drift_mw_per_min": -0.01, "seed": 7},
      ";", ",", "min"),
+    # fast: t_half = 0.5 min, only 5 lag times, onset 20 s into a 6 s transient
+    ({"n_v_per_mm3": 4e4, "growth_rate_um_per_min": 32.0, "induction_time_s": 20.0,
+      "interval_s": 0.5, "transient_tau_s": 6.0, "seed": 124}, ",", ".", "s"),
 ])
 def test_simulated_isotherms_recover_n_and_half_time(tmp_path, kw, delimiter, decimal, unit):
     # Simulated DSC isotherm with lag, drift, transient and noise; truth from the
