@@ -60,7 +60,7 @@ def test_cumulative_drift_over_a_growing_recording():
     found = drift_path(images, crop_px=256)
     error = np.hypot(*(found - truth).T)
     assert np.sqrt(np.mean(error**2)) < 0.08
-    assert np.max(error) < 0.15
+    assert np.max(error) < 0.2
 
 
 def test_featureless_frames_hold_the_shift():
