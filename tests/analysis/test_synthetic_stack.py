@@ -202,3 +202,13 @@ def test_write_stack_never_overwrites_a_real_recording(tmp_path):
     (tmp_path / "stack.tif").unlink()
     write_stack(sim, tmp_path)
     write_stack(sim, tmp_path)  # a simulated stack may be replaced
+
+
+def test_spherokin_simulate_through_the_main_command_line(tmp_path, capsys):
+    from analysis.cli import main
+
+    assert main(["simulate", "--out", str(tmp_path / "ok"), "--size", "40", "--frames", "3"]) == 0
+    assert (tmp_path / "ok" / "stack.tif").is_file() and (tmp_path / "ok" / "truth.json").is_file()
+    assert main(["simulate", "--out", str(tmp_path / "bad"), "--growth-rate-um-per-min", "-2"]) == 2
+    assert "growth_rate_um_per_min" in capsys.readouterr().err
+    assert not (tmp_path / "bad" / "stack.tif").exists()
