@@ -7,7 +7,8 @@ plate at 45° the transmitted spectrum is sin²(πR/λ) for the total retardatio
 (R = plate) looks first-order red-magenta, and the spherulite adds or subtracts its own
 retardation ΔR·cos(2(φ − θ_plate)) so opposite quadrant pairs turn blue and yellow.
 Banding multiplies the birefringence by a cos² of the radius; a fibrillar texture is an
-angular noise pattern fixed per spherulite.
+angular noise pattern, refined with every octave of radius so that fibrils branch, fixed
+per spherulite.
 
 Camera (fixed to the sensor): uneven illumination, dust and scratches, a global flicker,
 Gaussian read noise and shot noise, 8/16-bit quantization, optional JPEG round trip.
