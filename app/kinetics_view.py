@@ -75,18 +75,20 @@ class KineticsView(QtWidgets.QWidget):
         self.export_action.triggered.connect(self.export_figures)
         self.help_action = QtGui.QAction("Kinetics help and safety", self)
         self.help_action.triggered.connect(lambda: show_help("cautions"))
+        for combo, length in ((self.experiment_picker, 16), (self.geometry, 12), (self.mode, 12)):
+            combo.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            combo.setMinimumContentsLength(length)
         bar = QtWidgets.QHBoxLayout()
         for label, widget in (("Experiment", self.experiment_picker), ("Geometry", self.geometry),
                               ("Nucleation", self.mode)):
             bar.addWidget(QtWidgets.QLabel(label))
-            bar.addWidget(widget)
+            bar.addWidget(widget, 1)
         bar.addWidget(help_button("predicted_k", self))
-        bar.addStretch(1)
-        for action in (self.import_action, self.remap_action, self.auto_baseline_action,
-                       self.remove_action, self.export_action, self.help_action):
-            button = QtWidgets.QToolButton(self)
-            button.setDefaultAction(action)
-            bar.addWidget(button)
+        toolbar = QtWidgets.QToolBar(self)  # folds into a "»" menu when the window is narrow
+        toolbar.setToolButtonStyle(QtCore.Qt.ToolButtonStyle.ToolButtonTextOnly)
+        toolbar.addActions([self.import_action, self.remap_action, self.auto_baseline_action,
+                            self.remove_action, self.export_action, self.help_action])
+        bar.addWidget(toolbar, 2)
         self.prediction = PredictionPanel(self)
         self.calorimetry_panel = CalorimetryPanel(self)
         self.comparison = ComparisonTable(self)
@@ -99,7 +101,7 @@ class KineticsView(QtWidgets.QWidget):
         scroll = QtWidgets.QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setWidget(numbers)
-        scroll.setMinimumWidth(440)
+        scroll.setMinimumWidth(400)
         scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         self.plots = KineticsPlots(self)
         self.plots.baseline_dragging.connect(lambda a, b: self._drag_preview(baseline=(a, b)))

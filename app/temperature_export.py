@@ -156,6 +156,7 @@ class ReportJob(QtCore.QObject):
         super().__init__(parent)
         self._parent = parent
         self.worker = None
+        self._finished_workers: list = []  # kept alive: their pool thread may still be unwinding
         self.folder = ""
         self.bar_widget = QtWidgets.QWidget(parent)
         self.bar = QtWidgets.QProgressBar(self.bar_widget)
@@ -205,6 +206,7 @@ class ReportJob(QtCore.QObject):
     def _done(self, ok: bool, detail: str) -> None:
         if self.worker is None:
             return
+        self._finished_workers.append(self.worker)
         self.worker = None
         self.bar_widget.setVisible(False)
         if not ok and detail != "cancelled" and self._parent.isVisible():

@@ -9,6 +9,7 @@ and G, so prediction and calorimetry must agree.
 from __future__ import annotations
 
 import dataclasses
+import gc
 import math
 
 import numpy as np
@@ -22,6 +23,13 @@ from app.model import ProjectModel
 
 N_A_PER_MM2, THICKNESS_UM, G_UM_PER_MIN = 400.0, 20.0, 10.0
 N_V_PER_MM3 = N_A_PER_MM2 / (THICKNESS_UM * 1e-3)  # 2e4 mm^-3
+
+
+@pytest.fixture(autouse=True)
+def _collect_qt_garbage():
+    """Collect reference cycles (views <-> model signals) while the QApplication still exists."""
+    yield
+    gc.collect()
 
 
 @dataclasses.dataclass(frozen=True)

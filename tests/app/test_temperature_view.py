@@ -4,6 +4,7 @@ constants as undoable edits, the fit on an exact synthetic G(Tc) series, Hoffman
 from __future__ import annotations
 
 import csv
+import gc
 
 import openpyxl
 import pytest
@@ -18,6 +19,13 @@ from test_kinetics_view import hand_made_result, model_with
 # from memory).
 FIXTURE_A = {120.0: 92.5056, 125.0: 24.8726, 130.0: 5.0, 135.0: 0.691541, 140.0: 0.0583348,
              145.0: 0.00250379}
+
+
+@pytest.fixture(autouse=True)
+def _collect_qt_garbage():
+    """Collect reference cycles (views <-> model signals) while the QApplication still exists."""
+    yield
+    gc.collect()
 
 
 @pytest.fixture
