@@ -55,7 +55,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-from scipy import integrate, ndimage, optimize, signal
+from scipy import integrate, ndimage, optimize, signal, stats
 
 from .avrami import AvramiFit, FitFailure, fit_avrami_curve, fit_avrami_window
 from .errors import InputError
@@ -392,12 +392,24 @@ def _local_level(q: np.ndarray, i: int, half: int) -> float:
     return float(np.mean(q[max(0, i - half): i + half + 1]))
 
 
+def _final_level(t: np.ndarray, q: np.ndarray):
+    """Level after the exotherm (last 10 %), with its drift only when the drift is significant.
+
+    An insignificant tail slope extrapolated over the whole record would invent exotherms
+    in pure noise; a real drift left out would hide the exotherm's start.
+    """
+    tail = slice(min(int(0.9 * t.size), t.size - 10), t.size)
+    fit = stats.linregress(t[tail], q[tail])
+    if np.isfinite(fit.stderr) and abs(fit.slope) > 3 * fit.stderr:
+        return fit.intercept + fit.slope * t
+    return float(np.median(q[tail]))
+
+
 def _locate_exotherm(t, q, exotherm, transient_end_min, path):
     """Transient end index, orientation sign, peak index and smoothed oriented deviation."""
     width = max(5, t.size // 100)
     smooth = _smooth(q, width)
-    tail = slice(int(0.9 * t.size), t.size)
-    dev = smooth - float(np.median(smooth[tail]))
+    dev = smooth - _final_level(t, q)
     i_tr = _index_at(t, transient_end_min, _first_local_minimum(_smooth(np.abs(dev), 3 * width)))
     if exotherm == "auto":
         area = float(np.sum(dev[i_tr:]))

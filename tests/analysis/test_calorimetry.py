@@ -133,6 +133,28 @@ def test_uncorrected_lag_only_shifts_half_time(tmp_path):
     assert res.avrami.t_half_min == pytest.approx(iso.t_half_min, rel=0.01)
 
 
+def test_baseline_options_and_overrides():
+    # Exact Avrami heat flow on a sloping baseline (linear baseline: REFERENCES.md 4.2, item 6,
+    # Lorenzo et al. 2007 Polymer Testing 26, 222 # from memory)
+    t, q = analytic_isotherm(n=3.0, t_half=2.0, t0=1.0)
+    sloped = q + 0.02 * t
+    iso = Isotherm("b.csv", t, sloped, "mW", "t", "q", 8.0)
+    linear = analyze_isotherm(iso)
+    assert linear.avrami.n == pytest.approx(3.0, abs=0.02)
+    assert linear.enthalpy_j_per_g == pytest.approx(50.0, rel=5e-3)
+    flat = analyze_isotherm(iso, baseline="flat")  # ignores the slope: biased area
+    assert abs(flat.enthalpy_j_per_g - 50.0) > abs(linear.enthalpy_j_per_g - 50.0)
+    manual = analyze_isotherm(iso, baseline_start_min=0.5, baseline_end_min=8.0,
+                              transient_end_min=0.2)
+    assert (manual.baseline_start_min, manual.transient_end_min) == pytest.approx((0.5, 0.2), abs=0.01)
+    assert manual.baseline_end_min == pytest.approx(8.0, abs=0.01)
+    assert manual.avrami.t_half_min == pytest.approx(2.0, rel=5e-3)
+    with pytest.raises(InputError, match="bracket"):
+        analyze_isotherm(iso, baseline_start_min=4.0, baseline_end_min=8.0)
+    with pytest.raises(InputError, match="baseline must be"):
+        analyze_isotherm(iso, baseline="spline")
+
+
 def test_window_parsing():
     assert parse_window("3,20") == (0.03, 0.20)
     assert parse_window((0.05, 0.5)) == (0.05, 0.5)
