@@ -72,7 +72,8 @@ class ProjectModel(QObject):
     experiments_inserted = Signal(int, int)  # first, last index (inclusive)
     experiments_removed = Signal(int, int)
     experiment_changed = Signal(int)  # recipe, properties or edits of one experiment
-    analysis_updated = Signal(int)  # new Analysis, re-applied edits, or status change
+    analysis_updated = Signal(int)  # new Analysis or re-applied edits (results changed)
+    status_changed = Signal(int)  # analysis status / progress stage of one experiment
     selection_changed = Signal(int, int)  # experiment index (-1 none), spherulite id (-1 none)
     project_fields_changed = Signal()  # material / series constants
     dirty_changed = Signal(bool)
@@ -229,7 +230,7 @@ class ProjectModel(QObject):
     def set_status(self, index: int, status: str, message: str = "") -> None:
         entry = self._entries[index]
         entry.status, entry.message = status, message
-        self.analysis_updated.emit(index)
+        self.status_changed.emit(index)
 
     def set_analysis(self, index: int, analysis: Any, analysed: Any) -> None:
         """Store a finished analysis of ``analysed`` (the experiment as it was at start).
@@ -247,6 +248,7 @@ class ProjectModel(QObject):
         stale = recipe_of(analysed) != recipe_of(current)
         entry.status, entry.message = (STATUS_STALE if stale else STATUS_DONE), ""
         self.analysis_updated.emit(index)
+        self.status_changed.emit(index)
 
     # ---------------------------------------------------------------- whole project
     def replace_project(self, project: Any, *, recovered: bool = False) -> None:
@@ -304,6 +306,7 @@ class ProjectModel(QObject):
             return
         if recipe_of(old) != recipe_of(new) and entry.status == STATUS_DONE:
             entry.status = STATUS_STALE
+            self.status_changed.emit(index)
         if tuple(old.edits) != tuple(new.edits):
             self._reapply_edits(index, new)
         self.analysis_updated.emit(index)

@@ -17,7 +17,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
-    QCheckBox, QComboBox, QDoubleSpinBox, QHBoxLayout, QLabel, QSlider, QToolButton,
+    QCheckBox, QComboBox, QDoubleSpinBox, QHBoxLayout, QLabel, QMenu, QSlider, QToolButton,
     QVBoxLayout, QWidget,
 )
 
@@ -85,6 +85,7 @@ class StackViewer(QWidget):
         self.black_level = QDoubleSpinBox(decimals=1, maximum=1e9, minimum=-1e9)
         self.white_level = QDoubleSpinBox(decimals=1, maximum=1e9, minimum=-1e9)
         for box, tip in ((self.black_level, "black level"), (self.white_level, "white level")):
+            box.setMaximumWidth(90)
             box.setToolTip(f"Manual {tip} (untick Auto contrast)")
             box.valueChanged.connect(self._on_manual_levels)
         self.auto_contrast.toggled.connect(self._on_auto_toggled)
@@ -98,13 +99,18 @@ class StackViewer(QWidget):
         row.addWidget(self.white_level)
         row.addWidget(self.grey_box)
         row.addStretch(1)
-        self.overlay_boxes = {}
+        self.overlay_button = QToolButton(text="Overlays")
+        self.overlay_button.setPopupMode(QToolButton.InstantPopup)
+        menu = QMenu(self.overlay_button)
+        self.overlay_actions = {}
         for name, text in OVERLAY_TOGGLES:
-            box = QCheckBox(text)
-            box.setChecked(True)
-            box.toggled.connect(lambda on, n=name: self.set_overlay_visible(n, on))
-            self.overlay_boxes[name] = box
-            row.addWidget(box)
+            action = menu.addAction(text)
+            action.setCheckable(True)
+            action.setChecked(True)
+            action.toggled.connect(lambda on, n=name: self.set_overlay_visible(n, on))
+            self.overlay_actions[name] = action
+        self.overlay_button.setMenu(menu)
+        row.addWidget(self.overlay_button)
         return row
 
     def _build_time_row(self) -> QHBoxLayout:
@@ -120,7 +126,7 @@ class StackViewer(QWidget):
         self.slider = QSlider(Qt.Horizontal)
         self.slider.valueChanged.connect(self.set_frame)
         self.readout = QLabel("no stack")
-        self.readout.setMinimumWidth(330)
+        self.readout.setMinimumWidth(250)
         row.addWidget(self.play_button)
         row.addWidget(self.speed)
         row.addWidget(self.slider, 1)
@@ -255,7 +261,9 @@ class StackViewer(QWidget):
     def _update_readout(self, frame: int, time_s: float | None) -> None:
         count = self.frame_count()
         clock = "t unknown" if time_s is None else f"t = {format_clock(time_s)} ({time_s:.1f} s)"
-        self.readout.setText(f"frame {frame + 1} / {count}   {clock} from reaching Tc")
+        self.readout.setText(f"frame {frame + 1} / {count}   {clock}")
+        self.readout.setToolTip("Time is counted from the moment the sample reached Tc "
+                                "(the experiment's isothermal start)")
         stamp = "" if time_s is None else f"t = {format_clock(time_s)}"
         self.annotations.set_state(um_per_px=self._um_per_px, time_text=stamp)
 

@@ -1,0 +1,112 @@
+"""Every menu, toolbar and shortcut action of the main window, declared in one table.
+
+The window builds QActions, menus and the toolbars from :data:`ACTIONS`; a handler is
+the name of a window method (``handler(checked)`` for checkable actions). Tools of the
+correction toolbar form one exclusive group.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from PySide6.QtGui import QAction, QActionGroup, QKeySequence
+
+
+@dataclass(frozen=True)
+class ActionSpec:
+    id: str
+    text: str
+    handler: str
+    menu: str
+    shortcut: str | QKeySequence.StandardKey | None = None
+    toolbar: str | None = None  # "file", "analysis", "tools"
+    checkable: bool = False
+    group: str | None = None
+    tip: str = ""
+
+
+K = QKeySequence.StandardKey
+
+ACTIONS: tuple[ActionSpec, ...] = (
+    ActionSpec("new", "&New project", "new_project", "File", K.New, "file"),
+    ActionSpec("open", "&Open project…", "open_project_dialog", "File", K.Open, "file"),
+    ActionSpec("save", "&Save", "save_project", "File", K.Save, "file"),
+    ActionSpec("save_as", "Save &as…", "save_project_as", "File", "Ctrl+Shift+S"),
+    ActionSpec("add_stacks", "Add &stacks…", "add_stacks_dialog", "File", "Ctrl+I", "file",
+               tip="Add TIFF stacks or videos, one experiment each (or drop them on the window)"),
+    ActionSpec("add_folder", "Add a &folder of frames…", "add_folder_dialog", "File"),
+    ActionSpec("quit", "&Quit", "close", "File", K.Quit),
+    ActionSpec("undo", "&Undo", "undo", "Edit", K.Undo),
+    ActionSpec("redo", "&Redo", "redo", "Edit", "Ctrl+Shift+Z"),
+    ActionSpec("properties", "Experiment &properties…", "edit_properties", "Edit", "Ctrl+P",
+               tip="Tc, µm per pixel, frame times, isothermal start, thickness, notes"),
+    ActionSpec("calibrate", "&Calibrate from a stage micrometer…", "calibrate", "Edit", "Ctrl+K"),
+    ActionSpec("remove_experiment", "Remove e&xperiment", "remove_experiment", "Edit"),
+    ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis"),
+    ActionSpec("run_all", "Analyse &all experiments", "run_all", "Analysis", "Shift+F5", "analysis"),
+    ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis"),
+    ActionSpec("tool_select", "&Select", "set_tool_select", "Tools", "S", "tools", True, "tool",
+               "Click a spherulite to select it"),
+    ActionSpec("tool_add", "&Add nucleus", "set_tool_add", "Tools", "N", "tools", True, "tool",
+               "Click where a nucleus was missed"),
+    ActionSpec("tool_delete", "&Delete detection", "set_tool_delete", "Tools", "D", "tools", True,
+               "tool", "Click a false detection (dust, bubble) to remove it"),
+    ActionSpec("tool_merge", "&Merge two", "set_tool_merge", "Tools", "M", "tools", True, "tool",
+               "Click the detection to keep, then the one to merge into it"),
+    ActionSpec("tool_move", "Mo&ve centre", "set_tool_move", "Tools", "C", "tools", True, "tool",
+               "Click a detection, then its true centre"),
+    ActionSpec("tool_exclude", "E&xclude / include", "set_tool_exclude", "Tools", "E", "tools",
+               True, "tool", "Click a spherulite to leave it out of (or put it back into) the statistics"),
+    ActionSpec("ignore_frames", "&Ignore frames…", "ignore_frames", "Tools", "I", "tools",
+               tip="Ignore a frame range for the selected spherulite or the whole experiment"),
+    ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),
+    ActionSpec("next_frame", "&Next frame", "next_frame", "View", "."),
+    ActionSpec("previous_frame", "P&revious frame", "previous_frame", "View", ","),
+    ActionSpec("about", "&About spherokin", "show_about", "Help"),
+)
+
+MENU_ORDER = ("File", "Edit", "Analysis", "Tools", "View", "Help")
+
+
+def build_actions(window: Any) -> dict[str, QAction]:
+    """QActions for :data:`ACTIONS`, connected to the window's handler methods."""
+    actions, groups = {}, {}
+    for spec in ACTIONS:
+        action = QAction(spec.text, window)
+        if spec.shortcut is not None:
+            action.setShortcut(QKeySequence(spec.shortcut))
+        tip = spec.tip or spec.text.replace("&", "").rstrip("…")
+        if spec.shortcut is not None:
+            tip += f"  ({QKeySequence(spec.shortcut).toString()})"
+        action.setToolTip(tip)
+        action.setStatusTip(tip)
+        action.setCheckable(spec.checkable)
+        if spec.group:
+            groups.setdefault(spec.group, QActionGroup(window)).addAction(action)
+        handler = getattr(window, spec.handler)
+        if spec.checkable:
+            action.toggled.connect(lambda on, h=handler: on and h())
+        else:
+            action.triggered.connect(lambda _checked=False, h=handler: h())
+        actions[spec.id] = action
+    return actions
+
+
+def populate_menus(window: Any, actions: dict[str, QAction]) -> dict[str, Any]:
+    menus = {name: window.menuBar().addMenu(f"&{name}") for name in MENU_ORDER}
+    for spec in ACTIONS:
+        menus[spec.menu].addAction(actions[spec.id])
+    return menus
+
+
+def populate_toolbars(window: Any, actions: dict[str, QAction]) -> dict[str, Any]:
+    bars = {}
+    for spec in ACTIONS:
+        if spec.toolbar:
+            if spec.toolbar not in bars:
+                bar = window.addToolBar(spec.toolbar.capitalize())
+                bar.setObjectName(f"toolbar_{spec.toolbar}")
+                bars[spec.toolbar] = bar
+            bars[spec.toolbar].addAction(actions[spec.id])
+    return bars
