@@ -295,6 +295,7 @@ def write_text_atomic(path, text: str) -> None:
     path = Path(path)
     handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        os.chmod(temporary, _file_mode(path))
         with os.fdopen(handle, "w", encoding="utf-8") as out:
             out.write(text)
             out.flush()
@@ -303,3 +304,17 @@ def write_text_atomic(path, text: str) -> None:
     except BaseException:
         Path(temporary).unlink(missing_ok=True)
         raise
+
+
+def _file_mode(path: Path) -> int:
+    """Keep an existing file's permissions; new files get the usual umask-based mode.
+
+    mkstemp creates files readable by the owner only, which would silently hide a
+    shared project from colleagues after the first save.
+    """
+    try:
+        return path.stat().st_mode & 0o777
+    except FileNotFoundError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask

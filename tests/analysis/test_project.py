@@ -105,3 +105,17 @@ def test_missing_stack_is_reported_when_opened(tmp_path):
 def test_calorimetry_source_defaults():
     source = CalorimetrySource(file="/x.csv")
     assert source.window == (0.03, 0.20) and source.exotherm == "auto"
+
+
+def test_saved_file_keeps_normal_permissions(tmp_path):
+    import os
+    import stat
+
+    target = tmp_path / "p.spherokin.json"
+    save_project(Project(), target)
+    umask = os.umask(0)
+    os.umask(umask)
+    assert stat.S_IMODE(target.stat().st_mode) == 0o666 & ~umask
+    target.chmod(0o640)
+    save_project(Project(), target)
+    assert stat.S_IMODE(target.stat().st_mode) == 0o640
