@@ -184,3 +184,41 @@ def snap_to_minimum(work: np.ndarray, x_px: float, y_px: float, radius_px: float
     masked = np.where(inside, window, np.inf)
     k = int(np.argmin(masked))
     return int(yy.ravel()[k]), int(xx.ravel()[k])
+
+
+def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarray, *,
+                  frames: np.ndarray, interval_s: float, slope_s_per_px: float,
+                  existing_xy: np.ndarray, min_area_px: int = 30) -> list[tuple[int, int]]:
+    """Seeds (row, col) of nuclei that have no regional minimum, found from the fits.
+
+    A nucleus born just as a neighbour's front reaches it grows away from that front
+    only: the arrival map rises from it, but it is not a regional minimum (the
+    neighbour's side is lower), so no marker finds it. Its pixels, however, crystallise
+    earlier than any fitted cone predicts. Connected regions where the measured arrival
+    precedes the fitted model (``model_s``) by more than 1.5 frame intervals and that
+    hold ``min_area_px`` pixels are fitted with their own cone; the region becomes a
+    nucleus when that fit converges with a slope within 25 % of the field's mean slope
+    and an apex within 3 px of the region and more than 3 px from every known nucleus.
+    The seed is the region's pixel nearest the apex.
+    """
+    from .growth import fit_cone  # local: growth does not need nuclei
+
+    deficit = np.where(measured & np.isfinite(model_s), model_s - arrival_s, 0.0)
+    mask = (deficit > 1.5 * interval_s).astype(np.uint8)
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    seeds = []
+    for k in range(1, count):
+        if stats[k, cv2.CC_STAT_AREA] < min_area_px:
+            continue
+        yy, xx = np.nonzero(labels == k)
+        start = int(np.argmin(arrival_s[yy, xx]))
+        fit = fit_cone(xx, yy, arrival_s[yy, xx], frames[yy, xx], start_xy=(xx[start], yy[start]),
+                       f_scale_s=0.5 * interval_s, field_shape=arrival_s.shape)
+        if not fit.ok or abs(fit.slope_s_per_px / slope_s_per_px - 1) > 0.25:
+            continue
+        gap = np.hypot(xx - fit.x_px, yy - fit.y_px)
+        near = int(np.argmin(gap))
+        known = np.hypot(*(np.asarray(existing_xy, float).reshape(-1, 2) - [fit.x_px, fit.y_px]).T)
+        if gap[near] <= 3.0 and (known.size == 0 or known.min() > 3.0):
+            seeds.append((int(yy[near]), int(xx[near])))
+    return seeds

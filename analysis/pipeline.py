@@ -36,6 +36,8 @@ from .errors import InputError
 from .fronts import blocked_distance, front_radii
 from .nucleation import MeltExposure, area_fraction, field_area_mm2, nucleation_statistics
 from .progress import Progress, run_to_completion, scaled
+from scipy import ndimage as ndi
+from skimage.segmentation import watershed
 from .results import (AvramiParameters, ExperimentResult, PooledGrowthRate, RadiusSeries,
                       Spherulite)
 
@@ -168,6 +170,7 @@ class _Detection:
     ignored: list = field(default_factory=list)
     deleted: bool = False
     merged: bool = False
+    absorbed: list = field(default_factory=list)  # ids merged into this one
 
 
 def _auto_detections(ctx: _Context) -> list[_Detection]:
@@ -224,6 +227,7 @@ def _apply_one(ctx, dets, global_ignored, edit, tol) -> bool:
         if other is None or other is target:
             return False
         target.seeds.extend(other.seeds)
+        target.absorbed.extend([other.id, *other.absorbed])
         other.merged = True
     elif kind == "move_centre":
         h, w = ctx.shape
@@ -258,27 +262,50 @@ def _add_nucleus(ctx, dets, x, y) -> bool:
 
 
 def _territories(ctx, dets) -> np.ndarray:
-    """Watershed from the current seeds (cached); deleted territories become 0."""
-    seeds = np.zeros(ctx.shape, np.int32)
-    live_or_deleted = [d for d in dets if not d.merged]
-    key = hashlib.sha1()
-    for d in live_or_deleted:
-        for s in d.seeds:
-            seeds.flat[s] = d.id
-            key.update(np.asarray(s, np.int64).tobytes())
-        key.update(b"|%d" % d.id)
-    digest = ("territories", key.hexdigest())
-    labels = ctx.cache.get(digest)
-    if labels is None:
-        auto_only = all(d.source == "auto" for d in live_or_deleted) and len(live_or_deleted) == \
-            ctx.markers.xy_px.shape[0] and all(len(d.seeds) == 1 for d in live_or_deleted)
-        labels = ctx.base_territories if auto_only else nuclei.territories(ctx.work, ctx.arrival_s, seeds)
-        ctx.cache.clear() if len(ctx.cache) > 2000 else None
-        ctx.cache[digest] = labels
+    """Territories of the current detections from the automatic flooding, edited locally.
+
+    Merged detections take over their partners' labels; a nucleus added by hand splits
+    the territory it falls in by a watershed restricted to that territory (the cone
+    partition then settles the borders with the neighbours); deleted territories become
+    0 (unassigned). No global flooding is needed, so a click stays fast.
+    """
+    labels = ctx.base_territories.copy()
+    by_id = {d.id: d for d in dets}
+    for d in dets:
+        if d.source == "manual":
+            _split_territory(ctx, labels, d, by_id)
+    for d in dets:
+        if d.absorbed and not d.merged:
+            labels[np.isin(labels, d.absorbed)] = d.id
     deleted = [d.id for d in dets if d.deleted]
     if deleted:
-        labels = np.where(np.isin(labels, deleted), 0, labels)
+        labels[np.isin(labels, deleted)] = 0
     return labels
+
+
+def _split_territory(ctx, labels, det, by_id) -> None:
+    """Carve ``det``'s territory out of the one its seed lies in (in place)."""
+    seed = int(det.seeds[0][0])
+    host = int(labels.flat[seed])
+    if host == 0:
+        region = nuclei.crystallised_mask(ctx.arrival_s) & (labels == 0)
+        components, _ = ndi.label(region)
+        region = components == components.flat[seed]
+    else:
+        region = labels == host
+    rows, cols = np.nonzero(region)
+    y0, y1, x0, x1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
+    markers = np.zeros((y1 - y0, x1 - x0), np.int32)
+    owner = by_id.get(host)
+    for s in (owner.seeds if owner is not None and host else []):
+        sy, sx = np.divmod(s, ctx.shape[1])
+        inside = (sy >= y0) & (sy < y1) & (sx >= x0) & (sx < x1)
+        markers[sy[inside] - y0, sx[inside] - x0] = host
+    sy, sx = divmod(seed, ctx.shape[1])
+    markers[sy - y0, sx - x0] = det.id
+    split = watershed(ctx.work[y0:y1, x0:x1], markers, mask=region[y0:y1, x0:x1])
+    window = labels[y0:y1, x0:x1]
+    window[region[y0:y1, x0:x1]] = split[region[y0:y1, x0:x1]]
 
 
 def _boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
@@ -292,6 +319,22 @@ def _boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
     hi = cv2.dilate(lab, kernel)
     lo = cv2.erode(np.where(labels > 0, lab, np.float32(3e7)), kernel)
     return (labels > 0) & ((hi != lab) | (lo != lab))
+
+
+def _digest(*parts) -> str:
+    key = hashlib.sha1()
+    for part in parts:
+        key.update(part.tobytes() if isinstance(part, np.ndarray) else repr(part).encode())
+    return key.hexdigest()
+
+
+def _cached(ctx, key, compute):
+    """Memoise ``compute()`` in the analysis cache (bounded)."""
+    if key not in ctx.cache:
+        if len(ctx.cache) > 5000:
+            ctx.cache.clear()
+        ctx.cache[key] = compute()
+    return ctx.cache[key]
 
 
 def _pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
@@ -340,6 +383,16 @@ def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
 
 
 def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
+    """Radii of one spherulite (cached on its pixels, centre, spans and neighbourhood)."""
+    rows, cols = np.divmod(pix, ctx.shape[1]) if pix.size else (np.zeros(1, int), np.zeros(1, int))
+    r = 3 + int(max(np.ptp(rows), np.ptp(cols)))
+    y0, x0 = max(int(cy) - r, 0), max(int(cx) - r, 0)
+    window = labels[y0:max(int(cy) + r + 1, 0), x0:max(int(cx) + r + 1, 0)]
+    key = ("radii", det_id, _digest(pix, window, (cx, cy, tuple(spans))))
+    return _cached(ctx, key, lambda: _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings))
+
+
+def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
     frames = ctx.frame_index.flat[pix]
     keep = frames >= 0
     y, x = np.divmod(pix[keep], ctx.shape[1])
@@ -404,19 +457,11 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings):
 
 
 # ---------------------------------------------------------------- whole result
-def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
-    """Territories redrawn as the Johnson-Mehl cells of the given cones.
-
-    A watershed of the arrival map floods in arrival order, and where two cones meet
-    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
-    off the true one. Each pixel of a territory with a cone is given instead to the
-    cone (of its own or a nearby territory) that reaches it first, which is the
-    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
-    without a usable cone keep their labels.
-    """
+def _model_map(ctx, groups, fits: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Earliest arrival over the given cones near their territories, and which cone."""
     h, w = ctx.shape
     best = np.full(ctx.shape, np.inf)
-    owner = labels.copy()
+    owner = np.zeros(ctx.shape, np.int32)
     for det_id, fit in fits.items():
         pix = groups.get(det_id)
         if pix is None or pix.size == 0 or not fit.ok:
@@ -431,6 +476,20 @@ def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
         better = cone < view
         view[better] = cone[better]
         own[better] = det_id
+    return best, owner
+
+
+def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
+    """Territories redrawn as the Johnson-Mehl cells of the given cones.
+
+    A watershed of the arrival map floods in arrival order, and where two cones meet
+    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
+    off the true one. Each pixel of a territory with a cone is given instead to the
+    cone (of its own or a nearby territory) that reaches it first, which is the
+    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
+    without a usable cone keep their labels.
+    """
+    best, owner = _model_map(ctx, groups, fits)
     movable = np.isin(labels, [k for k, f in fits.items() if f.ok]) & np.isfinite(best)
     return np.where(movable, owner, labels).astype(np.int32)
 
@@ -452,21 +511,34 @@ def _provisional_cones(ctx, live) -> dict:
 def _partition(ctx, dets, global_spans, settings):
     """Flooded territories, redrawn from provisional cones, fitted, redrawn from the fits."""
     live = [d for d in dets if not (d.deleted or d.merged)]
-    labels = _territories(ctx, dets)
-    labels = _cone_partition(ctx, labels, _pixel_groups(labels), _provisional_cones(ctx, live))
+    flooded = _territories(ctx, dets)
+    cones = _provisional_cones(ctx, live)
+    labels = _cached(ctx, ("provisional", _digest(flooded, sorted(cones.items()))),
+                     lambda: _cone_partition(ctx, flooded, _groups(ctx, flooded), cones))
     band = _boundary_band(labels, settings.boundary_band_px)
-    groups = _pixel_groups(labels)
+    groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
     fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings)
             for d in live}
-    single = {d.id for d in live if len(d.seeds) == 1}
-    return _cone_partition(ctx, labels, groups, {k: f for k, f in fits.items() if k in single})
+    single = {k: f for k, f in fits.items() if len(by_seeds[k]) == 1} if (
+        by_seeds := {d.id: d.seeds for d in live}) else {}
+    return _cached(ctx, ("final", _digest(labels, sorted(single.items()))),
+                   lambda: _cone_partition(ctx, labels, groups, single))
+
+
+def _groups(ctx, labels):
+    return _cached(ctx, ("groups", _digest(labels)), lambda: _pixel_groups(labels))
 
 
 def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
+    return _evaluate(ctx, dets, global_spans, unapplied, settings)[0]
+
+
+def _evaluate(ctx, dets, global_spans, unapplied, settings):
+    """The result, and the final fits by detection id and their pixel groups."""
     labels = _partition(ctx, dets, global_spans, settings)
     band = _boundary_band(labels, settings.boundary_band_px)
-    groups = _pixel_groups(labels)
+    groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
     spherulites, radii, fits = [], [], []
     for det in dets:
@@ -482,7 +554,7 @@ def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
     nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
     film = _film_avrami(time_s, fraction, nucleation.induction_time_s)
     predicted = _predicted_avrami(ctx, pooled, nucleation, burst_density)
-    return ExperimentResult(
+    result = ExperimentResult(
         stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
         temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
         spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
@@ -491,6 +563,7 @@ def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
         warnings=tuple(_warnings(ctx, spherulites)),
         extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
                "geometry": ctx.geometry})
+    return result, dict(zip([s.id for s in spherulites], fits)), groups
 
 
 def _pooled(spherulites, fits, um_per_px) -> tuple[PooledGrowthRate, str]:
@@ -596,10 +669,32 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
-    yield Progress("fitting growth cones", 0.5)
+    yield Progress("fitting growth cones", 0.4)
+    ctx = _with_missed_nuclei(ctx, settings)
+    yield Progress("fitting growth cones", 0.7)
     for sph in _result(ctx, _auto_detections(ctx), [], [], settings).spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
     return ctx
+
+
+def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
+    """Add markers for nuclei without a regional minimum (see nuclei.missed_nuclei)."""
+    result, fits, groups = _evaluate(ctx, _auto_detections(ctx), [], [], settings)
+    model, _ = _model_map(ctx, groups, fits)
+    measured = np.isfinite(ctx.fit_arrival) & ~ctx.filled & ~ctx.at_start & (ctx.frame_index >= 0)
+    seeds = nuclei.missed_nuclei(
+        ctx.fit_arrival, measured, model, frames=ctx.frame_index, interval_s=ctx.interval_s,
+        slope_s_per_px=ctx.slope_s_per_px, existing_xy=[(s.x_px, s.y_px) for s in result.spherulites],
+        min_area_px=max(settings.min_territory_px, 30))
+    if not seeds:
+        return ctx
+    labels = ctx.markers.labels.copy()
+    for k, (row, col) in enumerate(seeds):
+        labels[row, col] = ctx.markers.xy_px.shape[0] + k + 1
+    markers = nuclei.markers_from_labels(labels, ctx.work)
+    base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
+    return dataclasses.replace(ctx, markers=markers, base_territories=base,
+                               auto_lookup_xy=markers.xy_px.copy(), cache={})
 
 
 def _check_inputs(arrival, thickness_um, geometry, path) -> None:
