@@ -138,7 +138,7 @@ def _refine(reference, moving, window, shift_yx, steps):
     flickering content brightens without moving), with outlier rejection (IRLS, 4·MAD)."""
     grad_y = cv2.Sobel(reference, cv2.CV_32F, 0, 1, ksize=1, scale=0.5)
     grad_x = cv2.Sobel(reference, cv2.CV_32F, 1, 0, ksize=1, scale=0.5)
-    basis = (grad_y, grad_x, reference)
+    basis = np.stack([grad_y.ravel(), grad_x.ravel(), reference.ravel()])
     slope = np.hypot(grad_y, grad_x)
     textured = slope > 0.5 * np.sqrt(np.mean(slope * slope))
     size = reference.shape[0]
@@ -147,10 +147,11 @@ def _refine(reference, moving, window, shift_yx, steps):
         residual = _crop(moving, (0, 0), size, shift) / gain - reference
         # Spread judged on textured pixels only: flat areas have tiny residuals whatever the
         # shift. No rejection on the first step, while misalignment still dominates.
-        spread = 1.4826 * np.median(np.abs(residual[textured])) + 1e-12
+        spread = 1.4826 * np.median(np.abs(residual[textured][::3])) + 1e-12
         weight = window if step_number == 0 else window * (np.abs(residual) < 4.0 * spread)
-        normal = np.array([[np.sum(weight * u * v) for v in basis] for u in basis])
-        rhs = np.array([np.sum(weight * u * residual) for u in basis])
+        weighted = basis * weight.ravel()
+        normal = (weighted @ basis.T).astype(np.float64)
+        rhs = (weighted @ residual.ravel()).astype(np.float64)
         if np.linalg.cond(normal) > 1e7:
             break
         step = np.linalg.solve(normal, rhs)
@@ -221,8 +222,13 @@ class DriftTracker:
         self.shift_yx = np.zeros(2)
         self.measured = False  # whether the last update found a match (else the shift was held)
 
-    def update(self, image: np.ndarray, settled: np.ndarray | None = None) -> np.ndarray:
-        """Register the next frame's image; returns its cumulative shift (dy, dx), px."""
+    def update(self, image: np.ndarray, settled=None) -> np.ndarray:
+        """Register the next frame's image; returns its cumulative shift (dy, dx), px.
+
+        ``settled`` is a boolean (H, W) array, or a callable ``settled(rows, cols)``
+        returning the mask for a window given as two slices (so that a caller can
+        compute only the part that is used), or None (every pixel).
+        """
         image = np.asarray(image, np.float32)
         if self._key is None:
             self._start(image, settled)
@@ -261,7 +267,8 @@ class DriftTracker:
 
     def _renew(self, image, settled):
         """Make this frame the key frame, choosing the window with the most texture."""
-        self._origin = self._busiest_origin(image if settled is None else image * settled)
+        self._origin = self._busiest_origin(image if settled is None else image * _window_of(settled, (
+            slice(0, image.shape[0]), slice(0, image.shape[1]))))
         self._key = self._patch(image)
         if settled is None:
             self._key_weight = np.ones_like(self._key)
@@ -271,9 +278,9 @@ class DriftTracker:
         self._key_shift = self.shift_yx.copy()
         self._key_age = 0
 
-    def _crop_of(self, full):
+    def _crop_of(self, settled):
         y0, x0 = self._origin
-        return full[y0:y0 + self.crop_px, x0:x0 + self.crop_px]
+        return _window_of(settled, (slice(y0, y0 + self.crop_px), slice(x0, x0 + self.crop_px)))
 
     def _patch(self, image):
         y0, x0 = self._origin
@@ -299,6 +306,10 @@ class DriftTracker:
                 if energy > best_energy * 1.05:
                     best, best_energy = (int(y0), int(x0)), energy
         return best
+
+
+def _window_of(settled, window):
+    return settled(*window) if callable(settled) else settled[window]
 
 
 def extrapolate_unseen_drift(shifts_yx: np.ndarray, measured: np.ndarray, *, fit_frames: int = 40

@@ -317,15 +317,16 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     state.arrival[at_start.ravel()] = times[0]
     drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None)
     if drift is not None:
-        drift.update(np.zeros(first.shape[:2], np.float32), np.zeros(first.shape[:2], np.float32))
-    usable_sample = ~(model.blind | at_start)[::4, ::4]
+        drift.update(np.zeros(first.shape[:2], np.float32), np.zeros(first.shape[:2], bool))
+    step = segment.sample_step(first.shape)
+    usable_sample = ~(model.blind | at_start)[::step, ::step]
     reference_sum = first.astype(np.float64)
     reference_count = np.ones(first.shape[:2], np.float64)
     camera_previous = np.zeros(first.shape[:2], np.float32)
     yield Progress(_STAGE, 1.0 / n, f"frame 1 of {n}")
     for k in range(1, n):
         image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode)
-        sample = (camera_previous[::4, ::4] < 0.5 * threshold) & usable_sample
+        sample = (camera_previous[::step, ::step] < 0.5 * threshold) & usable_sample
         gain = segment.frame_gain(image, model, sample)
         camera = segment.evidence(image, model, gain)
         if k < settings.reference_frames:
@@ -387,14 +388,24 @@ def _update_reference(model, total, count, image, gain, still_melt):
 
 
 def _settled_in_camera(state, at_start, k, shift):
-    """Pixels the front passed a few frames ago, where they sit on the sensor. Frame-0
+    """Pixels the front passed a few frames ago, where they sit on the sensor, as a
+    callable over a window (only the registration window is ever computed). Frame-0
     crystals are left out: the melt reference contains them, so they show no evidence
-    to register on."""
-    settled = (state.detected <= k - _SETTLE_FRAMES).reshape(state.shape) & ~at_start
-    settled = settled.astype(np.float32)
-    if not np.any(shift):
-        return settled
-    return warp_onto_reference(settled, -np.asarray(shift))
+    to register on. The whole-pixel shift is plenty for a weight mask."""
+    detected = state.detected.reshape(state.shape)
+    dy, dx = (int(round(v)) for v in shift)
+    height, width = state.shape
+
+    def window(rows: slice, cols: slice) -> np.ndarray:
+        out = np.zeros((rows.stop - rows.start, cols.stop - cols.start), bool)
+        r0, r1 = max(rows.start - dy, 0), min(rows.stop - dy, height)
+        c0, c1 = max(cols.start - dx, 0), min(cols.stop - dx, width)
+        if r1 > r0 and c1 > c0:
+            part = (detected[r0:r1, c0:c1] <= k - _SETTLE_FRAMES) & ~at_start[r0:r1, c0:c1]
+            out[r0 + dy - rows.start:r1 + dy - rows.start, c0 + dx - cols.start:c1 + dx - cols.start] = part
+        return out
+
+    return window
 
 
 def _regrid_unseen_drift(state, at_start, start_s):

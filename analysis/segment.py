@@ -37,7 +37,7 @@ from skimage import measure
 
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
-    "blind_pixels", "frame_gain", "evidence", "evidence_threshold", "initial_crystalline",
+    "blind_pixels", "sample_step", "frame_gain", "evidence", "evidence_threshold", "initial_crystalline",
     "estimate_slowness", "complete_wedges",
 ]
 
@@ -67,6 +67,10 @@ class MeltModel:
     noise: np.ndarray
     blind: np.ndarray
     smoothing_px: float = 1.0
+
+    @property
+    def any_blind(self) -> bool:
+        return bool(self.blind.any())
 
     @property
     def channels(self) -> int:
@@ -120,19 +124,25 @@ def blind_pixels(level: np.ndarray, noise: np.ndarray, exclude: np.ndarray | Non
     return cv2.dilate(blind.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
 
 
+def sample_step(shape) -> int:
+    """Grid step that leaves about 20 000 pixels: plenty for a global level."""
+    return max(1, int(np.sqrt(shape[0] * shape[1] / 20000.0)))
+
+
 def frame_gain(image: np.ndarray, model: MeltModel, melt_sample: np.ndarray) -> np.ndarray:
     """Per-channel factor that brings this frame's melt back to the reference (flicker).
 
-    ``melt_sample`` is a boolean mask on the ``[::4, ::4]`` grid of pixels believed to be
-    melt. Trimmed means are compared; with too few samples or a melt too dark to measure,
-    the gain is 1.
+    ``melt_sample`` is a boolean mask, on the grid ``[::step, ::step]`` with
+    ``step = sample_step(shape)``, of pixels believed to be melt. Trimmed means are
+    compared; with too few samples or a melt too dark to measure, the gain is 1.
     """
     channels = model.channels
     gains = np.ones(channels, np.float32)
     if np.count_nonzero(melt_sample) < 200:
         return gains
-    now = image[::4, ::4].reshape(-1, channels)[melt_sample.ravel()]
-    ref = model.level[::4, ::4].reshape(-1, channels)[melt_sample.ravel()]
+    step = sample_step(image.shape)
+    now = image[::step, ::step].reshape(-1, channels)[melt_sample.ravel()]
+    ref = model.level[::step, ::step].reshape(-1, channels)[melt_sample.ravel()]
     for c in range(channels):
         ref_mean = _trimmed_mean(ref[:, c])
         now_mean = _trimmed_mean(now[:, c])
@@ -149,18 +159,20 @@ def _trimmed_mean(values: np.ndarray) -> float:
 
 def evidence(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np.ndarray:
     """Crystalline evidence of one frame in camera coordinates, float32 (H, W), noise units."""
+    kernel = 2 * int(round(2.0 * model.smoothing_px)) + 1  # ±2σ is plenty, and faster than ±4σ
     if model.channels == 1:
         scale = float(gain[0] / model.noise[0])
         diff = cv2.addWeighted(image, scale, model.level, -1.0 / float(model.noise[0]), 0.0)
-        diff = cv2.GaussianBlur(diff, (0, 0), model.smoothing_px)
+        diff = cv2.GaussianBlur(diff, (kernel, kernel), model.smoothing_px)
         result = np.abs(diff, out=diff)
     else:
         scale = tuple(float(g / s) for g, s in zip(gain, model.noise)) + (0.0,)
         inverse = tuple(float(1.0 / s) for s in model.noise) + (0.0,)
         diff = cv2.subtract(cv2.multiply(image, scale), cv2.multiply(model.level, inverse))
-        diff = cv2.GaussianBlur(diff, (0, 0), model.smoothing_px)
+        diff = cv2.GaussianBlur(diff, (kernel, kernel), model.smoothing_px)
         result = cv2.transform(np.abs(diff), np.ones((1, model.channels), np.float32))
-    result[model.blind] = 0.0
+    if model.any_blind:
+        result[model.blind] = 0.0
     return result
 
 
