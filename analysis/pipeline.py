@@ -407,11 +407,17 @@ def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
                         samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
 
 
+def _edge(ctx, det, fit) -> bool:
+    """Nucleated outside the field: fitted centre outside, or a border minimum whose fit
+    does not put the centre clearly (0.5 px) inside (the nucleus then sits just inside)."""
+    h, w = ctx.shape
+    inset = min(fit.x_px + 0.5, fit.y_px + 0.5, w - 0.5 - fit.x_px, h - 0.5 - fit.y_px)
+    on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
+    return det.fixed_xy is None and (inset < 0 or (on_border and inset < 0.5))
+
+
 def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
     """Status and the linearity test's description."""
-    if fit.ok:
-        h, w = ctx.shape
-        outside = not (-0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5)
     lin = growth.linearity_test(series.time_s[series.used], series.radius_um[series.used],
                                 alpha=settings.nonlinear_alpha,
                                 min_slope_change=settings.nonlinear_min_change)
@@ -422,8 +428,7 @@ def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
         return ("edge" if on_border else "few-points"), fit.reason
     if det.excluded is False:
         return "ok", lin.description
-    on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
-    if (outside or on_border) and det.fixed_xy is None:
+    if _edge(ctx, det, fit):
         return "edge", lin.description
     if np.count_nonzero(series.used) < settings.min_points:
         return "few-points", lin.description

@@ -72,3 +72,51 @@ def test_unwritable_output_folder_is_an_input_error(result, tmp_path):
     blocker.write_text("x")
     with pytest.raises(InputError, match="output folder"):
         export.write_analysis_outputs(result, blocker / "out")
+
+
+# ---------------------------------------------------------------- end to end through the CLI
+def _simulated_tiff(tmp_path, **overrides):
+    from analysis import synthetic
+
+    params = dataclasses.replace(
+        synthetic.StackParams(), n_frames=40, height_px=160, width_px=160, interval_s=10.0,
+        growth_rate_um_per_min=12.0, n_athermal_per_mm2=500.0, seed=3, **overrides)
+    sim = synthetic.simulate_stack(params)
+    return synthetic.write_stack(sim, tmp_path / "sim") / "stack.tif", sim
+
+
+def test_analyze_command_writes_the_four_files_with_accurate_growth(tmp_path):
+    # End-to-end guard with loose accuracy targets (recall >= 0.9, pooled G within 3 %,
+    # nucleation time within 1 frame) — common practice; the full matrix is in
+    # tests/benchmarks/accuracy.py. Constant G of a Johnson-Mehl film (Johnson & Mehl
+    # 1939, Trans. AIME 135, 416).
+    from analysis import synthetic
+    from analysis.cli import main
+
+    path, sim = _simulated_tiff(tmp_path)
+    out = tmp_path / "out"
+    assert main(["analyze", str(path), "--out", str(out), "--temperature-c", "127.5",
+                 "--thickness-um", "30"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["overlay.png", "radii.csv", "spherulites.csv",
+                                                     "summary.json"]
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["growth_rate_um_per_min"]["value"] == pytest.approx(12.0, rel=0.03)
+    assert summary["temperature_c"] == 127.5 and summary["nucleation"]["mode"] == "athermal"
+    truth = [n for n in synthetic.visible_nuclei(sim) if n["inside"]]
+    with open(out / "spherulites.csv", newline="") as fh:
+        rows = [r for r in csv.DictReader(fh) if r["status"] != "edge"]
+    found = sum(1 for n in truth if any(np.hypot(float(r["x_px"]) - n["x_px"], float(r["y_px"]) - n["y_px"]) < 3
+                                        for r in rows))
+    assert found / len(truth) >= 0.9
+    ok = [r for r in rows if r["status"] == "ok"]
+    assert all(abs(float(r["nucleation_time_s"])) <= 10.0 for r in ok)
+
+
+def test_analyze_without_calibration_exits_2_naming_the_file(tmp_path, capsys):
+    import tifffile
+
+    from analysis.cli import main
+
+    tifffile.imwrite(tmp_path / "bare.tif", np.zeros((4, 32, 32), np.uint8), photometric="minisblack")
+    assert main(["analyze", str(tmp_path / "bare.tif"), "--out", str(tmp_path / "o")]) == 2
+    assert "bare.tif" in capsys.readouterr().err
