@@ -7,15 +7,15 @@ import pytest
 from analysis.errors import InputError
 from analysis.materials import VALUE_KEYS, get_material, list_materials, load_material_file
 
-# (material, key, value, tag). Sources as in REFERENCES.md table 3.1/3.2.
+# (material, key, value, tag). Values, sources and tags as in REFERENCES.md tables 3.1/3.2.
 TABLE = [
     ("PE", "tm0_c", 141.1, "confirmed"),        # Broadhurst, J. Res. NBS 1962-63
     ("PE", "dh0_j_per_g", 293.0, "from memory"),  # Wunderlich # from memory
     ("PE", "sigma_e_mj_m2", 90.0, "from memory"),  # Hoffman & Miller 1997, Polymer 38, 3151 # from memory
     ("iPP", "tm0_c", 185.0, "from memory"),     # Clark & Hoffman 1984 # from memory
     ("iPP", "dh0_j_per_g", 207.0, "from memory"),  # handbook # from memory
-    ("iPP", "rho_c_g_cm3", 0.936, "from memory"),
-    ("iPP", "rho_a_g_cm3", 0.854, "from memory"),
+    ("iPP", "rho_c_g_cm3", 0.936, "from memory"),  # handbook value, REFERENCES.md 3.1 # from memory
+    ("iPP", "rho_a_g_cm3", 0.854, "from memory"),  # handbook value, REFERENCES.md 3.1 # from memory
     ("PET", "dh0_j_per_g", 140.0, "confirmed"),  # Palys & Phillips 1980 as used in LH work
     ("PET", "b0_angstrom", 5.53, "confirmed"),   # Palys & Phillips 1980
     ("PEO", "dh0_j_per_g", 215.6, "confirmed"),  # Afifi-Effat & Hay 1972
@@ -25,7 +25,7 @@ TABLE = [
     ("PBT", "dh0_j_per_g", 140.0, "confirmed"),  # Illers 1980, Colloid Polym. Sci.
     ("PEEK", "dh0_j_per_g", 122.5, "confirmed"),  # Mehmet-Alkan & Hay 1992, Polymer 33, 3527
     ("PEEK", "tm0_c", 389.0, "confirmed"),       # Lee & Porter 1987, Macromolecules 20, 1336
-    ("PCL", "tm0_c", 69.0, "confirmed"),
+    ("PCL", "tm0_c", 69.0, "confirmed"),         # PCL crystallization studies I (REFERENCES.md [C10])
     ("PVDF", "dh0_j_per_g", 104.7, "from memory"),  # Nakagawa & Ishida 1973 # from memory
 ]
 
