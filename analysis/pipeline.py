@@ -691,6 +691,7 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
         ctx.fit_arrival, measured, model, frames=ctx.frame_index, interval_s=ctx.interval_s,
         slope_s_per_px=ctx.slope_s_per_px, existing_xy=[(s.x_px, s.y_px) for s in result.spherulites],
         min_area_px=max(settings.min_territory_px, 30))
+    seeds = [(row, col) for row, col in seeds if ctx.markers.labels[row, col] == 0]
     if not seeds:
         return ctx
     labels = ctx.markers.labels.copy()
