@@ -195,7 +195,7 @@ def _guess_columns(columns: list[str]) -> tuple[int | None, int | None]:
     return time_col, flow_col
 
 
-def _mass_from_metadata(metadata: list[str], decimal: str) -> float | None:
+def _mass_from_metadata(metadata: list[str]) -> float | None:
     for line in metadata:
         if "mass" in line.casefold() or "weight" in line.casefold():
             match = re.search(r"(-?\d+(?:[.,]\d+)?)\s*(mg|g)?\s*[\"']?\s*$", line.strip())
@@ -237,7 +237,7 @@ def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:
         time_col=time_col, heat_flow_col=flow_col,
         time_unit=None if time_col is None else _time_unit(_unit_of(columns[time_col])),
         heat_flow_unit=None if flow_col is None else _flow_unit(_unit_of(columns[flow_col]))[0],
-        mass_mg=_mass_from_metadata(metadata, decimal))
+        mass_mg=_mass_from_metadata(metadata))
 
 
 def _time_unit(unit: str | None) -> str | None:
@@ -524,6 +524,8 @@ def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=(0.03
     """
     path, t, q = isotherm.path, isotherm.time_min, _lag_corrected(isotherm, lag_s)
     window = parse_window(window, path)
+    if mass_mg is not None and not (np.isfinite(mass_mg) and mass_mg > 0):
+        raise InputError(f"sample mass must be a positive number of mg, got {mass_mg!r}", path)
     if baseline not in ("linear", "flat"):
         raise InputError(f"baseline must be linear or flat, got {baseline!r}", path)
     i_tr, sign, peak, oriented, width, sigma = _locate_exotherm(t, q, exotherm,

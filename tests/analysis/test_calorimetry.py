@@ -151,6 +151,8 @@ def test_baseline_options_and_overrides():
     assert manual.avrami.t_half_min == pytest.approx(2.0, rel=5e-3)
     with pytest.raises(InputError, match="bracket"):
         analyze_isotherm(iso, baseline_start_min=4.0, baseline_end_min=8.0)
+    with pytest.raises(InputError, match="sample mass"):
+        analyze_isotherm(iso, mass_mg=0.0)
     with pytest.raises(InputError, match="baseline must be"):
         analyze_isotherm(iso, baseline="spline")
 
