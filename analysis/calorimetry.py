@@ -634,12 +634,22 @@ def analyze_source(source) -> CalorimetryResult:
 
 
 # ---------------------------------------------------------------- output and CLI
+def _finite(value):
+    """JSON has no NaN or infinity: such numbers are written as null."""
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    return value
+
+
 def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
     """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity)."""
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     json_path, csv_path = out / "calorimetry.json", out / "conversion.csv"
-    json_path.write_text(json.dumps(result.to_json_dict(), indent=2) + "\n", encoding="utf-8")
+    doc = {k: ({kk: _finite(vv) for kk, vv in v.items()} if isinstance(v, dict) else
+               [_finite(x) for x in v] if isinstance(v, list) else _finite(v))
+           for k, v in result.to_json_dict().items()}
+    json_path.write_text(json.dumps(doc, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     t, x = result.conversion_table()
     with open(csv_path, "w", newline="", encoding="utf-8") as fh:
         writer = csv.writer(fh)

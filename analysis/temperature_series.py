@@ -165,7 +165,7 @@ def _wls(design: np.ndarray, y: np.ndarray, w: np.ndarray, absolute: bool):
 
 def _line_fit(x, y, w, tc, name, absolute) -> tuple[RegimeFit, float]:
     coef, cov, rss = _wls(np.column_stack([np.ones_like(x), x]), y, w, absolute)
-    ci = float(stats.t.ppf(0.975, x.size - 2) * math.sqrt(cov[1, 1])) if x.size > 2 else None
+    ci = float(stats.t.ppf(0.975, x.size - 2) * math.sqrt(max(cov[1, 1], 0.0))) if x.size > 2 else None
     return RegimeFit(name, float(tc.min()), float(tc.max()), float(-coef[1]), ci,
                      float(math.exp(coef[0])), int(x.size)), rss
 
@@ -230,7 +230,7 @@ def _two_regimes(tc, x, y, w, constants, tb, absolute):
     rss, coef, cov, xb = _hinge_rss(tb, tc, x, y, w, constants, absolute)
     kg_low, kg_high = -coef[1], -coef[2]  # low T = small x
     t_ppf = stats.t.ppf(0.975, tc.size - 4)
-    ci_low, ci_high = (float(t_ppf * math.sqrt(cov[j, j])) for j in (1, 2))
+    ci_low, ci_high = (float(t_ppf * math.sqrt(max(cov[j, j], 0.0))) for j in (1, 2))
     names = _regime_names(kg_low, kg_high)
     ln_g0_low = coef[0] - coef[1] * xb
     ln_g0_high = coef[0] - coef[2] * xb
@@ -343,12 +343,23 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
     }
 
 
+def _json_safe(value):
+    """NaN and infinities (not valid JSON) become null, recursively."""
+    if isinstance(value, dict):
+        return {k: _json_safe(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_json_safe(v) for v in value]
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     path = out / "secondary_nucleation.json"
-    path.write_text(json.dumps(secondary_nucleation_dict(analysis), indent=2) + "\n",
-                    encoding="utf-8")
+    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2,
+                               allow_nan=False) + "\n", encoding="utf-8")
     return path
 
 
