@@ -59,6 +59,7 @@ class CalorimetrySource:
     material: str | None = None
     baseline_start_min: float | None = None
     baseline_end_min: float | None = None
+    lag_s: float = 0.0  # the instrument's thermal lag constant, from its calibration
 
 
 @dataclass(frozen=True)
