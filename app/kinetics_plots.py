@@ -50,8 +50,9 @@ def _titled(parent, title: str, plot: pg.PlotWidget, name: str) -> QtWidgets.QWi
     box = QtWidgets.QWidget(parent)
     header = QtWidgets.QHBoxLayout()
     label = QtWidgets.QLabel(f"<b>{title}</b>")
-    header.addWidget(label)
-    header.addStretch(1)
+    label.setToolTip(title)
+    label.setSizePolicy(QtWidgets.QSizePolicy.Policy.Ignored, QtWidgets.QSizePolicy.Policy.Preferred)
+    header.addWidget(label, 1)
     header.addWidget(add_export_button(box, plot, name))
     layout = QtWidgets.QVBoxLayout(box)
     layout.setContentsMargins(2, 2, 2, 2)
@@ -77,8 +78,11 @@ class KineticsPlots(QtWidgets.QWidget):
                                   y_label="log₁₀[−ln(1 − X)]", y_unit="")
         self.comparison = styled_plot(x_label="time since start of crystallization", x_unit="min",
                                       y_label="volume fraction crystallized", y_unit="")
-        for plot in (self.heat_flow, self.conversion, self.avrami, self.comparison):
-            plot.getPlotItem().addLegend(offset=(-10, 10), labelTextColor="#202020")
+        # Legends where the curves are not: rising curves leave the lower right free.
+        for plot, corner in ((self.heat_flow, (-10, 10)), (self.conversion, (-10, -10)),
+                             (self.avrami, (10, 10)), (self.comparison, (-10, -10))):
+            plot.getPlotItem().addLegend(offset=corner, labelTextColor="#202020",
+                                         brush=pg.mkBrush(255, 255, 255, 200))
         self._build_items()
         grid = QtWidgets.QGridLayout(self)
         grid.setContentsMargins(0, 0, 0, 0)

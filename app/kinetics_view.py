@@ -75,7 +75,7 @@ class KineticsView(QtWidgets.QWidget):
         self.export_action.triggered.connect(self.export_figures)
         self.help_action = QtGui.QAction("Kinetics help and safety", self)
         self.help_action.triggered.connect(lambda: show_help("cautions"))
-        for combo, length in ((self.experiment_picker, 16), (self.geometry, 12), (self.mode, 12)):
+        for combo, length in ((self.experiment_picker, 12), (self.geometry, 8), (self.mode, 8)):
             combo.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
             combo.setMinimumContentsLength(length)
         bar = QtWidgets.QHBoxLayout()
@@ -88,7 +88,7 @@ class KineticsView(QtWidgets.QWidget):
         toolbar.setToolButtonStyle(QtCore.Qt.ToolButtonStyle.ToolButtonTextOnly)
         toolbar.addActions([self.import_action, self.remap_action, self.auto_baseline_action,
                             self.remove_action, self.export_action, self.help_action])
-        bar.addWidget(toolbar, 2)
+        bar.addStretch(1)
         self.prediction = PredictionPanel(self)
         self.calorimetry_panel = CalorimetryPanel(self)
         self.comparison = ComparisonTable(self)
@@ -101,21 +101,22 @@ class KineticsView(QtWidgets.QWidget):
         scroll = QtWidgets.QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setWidget(numbers)
-        scroll.setMinimumWidth(400)
+        scroll.setMinimumWidth(max(300, numbers.minimumSizeHint().width() + scroll.verticalScrollBar().sizeHint().width() + 4))
         scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         self.plots = KineticsPlots(self)
         self.plots.baseline_dragging.connect(lambda a, b: self._drag_preview(baseline=(a, b)))
         self.plots.baseline_dragged.connect(self._baseline_dragged)
         self.plots.window_dragging.connect(lambda a, b: self._drag_preview(window=(a, b)))
         self.plots.window_dragged.connect(self._window_dragged)
-        split = QtWidgets.QSplitter()
+        self.split = split = QtWidgets.QSplitter()
         split.addWidget(scroll)
         split.addWidget(self.plots)
+        split.setStretchFactor(0, 0)
         split.setStretchFactor(1, 1)
-        split.setSizes([460, 1100])
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
+        layout.addWidget(toolbar)
         layout.addWidget(split, 1)
 
     def actions_for_menu(self) -> list:
@@ -148,6 +149,10 @@ class KineticsView(QtWidgets.QWidget):
 
     def showEvent(self, event) -> None:
         super().showEvent(event)
+        if not getattr(self, "_sized", False):  # numbers column about a third, plots the rest
+            self._sized = True
+            numbers = max(300, min(420, self.width() // 3))
+            self.split.setSizes([numbers, max(300, self.width() - numbers)])
         if self._stale:
             self._rebuild()
 
@@ -382,23 +387,44 @@ class KineticsView(QtWidgets.QWidget):
         return written
 
 
-def _run_alone(argv: list[str]) -> int:  # pragma: no cover - manual use
+def run_alone(view_class, argv: list[str]) -> int:  # pragma: no cover - manual use and docs
+    """``python -m app.kinetics_view PROJECT [--experiment I] [--screenshot OUT.png]``.
+
+    Opens the project, analyses every experiment, shows the view at 1600 x 1000; with
+    ``--screenshot`` saves the rendered view and exits.
+    """
+    import argparse
+
     from analysis.pipeline import analyze_experiment
 
-    from .model import ProjectModel
+    from .model import STATUS_FAILED, ProjectModel
 
-    app = QtWidgets.QApplication(argv)
+    parser = argparse.ArgumentParser(prog=f"python -m {view_class.__module__}")
+    parser.add_argument("project")
+    parser.add_argument("--experiment", type=int, default=0)
+    parser.add_argument("--screenshot")
+    args = parser.parse_args(argv[1:])
+    app = QtWidgets.QApplication(argv[:1])
     model = ProjectModel()
-    model.open_project(argv[1])
+    model.open_project(args.project)
     for i, experiment in enumerate(model.experiments()):
-        model.set_analysis(i, analyze_experiment(experiment), experiment)
-    view = KineticsView(model)
+        try:
+            model.set_analysis(i, analyze_experiment(experiment), experiment)
+        except InputError as error:
+            model.set_status(i, STATUS_FAILED, str(error))
+    model.select(args.experiment)
+    view = view_class(model)
     view.resize(1600, 1000)
     view.show()
+    if args.screenshot:
+        app.processEvents()
+        ok = view.grab().save(args.screenshot)
+        print(args.screenshot if ok else f"{args.screenshot}: could not write the image")
+        return 0 if ok else 1
     return app.exec()
 
 
 if __name__ == "__main__":  # pragma: no cover
     import sys
 
-    sys.exit(_run_alone(sys.argv))
+    sys.exit(run_alone(KineticsView, sys.argv))

@@ -38,16 +38,32 @@ class ExportedFigure:
     png_size_px: tuple[int, int]
 
 
+class DecadeAxis(pg.AxisItem):
+    """Logarithmic axis labelled at 1, 2 and 5 times a power of ten only (no crowding)."""
+
+    def logTickStrings(self, values, scale, spacing):
+        labels = super().logTickStrings(values, scale, spacing)
+        keep = []
+        for value, label in zip(values, labels):
+            mantissa = 10 ** (float(value) % 1.0)
+            keep.append(label if min(abs(mantissa - m) for m in (1, 2, 5, 10)) < 0.05 else "")
+        return keep
+
+
 def styled_plot(
-    *, x_label: str, x_unit: str, y_label: str, y_unit: str, title: str = ""
+    *, x_label: str, x_unit: str, y_label: str, y_unit: str, title: str = "", log_y: bool = False
 ) -> pg.PlotWidget:
     """A plot widget in the house look (light, dark text) with unit axis labels.
 
     Units are written literally ("min", "µm/min") and never rescaled with SI prefixes,
-    because several of our units (min, min⁻ⁿ, K⁻¹) are not SI.
+    because several of our units (min, min⁻ⁿ, K⁻¹) are not SI. ``log_y`` gives a
+    logarithmic vertical axis labelled at 1-2-5 steps.
     """
-    widget = pg.PlotWidget(background=_BACKGROUND)
+    axes = {"left": DecadeAxis("left")} if log_y else None
+    widget = pg.PlotWidget(background=_BACKGROUND, axisItems=axes)
     item = widget.getPlotItem()
+    if log_y:
+        item.setLogMode(y=True)
     for name in ("left", "bottom", "top", "right"):
         axis = item.getAxis(name)
         axis.setPen(pg.mkPen(_FOREGROUND))
@@ -57,7 +73,7 @@ def styled_plot(
     if title:
         item.setTitle(title, color=_FOREGROUND)
     item.showGrid(x=True, y=True, alpha=0.15)
-    widget.setMinimumSize(220, 160)
+    widget.setMinimumSize(150, 120)
     return widget
 
 

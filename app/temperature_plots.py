@@ -32,18 +32,17 @@ class TemperaturePlots(QtWidgets.QWidget):
     def __init__(self, parent=None):
         super().__init__(parent)
         self.growth = styled_plot(x_label="crystallization temperature Tc", x_unit="°C",
-                                  y_label="growth rate G", y_unit="µm/min")
+                                  y_label="growth rate G", y_unit="µm/min", log_y=True)
         self.density = styled_plot(x_label="crystallization temperature Tc", x_unit="°C",
-                                   y_label="nucleation density", y_unit="mm⁻² or mm⁻³")
+                                   y_label="nucleation density", y_unit="mm⁻² or mm⁻³", log_y=True)
         self.half_time = styled_plot(x_label="crystallization temperature Tc", x_unit="°C",
-                                     y_label="half-time t½", y_unit="min")
+                                     y_label="half-time t½", y_unit="min", log_y=True)
         self.lh = styled_plot(x_label="10⁵ / (Tc·ΔT·f)", x_unit="K⁻²",
                               y_label="ln G + U*/(R·(Tc − T∞))", y_unit="G in µm/min")
-        for plot in (self.growth, self.density, self.half_time):
-            plot.getPlotItem().setLogMode(y=True)
-            plot.getPlotItem().getAxis("left").setStyle(maxTextLevel=0)  # decades only
-        for plot in (self.growth, self.density, self.half_time, self.lh):
-            plot.getPlotItem().addLegend(offset=(-10, 10), labelTextColor="#202020")
+        for plot, corner in ((self.growth, (-10, 10)), (self.density, (-10, 10)),
+                             (self.half_time, (10, 10)), (self.lh, (-10, 10))):
+            plot.getPlotItem().addLegend(offset=corner, labelTextColor="#202020",
+                                         brush=pg.mkBrush(255, 255, 255, 200))
         self.growth_points = _log_points(self.growth, "G ± 95 % CI", COLOURS["signal"])
         self.growth_errors = pg.ErrorBarItem(pen=pg.mkPen(COLOURS["signal"], width=1.2), beam=0.3)
         self.growth.addItem(self.growth_errors)

@@ -67,6 +67,7 @@ class TemperatureView(QtWidgets.QWidget):
         bar.addWidget(toolbar, 1)
         self.empty_note = QtWidgets.QLabel("", objectName="empty_note")
         self.empty_note.setStyleSheet("color: #9a3412;")
+        self.empty_note.setWordWrap(True)
         left = QtWidgets.QSplitter(QtCore.Qt.Orientation.Vertical)
         table_box = QtWidgets.QWidget()
         table_layout = QtWidgets.QVBoxLayout(table_box)
@@ -85,13 +86,13 @@ class TemperatureView(QtWidgets.QWidget):
         scroll = QtWidgets.QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setWidget(side)
-        scroll.setMinimumWidth(340)
+        scroll.setMinimumWidth(side.minimumSizeHint().width() + scroll.verticalScrollBar().sizeHint().width() + 4)
         scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        split = QtWidgets.QSplitter()
+        self.split = split = QtWidgets.QSplitter()
         split.addWidget(left)
         split.addWidget(scroll)
         split.setStretchFactor(0, 1)
-        split.setSizes([1150, 360])
+        split.setStretchFactor(1, 0)
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
@@ -130,6 +131,10 @@ class TemperatureView(QtWidgets.QWidget):
 
     def showEvent(self, event) -> None:
         super().showEvent(event)
+        if not getattr(self, "_sized", False):  # constants column about a quarter
+            self._sized = True
+            side = max(300, min(400, self.width() // 4))
+            self.split.setSizes([max(300, self.width() - side), side])
         if self._stale:
             self._rebuild()
 
@@ -244,23 +249,9 @@ class TemperatureView(QtWidgets.QWidget):
         return self.report_job.start(lambda: temperature_export.report_iter(snapshot, folder), folder)
 
 
-def _run_alone(argv: list[str]) -> int:  # pragma: no cover - manual use
-    from analysis.pipeline import analyze_experiment
-
-    from .model import ProjectModel
-
-    app = QtWidgets.QApplication(argv)
-    model = ProjectModel()
-    model.open_project(argv[1])
-    for i, experiment in enumerate(model.experiments()):
-        model.set_analysis(i, analyze_experiment(experiment), experiment)
-    view = TemperatureView(model)
-    view.resize(1600, 1000)
-    view.show()
-    return app.exec()
-
-
 if __name__ == "__main__":  # pragma: no cover
     import sys
 
-    sys.exit(_run_alone(sys.argv))
+    from .kinetics_view import run_alone
+
+    sys.exit(run_alone(TemperatureView, sys.argv))
