@@ -3,7 +3,7 @@
 Shows the first rows of the file as ``analysis.calorimetry.sniff_calorimetry_file`` read
 them (dialect, column row, metadata), lets the user pick the time and heat-flow columns,
 their units, the exotherm direction, the sample mass and the material, and checks the
-choice by reading the whole file (``read_isotherm``) before accepting. The result is an
+choice by analysing the whole file (``analyze_source``) before accepting. The result is an
 ``analysis.project.CalorimetrySource``; nothing is changed in the project here.
 """
 
@@ -14,7 +14,7 @@ import os
 
 from PySide6 import QtCore, QtWidgets
 
-from analysis.calorimetry import read_isotherm, sniff_calorimetry_file
+from analysis.calorimetry import analyze_source, sniff_calorimetry_file
 from analysis.errors import InputError
 from analysis.materials import list_materials
 from analysis.project import CalorimetrySource
@@ -100,6 +100,12 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         self.mass.setDecimals(3)
         self.mass.setSuffix(" mg")
         self.mass.setSpecialValueText("unknown")
+        self.lag = QtWidgets.QDoubleSpinBox(objectName="lag_s")
+        self.lag.setRange(0.0, 600.0)
+        self.lag.setDecimals(2)
+        self.lag.setSuffix(" s")
+        self.lag.setSpecialValueText("no lag correction")
+        self.lag.setToolTip("First-order time constant of the instrument, from its calibration")
         self.material = QtWidgets.QComboBox(objectName="material")
         self.material.addItem("none (no ΔH0, no density ratio)", None)
         for material in list_materials():
@@ -113,6 +119,7 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         form.addRow("Heat-flow unit", self.flow_unit)
         form.addRow("Exotherm direction", self.exotherm)
         form.addRow("Sample mass", self.mass)
+        form.addRow("Instrument lag", self.lag)
         form.addRow("Material (ΔH0, densities)", self.material)
         return form
 
@@ -128,6 +135,7 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         self.exotherm.setCurrentIndex(max(0, self.exotherm.findData(source.exotherm if source else "auto")))
         mass = (source.mass_mg if source else None) or p.mass_mg
         self.mass.setValue(mass or 0.0)
+        self.lag.setValue((getattr(source, "lag_s", 0.0) or 0.0) if source else 0.0)
         material = source.material if source else None
         self.material.setCurrentIndex(max(0, self.material.findData(material)))
 
@@ -157,7 +165,7 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
             base, file=self.path, time_col=pick(self.time_col), heat_flow_col=pick(self.flow_col),
             time_unit=unit(self.time_unit), heat_flow_unit=unit(self.flow_unit),
             exotherm=self.exotherm.currentData(), mass_mg=self.mass.value() or None,
-            material=self.material.currentData())
+            material=self.material.currentData(), lag_s=self.lag.value())
 
     def source(self) -> CalorimetrySource | None:
         """The accepted mapping (None until the dialog was accepted)."""
@@ -165,10 +173,8 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
 
     def accept(self) -> None:
         candidate = self.chosen_source()
-        try:
-            read_isotherm(candidate.file, time_col=candidate.time_col,
-                          heat_flow_col=candidate.heat_flow_col, time_unit=candidate.time_unit,
-                          heat_flow_unit=candidate.heat_flow_unit)
+        try:  # the whole file with this mapping, so a bad choice is caught here
+            analyze_source(candidate)
         except InputError as error:
             self.error.setText(str(error))
             return

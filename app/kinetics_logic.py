@@ -15,47 +15,31 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.avrami import predict_model_from_result
-from analysis.calorimetry import analyze_isotherm, read_isotherm
+from analysis.calorimetry import analyze_source
 from analysis.errors import InputError
 
 
 class CalorimetryCache:
-    """Read each isotherm file once per mapping; keep the last few analyses.
+    """The last few ``analysis.calorimetry.analyze_source`` results, keyed by the source.
 
     The file's modification time is part of the key, so an edited export is re-read.
     """
 
     def __init__(self, size: int = 16):
-        self._isotherms: OrderedDict = OrderedDict()
         self._results: OrderedDict = OrderedDict()
         self._size = size
 
-    def isotherm(self, source):
+    def analyze(self, source):
         try:
             stamp = os.stat(source.file).st_mtime_ns
         except OSError as error:
             raise InputError(f"cannot read calorimetry file ({error.strerror})", source.file) from None
-        key = (source.file, stamp, source.time_col, source.heat_flow_col, source.time_unit,
-               source.heat_flow_unit)
-        if key not in self._isotherms:
-            self._isotherms[key] = read_isotherm(
-                source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
-                time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit)
-            _trim(self._isotherms, self._size)
-        return key, self._isotherms[key]
-
-    def analyze(self, source):
-        """``analysis.calorimetry.analyze_isotherm`` for a ``CalorimetrySource`` (cached)."""
-        key, isotherm = self.isotherm(source)
-        full_key = (key, source.exotherm, tuple(source.window), source.mass_mg, source.material,
-                    source.baseline_start_min, source.baseline_end_min)
-        if full_key not in self._results:
-            self._results[full_key] = analyze_isotherm(
-                isotherm, exotherm=source.exotherm or "auto", window=source.window,
-                mass_mg=source.mass_mg, material=source.material,
-                baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min)
+        key = (source, stamp)
+        if key not in self._results:
+            self._results[key] = analyze_source(source)
             _trim(self._results, self._size)
-        return self._results[full_key]
+        self._results.move_to_end(key)
+        return self._results[key]
 
 
 def _trim(cache: OrderedDict, size: int) -> None:

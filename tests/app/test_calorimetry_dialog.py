@@ -71,9 +71,20 @@ def test_existing_mapping_is_restored(qtbot, tmp_path, isotherm):
 
     path = _write(tmp_path, isotherm, "run.csv")
     current = CalorimetrySource(file=path, time_col="Time (min)", heat_flow_col="Heat flow (mW)",
-                                exotherm="down", window=(0.05, 0.3), mass_mg=7.5)
+                                exotherm="up", window=(0.05, 0.3), mass_mg=7.5, lag_s=6.0)
     dialog = CalorimetryMappingDialog(path, current)
     qtbot.addWidget(dialog)
-    assert dialog.exotherm.currentData() == "down" and dialog.mass.value() == 7.5
+    assert dialog.exotherm.currentData() == "up" and dialog.mass.value() == 7.5
+    assert dialog.lag.value() == 6.0
     dialog.accept()
     assert dialog.source().window == (0.05, 0.3)  # settings made in the view survive a remap
+    assert dialog.source().lag_s == 6.0
+
+
+def test_wrong_exotherm_direction_is_caught_before_import(qtbot, tmp_path, isotherm):
+    path = _write(tmp_path, isotherm, "run.csv")  # simulated with the exotherm up
+    dialog = CalorimetryMappingDialog(path)
+    qtbot.addWidget(dialog)
+    dialog.exotherm.setCurrentIndex(dialog.exotherm.findData("down"))
+    dialog.accept()
+    assert dialog.source() is None and "run.csv" in dialog.error.text()

@@ -13,6 +13,7 @@ import gc
 import math
 
 import numpy as np
+from PySide6 import QtWidgets
 import pytest
 
 from analysis.project import Experiment, Project
@@ -179,3 +180,42 @@ def test_export_all_figures(view, isotherm_csv, tmp_path):
     written = view.export_figures(str(tmp_path))
     assert len(written) == 8
     assert all((tmp_path / name).stat().st_size > 1000 for name in map(lambda p: p.split("/")[-1], written))
+
+
+def test_live_drag_updates_numbers_without_an_undo_entry(view, isotherm_csv):
+    from app.kinetics_plots import x_to_avrami_y
+
+    _import(view, isotherm_csv[0])
+    model, panel = view.model, view.calorimetry_panel.form
+    before = panel.text("n")
+    region = view.plots.window_region
+    region.setRegion((x_to_avrami_y(0.3), x_to_avrami_y(0.8)))  # a finished gesture
+    after = panel.text("n")
+    model.undo_stack.undo()
+    # mid-gesture: the drag reports positions before it ends; only the end pushes a command
+    view.plots.window_dragging.emit(0.3, 0.8)
+    assert panel.text("n") == after and model.undo_stack.count() == 2 and model.undo_stack.index() == 1
+    view.plots.window_dragged.emit(0.3, 0.8)
+    assert model.undo_stack.index() == 2 and panel.text("n") == after != before
+
+
+def test_baseline_not_bracketing_the_peak_is_refused(view, isotherm_csv, monkeypatch):
+    warnings = []
+    monkeypatch.setattr(QtWidgets.QMessageBox, "warning", lambda *args: warnings.append(args[2]))
+    _import(view, isotherm_csv[0])
+    start, end = view.plots.baseline_region.getRegion()
+    view.plots.baseline_region.setRegion((start, start + 0.1))
+    assert warnings and "isotherm_128C.csv" in warnings[0]
+    assert view.model.undo_stack.count() == 1  # nothing stored
+    assert view.model.experiment(0).calorimetry.baseline_end_min is None
+    assert view.plots.baseline_region.getRegion() == pytest.approx((start, end))
+
+
+def test_unreadable_isotherm_is_reported_in_a_dialog(view, tmp_path, monkeypatch):
+    errors = []
+    monkeypatch.setattr(QtWidgets.QMessageBox, "critical", lambda *args: errors.append(args[2]))
+    bad = tmp_path / "broken_export.csv"
+    bad.write_bytes(b"\x00\x01binary")
+    assert view.mapping_dialog(str(bad)) is None
+    assert "broken_export.csv" in errors[0]
+    assert view.model.undo_stack.count() == 0

@@ -152,3 +152,26 @@ def test_report_runs_in_worker_and_writes_the_report_folder(view, tmp_path, qtbo
             "secondary_nucleation.json", "lauritzen_hoffman.png", "lauritzen_hoffman.svg"} <= names
     assert "files written" in view.report_status.text()
     assert not view.report_job.bar_widget.isVisibleTo(view)
+
+
+# Two-regime synthetic series: regime III (Kg = 5.5e5 K^2) up to 137 °C, regime II (Kg = 2.75e5 K^2)
+# above, same constants as FIXTURE_A (Kg(III) = 2 Kg(II): Hoffman 1983, Polymer 24, 3, from memory).
+FIXTURE_B = {125.0: 24.8726, 127.5: 11.6169, 130.0: 5.0, 132.5: 1.96107, 135.0: 0.691541,
+             137.5: 0.245122, 140.0: 0.131290, 142.5: 0.0646232, 145.0: 0.0287843,
+             147.5: 0.0113774, 150.0: 0.00389160}
+
+
+def test_regimes_are_detected_and_shaded(qtbot, tmp_path):
+    import pyqtgraph as pg
+
+    results = [hand_made_result(temperature_c=tc, g=g) for tc, g in FIXTURE_B.items()]
+    model = model_with(results, tmp_path)
+    model.set_project_fields(series={"tm0_c": 185.0, "tg_c": -10.0})
+    view = TemperatureView(model)
+    qtbot.addWidget(view)
+    view.show()
+    assert len(view.fit.regimes) == 2 and abs(view.fit.break_c - 137.0) <= 2.0
+    assert float(view.lh_results.form.text("ratio")) == pytest.approx(2.0, abs=0.1)
+    assert "break at" in view.lh_results.form.text("regimes")
+    bands = [item for item in view.plots.lh.getPlotItem().items if isinstance(item, pg.LinearRegionItem)]
+    assert len(bands) == 2
