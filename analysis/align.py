@@ -201,7 +201,7 @@ class DriftTracker:
 
     def __init__(self, *, crop_px: int = 256, min_response: float = 0.2, refresh_frames: int = 80,
                  refresh_gain: float = 4.0, refresh_shift_px: float = 4.0, max_step_px: float = 3.0,
-                 min_settled_px: int = 200,
+                 min_settled_px: int = 400,
                  coarse_sigma_px: float | None = _COARSE_SIGMA_PX, fine_sigma_px: float = _FINE_SIGMA_PX):
         self.coarse_sigma_px = coarse_sigma_px
         self.fine_sigma_px = fine_sigma_px
@@ -221,6 +221,10 @@ class DriftTracker:
         self._window = None
         self.shift_yx = np.zeros(2)
         self.measured = False  # whether the last update found a match (else the shift was held)
+        self.ever_measured = False
+        self._velocity = np.zeros(2)      # px per frame, fitted to the recent matches
+        self._matches: list[tuple[int, np.ndarray]] = []
+        self._frame = 0
 
     def update(self, image: np.ndarray, settled=None) -> np.ndarray:
         """Register the next frame's image; returns its cumulative shift (dy, dx), px.
@@ -235,18 +239,38 @@ class DriftTracker:
             return self.shift_yx.copy()
         current = self._patch(image)
         self.measured = False
+        self._frame += 1
         if self._key_content > 0 and self._usable_key():
             weight = self._window * self._key_weight
             found = estimate_shift(self._key, current, window=weight, guess_yx=self.shift_yx - self._key_shift)
             candidate = self._key_shift + (found.dy, found.dx)
             if found.response >= self.min_response and np.max(np.abs(candidate - self.shift_yx)) <= self.max_step_px:
                 self.shift_yx = candidate
-                self.measured = True
+                self.measured = self.ever_measured = True
+                self._note_match(candidate)
         self._key_age += 1
         stale = (self._key_age >= self.refresh_frames
                  or np.max(np.abs(self.shift_yx - self._key_shift)) > self.refresh_shift_px)
-        if stale or self._content(image, current, settled) > self.refresh_gain * self._key_content:
+        grown = self._content(image, current, settled) > self.refresh_gain * self._key_content
+        if stale or grown or not self._usable_key():  # an unusable key: look elsewhere next time
             self._renew(image, settled)
+        return self.shift_yx.copy()
+
+    def _note_match(self, shift):
+        """Drift velocity: straight line through the matches of the last ~15 frames."""
+        self._matches = [(f, s) for f, s in self._matches if self._frame - f <= 15] + [(self._frame, shift.copy())]
+        if len(self._matches) >= 3:
+            frames = np.array([f for f, _ in self._matches], float)
+            shifts = np.array([s for _, s in self._matches])
+            self._velocity = np.polyfit(frames, shifts, 1)[0]
+
+    def coast(self) -> np.ndarray:
+        """Advance one frame without registering it: the shift follows the recent drift
+        velocity (stage drift is smooth), at a fraction of the cost."""
+        self._frame += 1
+        self._key_age += 1
+        self.measured = False
+        self.shift_yx = self.shift_yx + self._velocity
         return self.shift_yx.copy()
 
     def _usable_key(self):

@@ -49,7 +49,8 @@ __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
 _STAGE = "arrival times"
 _NEVER, _UNUSABLE = -1, -2
 _MELT, _TRACKING, _DONE = 0, 1, 2
-_SETTLE_FRAMES = 3  # frames after detection before a pixel's content is steady enough to register on
+_SETTLE_FRAMES = 6  # frames after detection before a pixel's content is steady enough to register on
+_MIN_HISTORY = 4    # columns of evidence (pre-detection frame included) needed to judge a plateau
 
 
 @dataclass(frozen=True)
@@ -70,6 +71,9 @@ class ArrivalSettings:
         ``"auto"``, ``"grey"`` or ``"colour"`` (retardation plate recordings).
     registration : str
         ``"auto"``, ``"on"`` or ``"off"`` (see :mod:`analysis.align`).
+    register_every_frames : int
+        Once drift has been measured, register only every n-th frame and follow the
+        measured drift velocity in between (drift is slow and smooth; 1: every frame).
     persistence_frames : int
         Consecutive frames the evidence must stay up before a pixel counts as crystalline.
     hysteresis : float
@@ -87,6 +91,7 @@ class ArrivalSettings:
     reference_frames: int = 3
     channel: str = "auto"
     registration: str = "auto"
+    register_every_frames: int = 3
     persistence_frames: int = 2
     hysteresis: float = 0.6
     track_frames: int = 12
@@ -105,6 +110,8 @@ class ArrivalSettings:
             problems.append(f"channel must be one of {segment.CHANNEL_MODES}")
         if self.registration not in REGISTRATION_MODES:
             problems.append(f"registration must be one of {REGISTRATION_MODES}")
+        if self.register_every_frames < 1:
+            problems.append("register_every_frames must be at least 1")
         if self.persistence_frames < 1:
             problems.append("persistence_frames must be at least 1")
         if not 0 < self.hysteresis <= 1:
@@ -214,52 +221,39 @@ def _checked_stack(stack) -> tuple[np.ndarray, float]:
     return times, float(um)
 
 
-class _Tracker:
-    """Pixels the front is crossing now: their flat indices and short evidence histories."""
+class _Cohort:
+    """Pixels detected in the same frame, tracked together until they retire."""
 
-    def __init__(self, width: int):
-        self.width = width
-        self.index = np.empty(0, np.int64)
-        self.first = np.empty(0, np.int32)      # frame index of detection
-        self.history = np.empty((0, width), np.float32)
-        self.count = np.empty(0, np.int16)      # filled history columns
-
-    def add(self, index, frame, before, now):
-        rows = np.zeros((index.size, self.width), np.float32)
-        rows[:, 0], rows[:, 1] = before, now
-        self.index = np.concatenate([self.index, index])
-        self.first = np.concatenate([self.first, np.full(index.size, frame, np.int32)])
-        self.history = np.concatenate([self.history, rows])
-        self.count = np.concatenate([self.count, np.full(index.size, 2, np.int16)])
+    def __init__(self, index, frame, before, now, width):
+        self.index = index
+        self.first = frame                      # frame index of detection
+        self.history = np.zeros((index.size, width), np.float32)
+        self.history[:, 0], self.history[:, 1] = before, now
+        self.count = 2                          # filled history columns
 
     def record(self, evidence_flat):
-        if self.index.size:
-            self.history[np.arange(self.index.size), self.count] = evidence_flat[self.index]
-            self.count += 1
+        self.history[:, self.count] = evidence_flat[self.index]
+        self.count += 1
 
-    def take(self, chosen):
-        """Remove the chosen rows and return them (index, first, history, count)."""
-        taken = (self.index[chosen], self.first[chosen], self.history[chosen], self.count[chosen])
-        keep = ~chosen
-        self.index, self.first = self.index[keep], self.first[keep]
-        self.history, self.count = self.history[keep], self.count[keep]
-        return taken
+    def keep(self, chosen):
+        self.index, self.history = self.index[chosen], self.history[chosen]
 
 
 def _half_plateau_times(history, count, first, times, threshold):
     """Arrival time and plateau of retired pixels from their evidence histories.
 
-    Column j of a history holds frame ``first + j - 1``. The plateau is the mean of the
-    last (up to) three columns; the arrival is where the evidence first reached half of
-    it (never before the pre-detection value), linearly interpolated in time.
+    Column j of a history holds frame ``first + j - 1``; ``count`` columns are filled.
+    The plateau is the mean of the last (up to) three columns; the arrival is where the
+    evidence first reached half of it (never before the pre-detection value), linearly
+    interpolated in time.
     """
     n, width = history.shape
-    cols = np.arange(width)
-    valid = cols[None, :] < count[:, None]
-    tail = valid & (cols[None, :] >= np.maximum(count - 3, 1)[:, None])
-    plateau = np.where(tail, history, 0).sum(axis=1) / tail.sum(axis=1)
+    cols = np.arange(count)
+    history = history[:, :count]
+    tail = cols >= max(count - 3, 1)
+    plateau = history[:, tail].mean(axis=1)
     level = np.maximum(0.5 * plateau, np.minimum(history[:, 0] + 1e-3 * threshold, history[:, 1]))
-    above = valid & (cols[None, :] >= 1) & (history >= level[:, None])
+    above = (cols[None, :] >= 1) & (history >= level[:, None])
     j = np.argmax(above, axis=1)
     j = np.where(above.any(axis=1), j, 1)
     rows = np.arange(n)
@@ -284,7 +278,10 @@ class _PassState:
         self.detected = np.full(size, np.iinfo(np.int32).max, np.int32)   # frame of detection
         self.shifts = np.zeros((n_frames, 2))
         self.measured = np.zeros(n_frames, bool)
-        self.tracker = _Tracker(settings.track_frames + 1)
+        self.cohorts: list[_Cohort] = []
+        self.gate = np.zeros(size, np.float32)   # detection level: threshold on melt, inf elsewhere
+        self.width = settings.track_frames + 1
+        self.threshold = float("nan")
         self.settings = settings
 
 
@@ -313,6 +310,9 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
     model, threshold, at_start = _set_up(first, second, settings, mode)
     state = _PassState(first.shape[:2], n, settings)
+    state.gate[:] = threshold
+    state.threshold = threshold
+    state.gate[at_start.ravel()] = np.inf
     state.status[at_start.ravel()] = _DONE
     state.arrival[at_start.ravel()] = times[0]
     drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None)
@@ -333,6 +333,8 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
             _update_reference(model, reference_sum, reference_count, image, gain, camera < 0.5 * threshold)
         if drift is None:
             state.shifts[k] = state.shifts[k - 1]
+        elif drift.ever_measured and k % settings.register_every_frames:
+            state.shifts[k] = drift.coast()
         else:
             state.shifts[k] = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
             state.measured[k] = drift.measured
@@ -340,7 +342,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
         _step(state, specimen.ravel(), k, times, threshold)
         camera_previous = camera
         yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
-    _retire(state, np.ones(state.tracker.index.size, bool), times, threshold, final=True)
+    _retire_all(state, times, threshold)
     if drift is not None:
         _regrid_unseen_drift(state, at_start, times[0])
     return _finish(state, times, um_per_px, threshold, at_start, model, mode)
@@ -434,42 +436,54 @@ def _onto_frame0(camera, shift, mode):
 
 def _step(state, evidence_flat, k, times, threshold):
     """Detect, track and retire pixels for frame k."""
-    settings, tracker = state.settings, state.tracker
-    tracker.record(evidence_flat)
-    age = tracker.count - 2
-    checking = age < settings.persistence_frames
-    dropped = checking & (tracker.history[np.arange(age.size), np.maximum(tracker.count - 1, 0)]
-                          < settings.hysteresis * threshold)
-    if dropped.any():
-        index = tracker.take(dropped)[0]
-        state.status[index] = _MELT
-        state.detected[index] = np.iinfo(np.int32).max
-    full = tracker.count >= tracker.width
-    if full.any():
-        _retire(state, full, times, threshold)
-    fresh = np.flatnonzero((evidence_flat >= threshold) & (state.status == _MELT))
+    settings = state.settings
+    for cohort in state.cohorts:
+        cohort.record(evidence_flat)
+        if cohort.count - 2 <= settings.persistence_frames - 1:  # still proving it persists
+            held = cohort.history[:, cohort.count - 1] >= settings.hysteresis * threshold
+            if not held.all():
+                _release(state, cohort.index[~held], threshold)
+                cohort.keep(held)
+    while state.cohorts and state.cohorts[0].count >= state.width:
+        _retire(state, state.cohorts.pop(0), times)
+    fresh = np.flatnonzero(evidence_flat >= state.gate)
     if fresh.size:
-        tracker.add(fresh, k, state.previous[fresh], evidence_flat[fresh])
+        state.cohorts.append(_Cohort(fresh, k, state.previous[fresh], evidence_flat[fresh], state.width))
         state.status[fresh] = _TRACKING
+        state.gate[fresh] = np.inf
         state.detected[fresh] = k
     state.previous = evidence_flat
 
 
-def _retire(state, chosen, times, threshold, final=False):
-    index, first, history, count = state.tracker.take(chosen)
-    if index.size == 0:
+def _release(state, index, threshold):
+    """Pixels whose evidence did not persist go back to melt."""
+    state.status[index] = _MELT
+    state.gate[index] = threshold
+    state.detected[index] = np.iinfo(np.int32).max
+
+
+def _retire(state, cohort, times):
+    if cohort.index.size == 0:
         return
-    if final:  # pixels detected in the last frames: keep those that held up for two frames
-        cols = np.arange(history.shape[1])[None, :]
-        low = (cols >= 1) & (cols < count[:, None]) & (history < state.settings.hysteresis * threshold)
-        held = ~low.any(axis=1) & (count >= 3)
-        state.status[index[~held]] = _MELT
-        state.detected[index[~held]] = np.iinfo(np.int32).max
-        index, first, history, count = index[held], first[held], history[held], count[held]
-    arrival, plateau = _half_plateau_times(history, count, first, times, threshold)
-    state.arrival[index] = arrival
-    state.contrast[index] = plateau
-    state.status[index] = _DONE
+    arrival, plateau = _half_plateau_times(cohort.history, cohort.count, cohort.first, times, state.threshold)
+    state.arrival[cohort.index] = arrival
+    state.contrast[cohort.index] = plateau
+    state.status[cohort.index] = _DONE
+
+
+def _retire_all(state, times, threshold):
+    """End of the record: pixels detected in the last two frames have no plateau yet and
+    stay uncounted; the others count if their evidence held up."""
+    for cohort in state.cohorts:
+        if cohort.count < _MIN_HISTORY:
+            _release(state, cohort.index, threshold)
+            continue
+        low = cohort.history[:, 1:cohort.count] < state.settings.hysteresis * threshold
+        held = ~low.any(axis=1)
+        _release(state, cohort.index[~held], threshold)
+        cohort.keep(held)
+        _retire(state, cohort, times)
+    state.cohorts = []
 
 
 def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> ArrivalMap:
