@@ -80,9 +80,53 @@ class NumberForm(QtWidgets.QGroupBox):
             label.setText(DASH)
 
 
-class PredictionPanel(QtWidgets.QWidget):
+def scroll_column(widgets, minimum_width: int = 300) -> QtWidgets.QScrollArea:
+    """Stack panels in a vertically scrolling column as wide as its widest panel needs."""
+    inner = QtWidgets.QWidget()
+    column = QtWidgets.QVBoxLayout(inner)
+    column.setContentsMargins(0, 0, 0, 0)
+    for widget in widgets:
+        column.addWidget(widget)
+    column.addStretch(1)
+    scroll = QtWidgets.QScrollArea()
+    scroll.setWidgetResizable(True)
+    scroll.setWidget(inner)
+    scrollbar = scroll.verticalScrollBar().sizeHint().width()
+    scroll.setMinimumWidth(max(minimum_width, inner.minimumSizeHint().width() + scrollbar + 4))
+    scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+    return scroll
+
+
+class FormPanel(QtWidgets.QWidget):
+    """A ``NumberForm`` with a line for problems and warnings under it."""
+
+    ROWS: list = []
+    TITLE = ""
+
+    def __init__(self, parent=None, *, problem_name: str = "problem"):
+        super().__init__(parent)
+        self.form = NumberForm(self.TITLE, self.ROWS, self)
+        self.problem = QtWidgets.QLabel("", objectName=problem_name)
+        self.problem.setWordWrap(True)
+        self.problem.setStyleSheet("color: #9a3412;")
+        self.extra_rows = len(self.ROWS)
+        layout = QtWidgets.QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(self.form)
+
+    def add_full_row(self, widget: QtWidgets.QWidget) -> None:
+        self.form.layout().addWidget(widget, self.extra_rows, 0, 1, 3)
+        self.extra_rows += 1
+
+    def clear(self, text: str = "") -> None:
+        self.form.clear()
+        self.problem.setText(text)
+
+
+class PredictionPanel(FormPanel):
     """N, G, predicted n, k, t½ and the formula used."""
 
+    TITLE = "Microscopy → Avrami prediction"
     ROWS = [
         ("mode", "Nucleation mode", "nucleation_mode"),
         ("density_areal", "N_A (areal)", "density_areal"),
@@ -96,22 +140,13 @@ class PredictionPanel(QtWidgets.QWidget):
     ]
 
     def __init__(self, parent=None):
-        super().__init__(parent)
-        self.form = NumberForm("Microscopy → Avrami prediction", self.ROWS, self)
-        self.formula = QtWidgets.QLabel(DASH)
-        self.formula.setObjectName("formula")
+        super().__init__(parent, problem_name="prediction_problem")
+        self.formula = QtWidgets.QLabel(DASH, objectName="formula")
         self.formula.setWordWrap(True)
         self.formula.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
         self.formula.setStyleSheet("font-family: monospace; padding: 4px;")
-        self.problem = QtWidgets.QLabel("")
-        self.problem.setObjectName("prediction_problem")
-        self.problem.setWordWrap(True)
-        self.problem.setStyleSheet("color: #9a3412;")
-        self.form.layout().addWidget(self.formula, len(self.ROWS), 0, 1, 3)
-        self.form.layout().addWidget(self.problem, len(self.ROWS) + 1, 0, 1, 3)
-        layout = QtWidgets.QVBoxLayout(self)
-        layout.setContentsMargins(0, 0, 0, 0)
-        layout.addWidget(self.form)
+        self.add_full_row(self.formula)
+        self.add_full_row(self.problem)
 
     def show_inputs(self, result, experiment, mode_used: str | None, mode_found: str | None) -> None:
         nuc = result.nucleation
@@ -148,14 +183,14 @@ class PredictionPanel(QtWidgets.QWidget):
         self.problem.setText(text)
 
     def clear(self, text: str = "") -> None:
-        self.form.clear()
+        super().clear(text)
         self.formula.setText(DASH)
-        self.problem.setText(text)
 
 
-class CalorimetryPanel(QtWidgets.QWidget):
+class CalorimetryPanel(FormPanel):
     """The calorimetry isotherm's fit results."""
 
+    TITLE = "Calorimetry isotherm → Avrami fit"
     ROWS = [
         ("file", "isotherm file", "calorimetry_conversion"),
         ("induction", "induction time t₀", "induction_time"),
@@ -169,20 +204,8 @@ class CalorimetryPanel(QtWidgets.QWidget):
     ]
 
     def __init__(self, parent=None):
-        super().__init__(parent)
-        self.form = NumberForm("Calorimetry isotherm → Avrami fit", self.ROWS, self)
-        self.problem = QtWidgets.QLabel("")
-        self.problem.setObjectName("calorimetry_problem")
-        self.problem.setWordWrap(True)
-        self.problem.setStyleSheet("color: #9a3412;")
-        self.form.layout().addWidget(self.problem, len(self.ROWS), 0, 1, 3)
-        layout = QtWidgets.QVBoxLayout(self)
-        layout.setContentsMargins(0, 0, 0, 0)
-        layout.addWidget(self.form)
-
-    def clear(self, text: str = "") -> None:
-        self.form.clear()
-        self.problem.setText(text)
+        super().__init__(parent, problem_name="calorimetry_problem")
+        self.add_full_row(self.problem)
 
 
 class ComparisonTable(QtWidgets.QWidget):

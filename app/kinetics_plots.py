@@ -19,7 +19,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
-from .plot_export import add_export_button, set_axis_labels, styled_plot
+from .plot_export import set_axis_labels, styled_plot, titled_plot
 
 COLOURS = {
     "signal": "#2b4c7e", "baseline": "#d97706", "fit": "#be123c", "curve_fit": "#64748b",
@@ -46,22 +46,6 @@ def _pen(name: str, width: float = 1.6, dashed: bool = False):
     return pg.mkPen(COLOURS[name], width=width, style=style)
 
 
-def _titled(parent, title: str, plot: pg.PlotWidget, name: str) -> QtWidgets.QWidget:
-    box = QtWidgets.QWidget(parent)
-    header = QtWidgets.QHBoxLayout()
-    label = QtWidgets.QLabel(f"<b>{title}</b>")
-    label.setToolTip(title)
-    label.setSizePolicy(QtWidgets.QSizePolicy.Policy.Ignored, QtWidgets.QSizePolicy.Policy.Preferred)
-    header.addWidget(label, 1)
-    header.addWidget(add_export_button(box, plot, name))
-    layout = QtWidgets.QVBoxLayout(box)
-    layout.setContentsMargins(2, 2, 2, 2)
-    layout.setSpacing(1)
-    layout.addLayout(header)
-    layout.addWidget(plot, 1)
-    return box
-
-
 class KineticsPlots(QtWidgets.QWidget):
     baseline_dragging = QtCore.Signal(float, float)  # start, end (min) while dragging
     baseline_dragged = QtCore.Signal(float, float)  # once, at the end of the drag
@@ -86,12 +70,12 @@ class KineticsPlots(QtWidgets.QWidget):
         self._build_items()
         grid = QtWidgets.QGridLayout(self)
         grid.setContentsMargins(0, 0, 0, 0)
-        grid.addWidget(_titled(self, "Heat flow, baseline and limits (drag the band)",
+        grid.addWidget(titled_plot(self, "Heat flow, baseline and limits (drag the band)",
                                self.heat_flow, "heat_flow"), 0, 0)
-        grid.addWidget(_titled(self, "Relative crystallinity X(t)", self.conversion, "conversion"), 0, 1)
-        grid.addWidget(_titled(self, "Avrami plot (drag the shaded fit window)",
+        grid.addWidget(titled_plot(self, "Relative crystallinity X(t)", self.conversion, "conversion"), 0, 1)
+        grid.addWidget(titled_plot(self, "Avrami plot (drag the shaded fit window)",
                                self.avrami, "avrami_plot"), 1, 0)
-        grid.addWidget(_titled(self, "Microscopy prediction against calorimetry",
+        grid.addWidget(titled_plot(self, "Microscopy prediction against calorimetry",
                                self.comparison, "comparison"), 1, 1)
 
     def _build_items(self) -> None:

@@ -22,7 +22,8 @@ from analysis.errors import InputError
 from . import kinetics_logic as logic
 from .calorimetry_dialog import CalorimetryMappingDialog
 from .help_panel import help_button, show_help
-from .kinetics_panels import DASH, CalorimetryPanel, ComparisonTable, PredictionPanel, fmt, k_unit
+from .kinetics_panels import (DASH, CalorimetryPanel, ComparisonTable, PredictionPanel, fmt, k_unit,
+                              scroll_column)
 from .kinetics_plots import KineticsPlots
 from .plot_export import export_plot
 
@@ -63,18 +64,18 @@ class KineticsView(QtWidgets.QWidget):
         for key, text in MODES:
             self.mode.addItem(text, key)
         self.mode.activated.connect(self._mode_chosen)
-        self.import_action = QtGui.QAction("Import calorimetry isotherm…", self)
-        self.import_action.triggered.connect(self.import_calorimetry)
-        self.remap_action = QtGui.QAction("Column mapping…", self)
-        self.remap_action.triggered.connect(self.edit_mapping)
-        self.auto_baseline_action = QtGui.QAction("Automatic baseline", self)
-        self.auto_baseline_action.triggered.connect(self.reset_baseline)
-        self.remove_action = QtGui.QAction("Remove isotherm", self)
-        self.remove_action.triggered.connect(self.remove_calorimetry)
-        self.export_action = QtGui.QAction("Export all figures…", self)
-        self.export_action.triggered.connect(self.export_figures)
-        self.help_action = QtGui.QAction("Kinetics help and safety", self)
-        self.help_action.triggered.connect(lambda: show_help("cautions"))
+        self.actions = []
+        for name, text, handler in (
+                ("import_action", "Import calorimetry isotherm…", self.import_calorimetry),
+                ("remap_action", "Column mapping…", self.edit_mapping),
+                ("auto_baseline_action", "Automatic baseline", self.reset_baseline),
+                ("remove_action", "Remove isotherm", self.remove_calorimetry),
+                ("export_action", "Export all figures…", self.export_figures),
+                ("help_action", "Kinetics help and safety", lambda: show_help("cautions"))):
+            action = QtGui.QAction(text, self)
+            action.triggered.connect(lambda _checked=False, h=handler: h())
+            setattr(self, name, action)
+            self.actions.append(action)
         for combo, length in ((self.experiment_picker, 12), (self.geometry, 8), (self.mode, 8)):
             combo.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
             combo.setMinimumContentsLength(length)
@@ -86,23 +87,12 @@ class KineticsView(QtWidgets.QWidget):
         bar.addWidget(help_button("predicted_k", self))
         toolbar = QtWidgets.QToolBar(self)  # folds into a "»" menu when the window is narrow
         toolbar.setToolButtonStyle(QtCore.Qt.ToolButtonStyle.ToolButtonTextOnly)
-        toolbar.addActions([self.import_action, self.remap_action, self.auto_baseline_action,
-                            self.remove_action, self.export_action, self.help_action])
+        toolbar.addActions(self.actions)
         bar.addStretch(1)
         self.prediction = PredictionPanel(self)
         self.calorimetry_panel = CalorimetryPanel(self)
         self.comparison = ComparisonTable(self)
-        numbers = QtWidgets.QWidget()
-        column = QtWidgets.QVBoxLayout(numbers)
-        column.setContentsMargins(0, 0, 0, 0)
-        for widget in (self.prediction, self.calorimetry_panel, self.comparison):
-            column.addWidget(widget)
-        column.addStretch(1)
-        scroll = QtWidgets.QScrollArea()
-        scroll.setWidgetResizable(True)
-        scroll.setWidget(numbers)
-        scroll.setMinimumWidth(max(300, numbers.minimumSizeHint().width() + scroll.verticalScrollBar().sizeHint().width() + 4))
-        scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        scroll = scroll_column((self.prediction, self.calorimetry_panel, self.comparison))
         self.plots = KineticsPlots(self)
         self.plots.baseline_dragging.connect(lambda a, b: self._drag_preview(baseline=(a, b)))
         self.plots.baseline_dragged.connect(self._baseline_dragged)
@@ -120,8 +110,7 @@ class KineticsView(QtWidgets.QWidget):
         layout.addWidget(split, 1)
 
     def actions_for_menu(self) -> list:
-        return [self.import_action, self.remap_action, self.auto_baseline_action,
-                self.remove_action, self.export_action, self.help_action]
+        return list(self.actions)
 
     # ---------------------------------------------------------------- refresh
     def index(self) -> int:

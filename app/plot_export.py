@@ -209,3 +209,20 @@ def add_export_button(parent: QtWidgets.QWidget, plot: pg.PlotWidget, suggested_
     button.setObjectName(f"export_{suggested_name}")
     button.clicked.connect(lambda: ask_and_export(parent, plot.getPlotItem(), suggested_name))
     return button
+
+
+def titled_plot(parent, title: str, plot: pg.PlotWidget, name: str) -> QtWidgets.QWidget:
+    """A plot under a one-line title with its "Export…" button (``name``: file name)."""
+    box = QtWidgets.QWidget(parent)
+    header = QtWidgets.QHBoxLayout()
+    label = QtWidgets.QLabel(f"<b>{title}</b>")
+    label.setToolTip(title)
+    label.setSizePolicy(QtWidgets.QSizePolicy.Policy.Ignored, QtWidgets.QSizePolicy.Policy.Preferred)
+    header.addWidget(label, 1)
+    header.addWidget(add_export_button(box, plot, name))
+    layout = QtWidgets.QVBoxLayout(box)
+    layout.setContentsMargins(2, 2, 2, 2)
+    layout.setSpacing(1)
+    layout.addLayout(header)
+    layout.addWidget(plot, 1)
+    return box

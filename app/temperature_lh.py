@@ -14,7 +14,7 @@ from PySide6 import QtCore, QtWidgets
 from analysis.materials import list_materials
 
 from .help_panel import help_button
-from .kinetics_panels import DASH, NumberForm, fmt
+from .kinetics_panels import DASH, FormPanel, fmt
 
 NOT_SET = -300.0  # spin-box minimum shown as "not set"
 TRANSPORT_SETS = {
@@ -142,7 +142,8 @@ class ConstantsForm(QtWidgets.QGroupBox):
             self.material_chosen.emit(self.material.currentData())
 
 
-class LHResults(QtWidgets.QWidget):
+class LHResults(FormPanel):
+    TITLE = "Lauritzen-Hoffman fit"
     ROWS = [
         ("kg", "Kg (95 % CI)", "kg"),
         ("g0", "G0", "lauritzen_hoffman"),
@@ -153,15 +154,9 @@ class LHResults(QtWidgets.QWidget):
     ]
 
     def __init__(self, parent=None):
-        super().__init__(parent)
-        self.form = NumberForm("Lauritzen-Hoffman fit", self.ROWS, self)
-        self.message = QtWidgets.QLabel("", objectName="lh_message")
-        self.message.setWordWrap(True)
-        self.message.setStyleSheet("color: #9a3412;")
-        self.form.layout().addWidget(self.message, len(self.ROWS), 0, 1, 3)
-        layout = QtWidgets.QVBoxLayout(self)
-        layout.setContentsMargins(0, 0, 0, 0)
-        layout.addWidget(self.form)
+        super().__init__(parent, problem_name="lh_message")
+        self.message = self.problem
+        self.add_full_row(self.problem)
 
     def show_fit(self, fit) -> None:
         """``fit``: ``analysis.temperature_series.LHAnalysis``."""
@@ -177,10 +172,6 @@ class LHResults(QtWidgets.QWidget):
         sigma_e = DASH if fit.sigma_e_j_m2 is None else f"{fit.sigma_e_j_m2 * 1e3:.3g} mJ/m²"
         self.form.set("sigma", f"{sigma}, {sigma_e}")
         self.message.setText("; ".join(fit.warnings))
-
-    def clear(self, text: str = "") -> None:
-        self.form.clear()
-        self.message.setText(text)
 
 
 def _kg(regime) -> str:

@@ -10,8 +10,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtWidgets
 
-from .kinetics_plots import COLOURS, _titled
-from .plot_export import styled_plot
+from .kinetics_plots import COLOURS
+from .plot_export import styled_plot, titled_plot
 
 LH_X_SCALE = 1e5  # the linearised plot's abscissa 1/(T ΔT f) is shown in units of 1e-5 K^-2
 _REGIME_BRUSHES = {"I": (37, 99, 235, 28), "II": (22, 163, 74, 28), "III": (217, 119, 6, 32)}
@@ -57,10 +57,10 @@ class TemperaturePlots(QtWidgets.QWidget):
         self._lh_items: list = []
         grid = QtWidgets.QGridLayout(self)
         grid.setContentsMargins(0, 0, 0, 0)
-        grid.addWidget(_titled(self, "Growth rate against Tc", self.growth, "growth_vs_tc"), 0, 0)
-        grid.addWidget(_titled(self, "Nucleation density against Tc", self.density, "density_vs_tc"), 0, 1)
-        grid.addWidget(_titled(self, "Half-time against Tc", self.half_time, "half_time_vs_tc"), 1, 0)
-        grid.addWidget(_titled(self, "Lauritzen-Hoffman plot (regimes shaded)", self.lh,
+        grid.addWidget(titled_plot(self, "Growth rate against Tc", self.growth, "growth_vs_tc"), 0, 0)
+        grid.addWidget(titled_plot(self, "Nucleation density against Tc", self.density, "density_vs_tc"), 0, 1)
+        grid.addWidget(titled_plot(self, "Half-time against Tc", self.half_time, "half_time_vs_tc"), 1, 0)
+        grid.addWidget(titled_plot(self, "Lauritzen-Hoffman plot (regimes shaded)", self.lh,
                                "lauritzen_hoffman"), 1, 1)
 
     def show_growth(self, tc, g, ci95) -> None:

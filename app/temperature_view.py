@@ -20,6 +20,7 @@ from . import temperature_logic as logic
 from . import temperature_export
 from .help_panel import show_help
 from .kinetics_logic import CalorimetryCache, file_stem
+from .kinetics_panels import scroll_column
 from .plot_export import export_plot
 from .temperature_lh import HW_KEY, ConstantsForm, HoffmanWeeksHelper, LHResults
 from .temperature_plots import TemperaturePlots
@@ -77,17 +78,7 @@ class TemperatureView(QtWidgets.QWidget):
         left.addWidget(table_box)
         left.addWidget(self.plots)
         left.setSizes([260, 700])
-        side = QtWidgets.QWidget()
-        column = QtWidgets.QVBoxLayout(side)
-        column.setContentsMargins(0, 0, 0, 0)
-        for widget in (self.constants, self.lh_results, self.hw):
-            column.addWidget(widget)
-        column.addStretch(1)
-        scroll = QtWidgets.QScrollArea()
-        scroll.setWidgetResizable(True)
-        scroll.setWidget(side)
-        scroll.setMinimumWidth(side.minimumSizeHint().width() + scroll.verticalScrollBar().sizeHint().width() + 4)
-        scroll.setHorizontalScrollBarPolicy(QtCore.Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        scroll = scroll_column((self.constants, self.lh_results, self.hw))
         self.split = split = QtWidgets.QSplitter()
         split.addWidget(left)
         split.addWidget(scroll)

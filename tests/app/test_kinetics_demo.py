@@ -4,7 +4,6 @@ dialog, drag the fit window, check the numbers change and that undo restores the
 from __future__ import annotations
 
 import dataclasses
-import gc
 
 import pytest
 
@@ -12,13 +11,8 @@ from analysis.project import load_project
 from app.kinetics_plots import x_to_avrami_y
 from app.kinetics_view import KineticsView
 from app.model import ProjectModel
+from test_kinetics_view import _collect_qt_garbage  # noqa: F401 (autouse fixture)
 
-
-@pytest.fixture(autouse=True)
-def _collect_qt_garbage():
-    """Collect reference cycles (views <-> model signals) while the QApplication still exists."""
-    yield
-    gc.collect()
 
 
 @pytest.fixture

@@ -4,14 +4,13 @@ constants as undoable edits, the fit on an exact synthetic G(Tc) series, Hoffman
 from __future__ import annotations
 
 import csv
-import gc
 
 import openpyxl
 import pytest
 from PySide6 import QtCore, QtWidgets
 
 from app.temperature_view import TemperatureView
-from test_kinetics_view import hand_made_result, model_with
+from test_kinetics_view import _collect_qt_garbage, hand_made_result, model_with  # noqa: F401 (autouse fixture)
 
 # Synthetic single-regime G(Tc) series generated from the LH equation with Tm0 = 185 °C,
 # Tg = -10 °C, T_inf = Tg - 30 K, U* = 6270 J/mol, Kg = 5.5e5 K^2 (exact by construction;
@@ -20,12 +19,6 @@ from test_kinetics_view import hand_made_result, model_with
 FIXTURE_A = {120.0: 92.5056, 125.0: 24.8726, 130.0: 5.0, 135.0: 0.691541, 140.0: 0.0583348,
              145.0: 0.00250379}
 
-
-@pytest.fixture(autouse=True)
-def _collect_qt_garbage():
-    """Collect reference cycles (views <-> model signals) while the QApplication still exists."""
-    yield
-    gc.collect()
 
 
 @pytest.fixture
