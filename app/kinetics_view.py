@@ -14,7 +14,6 @@ import dataclasses
 import os
 from pathlib import Path
 
-import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
@@ -25,7 +24,7 @@ from .help_panel import help_button, show_help
 from .kinetics_panels import (DASH, CalorimetryPanel, ComparisonTable, PredictionPanel, fmt, k_unit,
                               scroll_column)
 from .kinetics_plots import KineticsPlots
-from .plot_export import export_plot
+from .plot_export import export_plots
 
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
@@ -360,20 +359,9 @@ class KineticsView(QtWidgets.QWidget):
 
     def export_figures(self, folder: str | None = None) -> list[str]:
         """Write every plot as PNG and SVG into ``folder`` (asked for when None)."""
-        if folder is None:
-            folder = QtWidgets.QFileDialog.getExistingDirectory(self, "Folder for the kinetics figures")
-            if not folder:
-                return []
         experiment = self.experiment()
         prefix = logic.file_stem(experiment.name if experiment else "kinetics")
-        written = []
-        try:
-            for name, item in self.plots.plot_items().items():
-                figure = export_plot(item, Path(folder) / f"{prefix}_{name}")
-                written += [figure.png_path, figure.svg_path]
-        except (OSError, ValueError) as error:
-            QtWidgets.QMessageBox.critical(self, "Figures not exported", str(error))
-        return written
+        return export_plots(self, self.plots.plot_items(), folder, prefix)
 
 
 def run_alone(view_class, argv: list[str]) -> int:  # pragma: no cover - manual use and docs

@@ -201,6 +201,26 @@ def ask_and_export(parent: QtWidgets.QWidget, item: pg.PlotItem, suggested_name:
         return None
 
 
+def export_plots(parent: QtWidgets.QWidget, items: dict, folder: str | None, prefix: str) -> list[str]:
+    """Every plot of ``items`` (name -> PlotItem) as ``prefix_name``.png/.svg in ``folder``.
+
+    ``folder=None`` asks for it. A failure stops the export and is shown in a dialog
+    naming the file; the paths written so far are returned.
+    """
+    if folder is None:
+        folder = QtWidgets.QFileDialog.getExistingDirectory(parent, "Folder for the figures")
+        if not folder:
+            return []
+    written = []
+    try:
+        for name, item in items.items():
+            figure = export_plot(item, Path(folder) / f"{prefix}_{name}")
+            written += [figure.png_path, figure.svg_path]
+    except (OSError, ValueError) as error:
+        QtWidgets.QMessageBox.critical(parent, "Figures not exported", str(error))
+    return written
+
+
 def add_export_button(parent: QtWidgets.QWidget, plot: pg.PlotWidget, suggested_name: str) -> QtWidgets.QToolButton:
     """A small "Export…" button for one plot (place it in the plot's header row)."""
     button = QtWidgets.QToolButton(parent)

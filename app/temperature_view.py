@@ -21,7 +21,7 @@ from . import temperature_export
 from .help_panel import show_help
 from .kinetics_logic import CalorimetryCache, file_stem
 from .kinetics_panels import scroll_column
-from .plot_export import export_plot
+from .plot_export import export_plots
 from .temperature_lh import HW_KEY, ConstantsForm, HoffmanWeeksHelper, LHResults
 from .temperature_plots import TemperaturePlots
 from .temperature_table import GrowthTable
@@ -217,19 +217,9 @@ class TemperatureView(QtWidgets.QWidget):
             return None
 
     def export_figures(self, folder: str | None = None) -> list[str]:
-        if folder is None:
-            folder = QtWidgets.QFileDialog.getExistingDirectory(self, "Folder for the series figures")
-            if not folder:
-                return []
+        """Write every plot as PNG and SVG into ``folder`` (asked for when None)."""
         prefix = file_stem(Path(self.model.path).stem if self.model.path else "series")
-        written = []
-        try:
-            for name, item in self.plots.plot_items().items():
-                figure = export_plot(item, Path(folder) / f"{prefix}_{name}")
-                written += [figure.png_path, figure.svg_path]
-        except (OSError, ValueError) as error:
-            QtWidgets.QMessageBox.critical(self, "Figures not exported", str(error))
-        return written
+        return export_plots(self, self.plots.plot_items(), folder, prefix)
 
     def write_report(self, folder: str | None = None) -> bool:
         if folder is None:
