@@ -28,6 +28,7 @@ import hashlib
 from dataclasses import dataclass, field
 from typing import Any, Generator, Sequence
 
+import cv2
 import numpy as np
 
 from . import export, growth, nuclei
@@ -59,6 +60,8 @@ class AnalysisSettings:
         Gaussian smoothing of the arrival map before detection, px.
     boundary_band_px : int
         Pixels this close to another territory are left out of the cone fit.
+    apex_exclusion_px : float
+        Pixels this close to the fitted centre are left out of a second fit (0 = none).
     max_fit_pixels : int
         Territories with more usable pixels are subsampled (evenly) for the fit.
     n_sectors : int
@@ -78,6 +81,7 @@ class AnalysisSettings:
     min_territory_px: int = 20
     smooth_px: float = 1.0
     boundary_band_px: int = 2
+    apex_exclusion_px: float = 6.0
     max_fit_pixels: int = 4000
     n_sectors: int = 36
     min_free_fraction: float = 0.25
@@ -138,6 +142,7 @@ class _Context:
     fit_arrival: np.ndarray
     frame_index: np.ndarray
     at_start: np.ndarray
+    near_start: np.ndarray  # crystalline at the start, or within 2 px of it: not fitted
     filled: np.ndarray
     arrival_s: np.ndarray
     markers: nuclei.Markers
@@ -310,8 +315,6 @@ def _split_territory(ctx, labels, det, by_id) -> None:
 
 def _boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
     """Pixels within ``band`` px of another territory (melt and unassigned are neutral)."""
-    import cv2
-
     if band <= 0:
         return np.zeros(labels.shape, bool)
     kernel = np.ones((2 * band + 1, 2 * band + 1), np.uint8)
@@ -356,7 +359,7 @@ def _ignored_mask(frames: np.ndarray, spans) -> np.ndarray:
 def _fit_pixels(ctx, pix, band, spans, settings):
     frames = ctx.frame_index.flat[pix]
     t = ctx.fit_arrival.flat[pix]
-    usable = np.isfinite(t) & ~ctx.at_start.flat[pix] & ~ctx.filled.flat[pix] & (frames >= 0) & \
+    usable = np.isfinite(t) & ~ctx.near_start.flat[pix] & ~ctx.filled.flat[pix] & (frames >= 0) & \
         ~_ignored_mask(frames, spans)
     inner = usable & ~band.flat[pix]
     chosen = pix[inner] if np.count_nonzero(inner) >= 30 else pix[usable]
@@ -375,9 +378,19 @@ def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
         seeds = np.concatenate(det.seeds)
         sy, sx = np.divmod(seeds, ctx.shape[1])
         start = (float(sx.mean()), float(sy.mean()))
-    fit = growth.fit_cone(x, y, ctx.fit_arrival.flat[chosen], ctx.frame_index.flat[chosen],
-                          start_xy=start, f_scale_s=0.5 * ctx.interval_s,
-                          fixed_centre=det.fixed_xy is not None, field_shape=ctx.shape)
+    t, levels = ctx.fit_arrival.flat[chosen], ctx.frame_index.flat[chosen]
+    fixed = det.fixed_xy is not None
+    fit = growth.fit_cone(x, y, t, levels, start_xy=start, f_scale_s=0.5 * ctx.interval_s,
+                          fixed_centre=fixed, field_shape=ctx.shape)
+    if fit.ok and settings.apex_exclusion_px > 0:
+        # Near the apex the measured front is a small, strongly curved disc whose
+        # timing the segmentation blur delays; refit without it.
+        outer = np.hypot(x - fit.x_px, y - fit.y_px) >= settings.apex_exclusion_px
+        if np.count_nonzero(outer) >= 30:
+            refit = growth.fit_cone(x[outer], y[outer], t[outer], levels[outer],
+                                    start_xy=(fit.x_px, fit.y_px), f_scale_s=0.5 * ctx.interval_s,
+                                    fixed_centre=fixed, field_shape=ctx.shape)
+            fit = refit if refit.ok else fit
     ctx.cache[key] = fit
     return fit
 
@@ -670,6 +683,7 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    thickness_um=thickness_um, geometry=geometry, work=work,
                    fit_arrival=growth.dequantised(arrival_s, times),
                    frame_index=np.asarray(arrival.frame_index, np.int32), at_start=at_start,
+                   near_start=cv2.dilate(at_start.astype(np.uint8), np.ones((5, 5), np.uint8)) > 0,
                    filled=filled,
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
