@@ -53,6 +53,29 @@ class KineticsView(QtWidgets.QWidget):
 
     # ---------------------------------------------------------------- layout
     def _build(self) -> None:
+        bar, toolbar = self._build_bar()
+        self.prediction = PredictionPanel(self)
+        self.calorimetry_panel = CalorimetryPanel(self)
+        self.comparison = ComparisonTable(self)
+        scroll = scroll_column((self.prediction, self.calorimetry_panel, self.comparison))
+        self.plots = KineticsPlots(self)
+        self.plots.baseline_dragging.connect(lambda a, b: self._drag_preview(baseline=(a, b)))
+        self.plots.baseline_dragged.connect(self._baseline_dragged)
+        self.plots.window_dragging.connect(lambda a, b: self._drag_preview(window=(a, b)))
+        self.plots.window_dragged.connect(self._window_dragged)
+        self.split = split = QtWidgets.QSplitter()
+        split.addWidget(scroll)
+        split.addWidget(self.plots)
+        split.setStretchFactor(0, 0)
+        split.setStretchFactor(1, 1)
+        layout = QtWidgets.QVBoxLayout(self)
+        layout.setContentsMargins(4, 4, 4, 4)
+        layout.addLayout(bar)
+        layout.addWidget(toolbar)
+        layout.addWidget(split, 1)
+
+    def _build_bar(self) -> tuple[QtWidgets.QHBoxLayout, QtWidgets.QToolBar]:
+        """The experiment, geometry and mode pickers, and the toolbar of actions."""
         self.experiment_picker = QtWidgets.QComboBox(objectName="experiment_picker")
         self.experiment_picker.activated.connect(lambda i: self.model.select(i))
         self.geometry = QtWidgets.QComboBox(objectName="geometry")
@@ -88,25 +111,7 @@ class KineticsView(QtWidgets.QWidget):
         toolbar.setToolButtonStyle(QtCore.Qt.ToolButtonStyle.ToolButtonTextOnly)
         toolbar.addActions(self.actions)
         bar.addStretch(1)
-        self.prediction = PredictionPanel(self)
-        self.calorimetry_panel = CalorimetryPanel(self)
-        self.comparison = ComparisonTable(self)
-        scroll = scroll_column((self.prediction, self.calorimetry_panel, self.comparison))
-        self.plots = KineticsPlots(self)
-        self.plots.baseline_dragging.connect(lambda a, b: self._drag_preview(baseline=(a, b)))
-        self.plots.baseline_dragged.connect(self._baseline_dragged)
-        self.plots.window_dragging.connect(lambda a, b: self._drag_preview(window=(a, b)))
-        self.plots.window_dragged.connect(self._window_dragged)
-        self.split = split = QtWidgets.QSplitter()
-        split.addWidget(scroll)
-        split.addWidget(self.plots)
-        split.setStretchFactor(0, 0)
-        split.setStretchFactor(1, 1)
-        layout = QtWidgets.QVBoxLayout(self)
-        layout.setContentsMargins(4, 4, 4, 4)
-        layout.addLayout(bar)
-        layout.addWidget(toolbar)
-        layout.addWidget(split, 1)
+        return bar, toolbar
 
     def actions_for_menu(self) -> list:
         return list(self.actions)
