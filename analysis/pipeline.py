@@ -578,7 +578,7 @@ def _evaluate(ctx, dets, global_spans, unapplied, settings):
         spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
         nucleation=nucleation, area_fraction_time_s=time_s, area_fraction=fraction,
         avrami_film=film, avrami_predicted=predicted, unapplied_edits=tuple(unapplied),
-        warnings=tuple(_warnings(ctx, spherulites)),
+        warnings=tuple(_warnings(ctx, spherulites, fits)),
         extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
                "geometry": ctx.geometry})
     return result, dict(zip([s.id for s in spherulites], fits)), groups
@@ -604,18 +604,33 @@ def _area_fraction(ctx, global_spans):
     return ctx.times_s[keep] - ctx.isothermal_start_s, fraction[keep]
 
 
-def _nucleation(ctx, spherulites, fits, time_s, fraction):
-    h, w = ctx.shape
-    t0, se = [], []
+def _counted(spherulites, fits, shape) -> list:
+    """(spherulite, fit) pairs that count as nuclei inside the field.
+
+    Nuclei count by their centre (REFERENCES §1.6); edge spherulites never count. A
+    ``few-points`` detection counts only when its cone fit grows within 30 % of the
+    field's median G (common practice): with fewer frames a real late nucleus still
+    grows like its neighbours, whereas dust or a segmentation artefact does not.
+    """
+    h, w = shape
+    g_ok = [s.growth_rate_um_per_min for s in spherulites if s.status == "ok"]
+    g_med = float(np.median(g_ok)) if g_ok else None
+    out = []
     for s, f in zip(spherulites, fits):
-        inside = -0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5
-        if not inside or s.status == "edge":
+        if s.status == "edge" or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
             continue
-        if s.nucleation_time_s is not None:
-            t0.append(s.nucleation_time_s)
-            se.append(f.se_t0_s)
-        elif s.first_seen_s is not None:
-            t0.append(s.first_seen_s - 0.5 * ctx.interval_s)
+        if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
+                                         abs(s.growth_rate_um_per_min / g_med - 1) > 0.30):
+            continue
+        out.append((s, f))
+    return out
+
+
+def _nucleation(ctx, spherulites, fits, time_s, fraction):
+    t0, se = [], []
+    for s, f in _counted(spherulites, fits, ctx.shape):
+        t0.append(s.nucleation_time_s)
+        se.append(f.se_t0_s)
     area = field_area_mm2(ctx.shape, ctx.um_per_px)
     exposure = MeltExposure.from_fraction(time_s, fraction, area)
     end = float(time_s[-1]) if time_s.size else 0.0
@@ -654,8 +669,14 @@ def _predicted_avrami(ctx, pooled, nucleation, burst_density) -> AvramiParameter
         return None
 
 
-def _warnings(ctx, spherulites) -> list[str]:
+def _warnings(ctx, spherulites, fits) -> list[str]:
     out = []
+    few = [s for s in spherulites if s.status == "few-points"]
+    counted = {s.id for s, _ in _counted(spherulites, fits, ctx.shape)}
+    dubious = [s.id for s in few if s.id not in counted]
+    if dubious:
+        out.append(f"{len(dubious)} detections with too little or inconsistent growth are not "
+                   f"counted as nuclei (ids {', '.join(map(str, dubious[:10]))})")
     if not spherulites:
         out.append("no spherulite found in the arrival map")
     if np.all(ctx.at_start | ~np.isfinite(ctx.arrival_s)):
