@@ -61,6 +61,18 @@ def safe_prediction(result, experiment):
         return None
 
 
+def volumetric_density(result, experiment) -> tuple[float | None, float | None]:
+    """(N_V in mm⁻³, film thickness h in µm used): the pipeline's N_V, else N_A / h
+    exactly as ``analysis.avrami`` forms it for the bulk prediction."""
+    nuc = result.nucleation
+    h = experiment.thickness_um or result.thickness_um
+    if nuc.density_per_mm3 is not None:
+        return nuc.density_per_mm3, h
+    if nuc.density_per_mm2 is None or not h:
+        return None, h
+    return nuc.density_per_mm2 / (h * 1e-3), h
+
+
 def material_for(experiment, project) -> str | None:
     """The material whose densities convert calorimetry to a volume basis."""
     source = experiment.calorimetry

@@ -11,6 +11,7 @@ import math
 from PySide6 import QtCore, QtWidgets
 
 from .help_panel import help_button
+from .kinetics_logic import volumetric_density
 
 DASH = "—"
 
@@ -153,11 +154,8 @@ class PredictionPanel(FormPanel):
         found = mode_found or "not determined"
         self.form.set("mode", f"{mode_used or DASH} (analysis: {found})")
         self.form.set("density_areal", fmt(nuc.density_per_mm2, "mm⁻²"))
-        h = experiment.thickness_um or result.thickness_um
+        volumetric, h = volumetric_density(result, experiment)
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
-        volumetric = nuc.density_per_mm3
-        if volumetric is None and nuc.density_per_mm2 is not None and h:
-            volumetric = nuc.density_per_mm2 / (h * 1e-3)
         self.form.set("density_volumetric", fmt(volumetric, "mm⁻³"))
         rates = [fmt(value, unit) for value, unit in ((nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹"),
                                                       (nuc.rate_per_mm3_per_min, "mm⁻³ min⁻¹"))

@@ -20,6 +20,7 @@ from analysis.temperature_series import (
     lh_growth_rate,
 )
 
+from .kinetics_logic import volumetric_density
 from .temperature_lh import HW_KEY
 
 
@@ -68,10 +69,7 @@ def collect(model, cache) -> list[SeriesPoint]:
         if result is None:
             continue
         nuc, growth = result.nucleation, result.growth_rate
-        volumetric = nuc.density_per_mm3
-        h = experiment.thickness_um or result.thickness_um
-        if volumetric is None and nuc.density_per_mm2 is not None and h:
-            volumetric = nuc.density_per_mm2 / (h * 1e-3)
+        volumetric, _h = volumetric_density(result, experiment)
         temperature = experiment.temperature_c if experiment.temperature_c is not None else result.temperature_c
         points.append(SeriesPoint(experiment.name, temperature, growth.value, _half_width(growth),
                                   nuc.density_per_mm2, volumetric, _predicted_half_time(result, experiment),
