@@ -133,7 +133,7 @@ class KineticsView(QtWidgets.QWidget):
             self._rebuild()
 
     def _rebuild(self) -> None:
-        if not self.isVisible() and self._stale is False:
+        if not self.isVisible():  # hidden pages refresh when they are shown (showEvent)
             self._stale = True
             return
         self._stale = False

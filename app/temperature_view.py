@@ -130,7 +130,7 @@ class TemperatureView(QtWidgets.QWidget):
             self._rebuild()
 
     def _rebuild(self) -> None:
-        if not self.isVisible() and not self._stale:
+        if not self.isVisible():  # hidden pages refresh when they are shown (showEvent)
             self._stale = True
             return
         self._stale = False

@@ -219,3 +219,12 @@ def test_unreadable_isotherm_is_reported_in_a_dialog(view, tmp_path, monkeypatch
     assert view.mapping_dialog(str(bad)) is None
     assert "broken_export.csv" in errors[0]
     assert view.model.undo_stack.count() == 0
+
+
+def test_hidden_view_catches_up_when_shown(view):
+    view.hide()
+    view.model.set_experiment_properties(0, geometry="film-2d")
+    assert view.prediction.form.text("n") == "3"  # not recomputed while hidden
+    view.show()
+    assert view.prediction.form.text("n") == "2"
+    assert view.geometry.currentData() == "film-2d"
