@@ -86,7 +86,8 @@ TOPICS: tuple[HelpTopic, ...] = (
         "both. The mode found by the analysis can be overridden when you know better (for example a "
         "nucleating agent).",
         "athermal: N constant;  thermal: N grows ∝ t;  mixed: N = N₀ + Ṅ·t",
-        "The test looks at the count of nuclei per untransformed area over time.",
+        "The analysis decides from how the number of nuclei per unit of untransformed area grows "
+        "with time; the criterion it used is shown as the tooltip of the mode in the kinetics view.",
         _AVRAMI_PAPERS[:1],
     ),
     HelpTopic(
@@ -178,7 +179,7 @@ TOPICS: tuple[HelpTopic, ...] = (
         "The bulk prediction from N_V and G is set beside the calorimetry fit, with the ratio of each "
         "pair. Agreement within the combined uncertainty needs the same Tc and melt history, a true "
         "volume density (surface nuclei accounted for), and a calorimetry n near 3 or 4. Differences "
-        "of a factor 2-5 are common and usually trace to different nucleation densities in a thin "
+        "of a factor 2-5 are common (from memory) and usually trace to different nucleation densities in a thin "
         "film and a bulk pan, or to secondary crystallization.",
         "ratio = microscopy value / calorimetry value (t½ is the most robust to compare)",
         "See the assumptions of N_V = N_A / h and of the calorimetry conversion.",

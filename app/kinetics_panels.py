@@ -153,6 +153,7 @@ class PredictionPanel(FormPanel):
         nuc = result.nucleation
         found = mode_found or "not determined"
         self.form.set("mode", f"{mode_used or DASH} (analysis: {found})")
+        self.form.values["mode"].setToolTip(nuc.mode_test or "")
         self.form.set("density_areal", fmt(nuc.density_per_mm2, "mm⁻²"))
         volumetric, h = volumetric_density(result, experiment)
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
