@@ -322,25 +322,18 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     usable_sample = ~(model.blind | at_start)[::step, ::step]
     reference_sum = first.astype(np.float64)
     reference_count = np.ones(first.shape[:2], np.float64)
-    camera_previous = np.zeros(first.shape[:2], np.float32)
     yield Progress(_STAGE, 1.0 / n, f"frame 1 of {n}")
     for k in range(1, n):
         image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode)
-        sample = (camera_previous[::step, ::step] < 0.5 * threshold) & usable_sample
+        sample = _melt_sample(state, step, threshold) & usable_sample
         gain = segment.frame_gain(image, model, sample)
-        camera = segment.evidence(image, model, gain)
+        diff = segment.melt_difference(image, model, gain)
         if k < settings.reference_frames:
-            _update_reference(model, reference_sum, reference_count, image, gain, camera < 0.5 * threshold)
-        if drift is None:
-            state.shifts[k] = state.shifts[k - 1]
-        elif drift.ever_measured and k % settings.register_every_frames:
-            state.shifts[k] = drift.coast()
-        else:
-            state.shifts[k] = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
-            state.measured[k] = drift.measured
-        specimen = _onto_frame0(camera, state.shifts[k], settings.registration)
+            still_melt = segment.evidence_from_difference(diff, model) < 0.5 * threshold
+            _update_reference(model, reference_sum, reference_count, image, gain, still_melt)
+        state.shifts[k] = _frame_shift(state, drift, diff, model, at_start, k)
+        specimen = segment.evidence_from_difference(diff, model, _applied_shift(state.shifts[k], settings.registration))
         _step(state, specimen.ravel(), k, times, threshold)
-        camera_previous = camera
         yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
     _retire_all(state, times, threshold)
     if drift is not None:
@@ -428,10 +421,34 @@ def _regrid_unseen_drift(state, at_start, start_s):
     state.contrast = np.where(keep, contrast / np.maximum(weight, 1e-6), 0.0).astype(np.float32).ravel()
 
 
-def _onto_frame0(camera, shift, mode):
+def _melt_sample(state, step, threshold):
+    """Pixels for the flicker gain, on the sampling grid: quiet in the previous frame,
+    never detected, and not next to anything detected (extinction arms inside a
+    spherulite look almost like melt, but not quite). Drift is slow enough to ignore."""
+    quiet = state.previous.reshape(state.shape)[::step, ::step] < 0.5 * threshold
+    untouched = (state.status.reshape(state.shape)[::step, ::step] == _MELT).astype(np.uint8)
+    return quiet & cv2.erode(untouched, np.ones((5, 5), np.uint8)).astype(bool)
+
+
+def _frame_shift(state, drift, diff, model, at_start, k):
+    """Drift of frame k: registered on its camera-frame evidence every few frames, and
+    carried along the measured drift velocity in between."""
+    if drift is None:
+        return state.shifts[k - 1]
+    if drift.ever_measured and k % state.settings.register_every_frames:
+        return drift.coast()
+    camera = segment.evidence_from_difference(diff, model)
+    shift = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
+    state.measured[k] = drift.measured
+    return shift
+
+
+def _applied_shift(shift, mode):
+    """The shift used to resample a frame: none when registration is off, or (auto) while
+    the drift is below the tolerance."""
     if mode == "off" or (mode == "auto" and np.max(np.abs(shift)) < AUTO_WARP_TOLERANCE_PX):
-        return camera
-    return warp_onto_reference(camera, shift, border_value=0.0)
+        return (0.0, 0.0)
+    return shift
 
 
 def _step(state, evidence_flat, k, times, threshold):

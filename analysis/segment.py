@@ -37,14 +37,13 @@ from skimage import measure
 
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
-    "blind_pixels", "sample_step", "frame_gain", "evidence", "evidence_threshold", "initial_crystalline",
+    "blind_pixels", "sample_step", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
     "estimate_slowness", "complete_wedges",
 ]
 
 CHANNEL_MODES = ("auto", "grey", "colour")
 _NOISE_FLOOR = 0.3          # DN: below this an integer image is limited by quantization
 _BLIND_TRANSMISSION = 0.35  # darker than this fraction of the local melt: no information
-_TRIM = (10, 90)            # percentiles kept when averaging melt samples for the gain
 
 
 @dataclass
@@ -130,50 +129,97 @@ def sample_step(shape) -> int:
 
 
 def frame_gain(image: np.ndarray, model: MeltModel, melt_sample: np.ndarray) -> np.ndarray:
-    """Per-channel factor that brings this frame's melt back to the reference (flicker).
+    """Factor that brings this frame's melt back to the reference (lamp flicker).
 
     ``melt_sample`` is a boolean mask, on the grid ``[::step, ::step]`` with
-    ``step = sample_step(shape)``, of pixels believed to be melt. Trimmed means are
-    compared; with too few samples or a melt too dark to measure, the gain is 1.
+    ``step = sample_step(shape)``, of pixels believed to be melt. A lamp brightens all
+    colours alike, so one gain serves every channel: the median over the sample of the
+    per-pixel ratio reference / frame (channels summed), robust to the odd crystal pixel
+    in the sample. With fewer than 200 samples or a melt too dark to measure, 1.
     """
-    channels = model.channels
-    gains = np.ones(channels, np.float32)
+    gains = np.ones(model.channels, np.float32)
     if np.count_nonzero(melt_sample) < 200:
         return gains
     step = sample_step(image.shape)
-    now = image[::step, ::step].reshape(-1, channels)[melt_sample.ravel()]
-    ref = model.level[::step, ::step].reshape(-1, channels)[melt_sample.ravel()]
-    for c in range(channels):
-        ref_mean = _trimmed_mean(ref[:, c])
-        now_mean = _trimmed_mean(now[:, c])
-        if ref_mean > 5.0 * model.noise[c] and now_mean > 0:
-            gains[c] = np.clip(ref_mean / now_mean, 0.5, 2.0)
+    now = image[::step, ::step][melt_sample]
+    ref = model.level[::step, ::step][melt_sample]
+    if now.ndim == 2:
+        now, ref = now.sum(axis=1), ref.sum(axis=1)
+    if np.median(ref) < 5.0 * float(np.sum(model.noise)):
+        return gains
+    ratio = ref / np.maximum(now, 1e-6)
+    gains[:] = np.clip(np.median(ratio), 0.5, 2.0)
     return gains
 
 
-def _trimmed_mean(values: np.ndarray) -> float:
-    lo, hi = np.percentile(values, _TRIM)
-    kept = values[(values >= lo) & (values <= hi)]
-    return float(kept.mean()) if kept.size else float(np.mean(values))
-
-
-def evidence(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np.ndarray:
-    """Crystalline evidence of one frame in camera coordinates, float32 (H, W), noise units."""
-    kernel = 2 * int(round(2.0 * model.smoothing_px)) + 1  # ±2σ is plenty, and faster than ±4σ
+def melt_difference(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np.ndarray:
+    """Signed, flicker-corrected difference from the melt in noise units (camera
+    coordinates, float32, channels kept); zero on blind pixels."""
     if model.channels == 1:
         scale = float(gain[0] / model.noise[0])
         diff = cv2.addWeighted(image, scale, model.level, -1.0 / float(model.noise[0]), 0.0)
-        diff = cv2.GaussianBlur(diff, (kernel, kernel), model.smoothing_px)
-        result = np.abs(diff, out=diff)
     else:
         scale = tuple(float(g / s) for g, s in zip(gain, model.noise)) + (0.0,)
         inverse = tuple(float(1.0 / s) for s in model.noise) + (0.0,)
         diff = cv2.subtract(cv2.multiply(image, scale), cv2.multiply(model.level, inverse))
-        diff = cv2.GaussianBlur(diff, (kernel, kernel), model.smoothing_px)
-        result = cv2.transform(np.abs(diff), np.ones((1, model.channels), np.float32))
     if model.any_blind:
-        result[model.blind] = 0.0
-    return result
+        diff[model.blind] = 0.0
+    return diff
+
+
+def evidence_from_difference(diff: np.ndarray, model: MeltModel, shift_yx=(0.0, 0.0)) -> np.ndarray:
+    """Smoothed magnitude of a melt difference, optionally resampled onto frame 0's grid.
+
+    ``out(p) = |G_σ * diff|(p + shift)`` summed over channels: the Gaussian and the
+    bilinear sub-pixel shift are one separable filter, the whole-pixel part a slice, so
+    registering costs no extra pass over the frame. Pixels that were outside the camera
+    field get 0.
+    """
+    dy, dx = float(shift_yx[0]), float(shift_yx[1])
+    whole_y, whole_x = int(np.floor(dy)), int(np.floor(dx))
+    radius = int(round(2.0 * model.smoothing_px))  # ±2σ is plenty, and faster than ±4σ
+    if dy == whole_y and dx == whole_x:
+        smooth = cv2.GaussianBlur(diff, (2 * radius + 1, 2 * radius + 1), model.smoothing_px,
+                                  borderType=cv2.BORDER_REPLICATE)
+    else:
+        kernel_y = _shifted_gaussian(model.smoothing_px, radius, dy - whole_y)
+        kernel_x = _shifted_gaussian(model.smoothing_px, radius, dx - whole_x)
+        smooth = cv2.sepFilter2D(diff, cv2.CV_32F, kernel_x, kernel_y, borderType=cv2.BORDER_REPLICATE)
+    magnitude = np.abs(smooth, out=smooth)
+    if model.channels > 1:
+        magnitude = cv2.transform(magnitude, np.ones((1, model.channels), np.float32))
+    if whole_y == 0 and whole_x == 0:
+        return magnitude
+    return _slide(magnitude, whole_y, whole_x)
+
+
+def _shifted_gaussian(sigma: float, radius: int, fraction: float) -> np.ndarray:
+    """Taps m = -(radius+1)..radius+1 (centred, as OpenCV expects) of a Gaussian followed
+    by a bilinear shift by ``fraction``: h_m = (1-f) g_m + f g_(m-1); h_-(radius+1) = 0."""
+    taps = np.arange(-radius - 1, radius + 2, dtype=np.float64)
+    gauss = np.exp(-0.5 * (taps / sigma) ** 2)
+    gauss[0] = gauss[-1] = 0.0
+    gauss /= gauss.sum()
+    return ((1.0 - fraction) * gauss + fraction * np.roll(gauss, 1)).astype(np.float32)
+
+
+def _slide(image: np.ndarray, dy: int, dx: int) -> np.ndarray:
+    """``out(p) = image(p + (dy, dx))`` for whole pixels, zero where that is outside."""
+    height, width = image.shape[:2]
+    rows = slice(max(-dy, 0), min(height - dy, height))
+    cols = slice(max(-dx, 0), min(width - dx, width))
+    if rows.stop <= rows.start or cols.stop <= cols.start:
+        return np.zeros_like(image)
+    out = np.empty_like(image)
+    out[rows, cols] = image[rows.start + dy:rows.stop + dy, cols.start + dx:cols.stop + dx]
+    out[:rows.start], out[rows.stop:] = 0, 0
+    out[:, :cols.start], out[:, cols.stop:] = 0, 0
+    return out
+
+
+def evidence(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np.ndarray:
+    """Crystalline evidence of one frame in camera coordinates, float32 (H, W), noise units."""
+    return evidence_from_difference(melt_difference(image, model, gain), model)
 
 
 def evidence_threshold(melt_evidence: np.ndarray, sensitivity: float = 1.0) -> float:
@@ -252,6 +298,8 @@ def _remove_small(mask: np.ndarray, min_size_px: int) -> np.ndarray:
 def _fill_compact_objects(mask: np.ndarray, min_solidity: float = 0.6) -> np.ndarray:
     """Fill each object's convex hull when it is nearly convex (a spherulite minus its
     wedges); touching groups of spherulites are left as they are, with holes filled."""
+    if not mask.any():
+        return mask
     filled = ndimage.binary_fill_holes(mask)
     labels = measure.label(filled, connectivity=2)
     for region in measure.regionprops(labels):
