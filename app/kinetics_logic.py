@@ -159,7 +159,7 @@ def compare(result, experiment, calorimetry, material) -> ComparisonView:
          f"{_ratio(root(c.measured_k_per_min_n, c.measured_n), root(c.predicted_k_per_min_n, c.predicted_n))}"
          " (k^(1/n))"),
         (fmt(c.predicted_t_half_min), fmt(c.measured_t_half_min),
-         f"{c.t_half_ratio:.2f} (×/÷ {c.ratio_uncertainty:.2g})"),
+         f"{c.t_half_ratio:.2f} (×/÷ {c.ratio_uncertainty:.3g})"),
     )
     verdict = "Agree." if c.agree else "Disagree beyond the uncertainty."
     return ComparisonView(rows, f"{verdict} {c.note} {curve_note}", (tau, x))

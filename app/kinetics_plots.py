@@ -160,6 +160,10 @@ class KineticsPlots(QtWidgets.QWidget):
             return
         set_axis_labels(self.heat_flow.getPlotItem(), x_label="time t", x_unit="min",
                         y_label=f"heat flow (exotherm {result.exotherm})", y_unit=heat_flow_unit)
+        # the legend goes to the corner the exotherm points away from
+        corner = (1, 0) if result.exotherm == "up" else (1, 1)
+        offset = (-10, 10) if result.exotherm == "up" else (-10, -10)
+        self.heat_flow.getPlotItem().legend.anchor(itemPos=corner, parentPos=corner, offset=offset)
         self.signal_curve.setData(result.time_min, result.heat_flow)
         self.baseline_curve.setData(*self._baseline_segment(result))
         self.induction_line.setVisible(True)
