@@ -291,3 +291,38 @@ def pooled_rate(values, standard_errors) -> PooledRate:
     half = float(stats.t.ppf(0.975, k - 1) / math.sqrt(np.sum(w_star)))
     kind = "random-effects (DerSimonian-Laird)" if tau2 > 0 else "fixed-effect"
     return PooledRate(mean, half, k, tau2, f"{kind} inverse-variance mean of {k}, Q = {q:.3g}")
+
+
+def soft_l1_cost(resid: np.ndarray, f_scale_s: float) -> float:
+    """The soft-L1 cost sum(2 (sqrt(1 + (r/f)^2) - 1)) f^2 / 2 that the fits minimise."""
+    z = (np.asarray(resid, float) / f_scale_s) ** 2
+    return float(0.5 * f_scale_s ** 2 * np.sum(2.0 * (np.sqrt(1.0 + z) - 1.0)))
+
+
+def residual_scale_s(fit: ConeFit, x, y, t) -> float:
+    """Robust scale (1.4826 MAD) of a cone fit's residuals, s."""
+    resid = _residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), np.asarray(x, float),
+                       np.asarray(y, float), np.asarray(t, float))
+    return float(1.4826 * np.median(np.abs(resid - np.median(resid))))
+
+
+def _two_cone_residuals(p, x, y, t):
+    a = p[2] + p[6] * np.hypot(x - p[0], y - p[1])
+    b = p[5] + p[6] * np.hypot(x - p[3], y - p[4])
+    return np.minimum(a, b) - t
+
+
+def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s: float):
+    """Two cones with a common slope (same G), t = min(cone a, cone b), robust fit.
+
+    Used to test whether one territory actually holds two nuclei that were never
+    separated (overlapping already in the first frame, or closer than the flooding
+    resolves). Returns (params [xa, ya, t0a, xb, yb, t0b, s], soft-L1 cost).
+    """
+    x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
+    t0 = float(np.percentile(t, 1)) - slope_s_per_px
+    x0 = np.array([start_a[0], start_a[1], t0, start_b[0], start_b[1], t0, slope_s_per_px])
+    lo = [-np.inf, -np.inf, -np.inf, -np.inf, -np.inf, -np.inf, 1e-9]
+    fit = optimize.least_squares(_two_cone_residuals, x0, args=(x, y, t), loss="soft_l1",
+                                 f_scale=f_scale_s, bounds=(lo, [np.inf] * 7), max_nfev=200)
+    return fit.x, soft_l1_cost(_two_cone_residuals(fit.x, x, y, t), f_scale_s)

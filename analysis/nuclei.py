@@ -222,3 +222,36 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
         if gap[near] <= 3.0 and (known.size == 0 or known.min() > 3.0):
             seeds.append((int(yy[near]), int(xx[near])))
     return seeds
+
+
+def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
+    """Two apexes (x, y) when one territory's pixels are better explained by two cones.
+
+    The two-cone model (common slope) starts from the ends of the principal axis of the
+    territory's earliest 15 % of pixels. It is accepted when its soft-L1 cost is below
+    half that of the single cone, the apexes are at least 3 px apart, each cone reaches
+    at least 15 % of the pixels first, and the common slope is within 25 % of the
+    field's mean slope. Returns None otherwise.
+    """
+    from .growth import _residuals, fit_two_cones, soft_l1_cost
+
+    x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
+    early = t <= np.percentile(t, 15)
+    if np.count_nonzero(early) < 5:
+        return None
+    pts = np.column_stack([x[early], y[early]])
+    centre = pts.mean(axis=0)
+    evals, evecs = np.linalg.eigh(np.cov(pts.T))
+    axis = evecs[:, -1] * max(np.sqrt(max(evals[-1], 0.0)), 1.5)
+    params, cost2 = fit_two_cones(x, y, t, centre - axis, centre + axis, fit.slope_s_per_px,
+                                  f_scale_s=f_scale_s)
+    cost1 = soft_l1_cost(_residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), x, y, t),
+                         f_scale_s)
+    a, b = params[0:2], params[3:5]
+    nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
+        (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
+    share = float(np.mean(nearer_a))
+    if (cost2 < 0.5 * cost1 and np.hypot(*(a - b)) >= 3.0 and 0.15 <= share <= 0.85
+            and abs(params[6] / slope_s_per_px - 1) <= 0.25):
+        return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
+    return None

@@ -711,6 +711,7 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
+    ctx = _with_split_nuclei(ctx, settings)
     yield Progress("fitting growth cones", 0.7)
     for sph in _result(ctx, _auto_detections(ctx), [], [], settings).spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
@@ -732,6 +733,55 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
     labels = ctx.markers.labels.copy()
     for k, (row, col) in enumerate(seeds):
         labels[row, col] = ctx.markers.xy_px.shape[0] + k + 1
+    markers = nuclei.markers_from_labels(labels, ctx.work)
+    base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
+    return dataclasses.replace(ctx, markers=markers, base_territories=base,
+                               auto_lookup_xy=markers.xy_px.copy(), cache={})
+
+
+def _split_pixels(ctx, result, fits, groups, settings) -> dict:
+    """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
+    scale above twice the field's typical one, or non-linear growth."""
+    band = _boundary_band(result.extra["territories"], settings.boundary_band_px)
+    data, scales = {}, {}
+    for sph in result.spherulites:
+        fit = fits[sph.id]
+        if not fit.ok or sph.status == "edge":
+            continue
+        pix = _fit_pixels(ctx, groups.get(sph.id, np.zeros(0, np.int64)), band, [], settings)
+        if pix.size < 100:
+            continue
+        y, x = np.divmod(pix, ctx.shape[1])
+        t = ctx.fit_arrival.flat[pix]
+        scales[sph.id] = growth.residual_scale_s(fit, x, y, t)
+        data[sph.id] = (x, y, t, fit, sph.status)
+    if not scales:
+        return {}
+    typical = float(np.median(list(scales.values())))
+    return {k: v for k, v in data.items() if scales[k] > 2.0 * typical or v[4] == "nonlinear"}
+
+
+def _with_split_nuclei(ctx: _Context, settings) -> _Context:
+    """Give two markers to territories that hold two nuclei (nuclei.split_candidates)."""
+    result, fits, groups = _evaluate(ctx, _auto_detections(ctx), [], [], settings)
+    labels = ctx.markers.labels.copy()
+    next_id = ctx.markers.xy_px.shape[0] + 1
+    for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
+        apexes = nuclei.split_candidates(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
+                                         f_scale_s=0.5 * ctx.interval_s)
+        if apexes is None:
+            continue
+        rows, cols = np.divmod(groups[det_id], ctx.shape[1])
+        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in apexes]
+        spots = [(rows[k], cols[k]) for k in seeds]
+        if spots[0] == spots[1] or any(labels[r, c] not in (0, det_id) for r, c in spots):
+            continue
+        labels[labels == det_id] = 0
+        labels[spots[0]] = det_id
+        labels[spots[1]] = next_id
+        next_id += 1
+    if next_id == ctx.markers.xy_px.shape[0] + 1:
+        return ctx
     markers = nuclei.markers_from_labels(labels, ctx.work)
     base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
     return dataclasses.replace(ctx, markers=markers, base_territories=base,
