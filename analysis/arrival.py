@@ -91,7 +91,7 @@ class ArrivalSettings:
     reference_frames: int = 3
     channel: str = "auto"
     registration: str = "auto"
-    register_every_frames: int = 3
+    register_every_frames: int = 4
     persistence_frames: int = 2
     hysteresis: float = 0.6
     track_frames: int = 12
@@ -315,7 +315,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     state.gate[at_start.ravel()] = np.inf
     state.status[at_start.ravel()] = _DONE
     state.arrival[at_start.ravel()] = times[0]
-    drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None)
+    drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None, crop_px=192)
     if drift is not None:
         drift.update(np.zeros(first.shape[:2], np.float32), np.zeros(first.shape[:2], bool))
     step = segment.sample_step(first.shape)

@@ -166,7 +166,7 @@ def test_grey_flicker_sixteen_bit():
 def test_drift_is_measured_and_undone():
     rec = Recording(size=192, nuclei=[(60, 66, 4.0), (135, 120, 14.0), (45, 150, 30.0)],
                     drift_px_per_frame=(0.12, -0.08), n_frames=40, seed=4)
-    result = arrival_map(rec.stack())
+    result = arrival_map(rec.stack(), settings=ArrivalSettings(register_every_frames=1))
     seen = np.arange(rec.n) >= 12            # once there is crystal texture to register on
     error = np.hypot(*(result.shifts_px[seen] - rec.drift[seen]).T)
     assert np.median(error) < 0.15           # three small spherulites: little to register on
