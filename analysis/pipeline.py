@@ -1,9 +1,13 @@
 """From a time-lapse stack to an :class:`ExperimentResult`, and the user's edits replayed.
 
 Stages: one streaming pass over the frames builds the arrival-time map
-(:mod:`analysis.arrival`); nuclei are its regional minima and territories the watershed
-basins (:mod:`analysis.nuclei`); a cone fit per territory gives centre, nucleation time
-and G (:mod:`analysis.growth`); radii along free directions are measured from the map
+(:mod:`analysis.arrival`); nuclei are its regional minima (:mod:`analysis.nuclei`),
+completed by two checks against the first fits — regions that crystallise earlier than
+any fitted cone predicts hold a nucleus without a minimum, and territories that two
+cones explain far better than one hold two nuclei; territories are the Johnson-Mehl
+cells of the fitted cones (a watershed of the map gives the starting partition); a
+robust cone fit per territory gives centre, nucleation time and G
+(:mod:`analysis.growth`); radii along free directions are measured from the map
 (:mod:`analysis.fronts`); nucleation statistics and X(t) follow
 (:mod:`analysis.nucleation`). Edits change only markers, statuses and frame masks, so
 :func:`apply_edits` re-partitions and refits from cached state without touching frames.
@@ -30,6 +34,8 @@ from typing import Any, Generator, Sequence
 
 import cv2
 import numpy as np
+from scipy import ndimage as ndi
+from skimage.segmentation import watershed
 
 from . import export, growth, nuclei
 from .edits import Edit, nearest_index
@@ -37,8 +43,6 @@ from .errors import InputError
 from .fronts import blocked_distance, front_radii
 from .nucleation import MeltExposure, area_fraction, field_area_mm2, nucleation_statistics
 from .progress import Progress, run_to_completion, scaled
-from scipy import ndimage as ndi
-from skimage.segmentation import watershed
 from .results import (AvramiParameters, ExperimentResult, PooledGrowthRate, RadiusSeries,
                       Spherulite)
 
