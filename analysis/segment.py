@@ -257,12 +257,13 @@ def initial_crystalline(image: np.ndarray, model: MeltModel, threshold: float, *
     # Half of the local maximum marks the front (as for arrival times); the smoothing
     # would otherwise grow every bright object by a pixel or two.
     local_peak = cv2.dilate(frame_evidence, np.ones((7, 7), np.uint8))
-    mask = (frame_evidence >= np.maximum(2.0 * threshold, 0.5 * local_peak)) & ~model.blind
+    loose = (frame_evidence >= 2.0 * threshold) & ~model.blind
+    core = loose & (frame_evidence >= 0.5 * local_peak)
     # Join the four quadrants of a spherulite across its extinction wedges near the centre.
-    mask = cv2.morphologyEx(mask.astype(np.uint8), cv2.MORPH_CLOSE,
-                            cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5))).astype(bool)
-    mask = _remove_small(mask, min_size_px)
-    return _fill_compact_objects(mask)
+    loose = cv2.morphologyEx(loose.astype(np.uint8), cv2.MORPH_CLOSE,
+                             cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5))).astype(bool)
+    loose = _remove_small(loose, min_size_px)
+    return _fill_compact_objects(loose, core & loose)
 
 
 def _spatial_evidence(image, model, mode):
@@ -295,18 +296,32 @@ def _remove_small(mask: np.ndarray, min_size_px: int) -> np.ndarray:
     return keep[labels]
 
 
-def _fill_compact_objects(mask: np.ndarray, min_solidity: float = 0.6) -> np.ndarray:
-    """Fill each object's convex hull when it is nearly convex (a spherulite minus its
-    wedges); touching groups of spherulites are left as they are, with holes filled."""
-    if not mask.any():
-        return mask
-    filled = ndimage.binary_fill_holes(mask)
-    labels = measure.label(filled, connectivity=2)
+def _fill_compact_objects(loose: np.ndarray, core: np.ndarray, min_solidity: float = 0.6) -> np.ndarray:
+    """Objects of the ``loose`` mask that are nearly convex (a spherulite minus its
+    wedges) become the convex hull of their ``core`` (pixels above half the local
+    peak, which places the front where the contrast is half); other objects (touching
+    groups) keep their core, holes filled."""
+    if not loose.any():
+        return loose
+    filled = ndimage.binary_fill_holes(core)
+    labels = measure.label(ndimage.binary_fill_holes(loose), connectivity=2)
     for region in measure.regionprops(labels):
-        if region.solidity >= min_solidity:
-            r0, c0, r1, c1 = region.bbox
-            filled[r0:r1, c0:c1] |= region.image_convex
+        if region.solidity < min_solidity:
+            continue
+        r0, c0, r1, c1 = region.bbox
+        inner = core[r0:r1, c0:c1] & region.image
+        if inner.sum() >= 3:
+            filled[r0:r1, c0:c1] |= _hull(inner)
     return filled
+
+
+def _hull(mask: np.ndarray) -> np.ndarray:
+    """Convex hull of the true pixels of a small mask, same shape."""
+    points = cv2.findNonZero(mask.astype(np.uint8))
+    hull = cv2.convexHull(points)
+    out = np.zeros(mask.shape, np.uint8)
+    cv2.fillConvexPoly(out, hull, 1)
+    return out.astype(bool)
 
 
 def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_px: int = 3,
