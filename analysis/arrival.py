@@ -324,7 +324,8 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     reference_count = np.ones(first.shape[:2], np.float64)
     yield Progress(_STAGE, 1.0 / n, f"frame 1 of {n}")
     for k in range(1, n):
-        image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode)
+        image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode,
+                                                            keep_integers=True)
         sample = _melt_sample(state, step, threshold) & usable_sample
         gain = segment.frame_gain(image, model, sample)
         diff = segment.melt_difference(image, model, gain)

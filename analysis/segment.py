@@ -89,9 +89,16 @@ def resolve_channel_mode(mode: str, frame: np.ndarray) -> str:
     return "colour" if spread > 0.01 * (sample.mean() + 1e-6) else "grey"
 
 
-def working_image(frame: np.ndarray, mode: str) -> np.ndarray:
-    """Frame as float32 in the resolved channel mode (grey: (H, W); colour: (H, W, 3))."""
-    image = np.asarray(frame).astype(np.float32, copy=False)
+def working_image(frame: np.ndarray, mode: str, *, keep_integers: bool = False) -> np.ndarray:
+    """Frame as float32 in the resolved channel mode (grey: (H, W); colour: (H, W, 3)).
+
+    ``keep_integers``: a grey 8/16-bit frame is returned as it is (:func:`melt_difference`
+    converts on the fly, which saves a pass over the frame).
+    """
+    frame = np.asarray(frame)
+    if keep_integers and frame.ndim == 2 and frame.dtype in (np.uint8, np.uint16):
+        return frame
+    image = frame.astype(np.float32, copy=False)
     if image.ndim == 3 and mode == "grey":
         return cv2.cvtColor(image, cv2.COLOR_RGB2GRAY)
     return image
@@ -157,7 +164,7 @@ def melt_difference(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np
     coordinates, float32, channels kept); zero on blind pixels."""
     if model.channels == 1:
         scale = float(gain[0] / model.noise[0])
-        diff = cv2.addWeighted(image, scale, model.level, -1.0 / float(model.noise[0]), 0.0)
+        diff = cv2.addWeighted(image, scale, model.level, -1.0 / float(model.noise[0]), 0.0, dtype=cv2.CV_32F)
     else:
         scale = tuple(float(g / s) for g, s in zip(gain, model.noise)) + (0.0,)
         inverse = tuple(float(1.0 / s) for s in model.noise) + (0.0,)
