@@ -394,7 +394,10 @@ def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
             refit = growth.fit_cone(x[outer], y[outer], t[outer], levels[outer],
                                     start_xy=(fit.x_px, fit.y_px), f_scale_s=0.5 * ctx.interval_s,
                                     fixed_centre=fixed, field_shape=ctx.shape)
-            fit = refit if refit.ok else fit
+            # Without the apex the centre of a cone cut by the border or a neighbour is
+            # poorly pinned: keep the refit only when it confirms the centre.
+            if refit.ok and np.hypot(refit.x_px - fit.x_px, refit.y_px - fit.y_px) <= 1.0:
+                fit = refit
     ctx.cache[key] = fit
     return fit
 
@@ -425,12 +428,12 @@ def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
 
 
 def _edge(ctx, det, fit) -> bool:
-    """Nucleated outside the field: fitted centre outside, or a border minimum whose fit
-    does not put the centre clearly (0.5 px) inside (the nucleus then sits just inside)."""
+    """Nucleated outside the field: the fitted centre lies outside it. (A minimum on the
+    border decides only when there is no fit, see :func:`_status`.) Counting by the
+    fitted centre keeps the count unbiased for nuclei right at the border."""
     h, w = ctx.shape
-    inset = min(fit.x_px + 0.5, fit.y_px + 0.5, w - 0.5 - fit.x_px, h - 0.5 - fit.y_px)
-    on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
-    return det.fixed_xy is None and (inset < 0 or (on_border and inset < 0.5))
+    inside = -0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5
+    return det.fixed_xy is None and not inside
 
 
 def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
@@ -745,12 +748,12 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
 
 def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
-    scale above twice the field's typical one, or non-linear growth."""
+    scale above 1.5 times the field's typical one, or non-linear growth."""
     band = _boundary_band(result.extra["territories"], settings.boundary_band_px)
     data, scales = {}, {}
     for sph in result.spherulites:
         fit = fits[sph.id]
-        if not fit.ok or sph.status == "edge":
+        if not fit.ok:
             continue
         pix = _fit_pixels(ctx, groups.get(sph.id, np.zeros(0, np.int64)), band, [], settings)
         if pix.size < 100:
@@ -762,7 +765,7 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     if not scales:
         return {}
     typical = float(np.median(list(scales.values())))
-    return {k: v for k, v in data.items() if scales[k] > 2.0 * typical or v[4] == "nonlinear"}
+    return {k: v for k, v in data.items() if scales[k] > 1.5 * typical or v[4] == "nonlinear"}
 
 
 def _with_split_nuclei(ctx: _Context, settings) -> _Context:

@@ -98,15 +98,16 @@ def score(sim, result):
            and s.status != "edge"]
     matched_true, matched_det, g_err, t_err, covered = set(), 0, [], [], []
     g_true = p.growth_rate_um_per_min
-    for s in det:
-        if truth.size == 0:
-            break
-        d = np.hypot(truth[:, 0] - s.x_px, truth[:, 1] - s.y_px)
-        k = int(np.argmin(d))
-        if d[k] > tol or k in matched_true:
+    pairs = sorted((float(np.hypot(tx - s.x_px, ty - s.y_px)), i, k)
+                   for i, s in enumerate(det) for k, (tx, ty, _) in enumerate(truth))
+    used_det = set()
+    for dist, i, k in pairs:  # greedy one-to-one matching, closest pairs first
+        if dist > tol or i in used_det or k in matched_true:
             continue
+        used_det.add(i)
         matched_true.add(k)
         matched_det += 1
+        s = det[i]
         if s.status == "ok":
             g_err.append(abs(s.growth_rate_um_per_min / g_true - 1))
             t_err.append(abs(s.nucleation_time_s - truth[k, 2]) / p.interval_s)
