@@ -12,7 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .results import Nucleation
+from .errors import InputError
+from .results import AvramiParameters, Nucleation
 
 
 def area_fraction(arrival_s: np.ndarray, times_s: np.ndarray) -> np.ndarray:
@@ -150,3 +151,38 @@ def field_area_mm2(shape: tuple[int, int], um_per_px: float) -> float:
 
 def is_finite_number(value) -> bool:
     return value is not None and isinstance(value, (int, float)) and math.isfinite(value)
+
+
+def film_avrami(time_s, fraction, induction_s) -> AvramiParameters | None:
+    """Avrami fit of the image's X(t) (2-D law), in min from the induction time."""
+    from .avrami import fit_avrami_curve
+
+    origin = induction_s or 0.0
+    fit = fit_avrami_curve((np.asarray(time_s) - origin) / 60.0, fraction)
+    return fit.to_parameters("film-2d") if fit else None
+
+
+def predicted_avrami(geometry: str, thickness_um: float | None, growth_rate_um_per_min,
+                     nucleation: Nucleation, burst_density_per_mm2) -> AvramiParameters | None:
+    """Avrami n, k, t_half predicted from N (the initial burst), Ndot and the pooled G.
+
+    For ``bulk-3d`` the areal values become volumetric through N_V = N_A / h
+    (REFERENCES §1.7); without a thickness there is no 3-D prediction.
+    """
+    from .avrami import predict_avrami
+
+    if growth_rate_um_per_min is None or nucleation.mode is None:
+        return None
+    density = burst_density_per_mm2 if nucleation.mode != "thermal" else None
+    rate = nucleation.rate_per_mm2_per_min
+    if geometry == "bulk-3d":
+        if not thickness_um:
+            return None
+        h_mm = thickness_um * 1e-3
+        density = None if density is None else density / h_mm
+        rate = None if rate is None else rate / h_mm
+    try:
+        return predict_avrami(geometry, growth_rate_um_per_min, density_per_mm_d=density,
+                              rate_per_mm_d_per_min=rate).to_parameters()
+    except InputError:
+        return None

@@ -255,3 +255,65 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
             and abs(params[6] / slope_s_per_px - 1) <= 0.25):
         return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
     return None
+
+
+def boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
+    """Pixels within ``band`` px of another territory (melt and unassigned are neutral)."""
+    if band <= 0:
+        return np.zeros(labels.shape, bool)
+    kernel = np.ones((2 * band + 1, 2 * band + 1), np.uint8)
+    lab = labels.astype(np.float32)
+    hi = cv2.dilate(lab, kernel)
+    lo = cv2.erode(np.where(labels > 0, lab, np.float32(3e7)), kernel)
+    return (labels > 0) & ((hi != lab) | (lo != lab))
+
+
+def pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
+    """Flat pixel indices of each positive label."""
+    flat = labels.ravel()
+    order = np.argsort(flat, kind="stable")
+    ids, starts = np.unique(flat[order], return_index=True)
+    ends = np.append(starts[1:], flat.size)
+    return {int(i): order[a:b] for i, a, b in zip(ids, starts, ends) if i > 0}
+
+
+def cone_model(shape, groups: dict, cones: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Earliest arrival over the given cones, each evaluated around its territory, and
+    which cone gives it (0 where none reaches).
+
+    ``cones`` maps a territory label to an object with ``ok``, ``x_px``, ``y_px``,
+    ``t0_s`` and ``slope_s_per_px`` (a :class:`analysis.growth.ConeFit`).
+    """
+    h, w = shape
+    best = np.full(shape, np.inf)
+    owner = np.zeros(shape, np.int32)
+    for label, cone in cones.items():
+        pix = groups.get(label)
+        if pix is None or pix.size == 0 or not cone.ok:
+            continue
+        y, x = np.divmod(pix, w)
+        margin = 12 + int(0.5 * max(np.ptp(y), np.ptp(x)))
+        y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
+        x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
+        yy, xx = np.ogrid[y0:y1, x0:x1]
+        t = cone.t0_s + cone.slope_s_per_px * np.hypot(xx - cone.x_px, yy - cone.y_px)
+        view, own = best[y0:y1, x0:x1], owner[y0:y1, x0:x1]
+        better = t < view
+        view[better] = t[better]
+        own[better] = label
+    return best, owner
+
+
+def cone_partition(labels: np.ndarray, groups: dict, cones: dict) -> np.ndarray:
+    """Territories redrawn as the Johnson-Mehl cells of the given cones.
+
+    A watershed of the arrival map floods in arrival order, and where two cones meet
+    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
+    off the true one. Each pixel of a territory with a cone is given instead to the
+    cone (of its own or a nearby territory) that reaches it first, which is the
+    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
+    without a usable cone keep their labels.
+    """
+    best, owner = cone_model(labels.shape, groups, cones)
+    movable = np.isin(labels, [k for k, c in cones.items() if c.ok]) & np.isfinite(best)
+    return np.where(movable, owner, labels).astype(np.int32)

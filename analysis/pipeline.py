@@ -41,9 +41,10 @@ from . import export, growth, nuclei
 from .edits import Edit, nearest_index
 from .errors import InputError
 from .fronts import blocked_distance, front_radii
-from .nucleation import MeltExposure, area_fraction, field_area_mm2, nucleation_statistics
+from .nucleation import (MeltExposure, area_fraction, field_area_mm2, film_avrami,
+                         nucleation_statistics, predicted_avrami)
 from .progress import Progress, run_to_completion, scaled
-from .results import (AvramiParameters, ExperimentResult, PooledGrowthRate, RadiusSeries,
+from .results import (ExperimentResult, PooledGrowthRate, RadiusSeries,
                       Spherulite)
 
 
@@ -317,17 +318,6 @@ def _split_territory(ctx, labels, det, by_id) -> None:
     window[region[y0:y1, x0:x1]] = split[region[y0:y1, x0:x1]]
 
 
-def _boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
-    """Pixels within ``band`` px of another territory (melt and unassigned are neutral)."""
-    if band <= 0:
-        return np.zeros(labels.shape, bool)
-    kernel = np.ones((2 * band + 1, 2 * band + 1), np.uint8)
-    lab = labels.astype(np.float32)
-    hi = cv2.dilate(lab, kernel)
-    lo = cv2.erode(np.where(labels > 0, lab, np.float32(3e7)), kernel)
-    return (labels > 0) & ((hi != lab) | (lo != lab))
-
-
 def _digest(*parts) -> str:
     key = hashlib.sha1()
     for part in parts:
@@ -342,14 +332,6 @@ def _cached(ctx, key, compute):
             ctx.cache.clear()
         ctx.cache[key] = compute()
     return ctx.cache[key]
-
-
-def _pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
-    flat = labels.ravel()
-    order = np.argsort(flat, kind="stable")
-    ids, starts = np.unique(flat[order], return_index=True)
-    ends = np.append(starts[1:], flat.size)
-    return {int(i): order[a:b] for i, a, b in zip(ids, starts, ends) if i > 0}
 
 
 # ---------------------------------------------------------------- per-spherulite fits
@@ -482,43 +464,6 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings):
 
 
 # ---------------------------------------------------------------- whole result
-def _model_map(ctx, groups, fits: dict) -> tuple[np.ndarray, np.ndarray]:
-    """Earliest arrival over the given cones near their territories, and which cone."""
-    h, w = ctx.shape
-    best = np.full(ctx.shape, np.inf)
-    owner = np.zeros(ctx.shape, np.int32)
-    for det_id, fit in fits.items():
-        pix = groups.get(det_id)
-        if pix is None or pix.size == 0 or not fit.ok:
-            continue
-        y, x = np.divmod(pix, w)
-        margin = 12 + int(0.5 * max(np.ptp(y), np.ptp(x)))
-        y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
-        x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
-        yy, xx = np.ogrid[y0:y1, x0:x1]
-        cone = fit.t0_s + fit.slope_s_per_px * np.hypot(xx - fit.x_px, yy - fit.y_px)
-        view, own = best[y0:y1, x0:x1], owner[y0:y1, x0:x1]
-        better = cone < view
-        view[better] = cone[better]
-        own[better] = det_id
-    return best, owner
-
-
-def _cone_partition(ctx, labels, groups, fits: dict) -> np.ndarray:
-    """Territories redrawn as the Johnson-Mehl cells of the given cones.
-
-    A watershed of the arrival map floods in arrival order, and where two cones meet
-    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
-    off the true one. Each pixel of a territory with a cone is given instead to the
-    cone (of its own or a nearby territory) that reaches it first, which is the
-    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
-    without a usable cone keep their labels.
-    """
-    best, owner = _model_map(ctx, groups, fits)
-    movable = np.isin(labels, [k for k, f in fits.items() if f.ok]) & np.isfinite(best)
-    return np.where(movable, owner, labels).astype(np.int32)
-
-
 def _provisional_cones(ctx, live) -> dict:
     """A cone per single-seed detection from its seed (apex, lowest working-map time)
     and the field's mean slope; merged detections get none (they keep their flooding)."""
@@ -539,8 +484,8 @@ def _partition(ctx, dets, global_spans, settings):
     flooded = _territories(ctx, dets)
     cones = _provisional_cones(ctx, live)
     labels = _cached(ctx, ("provisional", _digest(flooded, sorted(cones.items()))),
-                     lambda: _cone_partition(ctx, flooded, _groups(ctx, flooded), cones))
-    band = _boundary_band(labels, settings.boundary_band_px)
+                     lambda: nuclei.cone_partition(flooded, _groups(ctx, flooded), cones))
+    band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
     fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings)
@@ -548,11 +493,11 @@ def _partition(ctx, dets, global_spans, settings):
     single = {k: f for k, f in fits.items() if len(by_seeds[k]) == 1} if (
         by_seeds := {d.id: d.seeds for d in live}) else {}
     return _cached(ctx, ("final", _digest(labels, sorted(single.items()))),
-                   lambda: _cone_partition(ctx, labels, groups, single))
+                   lambda: nuclei.cone_partition(labels, groups, single))
 
 
 def _groups(ctx, labels):
-    return _cached(ctx, ("groups", _digest(labels)), lambda: _pixel_groups(labels))
+    return _cached(ctx, ("groups", _digest(labels)), lambda: nuclei.pixel_groups(labels))
 
 
 def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
@@ -562,7 +507,7 @@ def _result(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
 def _evaluate(ctx, dets, global_spans, unapplied, settings):
     """The result, and the final fits by detection id and their pixel groups."""
     labels = _partition(ctx, dets, global_spans, settings)
-    band = _boundary_band(labels, settings.boundary_band_px)
+    band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
     spherulites, radii, fits = [], [], []
@@ -577,8 +522,9 @@ def _evaluate(ctx, dets, global_spans, unapplied, settings):
     pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
-    film = _film_avrami(time_s, fraction, nucleation.induction_time_s)
-    predicted = _predicted_avrami(ctx, pooled, nucleation, burst_density)
+    film = film_avrami(time_s, fraction, nucleation.induction_time_s)
+    predicted = predicted_avrami(ctx.geometry, ctx.thickness_um, pooled.value, nucleation,
+                                 burst_density)
     result = ExperimentResult(
         stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
         temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
@@ -646,36 +592,6 @@ def _nucleation(ctx, spherulites, fits, time_s, fraction):
                                  end_s=end, t0_se_s=se)
 
 
-def _film_avrami(time_s, fraction, induction_s) -> AvramiParameters | None:
-    """Avrami fit of the image's X(t) (2-D law), in min from the induction time."""
-    from .avrami import fit_avrami_curve
-
-    origin = induction_s or 0.0
-    fit = fit_avrami_curve((np.asarray(time_s) - origin) / 60.0, fraction)
-    return fit.to_parameters("film-2d") if fit else None
-
-
-def _predicted_avrami(ctx, pooled, nucleation, burst_density) -> AvramiParameters | None:
-    """Avrami n, k, t_half predicted from N (burst part), Ndot and pooled G."""
-    from .avrami import predict_avrami
-
-    if pooled.value is None or nucleation.mode is None:
-        return None
-    h_mm = ctx.thickness_um * 1e-3 if ctx.thickness_um else None
-    density = burst_density if nucleation.mode != "thermal" else None
-    rate = nucleation.rate_per_mm2_per_min
-    if ctx.geometry == "bulk-3d":
-        if h_mm is None:
-            return None
-        density = None if density is None else density / h_mm
-        rate = None if rate is None else rate / h_mm
-    try:
-        return predict_avrami(ctx.geometry, pooled.value, density_per_mm_d=density,
-                              rate_per_mm_d_per_min=rate).to_parameters()
-    except InputError:
-        return None
-
-
 def _warnings(ctx, spherulites, fits) -> list[str]:
     out = []
     few = [s for s in spherulites if s.status == "few-points"]
@@ -728,7 +644,7 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
 def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
     """Add markers for nuclei without a regional minimum (see nuclei.missed_nuclei)."""
     result, fits, groups = _evaluate(ctx, _auto_detections(ctx), [], [], settings)
-    model, _ = _model_map(ctx, groups, fits)
+    model, _ = nuclei.cone_model(ctx.shape, groups, fits)
     measured = np.isfinite(ctx.fit_arrival) & ~ctx.filled & ~ctx.at_start & (ctx.frame_index >= 0)
     seeds = nuclei.missed_nuclei(
         ctx.fit_arrival, measured, model, frames=ctx.frame_index, interval_s=ctx.interval_s,
@@ -749,7 +665,7 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
 def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
     scale above 1.5 times the field's typical one, or non-linear growth."""
-    band = _boundary_band(result.extra["territories"], settings.boundary_band_px)
+    band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
     data, scales = {}, {}
     for sph in result.spherulites:
         fit = fits[sph.id]
