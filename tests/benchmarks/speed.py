@@ -3,7 +3,8 @@
 The reference is a minimal pass in the same run: read every frame, difference against
 the first, threshold, label connected components with OpenCV. Prints the ratio
 analyze / minimal, frames per second, peak traced memory (tracemalloc; numpy reports
-its buffers to it) against the stack size, and the time of one edit replay (a click).
+its buffers to it) against the stack size, the share of the growth analysis that
+starts from the arrival map, and the time of one edit replay (a click).
 
 Usage: python tests/benchmarks/speed.py [--frames 300] [--size 1024] [--keep DIR]
 """
@@ -26,7 +27,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 from analysis import synthetic  # noqa: E402
 from analysis.edits import AddNucleus, DeleteDetection  # noqa: E402
 from analysis.frames import open_stack  # noqa: E402
-from analysis.pipeline import analyze, apply_edits  # noqa: E402
+from analysis.pipeline import analyze, analyze_arrival, apply_edits  # noqa: E402
 
 
 def minimal_pass(stack) -> int:
@@ -53,6 +54,13 @@ def measured(fn, *args, **kwargs):
     return value, elapsed, peak
 
 
+def timed(fn, *args) -> float:
+    """Wall time of one call, without tracemalloc (it slows allocation-heavy code)."""
+    started = time.perf_counter()
+    fn(*args)
+    return time.perf_counter() - started
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--frames", type=int, default=300)
@@ -76,8 +84,9 @@ def main() -> int:
         result = analysis.result
         ok = [s for s in result.spherulites if s.status == "ok"]
         target = ok[len(ok) // 2]
-        _, t_click, _ = measured(apply_edits, analysis, [AddNucleus(target.x_px + 25, target.y_px)])
-        _, t_click2, _ = measured(apply_edits, analysis, [DeleteDetection(target.x_px, target.y_px)])
+        _, t_growth, peak_growth = measured(analyze_arrival, analysis.arrival)
+        t_click = timed(apply_edits, analysis, [AddNucleus(target.x_px + 25, target.y_px)])
+        t_click2 = timed(apply_edits, analysis, [DeleteDetection(target.x_px, target.y_px)])
     n = len(stack)
     print(f"\nstack: {n} frames of {args.size}x{args.size} {stack.dtype} ({size_mb:.0f} MB), "
           f"{len(result.spherulites)} spherulites found\n")
@@ -86,6 +95,8 @@ def main() -> int:
           f"{peak_min / 1e6:.0f} |")
     print(f"| analyze (arrival map, nuclei, fits, radii, nucleation) | {t_an:.1f} | {n / t_an:.1f} | "
           f"{peak_an / 1e6:.0f} |")
+    print(f"| of which growth analysis from the arrival map (analyze_arrival) | {t_growth:.1f} | | "
+          f"{peak_growth / 1e6:.0f} |")
     print(f"| one click: add a nucleus (apply_edits) | {t_click:.2f} | | |")
     print(f"| one click: delete a detection (apply_edits) | {t_click2:.2f} | | |")
     print(f"\nratio analyze / minimal pass: {t_an / t_min:.2f} (target <= 3); peak memory "
