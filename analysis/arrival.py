@@ -308,7 +308,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     raw1 = _checked_frame(next(frames), stack, 1)
     mode = segment.resolve_channel_mode(settings.channel, raw0)
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
-    model, threshold, at_start = _set_up(first, second, settings, mode)
+    model, threshold, at_start = _set_up(first, second, settings, mode, integer_data=raw0.dtype.kind in "ui")
     state = _PassState(first.shape[:2], n, settings)
     state.gate[:] = threshold
     state.threshold = threshold
@@ -332,6 +332,8 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
         if k < settings.reference_frames:
             still_melt = segment.evidence_from_difference(diff, model) < 0.5 * threshold
             _update_reference(model, reference_sum, reference_count, image, gain, still_melt)
+        elif reference_sum is not None:
+            reference_sum = reference_count = None  # done: free the accumulators
         state.shifts[k] = _frame_shift(state, drift, diff, model, at_start, k)
         specimen = segment.evidence_from_difference(diff, model, _applied_shift(state.shifts[k], settings.registration))
         _step(state, specimen.ravel(), k, times, threshold)
@@ -357,9 +359,9 @@ def _checked_frame(frame, stack, index) -> np.ndarray:
     return frame
 
 
-def _set_up(first, second, settings, mode):
+def _set_up(first, second, settings, mode, *, integer_data):
     """Melt model, detection threshold and frame-0 crystals from the first two frames."""
-    noise = segment.temporal_noise(first, second)
+    noise = segment.temporal_noise(first, second, integer_data=integer_data)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
                               smoothing_px=settings.smoothing_px)
     ones = np.ones(model.channels, np.float32)

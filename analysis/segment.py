@@ -104,11 +104,14 @@ def working_image(frame: np.ndarray, mode: str, *, keep_integers: bool = False) 
     return image
 
 
-def temporal_noise(first: np.ndarray, second: np.ndarray) -> np.ndarray:
-    """Per-channel noise sigma from two frames: 1.4826·MAD(difference)/√2, floored."""
-    diff = (second - first).reshape(-1, 1 if first.ndim == 2 else first.shape[2])
+def temporal_noise(first: np.ndarray, second: np.ndarray, *, integer_data: bool = True) -> np.ndarray:
+    """Per-channel noise sigma from two frames: 1.4826·MAD(difference)/√2, floored at the
+    quantization noise of integer data (or a millionth of the range of float data)."""
+    first = np.asarray(first, np.float32)
+    diff = (np.asarray(second, np.float32) - first).reshape(-1, 1 if first.ndim == 2 else first.shape[2])
     mad = np.median(np.abs(diff - np.median(diff, axis=0)), axis=0)
-    return np.maximum(1.4826 * mad / np.sqrt(2.0), _NOISE_FLOOR).astype(np.float32)
+    floor = _NOISE_FLOOR if integer_data else max(1e-6 * float(np.ptp(first)), 1e-12)
+    return np.maximum(1.4826 * mad / np.sqrt(2.0), floor).astype(np.float32)
 
 
 def blind_pixels(level: np.ndarray, noise: np.ndarray, exclude: np.ndarray | None = None) -> np.ndarray:

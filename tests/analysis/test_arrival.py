@@ -289,3 +289,23 @@ def test_simulated_sixteen_bit_flicker_leaves_the_melt_alone():
     interval = sim.params.interval_s
     melt = sim.arrival_s > sim.times_s[-1] + 3 * interval
     assert np.mean(np.isfinite(result.arrival_s[melt])) < 0.002
+
+
+def test_float_frames_and_grey_content_stored_as_rgb():
+    rec = Recording(n_frames=15)
+    as_float = ArrayStack(lambda k: rec.frame(k).astype(np.float32) / 255, rec.n, (128, 128), rec.times_s,
+                          dtype=np.float32)
+    as_rgb = ArrayStack(lambda k: np.dstack([rec.frame(k)] * 3), rec.n, (128, 128, 3), rec.times_s)
+    for stack in (as_float, as_rgb):
+        result = arrival_map(stack)
+        assert result.channel == "grey"
+        done = rec.crystallised()
+        assert np.median(_errors_in_frames(result, rec, done)) <= 0.5
+
+
+def test_a_recording_without_crystals_stays_melt():
+    rng = np.random.default_rng(9)
+    stack = ArrayStack(lambda k: rng.integers(5, 15, (64, 64)).astype(np.uint8), 8, (64, 64), np.arange(8.0))
+    result = arrival_map(stack)
+    assert not np.isfinite(result.arrival_s).any()
+    assert np.isnan(result.slowness_s_per_px)
