@@ -552,7 +552,7 @@ def _pooled(spherulites, fits, um_per_px) -> tuple[PooledGrowthRate, str]:
 
 
 def _area_fraction(ctx, global_spans):
-    fraction = area_fraction(ctx.arrival_s, ctx.times_s)
+    fraction = _cached(ctx, ("area fraction",), lambda: area_fraction(ctx.arrival_s, ctx.times_s))
     keep = ~_ignored_mask(np.arange(ctx.frames), global_spans)
     return ctx.times_s[keep] - ctx.isothermal_start_s, fraction[keep]
 
