@@ -65,6 +65,10 @@ class ArrivalSettings:
     min_size_px : int
         Crystalline patches smaller than this (px) in the final map are noise and removed;
         also the smallest object accepted as crystalline in frame 0.
+    start_frame : int
+        First frame analysed; it and the next frames give the melt reference. Earlier
+        frames (the sample still settling at Tc, focus being adjusted) are skipped, and
+        the map's ``times_s``, ``frame_index`` and ``shifts_px`` cover the frames used.
     reference_frames : int
         Frames averaged (where still melt) into the melt reference.
     channel : str
@@ -88,6 +92,7 @@ class ArrivalSettings:
 
     sensitivity: float = 1.0
     min_size_px: int = 12
+    start_frame: int = 0
     reference_frames: int = 3
     channel: str = "auto"
     registration: str = "auto"
@@ -104,6 +109,8 @@ class ArrivalSettings:
             problems.append("sensitivity must be a positive number")
         if self.min_size_px < 1:
             problems.append("min_size_px must be at least 1")
+        if self.start_frame < 0:
+            problems.append("start_frame must not be negative")
         if self.reference_frames < 1:
             problems.append("reference_frames must be at least 1")
         if self.channel not in segment.CHANNEL_MODES:
@@ -203,10 +210,10 @@ class ArrivalMap:
         return np.searchsorted(ordered, self.times_s, side="right") / max(ordered.size, 1)
 
 
-def _checked_stack(stack) -> tuple[np.ndarray, float]:
+def _checked_stack(stack, start_frame: int = 0) -> tuple[np.ndarray, float]:
     path = getattr(stack, "path", None)
-    if len(stack) < 2:
-        raise InputError("needs at least two frames to measure arrival times", path)
+    if len(stack) - start_frame < 2:
+        raise InputError(f"needs at least two frames from frame {start_frame} on to measure arrival times", path)
     if stack.times_s is None:
         raise InputError("frame times are unknown (give the frame interval)", path)
     times = np.asarray(stack.times_s, np.float64)
@@ -218,7 +225,7 @@ def _checked_stack(stack) -> tuple[np.ndarray, float]:
     shape = tuple(stack.frame_shape)
     if len(shape) < 2 or shape[0] < 48 or shape[1] < 48:
         raise InputError(f"frames of shape {shape} are too small to analyse (48×48 px at least)", path)
-    return times, float(um)
+    return times[start_frame:], float(um)
 
 
 class _Cohort:
@@ -301,11 +308,11 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
         Missing calibration or times, too few or too small frames, a frame of the wrong
         shape or containing NaN.
     """
-    times, um_per_px = _checked_stack(stack)
-    n = len(stack)
-    frames = stack.iter_frames()
-    raw0 = _checked_frame(next(frames), stack, 0)
-    raw1 = _checked_frame(next(frames), stack, 1)
+    times, um_per_px = _checked_stack(stack, settings.start_frame)
+    n = times.size
+    frames = stack.iter_frames(settings.start_frame)
+    raw0 = _checked_frame(next(frames), stack, settings.start_frame)
+    raw1 = _checked_frame(next(frames), stack, settings.start_frame + 1)
     mode = segment.resolve_channel_mode(settings.channel, raw0)
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
     model, threshold, at_start = _set_up(first, second, settings, mode, integer_data=raw0.dtype.kind in "ui")
@@ -324,7 +331,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     reference_count = np.ones(first.shape[:2], np.float64)
     yield Progress(_STAGE, 1.0 / n, f"frame 1 of {n}")
     for k in range(1, n):
-        image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, k), mode,
+        image = second if k == 1 else segment.working_image(_checked_frame(next(frames), stack, settings.start_frame + k), mode,
                                                             keep_integers=True)
         sample = _melt_sample(state, step, threshold) & usable_sample
         gain = segment.frame_gain(image, model, sample)

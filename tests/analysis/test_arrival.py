@@ -275,6 +275,7 @@ def test_simulated_crossed_polarizers_with_drift_and_dust():
     assert np.median(errors) <= 0.5 and np.percentile(errors, 90) <= 1.0
     drift_error = np.hypot(*(result.shifts_px - sim.drift_px).T)[10:]
     assert np.median(drift_error) < 0.1
+    assert np.max(np.abs(result.crystalline_fraction - sim.area_fraction)) < 0.01
 
 
 def test_simulated_retardation_plate_with_bands_and_drift():
@@ -309,3 +310,16 @@ def test_a_recording_without_crystals_stays_melt():
     result = arrival_map(stack)
     assert not np.isfinite(result.arrival_s).any()
     assert np.isnan(result.slowness_s_per_px)
+
+
+def test_start_frame_skips_early_frames():
+    rec = Recording(n_frames=30)
+    stack = rec.stack()
+    original = stack._render
+    stack._render = lambda k: np.full_like(original(k), 255) if k < 3 else original(k)  # e.g. lamp being set
+    result = arrival_map(stack, settings=ArrivalSettings(start_frame=3))
+    assert result.times_s.shape == (27,) and result.times_s[0] == rec.times_s[3]
+    done = rec.crystallised() & (rec.truth_s > rec.times_s[3])
+    assert np.median(_errors_in_frames(result, rec, done)) <= 0.5
+    with pytest.raises(InputError, match="at least two frames"):
+        arrival_map(stack, settings=ArrivalSettings(start_frame=29))
