@@ -22,13 +22,16 @@ maps such a frame back onto frame 0's grid: ``out(p) = frame(p + shift)``.
 Registration modes (``ArrivalSettings.registration``):
 
 - ``"off"``: no estimation, every shift is zero.
-- ``"on"``: estimate and warp every frame.
-- ``"auto"`` (default): estimate every frame (cheap, on a crop) but warp only when the
-  cumulative shift exceeds :data:`AUTO_WARP_TOLERANCE_PX`, so a steady stage costs no
-  resampling (and no interpolation smoothing) at all.
+- ``"on"``: estimate the drift and resample every frame.
+- ``"auto"`` (default): estimate it, but resample only when the cumulative shift
+  exceeds :data:`AUTO_WARP_TOLERANCE_PX`, so a steady stage costs no resampling (and
+  no interpolation smoothing) at all.
 
-While no frame has enough specimen texture (a featureless melt), drift cannot be seen
-and is not needed; the shift is held at its last value until content appears.
+Drift is slow and smooth, so the arrival pass registers every few frames and
+:meth:`DriftTracker.coast` carries the shift along the fitted drift velocity in between.
+While no frame has enough specimen texture (a featureless melt), drift cannot be seen;
+the shift is held at zero until content appears, and :func:`extrapolate_unseen_drift`
+afterwards extends the measured drift back to frame 0 along a straight line.
 """
 
 from __future__ import annotations

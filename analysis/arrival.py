@@ -9,8 +9,9 @@ Per frame (see :func:`arrival_map_iter`):
 
 1. crystalline evidence against the melt, in camera coordinates (:mod:`analysis.segment`:
    flicker gain, per-channel noise units, dust and illumination cancelled);
-2. drift of the specimen, estimated on that evidence (:mod:`analysis.align`) and
-   undone by resampling the evidence onto frame 0's grid;
+2. drift of the specimen, estimated on that evidence every few frames (only where
+   crystal has settled, so growing fronts are not read as motion; :mod:`analysis.align`)
+   and undone by resampling the evidence onto frame 0's grid, fused with its smoothing;
 3. detection: a melt pixel whose evidence reaches the threshold starts being *tracked*;
    it must stay above ``hysteresis × threshold`` for ``persistence_frames`` frames
    (flicker and noise spikes do not), otherwise it goes back to melt;
