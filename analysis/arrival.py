@@ -52,6 +52,9 @@ _NEVER, _UNUSABLE = -1, -2
 _MELT, _TRACKING, _DONE = 0, 1, 2
 _SETTLE_FRAMES = 6  # frames after detection before a pixel's content is steady enough to register on
 _MIN_HISTORY = 4    # columns of evidence (pre-detection frame included) needed to judge a plateau
+# Plateau (in thresholds) above which a pixel's half-plateau crossing lies after its
+# pre-detection frame, so its time is not limited by the threshold.
+_RELIABLE_CONTRAST = 2.5
 
 
 @dataclass(frozen=True)
@@ -523,7 +526,7 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
     filled = np.zeros(shape, bool)
     slowness = float("nan")
     if state.settings.fill_wedges:
-        reliable = np.isfinite(arrival) & ~at_start & (contrast >= 4.0 * threshold)
+        reliable = np.isfinite(arrival) & ~at_start & (contrast >= _RELIABLE_CONTRAST * threshold)
         slowness = segment.estimate_slowness(arrival, reliable)
         completed = segment.complete_wedges(np.where(reliable | at_start, arrival, np.inf), slowness)
         gap = ~np.isfinite(arrival) & (completed <= times[-1])
