@@ -182,7 +182,8 @@ class ArrivalMap:
     unusable : ndarray of bool, (H, W)
         Pixels hidden by dense dust (NaN in ``arrival_s``).
     filled : ndarray of bool, (H, W)
-        Arrival inferred from the growth geometry, not seen (extinction wedges, bands).
+        Arrival inferred from the growth geometry (extinction wedges, dark bands, faint
+        pixels seen only late), not measured.
     contrast : ndarray, float32, (H, W)
         Plateau evidence after the front passed, in noise units (0 where not measured).
     evidence_threshold : float
@@ -530,9 +531,10 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
         slowness = segment.estimate_slowness(arrival, reliable)
         completed = segment.complete_wedges(np.where(reliable | at_start, arrival, np.inf), slowness)
         gap = ~np.isfinite(arrival) & (completed <= times[-1])
+        # Faint pixels seen late (threshold-limited timing): the geometry knows better.
         weak = np.isfinite(arrival) & ~reliable & ~at_start & (completed < arrival)
-        filled = gap
-        arrival = np.where(gap | weak, completed, arrival).astype(np.float32)
+        filled = gap | weak
+        arrival = np.where(filled, completed, arrival).astype(np.float32)
     arrival[unusable] = np.nan
     filled &= ~unusable
     index = np.searchsorted(times, arrival.astype(np.float64), side="left").astype(np.int32)
