@@ -353,9 +353,10 @@ def _fit_pixels(ctx, pix, band, spans, settings):
     return chosen[::step]
 
 
-def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
+def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True) -> growth.ConeFit:
+    """Cone fit of one territory (cached); ``refine`` adds the refit without the apex."""
     chosen = _fit_pixels(ctx, pix, band, spans, settings)
-    key = ("cone", hashlib.sha1(chosen.tobytes()).hexdigest(), det.fixed_xy)
+    key = ("cone", hashlib.sha1(chosen.tobytes()).hexdigest(), det.fixed_xy, refine)
     if key in ctx.cache:
         return ctx.cache[key]
     y, x = np.divmod(chosen, ctx.shape[1])
@@ -368,7 +369,7 @@ def _cone(ctx, det, pix, band, spans, settings) -> growth.ConeFit:
     fixed = det.fixed_xy is not None
     fit = growth.fit_cone(x, y, t, levels, start_xy=start, f_scale_s=0.5 * ctx.interval_s,
                           fixed_centre=fixed, field_shape=ctx.shape)
-    if fit.ok and settings.apex_exclusion_px > 0:
+    if refine and fit.ok and settings.apex_exclusion_px > 0:
         # Near the apex the measured front is a small, strongly curved disc whose
         # timing the segmentation blur delays; refit without it.
         outer = np.hypot(x - fit.x_px, y - fit.y_px) >= settings.apex_exclusion_px
@@ -488,8 +489,8 @@ def _partition(ctx, dets, global_spans, settings):
     band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
-    fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings)
-            for d in live}
+    fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings,
+                        refine=False) for d in live}
     single = {k: f for k, f in fits.items() if len(by_seeds[k]) == 1} if (
         by_seeds := {d.id: d.seeds for d in live}) else {}
     return _cached(ctx, ("final", _digest(labels, sorted(single.items()))),
@@ -659,7 +660,7 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
     markers = nuclei.markers_from_labels(labels, ctx.work)
     base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
     return dataclasses.replace(ctx, markers=markers, base_territories=base,
-                               auto_lookup_xy=markers.xy_px.copy(), cache={})
+                               auto_lookup_xy=markers.xy_px.copy())
 
 
 def _split_pixels(ctx, result, fits, groups, settings) -> dict:
@@ -708,7 +709,7 @@ def _with_split_nuclei(ctx: _Context, settings) -> _Context:
     markers = nuclei.markers_from_labels(labels, ctx.work)
     base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
     return dataclasses.replace(ctx, markers=markers, base_territories=base,
-                               auto_lookup_xy=markers.xy_px.copy(), cache={})
+                               auto_lookup_xy=markers.xy_px.copy())
 
 
 def _check_inputs(arrival, thickness_um, geometry, path) -> None:
