@@ -75,3 +75,44 @@ def test_minimum_on_the_border_is_flagged():
 def test_snap_to_minimum_finds_the_cone_apex_near_a_click():
     exact = growth.model_arrival_map((60, 60), [[30.0, 25.0]], [0.0], 1.0).astype(np.float32)
     assert nuclei.snap_to_minimum(exact, 32.0, 27.0, 3.0) == (25, 30)
+
+
+def test_two_cones_in_one_territory_are_split_near_their_apexes():
+    # Two simultaneous nuclei 9 px apart seen as one blob: the Johnson-Mehl map of the
+    # pair (Johnson & Mehl 1939, Trans. AIME 135, 416) is fitted far better by two cones.
+    times = np.arange(0.0, 200.0, 2.0)
+    apexes = np.array([[40.0, 40.0], [49.0, 44.0]])
+    exact = growth.model_arrival_map((90, 90), apexes, [0.0, 0.0], 0.5)
+    yy, xx = np.nonzero(exact > 20.0)  # as if the first 20 s were already crystalline
+    t = exact[yy, xx]
+    frames = np.searchsorted(times, t)
+    single = growth.fit_cone(xx, yy, t, frames, start_xy=(44.0, 42.0), f_scale_s=1.0)
+    found = nuclei.split_candidates(xx, yy, t, single, slope_s_per_px=2.0, f_scale_s=1.0)
+    assert found is not None
+    got = np.array(sorted(found))
+    assert np.allclose(got, apexes, atol=0.5)
+
+
+def test_single_cone_is_not_split():
+    exact = growth.model_arrival_map((90, 90), [[45.0, 45.0]], [0.0], 0.5)
+    yy, xx = np.nonzero(exact > 4.0)
+    t = exact[yy, xx] + np.random.default_rng(2).normal(0, 0.5, yy.size)
+    frames = (t // 2).astype(int)
+    fit = growth.fit_cone(xx, yy, t, frames, start_xy=(45.0, 45.0), f_scale_s=1.0)
+    assert nuclei.split_candidates(xx, yy, t, fit, slope_s_per_px=2.0, f_scale_s=1.0) is None
+
+
+def test_nucleus_missing_from_the_fits_is_found_from_their_deficit():
+    # A nucleus born shortly before a neighbour's front reaches it may have too shallow a
+    # minimum to be detected, but its pixels crystallise earlier than the neighbour's
+    # fitted cone predicts (Johnson-Mehl cells: Johnson & Mehl 1939, Trans. AIME 135, 416).
+    times = np.arange(0.0, 300.0, 2.0)
+    neighbour = growth.model_arrival_map((100, 160), [[20.0, 50.0]], [0.0], 1.0)
+    late = growth.model_arrival_map((100, 160), [[80.0, 50.0]], [50.0], 1.0)  # front arrives at 60 s
+    arrival = np.minimum(neighbour, late)
+    frames = np.searchsorted(times, arrival)
+    seeds = nuclei.missed_nuclei(arrival, np.ones(arrival.shape, bool), neighbour, frames=frames,
+                                 interval_s=2.0, slope_s_per_px=1.0, existing_xy=[(20.0, 50.0)])
+    assert len(seeds) == 1
+    row, col = seeds[0]
+    assert abs(col - 80) <= 3 and abs(row - 50) <= 3
