@@ -189,9 +189,15 @@ class ArrivalMap:
     evidence_threshold : float
         Detection threshold used, noise units.
     slowness_s_per_px : float
-        Median |∇t| used to fill wedges (1/G in s/px); NaN when not measured.
+        Typical |∇t| used to fill wedges (1/G in s/px); NaN when not measured.
     channel : str
         Channel mode used (``"grey"`` or ``"colour"``).
+    before_start_s : ndarray, float32, (H, W)
+        For pixels crystalline at start only (NaN elsewhere): their arrival extrapolated
+        back from the growth measured around them, ``max_q t(q) − |p − q|/G`` (exact on
+        a cone when p lies between its nucleus and a measured pixel). An estimate, not
+        an observation: it lets nuclei and cones be found inside crystals that were
+        already there when the recording began.
     """
 
     arrival_s: np.ndarray
@@ -206,6 +212,7 @@ class ArrivalMap:
     evidence_threshold: float
     slowness_s_per_px: float
     channel: str
+    before_start_s: np.ndarray
 
     @property
     def crystalline_fraction(self) -> np.ndarray:
@@ -525,10 +532,10 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
     arrival = _drop_specks(arrival, state.settings.min_size_px)
     unusable = _unusable(model.blind, state.shifts)
     filled = np.zeros(shape, bool)
-    slowness = float("nan")
+    reliable = np.isfinite(arrival) & ~at_start & (contrast >= _RELIABLE_CONTRAST * threshold)
+    slowness = segment.estimate_slowness(arrival, reliable)
+    before_start = _extrapolated_before_start(arrival, reliable, at_start, slowness)
     if state.settings.fill_wedges:
-        reliable = np.isfinite(arrival) & ~at_start & (contrast >= _RELIABLE_CONTRAST * threshold)
-        slowness = segment.estimate_slowness(arrival, reliable)
         completed = segment.complete_wedges(np.where(reliable | at_start, arrival, np.inf), slowness)
         gap = ~np.isfinite(arrival) & (completed <= times[-1])
         # Faint pixels seen late (threshold-limited timing): the geometry knows better.
@@ -544,8 +551,19 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
         arrival_s=arrival, frame_index=index, crystalline_at_start=at_start & ~unusable,
         shifts_px=state.shifts, times_s=times, um_per_px=um_per_px, unusable=unusable,
         filled=filled, contrast=contrast, evidence_threshold=float(threshold),
-        slowness_s_per_px=slowness, channel=mode,
+        slowness_s_per_px=slowness, channel=mode, before_start_s=before_start,
     )
+
+
+def _extrapolated_before_start(arrival, reliable, at_start, slowness):
+    """max_q t(q) − slowness·|p − q| over reliable q, for frame-0 crystals (NaN elsewhere):
+    the mirror image of wedge completion, run on −t."""
+    out = np.full(arrival.shape, np.nan, np.float32)
+    if not at_start.any() or not np.isfinite(slowness):
+        return out
+    backwards = -segment.complete_wedges(np.where(reliable, -arrival, np.inf), slowness)
+    out[at_start] = np.where(np.isfinite(backwards[at_start]), backwards[at_start], np.nan)
+    return out
 
 
 def _drop_specks(arrival, min_size_px):

@@ -185,6 +185,10 @@ def test_late_start_crystals_present_in_frame_zero():
     assert np.all(result.arrival_s[found] == rec.times_s[0])
     later = rec.crystallised() & (rec.truth_s > rec.times_s[0] + 3.0)
     assert np.median(_errors_in_frames(result, rec, later)) <= 0.5
+    interval = rec.times_s[1] - rec.times_s[0]
+    back = np.abs(result.before_start_s[found & present] - rec.truth_s[found & present]) / interval
+    assert np.median(back) <= 1.0                      # extrapolated inside the old crystals
+    assert np.all(np.isnan(result.before_start_s[~found]))
 
 
 def test_pass_streams_every_frame_once_and_reports_progress():
