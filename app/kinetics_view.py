@@ -224,6 +224,9 @@ class KineticsView(QtWidgets.QWidget):
         try:
             result = self.calorimetry.analyze(source)
         except InputError as error:
+            if self._preview:  # mid-drag: say why, but leave the plots and the band alone
+                self.calorimetry_panel.problem.setText(f"Not usable: {error}")
+                return None
             self._report_once("Calorimetry isotherm not analysed", str(error))
             self.calorimetry_panel.clear(str(error))
             self.plots.show_calorimetry(None, "mW")

@@ -228,3 +228,12 @@ def test_hidden_view_catches_up_when_shown(view):
     view.show()
     assert view.prediction.form.text("n") == "2"
     assert view.geometry.currentData() == "film-2d"
+
+
+def test_unusable_position_mid_drag_keeps_the_band(view, isotherm_csv, monkeypatch):
+    monkeypatch.setattr(QtWidgets.QMessageBox, "warning", lambda *args: pytest.fail("no dialog mid-drag"))
+    _import(view, isotherm_csv[0])
+    start, _end = view.plots.baseline_region.getRegion()
+    view.plots.baseline_dragging.emit(start, start + 0.1)  # does not bracket the peak
+    assert view.plots.baseline_region.isVisible()
+    assert "Not usable" in view.calorimetry_panel.problem.text()
