@@ -614,7 +614,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     times = np.asarray(arrival.times_s, dtype=float)
     arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
     yield Progress("finding nuclei", 0.1)
-    at_start = np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0])
+    at_start = _solid_start(np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0]),
+                            arrival_s, times)
     filled = np.asarray(getattr(arrival, "filled", np.zeros(arrival_s.shape, bool)), bool)
     # Inferred (filled) arrivals are not evidence of a minimum: detect on measured pixels.
     work = nuclei.working_map(np.where(filled, np.float32(np.nan), arrival_s), times,
@@ -635,11 +636,31 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
-    ctx = _with_split_nuclei(ctx, settings)
+    for _ in range(2):  # a second round separates clusters of three
+        before = ctx.markers.xy_px.shape[0]
+        ctx = _with_split_nuclei(ctx, settings)
+        if ctx.markers.xy_px.shape[0] == before:
+            break
     yield Progress("fitting growth cones", 0.7)
     for sph in _result(ctx, _auto_detections(ctx), [], [], settings).spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
     return ctx
+
+
+def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray) -> np.ndarray:
+    """Crystals present in frame 0 as solid regions.
+
+    Their extinction arms are dark in frame 0, so the crystalline-at-start mask comes
+    with gaps that the next frame fills; left as they are, each fragment would look like
+    a nucleus of its own. Gaps up to ~6 px wide that were crystalline by frame 1 are
+    closed and enclosed holes filled.
+    """
+    if not at_start.any():
+        return at_start
+    disk = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (7, 7))
+    closed = cv2.morphologyEx(at_start.astype(np.uint8), cv2.MORPH_CLOSE, disk) > 0
+    by_frame_1 = arrival_s <= times[min(1, times.size - 1)]
+    return at_start | ndi.binary_fill_holes(closed & (by_frame_1 | at_start))
 
 
 def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
@@ -698,15 +719,18 @@ def _with_split_nuclei(ctx: _Context, settings) -> _Context:
         rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in apexes]
         spots = [(rows[k], cols[k]) for k in seeds]
-        if spots[0] == spots[1] or any(labels[r, c] not in (0, det_id) for r, c in spots):
+        # A marker in the way that never gave a cone fit was a fragment of this nucleus.
+        others = {int(labels[r, c]) for r, c in spots} - {0, det_id}
+        if spots[0] == spots[1] or any(k not in fits or fits[k].ok for k in others):
             continue
-        labels[labels == det_id] = 0
+        labels[np.isin(labels, [det_id, *others])] = 0
         labels[spots[0]] = det_id
         labels[spots[1]] = next_id
         next_id += 1
     if next_id == ctx.markers.xy_px.shape[0] + 1:
         return ctx
-    markers = nuclei.markers_from_labels(labels, ctx.work)
+    _, contiguous = np.unique(labels, return_inverse=True)  # removed fragments leave gaps
+    markers = nuclei.markers_from_labels(contiguous.reshape(labels.shape), ctx.work)
     base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
     return dataclasses.replace(ctx, markers=markers, base_territories=base,
                                auto_lookup_xy=markers.xy_px.copy())
