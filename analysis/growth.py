@@ -180,10 +180,12 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
     else:
         lo, hi = _centre_bounds(field_shape)
         x0 = np.array([np.clip(cx, lo[0], hi[0]), np.clip(cy, lo[1], hi[1]), t0, s])
+        # Unbounded trust region (much cheaper per step); the bounds are checked after.
         fit = optimize.least_squares(_residuals, x0, jac=_jacobian, args=(x, y, t),
-                                     loss="soft_l1", f_scale=f_scale_s,
-                                     bounds=(lo + [-np.inf, 1e-9], hi + [np.inf, np.inf]))
+                                     loss="soft_l1", f_scale=f_scale_s)
         p = fit.x
+        if not (lo[0] <= p[0] <= hi[0] and lo[1] <= p[1] <= hi[1]):
+            return failed_fit("cone apex far outside the field", t.size, n_levels)
         jac = _jacobian(p, x, y, t)
     if p[3] <= 0 or not np.all(np.isfinite(p)):
         return failed_fit("cone fit did not converge to a growing front", t.size, n_levels)

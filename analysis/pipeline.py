@@ -405,7 +405,7 @@ def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
     ok = np.isfinite(samples.radius_px)
     frame_ids = np.flatnonzero(ok)
     used = (samples.free_fraction[ok] >= settings.min_free_fraction) & \
-        (samples.radius_px[ok] >= 3.0) & ~_ignored_mask(frame_ids, spans)
+        (samples.radius_px[ok] >= 3.0) & ~_ignored_mask(frame_ids, spans)  # < 3 px: pixel-limited
     return RadiusSeries(det_id, ctx.times_s[ok] - ctx.isothermal_start_s,
                         samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
 
