@@ -139,9 +139,9 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
         density_per_mm3=None if h_mm is None else n_a / h_mm,
         rate_per_mm2_per_min=rate_min,
         rate_per_mm3_per_min=None if (rate_min is None or h_mm is None) else rate_min / h_mm,
-        induction_time_s=max(0.0, float(t.min())), mode_test=text)
-    burst_density = None if mode == "thermal" else n_burst / field_area_mm2
-    return nucleation, burst_density
+        induction_time_s=max(0.0, float(t.min())), mode_test=text,
+        burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2)
+    return nucleation, nucleation.burst_density_per_mm2
 
 
 def field_area_mm2(shape: tuple[int, int], um_per_px: float) -> float:

@@ -77,6 +77,9 @@ class Nucleation:
     rate_per_mm3_per_min: float | None
     induction_time_s: float | None
     mode_test: str = ""  # the statistical criterion used and its outcome, in words
+    # Nuclei of the initial burst per mm^2 (the predetermined part; for "mixed" this is
+    # the athermal density, smaller than density_per_mm2 which counts every nucleus).
+    burst_density_per_mm2: float | None = None
 
 
 @dataclass(frozen=True)
