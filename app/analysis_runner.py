@@ -6,12 +6,16 @@ the table and the viewer fill in while the rest are still running.
 
 from __future__ import annotations
 
+import time
 from typing import Any, Iterable
 
 from PySide6.QtCore import QObject, QThreadPool, Signal
 
 from . import model as m
 from .worker import GeneratorWorker
+
+
+PROGRESS_INTERVAL_S = 0.05
 
 
 def _analyze_experiment_iter(experiment: Any):
@@ -38,6 +42,7 @@ class AnalysisRunner(QObject):
         self._worker: GeneratorWorker | None = None
         self._running_index = -1
         self._running_experiment: Any = None
+        self._last_stage, self._last_emit_s = None, 0.0
         model.experiments_removed.connect(self._on_removed)
         model.experiments_inserted.connect(self._on_inserted)
         model.project_replaced.connect(self._on_project_replaced)
@@ -102,6 +107,7 @@ class AnalysisRunner(QObject):
         index = self._queue.pop(0)
         experiment = self._model.experiment(index)
         self._running_index, self._running_experiment = index, experiment
+        self._last_stage, self._last_emit_s = None, 0.0
         self._model.set_status(index, m.STATUS_RUNNING, "starting")
         worker = GeneratorWorker(lambda: _analyze_experiment_iter(experiment))
         worker.signals.yielded.connect(self._on_progress)
@@ -113,8 +119,15 @@ class AnalysisRunner(QObject):
         worker.start(self._pool)
 
     def _on_progress(self, report: Any) -> None:
-        if self._running_index >= 0:
-            self.progressed.emit(self._running_index, report)
+        """Forward progress, at most every 50 ms unless the stage changes."""
+        now = time.monotonic()
+        stage = getattr(report, "stage", None)
+        if self._running_index < 0:
+            return
+        if stage == self._last_stage and now - self._last_emit_s < PROGRESS_INTERVAL_S:
+            return
+        self._last_stage, self._last_emit_s = stage, now
+        self.progressed.emit(self._running_index, report)
 
     def _on_returned(self, analysis: Any) -> None:
         index = self._running_index

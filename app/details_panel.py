@@ -120,7 +120,7 @@ class DetailsPanel(QTabWidget):
         model.selection_changed.connect(lambda *_: self.refresh())
         model.analysis_updated.connect(self._on_index_event)
         model.experiment_changed.connect(self._on_index_event)
-        model.status_changed.connect(self._on_index_event)
+        model.status_changed.connect(self._on_status_changed)
         model.project_replaced.connect(self.refresh)
         self.refresh()
 
@@ -146,6 +146,20 @@ class DetailsPanel(QTabWidget):
         if index == self._model.current_index:
             self.refresh()
 
+    def _on_status_changed(self, index: int) -> None:
+        if index == self._model.current_index and self._model.selected_spherulite() is None:
+            self._show_summary(index)  # cheap: the tables do not change with the status
+
+    def _show_summary(self, index: int) -> None:
+        selected = self._model.selected_spherulite()
+        result = self._model.result(index)
+        if selected is not None:
+            self.summary.setHtml(spherulite_html(selected, result.um_per_px))
+        else:
+            self.summary.setHtml(experiment_html(self._model.experiment(index), result,
+                                                 self._model.status(index),
+                                                 self._model.status_message(index)))
+
     def refresh(self) -> None:
         index = self._model.current_index
         if index < 0:
@@ -156,13 +170,7 @@ class DetailsPanel(QTabWidget):
             self.edits_note.setText("")
             return
         result = self._model.result(index)
-        selected = self._model.selected_spherulite()
-        if selected is not None:
-            self.summary.setHtml(spherulite_html(selected, result.um_per_px))
-        else:
-            self.summary.setHtml(experiment_html(self._model.experiment(index), result,
-                                                 self._model.status(index),
-                                                 self._model.status_message(index)))
+        self._show_summary(index)
         self._fill_table(result)
         self._fill_edits(index, result)
 

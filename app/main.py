@@ -118,7 +118,9 @@ def present_interesting_frame(window: Any) -> None:
     result = model.result(model.current_index)
     if result is not None and result.spherulites:
         ok = [s for s in result.spherulites if s.status == "ok"] or list(result.spherulites)
-        model.select_spherulite(ok[len(ok) // 2].id)
+        height, width = window.model.frame_stack(model.current_index).frame_shape[:2]
+        central = min(ok, key=lambda s: (s.x_px - width / 2) ** 2 + (s.y_px - height / 2) ** 2)
+        model.select_spherulite(central.id)
 
 
 def _interactive(app: Any, project: str | None, view: str | None) -> int:

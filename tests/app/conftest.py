@@ -34,9 +34,10 @@ def write_disc_stack(path: Path, *, frames: int = 6, size: int = 64, um_per_px: 
         for cy, cx in centres:
             data[t][(yy - cy) ** 2 + (xx - cx) ** 2 <= (rate_px_per_frame * t) ** 2] = 200
     data += np.random.default_rng(0).integers(0, 20, data.shape, dtype=np.uint8)
-    kwargs = {"metadata": {"axes": "TYX", "unit": "um", "finterval": interval_s}}
-    if um_per_px is not None:
+    kwargs = {"metadata": {"axes": "TYX", "finterval": interval_s}}
+    if um_per_px is not None:  # no unit and no resolution: a stack without a scale
         kwargs["resolution"] = (1 / um_per_px, 1 / um_per_px)
+        kwargs["metadata"]["unit"] = "um"
     tifffile.imwrite(path, data, imagej=True, photometric="minisblack", **kwargs)
     return path
 

@@ -1,0 +1,149 @@
+"""Dialogs, correction tools, stack import and the window's unsaved-changes guard."""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QSettings
+
+from analysis.edits import (
+    AddNucleus, DeleteDetection, ExcludeSpherulite, IncludeSpherulite, MergeDetections,
+    MoveCentre,
+)
+from analysis.errors import InputError
+from app import model as m
+from app.calibration import CalibrationDialog, scale_um_per_px
+from app.main_window import MainWindow
+from app.properties_dialog import PropertiesDialog, parse_optional_number, parse_times
+from app.stack_import import experiments_from_paths, temperature_from_name
+
+import fake_pipeline
+from conftest import write_disc_stack
+
+
+@pytest.fixture
+def window(qtbot, tmp_path, monkeypatch, small_project):
+    monkeypatch.setitem(sys.modules, "analysis.pipeline", fake_pipeline)
+    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
+    win = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
+    win.ask_unsaved_changes = lambda: "discard"  # never block on a modal question
+    qtbot.addWidget(win)
+    win.open_project_path(small_project.path, ask=False)
+    win.runner.run_sync([0, 1])
+    win.show()
+    return win
+
+
+def test_number_and_times_parsing():
+    assert parse_optional_number(" 0,42 ", "scale", positive=True, optional=True) == 0.42
+    assert parse_optional_number("", "scale", positive=True, optional=True) is None
+    with pytest.raises(InputError, match="must be a positive number"):
+        parse_optional_number("-3", "scale", positive=True, optional=True)
+    with pytest.raises(InputError, match="not a number"):
+        parse_optional_number("abc", "Tc", positive=False, optional=True)
+    assert parse_times("0, 2.5 5") == (0.0, 2.5, 5.0)
+    with pytest.raises(InputError, match="increasing"):
+        parse_times("0 5 3")
+
+
+def test_properties_dialog_changes_are_one_undo_entry(window):
+    dialog = PropertiesDialog(window.model.experiment(0))
+    dialog.numbers["temperature_c"].setText("129.5")
+    dialog.numbers["thickness_um"].setText("25")
+    dialog.notes.setPlainText("slight drift")
+    changes = dialog.changes()
+    assert changes == {"temperature_c": 129.5, "thickness_um": 25.0, "notes": "slight drift"}
+    window.model.set_experiment_properties(0, "Edit properties", **changes)
+    assert window.model.undo_stack.count() == 1
+    assert window.experiments_panel.item(0, 1).text() == "129.5"
+    assert window.model.status(0) == m.STATUS_STALE
+    window.undo()
+    assert window.model.experiment(0).temperature_c == 128.0
+
+
+def test_calibration_line_gives_scale_and_applies_to_all_in_one_step(window, qtbot):
+    dialog = CalibrationDialog(np.zeros((120, 160), np.uint8))
+    qtbot.addWidget(dialog)
+    dialog.set_line(10, 20, 110, 20)
+    dialog.known_um.setValue(50.0)
+    assert dialog.length_px() == pytest.approx(100.0)
+    assert dialog.um_per_px == pytest.approx(0.5)
+    assert scale_um_per_px(0.0, 10.0) is None
+    window.apply_calibration(0.5, to_all=True)
+    assert [e.um_per_px for e in window.model.experiments()] == [0.5, 0.5]
+    assert window.model.undo_stack.count() == 1
+    window.undo()
+    assert [e.um_per_px for e in window.model.experiments()] == [None, None]
+
+
+def test_stack_without_scale_shows_a_warning(window, tmp_path):
+    bare = write_disc_stack(tmp_path / "no_scale_131C.tif", um_per_px=None)
+    assert window.add_stack_paths([str(bare)]) == 1
+    assert window.model.experiment(2).temperature_c == 131.0
+    assert window.model.current_index == 2
+    assert not window.viewer._banner.isHidden()
+    assert "no scale" in window.viewer._banner.text()
+
+
+def test_bad_stack_is_reported_with_its_name(tmp_path):
+    broken = tmp_path / "broken.tif"
+    broken.write_bytes(b"not a tiff at all")
+    experiments, problems = experiments_from_paths([broken])
+    assert experiments == [] and len(problems) == 1 and str(broken) in problems[0]
+    assert temperature_from_name("film_132.5C_b") == 132.5
+
+
+def test_tools_turn_clicks_into_single_edits(window):
+    model, tools = window.model, window.tools
+    first, second = model.result(0).spherulites[:2]
+    tools.set_tool("delete")
+    tools.click(first.x_px + 1, first.y_px - 1)
+    assert model.experiment(0).edits[-1] == DeleteDetection(first.x_px, first.y_px)
+    window.undo()
+    tools.set_tool("merge")
+    tools.click(first.x_px, first.y_px)
+    assert model.experiment(0).edits == ()  # first click only remembers
+    tools.click(second.x_px, second.y_px)
+    assert model.experiment(0).edits == (MergeDetections(first.x_px, first.y_px,
+                                                         second.x_px, second.y_px),)
+    tools.set_tool("move")
+    tools.click(second.x_px, second.y_px)
+    tools.click(second.x_px + 3.0, second.y_px)
+    assert model.experiment(0).edits[-1] == MoveCentre(second.x_px, second.y_px,
+                                                       second.x_px + 3.0, second.y_px)
+    assert model.undo_stack.count() == 2
+    tools.set_tool("add")
+    tools.click(5.0, 6.0)
+    assert model.experiment(0).edits[-1] == AddNucleus(5.0, 6.0)
+
+
+def test_exclude_tool_toggles_include(window):
+    model, tools = window.model, window.tools
+    target = model.result(0).spherulites[0]
+    tools.set_tool("exclude")
+    tools.click(target.x_px, target.y_px)
+    assert model.experiment(0).edits[-1] == ExcludeSpherulite(target.x_px, target.y_px)
+    assert model.result(0).spherulites[0].status == "excluded"
+    tools.click(target.x_px, target.y_px)
+    assert model.experiment(0).edits[-1] == IncludeSpherulite(target.x_px, target.y_px)
+
+
+def test_selection_is_shared_by_viewer_table_and_plots(window):
+    target = window.model.result(0).spherulites[1]
+    window.tools.set_tool("select")
+    window.tools.click(target.x_px, target.y_px)
+    assert window.model.selected_id == target.id
+    assert window.details.table.currentRow() == 1
+    window.details.table.selectRow(0)
+    assert window.model.selected_id == window.model.result(0).spherulites[0].id
+
+
+def test_close_with_unsaved_changes_asks(window, qtbot):
+    window.model.push_edit(0, AddNucleus(3.0, 3.0))
+    assert window.isWindowModified() and window.windowTitle().startswith("small.spherokin.json")
+    window.ask_unsaved_changes = lambda: "cancel"
+    assert not window.close() and window.isVisible()
+    window.ask_unsaved_changes = lambda: "discard"
+    assert window.close()
