@@ -63,6 +63,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),
     ActionSpec("next_frame", "&Next frame", "next_frame", "View", "."),
     ActionSpec("previous_frame", "P&revious frame", "previous_frame", "View", ","),
+    ActionSpec("help", "&Help and cautions", "show_help_panel", "Help", K.HelpContents,
+               tip="What each number means, how it is computed, and hot-stage cautions"),
     ActionSpec("about", "&About spherokin", "show_about", "Help"),
 )
 

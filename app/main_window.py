@@ -340,6 +340,15 @@ class MainWindow(WindowFilesMixin, QMainWindow):
     def redo(self) -> None:
         self.model.undo_stack.redo()
 
+    def show_help_panel(self) -> None:
+        """The help panel (``app.help_panel``) if installed, else the About box."""
+        try:
+            from .help_panel import show_help
+        except ImportError:
+            self.show_about()
+            return
+        show_help("cautions")
+
     def show_about(self) -> None:
         QMessageBox.about(self, f"About {APP_NAME}",
                           f"<b>{APP_NAME}</b><br>Spherulite growth rates, nucleation and "
