@@ -22,6 +22,7 @@ TRANSPORT_SETS = {
     "WLF": (17238.0, 51.6),
 }
 HW_KEY = "hoffman_weeks_pairs"
+_SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞"}
 
 
 def _spin(name: str, suffix: str, low: float, high: float, decimals: int = 1) -> QtWidgets.QDoubleSpinBox:
@@ -120,7 +121,8 @@ class ConstantsForm(QtWidgets.QGroupBox):
         if key == "t_inf_c" and self.t_inf_auto.isChecked():
             return
         if self.series.get(key) != value:
-            self._changed({key: value}, f"Set {spin.objectName().replace('_', ' ')}")
+            shown = "not set" if value is None else f"{value:g}{spin.suffix()}"
+            self._changed({key: value}, f"Set {_SYMBOLS[key]} = {shown}")
 
     def _auto_toggled(self, auto: bool) -> None:
         self.t_inf.setEnabled(not auto)

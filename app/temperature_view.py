@@ -50,6 +50,8 @@ class TemperatureView(QtWidgets.QWidget):
     # ---------------------------------------------------------------- layout
     def _build(self) -> None:
         self.table = GrowthTable(self)
+        self.table.view.doubleClicked.connect(self._row_activated)
+        self.table.view.setToolTip("Double-click a row to make it the current experiment")
         self.plots = TemperaturePlots(self)
         self.constants = ConstantsForm(self)
         self.constants.series_edited.connect(self._series_edited)
@@ -176,6 +178,16 @@ class TemperatureView(QtWidgets.QWidget):
         except InputError as error:
             estimate, problem = None, error.problem
         self.hw.show_estimate(estimate, problem)
+
+    def _row_activated(self, index) -> None:
+        """Make the experiment of a double-clicked row the current one (kinetics, viewer)."""
+        row = self.table.shown_rows()[index.row()]
+        header = self.table.header()
+        name = row[header.index("experiment")]
+        for i, experiment in enumerate(self.model.experiments()):
+            if experiment.name == name:
+                self.model.select(i)
+                return
 
     # ---------------------------------------------------------------- edits (one undo entry each)
     def _series_edited(self, series: dict, text: str) -> None:

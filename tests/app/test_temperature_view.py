@@ -168,3 +168,13 @@ def test_regimes_are_detected_and_shaded(qtbot, tmp_path):
     assert "break at" in view.lh_results.form.text("regimes")
     bands = [item for item in view.plots.lh.getPlotItem().items if isinstance(item, pg.LinearRegionItem)]
     assert len(bands) == 2
+
+
+def test_double_click_selects_the_experiment_and_undo_text_names_the_constant(view):
+    table = view.table
+    tc_col = table.header().index("Tc (°C)")
+    table.view.sortByColumn(tc_col, QtCore.Qt.SortOrder.DescendingOrder)
+    table.view.doubleClicked.emit(table.proxy.index(0, 0))
+    assert view.model.experiment(view.model.current_index).temperature_c == 145.0
+    _set_spin(view.constants.tm0, 185.0)
+    assert view.model.undo_stack.undoText() == "Set Tm0 = 185 °C"
