@@ -24,13 +24,19 @@ BACKGROUND = "#1b1e25"
 FOREGROUND = "#c9d1dc"
 
 
-def nuclei_count_curve(nucleation_times_s) -> tuple[np.ndarray, np.ndarray]:
-    """Step curve (time, cumulative count) from nucleation times; None times are skipped."""
+def nuclei_count_curve(nucleation_times_s, end_s: float | None = None):
+    """Step curve (time, cumulative count) from nucleation times; None times are skipped.
+
+    With ``end_s`` later than the last nucleation the final count is held until then.
+    """
     times = np.sort(np.array([t for t in nucleation_times_s if t is not None], float))
     if times.size == 0:
         return np.zeros(0), np.zeros(0)
     counts = np.arange(1, times.size + 1, dtype=float)
-    return np.repeat(times, 2)[1:], np.repeat(counts, 2)[:-1]
+    step_t, step_n = np.repeat(times, 2)[1:], np.repeat(counts, 2)[:-1]
+    if end_s is not None and end_s > times[-1]:
+        step_t, step_n = np.append(step_t, end_s), np.append(step_n, counts[-1])
+    return step_t, step_n
 
 
 def avrami_curve(avrami: Any, t_max_s: float, origin_s: float = 0.0):
@@ -173,8 +179,10 @@ class PlotsPanel(QWidget):
     def _draw_counts(self, result: Any) -> None:
         times = counts = np.zeros(0)
         if result is not None:
-            times, counts = nuclei_count_curve(s.nucleation_time_s for s in result.spherulites
-                                               if s.status != "excluded")
+            record = np.asarray(result.area_fraction_time_s, float)
+            times, counts = nuclei_count_curve(
+                (s.nucleation_time_s for s in result.spherulites),
+                float(record.max()) if record.size else None)
         self._count_curve.setData(times, counts)
 
     def _draw_fraction(self, result: Any) -> None:
