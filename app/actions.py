@@ -58,6 +58,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
                "Click a detection, then its true centre"),
     ActionSpec("tool_exclude", "E&xclude / include", "set_tool_exclude", "Tools", "E", "tools",
                True, "tool", "Click a spherulite to leave it out of (or put it back into) the statistics"),
+    ActionSpec("cancel_gesture", "Cancel the &gesture", "cancel_gesture", "Tools", "Esc",
+               tip="Forget the first click of a merge or a centre move"),
     ActionSpec("ignore_frames", "&Ignore frames…", "ignore_frames", "Tools", "I", "tools",
                tip="Ignore a frame range for the selected spherulite or the whole experiment"),
     ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),

@@ -314,6 +314,9 @@ class MainWindow(WindowFilesMixin, QMainWindow):
     def set_tool_exclude(self) -> None:
         self.tools.set_tool("exclude")
 
+    def cancel_gesture(self) -> None:
+        self.tools.cancel_gesture()
+
     def ignore_frames(self) -> None:
         index = self.model.current_index
         if index < 0 or self.viewer.frame_count() == 0:

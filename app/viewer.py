@@ -255,7 +255,10 @@ class StackViewer(QWidget):
         shifts = getattr(getattr(analysis, "arrival", None), "shifts_px", None)
         if shifts is not None and frame < len(shifts):
             self.overlay.set_offset(float(shifts[frame][1]), float(shifts[frame][0]))
-        self.overlay.update_fronts(time_s, self._um_per_px)
+        result = getattr(analysis, "result", None)
+        # fronts were fitted in µm with the analysis's own scale: convert back with it
+        scale = result.um_per_px if result is not None else self._um_per_px
+        self.overlay.update_fronts(time_s, scale)
         self._update_readout(frame, time_s)
 
     def _update_readout(self, frame: int, time_s: float | None) -> None:

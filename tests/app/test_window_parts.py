@@ -147,3 +147,27 @@ def test_close_with_unsaved_changes_asks(window, qtbot):
     assert not window.close() and window.isVisible()
     window.ask_unsaved_changes = lambda: "discard"
     assert window.close()
+
+
+def test_dropping_files_adds_stacks_or_opens_a_project(window, tmp_path, small_project):
+    from types import SimpleNamespace
+
+    from PySide6.QtCore import QMimeData, QUrl
+
+    def drop(*paths):
+        mime = QMimeData()
+        mime.setUrls([QUrl.fromLocalFile(str(p)) for p in paths])
+        accepted = []
+        window.dropEvent(SimpleNamespace(mimeData=lambda: mime,
+                                         acceptProposedAction=lambda: accepted.append(1)))
+        return accepted
+
+    stack = write_disc_stack(tmp_path / "dropped_127C.tif")
+    assert drop(stack) == [1]
+    assert window.model.experiment_count() == 3
+    assert window.model.experiment(2).temperature_c == 127.0
+    window.undo()  # adding stacks is one undo entry
+    assert window.model.experiment_count() == 2
+    window.model.push_edit(0, AddNucleus(1.0, 1.0))
+    drop(small_project.path)  # a project file opens (unsaved work: asked first, discarded here)
+    assert window.model.experiment(0).edits == () and not window.model.is_dirty()
