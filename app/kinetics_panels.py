@@ -81,6 +81,41 @@ class NumberForm(QtWidgets.QGroupBox):
             label.setText(DASH)
 
 
+class LazyPage(QtWidgets.QWidget):
+    """A page that redraws only while visible: changes made while it is hidden mark it out
+    of date, and it catches up when shown. Subclasses define ``redraw()`` and
+    ``first_split_sizes(width)`` for their ``self.split`` splitter."""
+
+    _stale = True
+    _sized = False
+
+    def redraw(self) -> None:
+        raise NotImplementedError
+
+    def first_split_sizes(self, width: int) -> list[int]:
+        raise NotImplementedError
+
+    def _rebuild(self) -> None:
+        if not self.isVisible():
+            self._stale = True
+            return
+        self._stale = False
+        self.redraw()
+
+    def shown(self) -> None:
+        """Called by the main window when the rail switches to this page."""
+        if self._stale:
+            self._rebuild()
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._sized:
+            self._sized = True
+            self.split.setSizes(self.first_split_sizes(self.width()))
+        if self._stale:
+            self._rebuild()
+
+
 def scroll_column(widgets, minimum_width: int = 300) -> QtWidgets.QScrollArea:
     """Stack panels in a vertically scrolling column as wide as its widest panel needs."""
     inner = QtWidgets.QWidget()

@@ -21,8 +21,8 @@ from analysis.errors import InputError
 from . import kinetics_logic as logic
 from .calorimetry_dialog import CalorimetryMappingDialog
 from .help_panel import help_button, show_help
-from .kinetics_panels import (DASH, CalorimetryPanel, ComparisonTable, PredictionPanel, fmt, k_unit,
-                              scroll_column)
+from .kinetics_panels import (DASH, CalorimetryPanel, ComparisonTable, LazyPage, PredictionPanel, fmt,
+                              k_unit, scroll_column)
 from .kinetics_plots import KineticsPlots
 from .plot_export import export_plots
 
@@ -31,7 +31,7 @@ MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermin
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))
 
 
-class KineticsView(QtWidgets.QWidget):
+class KineticsView(LazyPage):
     """Per-experiment kinetics page (registered as the "kinetics" view)."""
 
     def __init__(self, model, parent=None):
@@ -40,7 +40,6 @@ class KineticsView(QtWidgets.QWidget):
         self.calorimetry = logic.CalorimetryCache()
         self._reported: set[str] = set()
         self._preview: dict = {}  # live values during a drag, cleared when it ends
-        self._stale = True
         self._build()
         for signal in (model.project_replaced, model.project_fields_changed):
             signal.connect(self._rebuild)
@@ -128,26 +127,13 @@ class KineticsView(QtWidgets.QWidget):
         if index == self.index():
             self._rebuild()
 
-    def shown(self) -> None:
-        if self._stale:
-            self._rebuild()
-
-    def _rebuild(self) -> None:
-        if not self.isVisible():  # hidden pages refresh when they are shown (showEvent)
-            self._stale = True
-            return
-        self._stale = False
+    def redraw(self) -> None:
         self._fill_picker()
         self.refresh()
 
-    def showEvent(self, event) -> None:
-        super().showEvent(event)
-        if not getattr(self, "_sized", False):  # numbers column about a third, plots the rest
-            self._sized = True
-            numbers = max(300, min(420, self.width() // 3))
-            self.split.setSizes([numbers, max(300, self.width() - numbers)])
-        if self._stale:
-            self._rebuild()
+    def first_split_sizes(self, width: int) -> list[int]:
+        numbers = max(300, min(420, width // 3))  # numbers column about a third, plots the rest
+        return [numbers, max(300, width - numbers)]
 
     def _fill_picker(self) -> None:
         self.experiment_picker.blockSignals(True)

@@ -20,14 +20,14 @@ from . import temperature_logic as logic
 from . import temperature_export
 from .help_panel import show_help
 from .kinetics_logic import CalorimetryCache, file_stem
-from .kinetics_panels import scroll_column
+from .kinetics_panels import LazyPage, scroll_column
 from .plot_export import export_plots
 from .temperature_lh import HW_KEY, ConstantsForm, HoffmanWeeksHelper, LHResults
 from .temperature_plots import TemperaturePlots
 from .temperature_table import GrowthTable
 
 
-class TemperatureView(QtWidgets.QWidget):
+class TemperatureView(LazyPage):
     """Whole-project temperature-series page (registered as the "temperature" view)."""
 
     def __init__(self, model, parent=None):
@@ -36,7 +36,6 @@ class TemperatureView(QtWidgets.QWidget):
         self.calorimetry = CalorimetryCache()
         self.points: list = []
         self.fit = None
-        self._stale = True
         self.report_job = temperature_export.ReportJob(self)
         self._build()
         for signal in (model.project_replaced, model.project_fields_changed):
@@ -118,24 +117,11 @@ class TemperatureView(QtWidgets.QWidget):
         return list(self.actions)
 
     # ---------------------------------------------------------------- refresh
-    def shown(self) -> None:
-        if self._stale:
-            self._rebuild()
+    def first_split_sizes(self, width: int) -> list[int]:
+        side = max(300, min(400, width // 4))  # constants column about a quarter
+        return [max(300, width - side), side]
 
-    def showEvent(self, event) -> None:
-        super().showEvent(event)
-        if not getattr(self, "_sized", False):  # constants column about a quarter
-            self._sized = True
-            side = max(300, min(400, self.width() // 4))
-            self.split.setSizes([max(300, self.width() - side), side])
-        if self._stale:
-            self._rebuild()
-
-    def _rebuild(self) -> None:
-        if not self.isVisible():  # hidden pages refresh when they are shown (showEvent)
-            self._stale = True
-            return
-        self._stale = False
+    def redraw(self) -> None:
         self.refresh()
 
     def refresh(self) -> None:
