@@ -19,7 +19,7 @@ from PySide6 import QtCore, QtWidgets
 from analysis.calorimetry import analyze_source
 from analysis.errors import InputError
 from analysis.progress import Progress, scaled
-from analysis.report import build_report, project_entries_iter, series_constants
+from analysis.report import HW_PAIRS_KEY, build_report, project_entries_iter, series_constants
 from analysis.tables import ReportEntry, comparison_table, growth_vs_temperature_table, write_csv, write_xlsx
 
 #: Display names for the table's columns (the files keep the snake_case names).
@@ -143,7 +143,7 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
     constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, folder, constants=constants, material=project.material,
-                           problems=problems)
+                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
     yield Progress("writing report", 1.0)
     return summary
 

@@ -12,6 +12,7 @@ import math
 from PySide6 import QtCore, QtWidgets
 
 from analysis.materials import list_materials
+from analysis.report import HW_PAIRS_KEY
 
 from .help_panel import help_button
 from .kinetics_panels import DASH, FormPanel, fmt
@@ -21,7 +22,7 @@ TRANSPORT_SETS = {
     "universal": (6270.0, 30.0),  # U* J/mol, Tg - T_inf in K
     "WLF": (17238.0, 51.6),
 }
-HW_KEY = "hoffman_weeks_pairs"
+HW_KEY = HW_PAIRS_KEY  # the series key the report reads
 _SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞"}
 
 

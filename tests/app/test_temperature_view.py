@@ -133,6 +133,7 @@ def test_export_figures(view, tmp_path):
 def test_report_runs_in_worker_and_writes_the_report_folder(view, tmp_path, qtbot):
     _set_spin(view.constants.tm0, 185.0)
     _set_spin(view.constants.tg, -10.0)
+    view._pairs_edited([[130.0, 158.0], [140.0, 163.0], [None, 170.0]])  # last row incomplete
     out = tmp_path / "report"
     with qtbot.waitSignal(view.report_job.finished, timeout=60000) as done:
         assert view.write_report(str(out))
@@ -142,7 +143,8 @@ def test_report_runs_in_worker_and_writes_the_report_folder(view, tmp_path, qtbo
     assert ok, detail
     names = {p.name for p in out.iterdir()}
     assert {"growth_vs_temperature.csv", "growth_vs_temperature.xlsx",
-            "secondary_nucleation.json", "lauritzen_hoffman.png", "lauritzen_hoffman.svg"} <= names
+            "secondary_nucleation.json", "lauritzen_hoffman.png", "lauritzen_hoffman.svg",
+            "hoffman_weeks.json"} <= names
     assert "files written" in view.report_status.text()
     assert not view.report_job.bar_widget.isVisibleTo(view)
 
