@@ -74,6 +74,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.runner = AnalysisRunner(self.model, parent=self)
         self.autosaver = Autosaver(self.model, recovery_dir or default_recovery_dir(), parent=self)
         self.problems_shown: list[str] = []
+        self._hidden_docks: list | None = None  # docks hidden while off the microscopy page
         self._build_central()
         self._build_docks()
         self.tools = ToolController(self.model, self.viewer, self)
@@ -227,12 +228,29 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         return True
 
     def _on_rail_changed(self, row: int) -> None:
+        self._show_microscopy_docks(row == 0)
         self.pages.setCurrentIndex(row)
         page = self.pages.widget(row)
         page = page.widget() if isinstance(page, QScrollArea) else page
         hook = getattr(page, "shown", None)
         if callable(hook):
             hook()
+
+    def _show_microscopy_docks(self, on_viewer: bool) -> None:
+        """The spherulite details and history belong to the microscopy page: other pages
+        get their room, and the user's choice of docks comes back with the microscopy."""
+        if not hasattr(self, "docks"):
+            return
+        if not on_viewer and self._hidden_docks is None:
+            self._hidden_docks = [d for d in (self.docks["details"], self.docks["history"])
+                                  if not d.isHidden()]
+            for dock in self._hidden_docks:
+                dock.hide()
+        elif on_viewer and self._hidden_docks is not None:
+            for dock in self._hidden_docks:
+                dock.show()
+            self.docks["details"].raise_()
+            self._hidden_docks = None
 
     def _report_view_problem(self, text: str) -> None:
         self.problems_shown.append(text)
@@ -373,6 +391,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
     def save_layout(self) -> None:
         if not self.remember_layout:
             return
+        self._show_microscopy_docks(True)  # save the user's docks, not a page's
         self.settings.setValue("window/geometry", self.saveGeometry())
         self.settings.setValue("window/state", self.saveState())
         self.settings.setValue("window/viewer_splitter", self.viewer_splitter.saveState())

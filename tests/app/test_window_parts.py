@@ -171,3 +171,15 @@ def test_dropping_files_adds_stacks_or_opens_a_project(window, tmp_path, small_p
     window.model.push_edit(0, AddNucleus(1.0, 1.0))
     drop(small_project.path)  # a project file opens (unsaved work: asked first, discarded here)
     assert window.model.experiment(0).edits == () and not window.model.is_dirty()
+
+
+def test_views_rail_switches_pages_and_lends_the_details_room(window):
+    assert window.view_names[0] == "viewer"
+    assert not window.show_view("no-such-view")
+    others = window.view_names[1:]
+    if not others:
+        pytest.skip("no optional view installed")
+    assert window.show_view(others[0])
+    assert window.pages.currentIndex() == 1 and window.docks["details"].isHidden()
+    assert window.show_view("viewer")
+    assert not window.docks["details"].isHidden() and not window.docks["history"].isHidden()
