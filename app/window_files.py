@@ -219,15 +219,19 @@ class WindowFilesMixin:
         """After a crash, offer to recover autosaved work; True if something was recovered."""
         found = find_recoverable(self.autosaver.recovery_dir, self.recent_projects())
         for item in found:
-            answer = QMessageBox.question(
-                self, "Recover unsaved work?",
-                f"spherokin did not close normally. Recover the unsaved work in "
-                f"{item.describe()}?\n\n(No deletes the autosave.)",
-                QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
-            if answer == QMessageBox.Yes and self.recover(item):
+            if self.ask_recover(item) and self.recover(item):
                 return True
             item.autosave_path.unlink(missing_ok=True)
         return False
+
+    def ask_recover(self, item) -> bool:
+        """Whether to recover ``item`` (a dialog; tests replace this method)."""
+        answer = QMessageBox.question(
+            self, "Recover unsaved work?",
+            f"spherokin did not close normally. Recover the unsaved work in "
+            f"{item.describe()}?\n\n(No deletes the autosave.)",
+            QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
+        return answer == QMessageBox.Yes
 
     def recover(self, item) -> bool:
         try:

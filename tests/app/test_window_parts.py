@@ -183,3 +183,21 @@ def test_views_rail_switches_pages_and_lends_the_details_room(window):
     assert window.pages.currentIndex() == 1 and window.docks["details"].isHidden()
     assert window.show_view("viewer")
     assert not window.docks["details"].isHidden() and not window.docks["history"].isHidden()
+
+
+def test_crash_recovery_offer_restores_the_autosaved_edits(window, qtbot, tmp_path):
+    window.model.push_edit(0, AddNucleus(4.0, 4.0))
+    side = window.autosaver.autosave()
+    assert side.is_file()
+    # a "crash": the next window starts with the side file still there
+    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
+    fresh = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
+    fresh.ask_unsaved_changes = lambda: "discard"
+    qtbot.addWidget(fresh)
+    offered = []
+    fresh.ask_recover = lambda item: offered.append(item.project_path) or True
+    assert fresh.offer_recovery()
+    assert offered == [window.model.path]
+    assert fresh.model.experiment(0).edits == (AddNucleus(4.0, 4.0),)
+    assert fresh.model.is_dirty() and fresh.model.path == window.model.path
+    assert side.is_file()  # still protected until the user saves
