@@ -26,6 +26,7 @@ from .kinetics_panels import (DASH, CalorimetryPanel, ComparisonTable, LazyPage,
 from .kinetics_plots import KineticsPlots
 from .plot_export import export_plots
 
+DEFAULT_WINDOW = (0.03, 0.20)  # CalorimetrySource's default, the common 3-20 % guideline
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))
@@ -90,6 +91,7 @@ class KineticsView(LazyPage):
                 ("import_action", "Import calorimetry isotherm…", self.import_calorimetry),
                 ("remap_action", "Column mapping…", self.edit_mapping),
                 ("auto_baseline_action", "Automatic baseline", self.reset_baseline),
+                ("default_window_action", "Fit window 3-20 %", self.reset_window),
                 ("remove_action", "Remove isotherm", self.remove_calorimetry),
                 ("export_action", "Export all figures…", self.export_figures),
                 ("help_action", "Kinetics help and safety", lambda: show_help("cautions"))):
@@ -152,7 +154,8 @@ class KineticsView(LazyPage):
             widget.setEnabled(has_experiment)
         self.import_action.setEnabled(has_experiment)
         has_source = has_experiment and experiment.calorimetry is not None
-        for action in (self.remap_action, self.auto_baseline_action, self.remove_action):
+        for action in (self.remap_action, self.auto_baseline_action, self.default_window_action,
+                       self.remove_action):
             action.setEnabled(has_source)
         if not has_experiment:
             self.prediction.clear("No experiment: add a stack to the project.")
@@ -304,6 +307,10 @@ class KineticsView(LazyPage):
 
     def reset_baseline(self) -> None:
         self._commit_source("Automatic calorimetry baseline", baseline_start_min=None, baseline_end_min=None)
+
+    def reset_window(self) -> None:
+        """Back to the guideline conversion window, 3-20 % (one undo entry)."""
+        self._commit_source("Avrami fit window 3-20 %", window=DEFAULT_WINDOW)
 
     def remove_calorimetry(self) -> None:
         experiment = self.experiment()

@@ -237,3 +237,15 @@ def test_unusable_position_mid_drag_keeps_the_band(view, isotherm_csv, monkeypat
     view.plots.baseline_dragging.emit(start, start + 0.1)  # does not bracket the peak
     assert view.plots.baseline_region.isVisible()
     assert "Not usable" in view.calorimetry_panel.problem.text()
+
+
+def test_default_window_action_restores_the_guideline_window(view, isotherm_csv):
+    from app.kinetics_plots import x_to_avrami_y
+
+    _import(view, isotherm_csv[0])
+    default_n = view.calorimetry_panel.form.text("n")
+    view.plots.window_region.setRegion((x_to_avrami_y(0.1), x_to_avrami_y(0.5)))
+    view.default_window_action.trigger()
+    assert view.model.experiment(0).calorimetry.window == (0.03, 0.20)
+    assert view.calorimetry_panel.form.text("n") == default_n
+    assert view.model.undo_stack.count() == 3
