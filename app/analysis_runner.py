@@ -40,6 +40,7 @@ class AnalysisRunner(QObject):
         self._pool = pool or QThreadPool.globalInstance()
         self._queue: list[int] = []
         self._worker: GeneratorWorker | None = None
+        self._retired: GeneratorWorker | None = None
         self._running_index = -1
         self._running_experiment: Any = None
         self._last_stage, self._last_emit_s = None, 0.0
@@ -152,7 +153,8 @@ class AnalysisRunner(QObject):
             self._model.set_status(self._running_index, m.STATUS_CANCELLED)
 
     def _on_finished(self) -> None:
-        self._worker = None
+        # keep the finished runnable one more round: its run() may still be unwinding
+        self._retired, self._worker = self._worker, None
         self._start_next()
 
     def _on_project_replaced(self) -> None:
