@@ -326,21 +326,26 @@ class ProjectModel(QObject):
         experiments.insert(index, experiment)
         self._project = dataclasses.replace(self._project, experiments=tuple(experiments))
         self._entries.insert(index, entry if entry is not None else AnalysisEntry())
+        shifted = 0 <= index <= self._current  # the same experiment stays selected
+        self._current += 1 if shifted else 0
         self.experiments_inserted.emit(index, index)
         if self._current < 0:
             self.select(index)
+        elif shifted:
+            self.selection_changed.emit(self._current, self._selected_id)
 
     def _take_experiment(self, index: int) -> Any:
         experiments = list(self._project.experiments)
         experiments.pop(index)
         self._project = dataclasses.replace(self._project, experiments=tuple(experiments))
         entry = self._entries.pop(index)
-        self.experiments_removed.emit(index, index)
-        if self._current >= self.experiment_count() or self._current == index:
+        before = (self._current, self._selected_id)
+        if self._current == index or self._current >= self.experiment_count():
             self._current, self._selected_id = min(index, self.experiment_count() - 1), -1
-            self.selection_changed.emit(self._current, -1)
         elif self._current > index:
             self._current -= 1
+        self.experiments_removed.emit(index, index)  # views read the new selection
+        if (self._current, self._selected_id) != before or before[0] == index:
             self.selection_changed.emit(self._current, self._selected_id)
         return entry
 

@@ -93,6 +93,7 @@ class PlotsPanel(QWidget):
             pen=pg.mkPen("#ff9f6b", width=2, style=Qt.DashLine))
         self._item_ids: dict[int, int] = {}  # id(graphics item) -> spherulite id
         model.project_replaced.connect(self.refresh)
+        model.experiments_removed.connect(lambda *_: self.refresh())
         model.analysis_updated.connect(self._on_index_event)
         model.selection_changed.connect(self._on_selection_changed)
         self._shown_index = None

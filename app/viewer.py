@@ -52,6 +52,7 @@ class StackViewer(QWidget):
         model.analysis_updated.connect(self._on_analysis_updated)
         model.experiment_changed.connect(self._on_experiment_changed)
         model.project_replaced.connect(lambda: self.load_experiment(model.current_index))
+        model.experiments_removed.connect(lambda *_: self.load_experiment(model.current_index))
         self.load_experiment(model.current_index)
 
     # ---------------------------------------------------------------- construction

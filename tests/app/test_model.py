@@ -122,3 +122,11 @@ def test_project_fields_are_undoable(shared):
 def test_describe_edit_words():
     assert m.describe_edit(AddNucleus(3.2, 4.9)) == "Add nucleus at (3, 5)"
     assert m.describe_edit(IgnoreFrames(2, 5)) == "Ignore frames 2-5 of experiment"
+
+
+def test_selection_follows_the_experiment_through_remove_and_undo(shared):
+    shared.select(1, 2)
+    shared.remove_experiment(0)
+    assert shared.current_index == 0 and shared.experiment(0).name == "Tc 132"
+    shared.undo_stack.undo()
+    assert shared.current_index == 1 and shared.experiment(1).name == "Tc 132"
