@@ -203,7 +203,9 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
     """
     from .growth import fit_cone  # local: growth does not need nuclei
 
-    deficit = np.where(measured & np.isfinite(model_s), model_s - arrival_s, 0.0)
+    usable = measured & np.isfinite(model_s) & np.isfinite(arrival_s)
+    deficit = np.zeros(arrival_s.shape)
+    np.subtract(model_s, arrival_s, out=deficit, where=usable)
     mask = (deficit > 1.5 * interval_s).astype(np.uint8)
     count, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
     seeds = []
