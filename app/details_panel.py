@@ -196,7 +196,9 @@ class DetailsPanel(QTabWidget):
             text = f"{position + 1}. {m.describe_edit(edit)}"
             item = QListWidgetItem(text)
             if edit in unapplied:
-                item.setText(text + "   — NOT APPLIED (no detection there now)")
+                item.setText(text + "  — NOT APPLIED")
+                item.setToolTip("The last analysis found no detection at this point; the "
+                                "edit is kept and applies again if one appears.")
                 item.setForeground(QBrush(QColor(UNAPPLIED_COLOUR)))
             item.setData(Qt.UserRole, position)
             self.edits_list.addItem(item)
