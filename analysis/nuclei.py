@@ -12,6 +12,7 @@ are returned as (x_px, y_px) = (column, row); times in seconds on the recording 
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import cv2
@@ -35,12 +36,15 @@ class Markers:
         float (n,): smoothed arrival time at the marker, s.
     on_border : np.ndarray
         bool (n,): the marker touches the field border (candidate edge spherulite).
+    territories : np.ndarray or None
+        int32 (H, W) watershed basins of the markers, when the detection computed them.
     """
 
     labels: np.ndarray
     xy_px: np.ndarray
     min_time_s: np.ndarray
     on_border: np.ndarray
+    territories: np.ndarray | None = None  # their watershed basins, when already computed
 
 
 def frame_interval_s(times_s: np.ndarray) -> float:
@@ -131,11 +135,11 @@ def find_markers(work: np.ndarray, arrival_s: np.ndarray, times_s: np.ndarray, *
     seeds = h_minima(work, h).astype(bool) & valid
     labels, _ = ndi.label(seeds, structure=np.ones((3, 3), bool))
     for _ in range(3):
-        territories = watershed(work, labels, mask=valid)
-        area = np.bincount(territories.ravel(), minlength=labels.max() + 1)
+        flooded = watershed(work, labels, mask=valid).astype(np.int32)
+        area = np.bincount(flooded.ravel(), minlength=labels.max() + 1)
         small = np.flatnonzero(area[1:] < min_territory_px) + 1
         if small.size == 0:
-            break
+            return dataclasses.replace(markers_from_labels(labels, work), territories=flooded)
         labels[np.isin(labels, small)] = 0
         labels, _ = ndi.label(labels > 0, structure=np.ones((3, 3), bool))
     return markers_from_labels(labels, work)

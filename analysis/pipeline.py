@@ -622,7 +622,9 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                               smooth_px=settings.smooth_px, at_start=at_start)
     markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
                                   min_territory_px=settings.min_territory_px)
-    base = nuclei.territories(work, arrival_s, markers.labels)
+    base = markers.territories
+    if base is None:
+        base = nuclei.territories(work, arrival_s, markers.labels)
     ctx = _Context(stack=stack, frames=times.size, shape=arrival_s.shape, times_s=times,
                    interval_s=nuclei.frame_interval_s(times), um_per_px=float(arrival.um_per_px),
                    isothermal_start_s=float(isothermal_start_s), temperature_c=temperature_c,
