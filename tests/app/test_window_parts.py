@@ -201,3 +201,21 @@ def test_crash_recovery_offer_restores_the_autosaved_edits(window, qtbot, tmp_pa
     assert fresh.model.experiment(0).edits == (AddNucleus(4.0, 4.0),)
     assert fresh.model.is_dirty() and fresh.model.path == window.model.path
     assert side.is_file()  # still protected until the user saves
+
+
+def test_viewer_plays_steps_and_reads_time_from_the_isothermal_start(window, qtbot):
+    viewer = window.viewer
+    window.model.set_experiment_properties(0, isothermal_start_s=-15.0)
+    viewer.set_frame(2)
+    assert viewer.time_from_start_s() == pytest.approx(2 * 10.0 + 15.0)
+    assert "frame 3 / 6" in viewer.readout.text()
+    viewer.speed.setCurrentIndex(viewer.speed.count() - 1)
+    viewer.set_playing(True)
+    qtbot.waitUntil(lambda: viewer.frame == viewer.frame_count() - 1, timeout=3000)
+    qtbot.waitUntil(lambda: not viewer.play_button.isChecked(), timeout=3000)  # stops at the end
+    window.previous_frame()
+    assert viewer.frame == viewer.frame_count() - 2
+    viewer.auto_contrast.setChecked(False)
+    viewer.black_level.setValue(10.0)
+    viewer.white_level.setValue(90.0)
+    assert tuple(viewer.image_item.levels) == (10.0, 90.0)
