@@ -11,8 +11,6 @@ Run alone: ``python -m app.viewer PROJECT``.
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal

@@ -25,3 +25,11 @@ def test_avrami_curve_starts_at_the_induction_time_and_halves_at_t_half():
     t_half_s = origin_s + 60.0 * (np.log(2) / k) ** (1 / n)
     assert np.interp(t_half_s, t_s, x) == pytest.approx(0.5, abs=2e-3)
     assert avrami_curve(AvramiParameters(None, None, None), 600.0) is None
+
+
+def test_scale_bar_picks_round_lengths():
+    from app.annotations import format_clock, format_length_um, nice_length_um
+
+    assert [nice_length_um(v) for v in (0.7, 3.0, 74.0, 180.0, 999.0)] == [0.5, 2.0, 50.0, 100.0, 500.0]
+    assert format_length_um(2000.0) == "2 mm" and format_length_um(50.0) == "50 µm"
+    assert format_clock(-5.0) == "-0:05.0" and format_clock(125.25) == "2:05.2"
