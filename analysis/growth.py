@@ -152,7 +152,7 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
     fixed_centre : bool
         Fit only t0 and s with the centre held at ``start_xy`` (user-moved centre).
     field_shape : (H, W), optional
-        Bounds the centre to within one field size of the field.
+        A fitted centre more than one field size outside the field is a failed fit.
 
     Notes
     -----
@@ -301,10 +301,15 @@ def soft_l1_cost(resid: np.ndarray, f_scale_s: float) -> float:
     return float(0.5 * f_scale_s ** 2 * np.sum(2.0 * (np.sqrt(1.0 + z) - 1.0)))
 
 
+def cone_residuals(fit: ConeFit, x, y, t) -> np.ndarray:
+    """Model minus measured arrival time at the given pixels, s."""
+    return _residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), np.asarray(x, float),
+                      np.asarray(y, float), np.asarray(t, float))
+
+
 def residual_scale_s(fit: ConeFit, x, y, t) -> float:
     """Robust scale (1.4826 MAD) of a cone fit's residuals, s."""
-    resid = _residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), np.asarray(x, float),
-                       np.asarray(y, float), np.asarray(t, float))
+    resid = cone_residuals(fit, x, y, t)
     return float(1.4826 * np.median(np.abs(resid - np.median(resid))))
 
 

@@ -6,7 +6,6 @@ mm^2; densities per mm^2 (areal, N_A) and per mm^3 (volumetric, N_V = N_A / h).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -147,10 +146,6 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
 def field_area_mm2(shape: tuple[int, int], um_per_px: float) -> float:
     """Area of the whole field of view, mm^2."""
     return shape[0] * shape[1] * (um_per_px * 1e-3) ** 2
-
-
-def is_finite_number(value) -> bool:
-    return value is not None and isinstance(value, (int, float)) and math.isfinite(value)
 
 
 def film_avrami(time_s, fraction, induction_s) -> AvramiParameters | None:

@@ -239,7 +239,7 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
     at least 15 % of the pixels first, and the common slope is within 25 % of the
     field's mean slope. Returns None otherwise.
     """
-    from .growth import _residuals, fit_two_cones, soft_l1_cost
+    from .growth import cone_residuals, fit_two_cones, soft_l1_cost
 
     x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
     early = t <= np.percentile(t, 15)
@@ -251,8 +251,7 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
     axis = evecs[:, -1] * max(np.sqrt(max(evals[-1], 0.0)), 1.5)
     params, cost2 = fit_two_cones(x, y, t, centre - axis, centre + axis, fit.slope_s_per_px,
                                   f_scale_s=f_scale_s)
-    cost1 = soft_l1_cost(_residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), x, y, t),
-                         f_scale_s)
+    cost1 = soft_l1_cost(cone_residuals(fit, x, y, t), f_scale_s)
     a, b = params[0:2], params[3:5]
     nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
         (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
