@@ -155,10 +155,15 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         super().showEvent(event)
         first_show = not self._docks_sized
         self._docks_sized = True
-        if first_show and not self.settings.value("window/state"):
+        if first_show and not (self.remember_layout and self.settings.value("window/state")):
             self.resizeDocks([self.docks["experiments"], self.docks["details"]], [400, 330],
                              Qt.Horizontal)
-        if first_show and not self.settings.value("window/viewer_splitter"):
+        if not first_show:
+            return
+        splitter = self.settings.value("window/viewer_splitter") if self.remember_layout else None
+        if splitter is not None:  # restored once the widgets have their sizes
+            self.viewer_splitter.restoreState(splitter)
+        else:
             total = max(600, self.viewer_splitter.width())
             self.viewer_splitter.setSizes([int(total * 0.6), int(total * 0.4)])
 
@@ -380,13 +385,10 @@ class MainWindow(WindowFilesMixin, QMainWindow):
     def _restore_layout(self) -> None:
         geometry = self.settings.value("window/geometry")
         state = self.settings.value("window/state")
-        splitter = self.settings.value("window/viewer_splitter")
         if geometry is not None:
             self.restoreGeometry(geometry)
         if state is not None:
             self.restoreState(state)
-        if splitter is not None:
-            self.viewer_splitter.restoreState(splitter)
 
     def save_layout(self) -> None:
         if not self.remember_layout:

@@ -219,3 +219,17 @@ def test_viewer_plays_steps_and_reads_time_from_the_isothermal_start(window, qtb
     viewer.black_level.setValue(10.0)
     viewer.white_level.setValue(90.0)
     assert tuple(viewer.image_item.levels) == (10.0, 90.0)
+
+
+def test_layout_and_recent_projects_are_remembered(window, qtbot, tmp_path, small_project):
+    window.docks["history"].hide()
+    window.save_layout()
+    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
+    again = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
+    again.ask_unsaved_changes = lambda: "discard"
+    qtbot.addWidget(again)
+    again.show()
+    assert again.docks["history"].isHidden()
+    assert again.recent_projects()[0] == small_project.path
+    # pixel sizes depend on the (small) offscreen screen: check the splitter was stored
+    assert settings.value("window/viewer_splitter") is not None
