@@ -688,7 +688,8 @@ def _with_missed_nuclei(ctx: _Context, settings) -> _Context:
 
 def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
-    scale above 1.5 times the field's typical one, or non-linear growth."""
+    scale above 1.5 times the field's typical one, non-linear growth, or a slope more
+    than 25 % off the field's mean."""
     band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
     data, scales = {}, {}
     for sph in result.spherulites:
@@ -705,7 +706,9 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     if not scales:
         return {}
     typical = float(np.median(list(scales.values())))
-    return {k: v for k, v in data.items() if scales[k] > 1.5 * typical or v[4] == "nonlinear"}
+    odd_slope = {k for k, v in data.items() if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > 0.25}
+    return {k: v for k, v in data.items()
+            if scales[k] > 1.5 * typical or v[4] == "nonlinear" or k in odd_slope}
 
 
 def _with_split_nuclei(ctx: _Context, settings) -> _Context:
