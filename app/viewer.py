@@ -15,20 +15,30 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
-    QCheckBox, QComboBox, QDoubleSpinBox, QHBoxLayout, QLabel, QMenu, QSlider, QToolButton,
-    QVBoxLayout, QWidget,
+    QCheckBox, QComboBox, QDoubleSpinBox, QHBoxLayout, QLabel, QMenu, QSizePolicy, QSlider,
+    QToolButton, QVBoxLayout, QWidget,
 )
 
 from . import model as m
 from .annotations import ViewAnnotations, format_clock
 from .frame_cache import FrameCache, auto_levels
-from .overlays import OverlayLayer, marks_from_result
+from .overlays import STATUS_COLOURS, STATUS_WORDS, OverlayLayer, marks_from_result
 
 pg.setConfigOptions(imageAxisOrder="row-major")
 
 SPEEDS_FPS = (2, 5, 10, 20, 40)
 OVERLAY_TOGGLES = (("fronts", "Fronts"), ("centres", "Centres"), ("ids", "Ids"),
                    ("scale", "Scale bar"), ("clock", "Time stamp"))
+
+
+def status_legend() -> QLabel:
+    """A one-line key of the overlay colours (+ automatic, ◆ manual)."""
+    parts = [f"<span style='color:{colour}'>●</span>&nbsp;{status}"
+             for status, colour in STATUS_COLOURS.items()]
+    label = QLabel("&nbsp;&nbsp;".join(parts) + "&nbsp;&nbsp;+ auto&nbsp;&nbsp;◆ manual")
+    label.setToolTip("<br>".join(f"{s}: {w}" for s, w in STATUS_WORDS.items()))
+    label.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Preferred)  # never widens the viewer
+    return label
 
 
 class StackViewer(QWidget):
@@ -72,6 +82,7 @@ class StackViewer(QWidget):
         layout.setSpacing(2)
         layout.addWidget(self._banner)
         layout.addLayout(self._build_display_row())
+        layout.addWidget(status_legend())
         layout.addWidget(self._graphics, 1)
         layout.addLayout(self._build_time_row())
         self._play_timer = QTimer(self)
