@@ -233,3 +233,15 @@ def test_layout_and_recent_projects_are_remembered(window, qtbot, tmp_path, smal
     assert again.recent_projects()[0] == small_project.path
     # pixel sizes depend on the (small) offscreen screen: check the splitter was stored
     assert settings.value("window/viewer_splitter") is not None
+
+
+def test_ignore_frames_targets_the_selected_spherulite_or_the_experiment(window):
+    from analysis.edits import IgnoreFrames
+
+    target = window.model.result(0).spherulites[0]
+    window.model.select_spherulite(target.id)
+    assert window.tools.ignore_frames_edit(2, 4, whole=False) == IgnoreFrames(
+        2, 4, target.x_px, target.y_px)
+    assert window.tools.ignore_frames_edit(2, 4, whole=True) == IgnoreFrames(2, 4)
+    window.model.push_edit(0, IgnoreFrames(2, 4))
+    assert "Ignore frames 2-4 of experiment" in window.details.edits_list.item(0).text()
