@@ -603,7 +603,8 @@ def _warnings(ctx, spherulites, fits) -> list[str]:
                    f"counted as nuclei (ids {', '.join(map(str, dubious[:10]))})")
     if not spherulites:
         out.append("no spherulite found in the arrival map")
-    if np.all(ctx.at_start | ~np.isfinite(ctx.arrival_s)):
+    usable = ~np.isnan(ctx.arrival_s)
+    if usable.any() and np.all(ctx.at_start[usable]):
         out.append("the field is crystalline in the first frame: nothing grows in the record")
     return out
 

@@ -236,3 +236,14 @@ def test_bad_calibration_is_an_input_error():
     arrival.um_per_px = 0.0
     with pytest.raises(InputError, match="pixel size"):
         pipeline.analyze_arrival(arrival, stack="run7.tif")
+
+
+def test_empty_and_fully_crystalline_fields_give_results_with_warnings():
+    times = np.arange(0.0, 100.0, 5.0)
+    melt = arrival_from_truth(np.full((40, 40), np.inf), times)
+    result = pipeline.analyze_arrival(melt).result
+    assert result.spherulites == () and result.nucleation.count == 0
+    assert result.growth_rate.value is None and result.warnings == ("no spherulite found in the arrival map",)
+    solid = arrival_from_truth(np.full((40, 40), -5.0), times)
+    warnings = pipeline.analyze_arrival(solid).result.warnings
+    assert any("crystalline in the first frame" in w for w in warnings)
