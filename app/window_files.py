@@ -185,9 +185,15 @@ class WindowFilesMixin:
         index = self.model.current_index
         if index < 0:
             return
-        path, _ = QFileDialog.getOpenFileName(
-            self, "Stage micrometer image (Cancel: use the current frame)", self._last_folder(),
-            STACK_FILTER)
+        source = self.ask_calibration_source()
+        if source is None:
+            return
+        path = ""
+        if source == "file":
+            path, _ = QFileDialog.getOpenFileName(self, "Stage micrometer image",
+                                                  self._last_folder(), STACK_FILTER)
+            if not path:
+                return
         try:
             image = self._calibration_image(path, index)
         except Exception as exc:
@@ -197,6 +203,16 @@ class WindowFilesMixin:
                                    self.model.experiment_count() > 1, self)
         if dialog.exec() and dialog.um_per_px is not None:
             self.apply_calibration(dialog.um_per_px, dialog.apply_all.isChecked())
+
+    def ask_calibration_source(self) -> str | None:
+        """'file' (a micrometer image), 'frame' (the frame on screen) or None (cancel)."""
+        box = QMessageBox(QMessageBox.Question, "Calibrate the scale",
+                          "Measure on an image of a stage micrometer, or on the frame shown "
+                          "(if it contains a feature of known size)?", QMessageBox.Cancel, self)
+        from_file = box.addButton("Micrometer image…", QMessageBox.AcceptRole)
+        from_frame = box.addButton("Frame shown", QMessageBox.AcceptRole)
+        box.exec()
+        return {from_file: "file", from_frame: "frame"}.get(box.clickedButton())
 
     def _calibration_image(self, path: str, index: int):
         if path:

@@ -245,3 +245,25 @@ def test_ignore_frames_targets_the_selected_spherulite_or_the_experiment(window)
     assert window.tools.ignore_frames_edit(2, 4, whole=True) == IgnoreFrames(2, 4)
     window.model.push_edit(0, IgnoreFrames(2, 4))
     assert "Ignore frames 2-4 of experiment" in window.details.edits_list.item(0).text()
+
+
+def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch):
+    from app import window_files
+
+    window.ask_calibration_source = lambda: "frame"
+
+    class Measured:
+        def __init__(self, image, title, can_apply_to_all, parent):
+            assert image.shape == (64, 64)
+            self.um_per_px = 1.25
+            self.apply_all = type("Box", (), {"isChecked": lambda self: False})()
+
+        def exec(self):
+            return True
+
+    monkeypatch.setattr(window_files, "CalibrationDialog", Measured)
+    window.calibrate()
+    assert window.model.experiment(0).um_per_px == 1.25
+    assert window.model.experiment(1).um_per_px is None
+    window.undo()
+    assert window.model.experiment(0).um_per_px is None
