@@ -13,7 +13,8 @@ def _pixels(arrival, labels, label, times):
 
 
 def test_free_spherulite_radius_grows_linearly():
-    # A lone disc growing at constant G: r(t) = G (t - t0) (REFERENCES §1.6).
+    # A lone disc growing at constant G: r(t) = G (t - t0) (Johnson & Mehl 1939,
+    # Trans. AIME 135, 416: constant radial growth from a point nucleus).
     times = np.arange(0.0, 50.0, 1.0)
     arrival = growth.model_arrival_map((121, 121), [[60.0, 60.0]], [0.0], 1.5)
     labels = np.ones(arrival.shape, np.int32)

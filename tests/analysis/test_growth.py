@@ -31,7 +31,8 @@ def test_cone_fit_recovers_centre_birth_and_rate():
 
 
 def test_confidence_interval_covers_the_true_rate_about_95_percent():
-    # Coverage of a nominal 95 % interval (Neyman 1937, Phil. Trans. R. Soc. A 236, 333);
+    # from memory: coverage of a nominal 95 % interval (Neyman 1937, Phil. Trans. R. Soc. A
+    # 236, 333);
     # with frame-level effective samples it must not be far below nominal.
     hits = 0
     trials = 40
@@ -66,7 +67,7 @@ def test_dequantised_moves_frame_times_to_interval_midpoints():
 
 
 def test_square_root_growth_is_flagged_and_linear_is_not():
-    # Diffusion-limited growth r ∝ sqrt(t) (Christian 2002, The Theory of Transformations
+    # from memory: diffusion-limited growth r ∝ sqrt(t) (Christian 2002, The Theory of Transformations
     # in Metals and Alloys, Pergamon) against constant G.
     rng = np.random.default_rng(4)
     t = np.arange(10.0, 400.0, 10.0)
@@ -78,7 +79,7 @@ def test_square_root_growth_is_flagged_and_linear_is_not():
 
 
 def test_pooled_rate_is_the_inverse_variance_mean_when_homogeneous():
-    # Fixed-effect inverse-variance weighting (DerSimonian & Laird 1986, Controlled
+    # from memory: fixed-effect inverse-variance weighting (DerSimonian & Laird 1986, Controlled
     # Clinical Trials 7, 177): tau^2 = 0 when Q <= k - 1.
     pooled = growth.pooled_rate([10.0, 10.2, 9.9], [0.2, 0.4, 0.2])
     w = np.array([25.0, 6.25, 25.0])

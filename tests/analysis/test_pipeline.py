@@ -97,7 +97,8 @@ def test_edge_spherulites_are_flagged_and_not_counted(field_analysis):
 
 
 def test_area_fraction_and_film_avrami_exponent_near_two(field_analysis):
-    # Projected area of an athermal film follows the 2-D law, n = 2 (REFERENCES §1.7;
+    # Projected area of an athermal film follows the 2-D law, n = 2 (projection argument in
+    # Piorkowska, Galeski & Haudin 2006, Prog. Polym. Sci. 31, 549 — from memory;
     # Avrami 1940, J. Chem. Phys. 8, 212). Edge effects of a small field widen this.
     result = field_analysis[0].result
     assert np.all(np.diff(result.area_fraction) >= 0) and result.area_fraction[-1] > 0.99
@@ -138,7 +139,7 @@ def test_isothermal_start_shifts_result_times():
 
 
 def test_square_root_growth_is_nonlinear():
-    # r = a sqrt(t - t0): diffusion-limited growth (Christian 2002, The Theory of
+    # from memory: r = a sqrt(t - t0), diffusion-limited growth (Christian 2002, The Theory of
     # Transformations in Metals and Alloys, Pergamon), i.e. t = t0 + (r / a)^2.
     times = np.arange(0.0, 400.0, 4.0)
     yy, xx = np.mgrid[:160, :160]
