@@ -100,6 +100,21 @@ def _table_html(title: str, rows: list[tuple[str, str]]) -> str:
     return f"<h3 style='margin:2px 0'>{title}</h3><table>{cells}</table>"
 
 
+class SortableItem(QTableWidgetItem):
+    """Sorts numbers as numbers ('—' last), words as words."""
+
+    def _key(self) -> tuple:
+        try:
+            return (0, float(self.text()), "")
+        except ValueError:
+            return (1, 0.0, self.text())
+
+    def __lt__(self, other: QTableWidgetItem) -> bool:
+        if isinstance(other, SortableItem):
+            return self._key() < other._key()
+        return super().__lt__(other)
+
+
 class DetailsPanel(QTabWidget):
     """Summary / Spherulites / Edits tabs for the current experiment."""
 
@@ -113,6 +128,7 @@ class DetailsPanel(QTabWidget):
         self.table.setSelectionMode(QAbstractItemView.SingleSelection)
         self.table.setEditTriggers(QAbstractItemView.NoEditTriggers)
         self.table.verticalHeader().setVisible(False)
+        self.table.horizontalHeader().setSortIndicator(0, Qt.AscendingOrder)
         self.table.itemSelectionChanged.connect(self._on_table_selected)
         self.addTab(self.summary, "Summary")
         self.addTab(self.table, "Spherulites")
@@ -177,14 +193,17 @@ class DetailsPanel(QTabWidget):
     def _fill_table(self, result: Any) -> None:
         spherulites = () if result is None else result.spherulites
         self.table.blockSignals(True)
+        self.table.setSortingEnabled(False)  # fill first, then let the user's sort apply
         self.table.setRowCount(len(spherulites))
         for row, s in enumerate(spherulites):
             for column, text in enumerate(spherulite_row(s)):
-                item = QTableWidgetItem(text)
+                item = SortableItem(text)
                 if column == 8:
                     item.setForeground(QBrush(status_colour(s.status)))
                 self.table.setItem(row, column, item)
-            if s.id == self._model.selected_id:
+        self.table.setSortingEnabled(True)
+        for row in range(self.table.rowCount()):
+            if self.table.item(row, 0).text() == str(self._model.selected_id):
                 self.table.selectRow(row)
         self.table.blockSignals(False)
 

@@ -25,7 +25,7 @@ from .autosave import Autosaver
 from .details_panel import DetailsPanel
 from .experiments_panel import ExperimentsPanel
 from .frame_range_dialog import FrameRangeDialog
-from .model import STATUS_RUNNING, ProjectModel
+from .model import STATUS_RUNNING, STATUS_STALE, ProjectModel
 from .plots_panel import PlotsPanel
 from .tools import ToolController
 from .viewer import StackViewer
@@ -203,6 +203,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         model.problem_reported.connect(self.show_problem)
         model.selection_changed.connect(lambda *_: self._refresh_actions())
         model.analysis_updated.connect(lambda _i: self._refresh_unapplied())
+        model.status_changed.connect(lambda _i: self._refresh_unapplied())
         model.selection_changed.connect(lambda *_: self._refresh_unapplied())
         model.experiments_inserted.connect(lambda *_: self._refresh_actions())
         model.experiments_removed.connect(lambda *_: self._refresh_actions())
@@ -284,8 +285,10 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         index = self.model.current_index
         result = self.model.result(index) if index >= 0 else None
         count = len(result.unapplied_edits) if result is not None else 0
-        self.unapplied_label.setText(f"{count} edit(s) not applied — see Details ▸ Edits"
-                                     if count else "")
+        notes = [f"{count} edit(s) not applied — see Details ▸ Edits"] if count else []
+        if index >= 0 and self.model.status(index) == STATUS_STALE:
+            notes.append("results out of date — analyse again (F5)")
+        self.unapplied_label.setText("   ".join(notes))
 
     def show_problem(self, title: str, text: str) -> None:
         """A non-blocking warning dialog (the work continues behind it)."""

@@ -135,7 +135,8 @@ def test_selection_is_shared_by_viewer_table_and_plots(window):
     window.tools.set_tool("select")
     window.tools.click(target.x_px, target.y_px)
     assert window.model.selected_id == target.id
-    assert window.details.table.currentRow() == 1
+    table = window.details.table
+    assert table.item(table.currentRow(), 0).text() == str(target.id)
     window.details.table.selectRow(0)
     assert window.model.selected_id == window.model.result(0).spherulites[0].id
 
@@ -267,3 +268,15 @@ def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch
     assert window.model.experiment(1).um_per_px is None
     window.undo()
     assert window.model.experiment(0).um_per_px is None
+
+
+def test_spherulite_table_sorts_numbers_and_keeps_the_selection(window):
+    table = window.details.table
+    table.sortItems(4)  # G column: numeric
+    values = [table.item(r, 4).text() for r in range(table.rowCount())]
+    assert values == sorted(values, key=float)
+    last_id = int(table.item(table.rowCount() - 1, 0).text())
+    table.selectRow(table.rowCount() - 1)
+    assert window.model.selected_id == last_id
+    window.model.set_experiment_properties(0, um_per_px=3.0)
+    assert "out of date" in window.unapplied_label.text()
