@@ -9,11 +9,12 @@ Project commands (new/open/save, stacks, recovery) are in :mod:`app.window_files
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 from typing import Any
 
 import shiboken6
-from PySide6.QtCore import QSettings, QStandardPaths, Qt
+from PySide6.QtCore import QSettings, QStandardPaths, Qt, QTimer
 from PySide6.QtWidgets import (
     QDockWidget, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QMainWindow, QMessageBox,
     QProgressBar, QPushButton, QScrollArea, QSplitter, QStackedWidget, QUndoView, QWidget,
@@ -259,8 +260,10 @@ class MainWindow(WindowFilesMixin, QMainWindow):
             self._hidden_docks = None
 
     def _report_view_problem(self, text: str) -> None:
+        """An optional view failed to load: keep going, but say so (stderr, status bar)."""
         self.problems_shown.append(text)
-        print(text)
+        print(text, file=sys.stderr)
+        QTimer.singleShot(0, lambda: self.statusBar().showMessage(f"View not loaded: {text}", 15000))
 
     # ---------------------------------------------------------------- state display
     def _refresh_title(self) -> None:
