@@ -84,6 +84,9 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.toolbars = act.populate_toolbars(self, self.actions_by_id)
         self._build_status_bar()
         self._add_view_menus()
+        self.experiments_panel.setContextMenuPolicy(Qt.ActionsContextMenu)
+        for key in ("run", "properties", "calibrate", "remove_experiment"):
+            self.experiments_panel.addAction(self.actions_by_id[key])
         self.build_recent_menu()
         self._connect()
         self.actions_by_id["tool_select"].setChecked(True)
