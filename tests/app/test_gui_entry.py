@@ -43,3 +43,28 @@ def test_screenshot_with_unknown_view_or_bad_project_fails_clearly(qapp, small_p
     args = SimpleNamespace(project=str(broken), screenshot=str(tmp_path / "y.png"), view=None)
     assert main.run_from_cli(args) == 2
     assert str(broken) in capsys.readouterr().err
+
+
+def test_interactive_start_opens_the_project_and_returns_on_quit(qapp, small_project, tmp_path,
+                                                              monkeypatch):
+    from PySide6.QtCore import QSettings, QTimer
+    from PySide6.QtWidgets import QApplication, QWidget
+
+    from app.main_window import MainWindow
+
+    QSettings.setPath(QSettings.NativeFormat, QSettings.UserScope, str(tmp_path / "config"))
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "data"))
+    seen = {}
+
+    def look_and_quit():
+        window = next(w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow))
+        seen["path"], seen["count"] = window.model.path, window.model.experiment_count()
+        seen["notice"] = any(w.windowTitle() == "Before you start"
+                             for w in QApplication.topLevelWidgets() + window.findChildren(QWidget))
+        QApplication.quit()
+
+    QTimer.singleShot(200, look_and_quit)
+    args = SimpleNamespace(project=small_project.path, screenshot=None, view="viewer")
+    assert main.run_from_cli(args) == 0
+    assert seen["path"] == small_project.path and seen["count"] == 2
+    assert seen["notice"]  # the hot-stage cautions on first start
