@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from pathlib import Path
 from types import SimpleNamespace
 
 from PySide6.QtGui import QImage
@@ -45,26 +46,40 @@ def test_screenshot_with_unknown_view_or_bad_project_fails_clearly(qapp, small_p
     assert str(broken) in capsys.readouterr().err
 
 
-def test_interactive_start_opens_the_project_and_returns_on_quit(qapp, small_project, tmp_path,
-                                                              monkeypatch):
-    from PySide6.QtCore import QSettings, QTimer
-    from PySide6.QtWidgets import QApplication, QWidget
+INTERACTIVE_PROBE = """
+import sys
+from pathlib import Path
+from types import SimpleNamespace
+from PySide6.QtCore import QTimer
+from PySide6.QtWidgets import QApplication
+from app import main
+from app.main_window import MainWindow
+app = main._application()
+seen = {}
+def look_and_quit():
+    window = next(w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow))
+    seen["path"], seen["count"] = window.model.path, window.model.experiment_count()
+    seen["notice"] = any(w.windowTitle() == "Before you start"
+                         for w in QApplication.topLevelWidgets())
+    QApplication.quit()
+QTimer.singleShot(300, look_and_quit)
+status = main.run_from_cli(SimpleNamespace(project=sys.argv[1], screenshot=None, view="viewer"))
+print(status, seen["path"], seen["count"], seen["notice"])
+"""
 
-    from app.main_window import MainWindow
 
-    QSettings.setPath(QSettings.NativeFormat, QSettings.UserScope, str(tmp_path / "config"))
-    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "data"))
-    seen = {}
+def test_interactive_start_opens_the_project_and_returns_on_quit(small_project, tmp_path):
+    # in a child process: app.exec() and a user's settings must not leak into other tests
+    import os
+    import subprocess
+    import sys
 
-    def look_and_quit():
-        window = next(w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow))
-        seen["path"], seen["count"] = window.model.path, window.model.experiment_count()
-        seen["notice"] = any(w.windowTitle() == "Before you start"
-                             for w in QApplication.topLevelWidgets() + window.findChildren(QWidget))
-        QApplication.quit()
-
-    QTimer.singleShot(200, look_and_quit)
-    args = SimpleNamespace(project=small_project.path, screenshot=None, view="viewer")
-    assert main.run_from_cli(args) == 0
-    assert seen["path"] == small_project.path and seen["count"] == 2
-    assert seen["notice"]  # the hot-stage cautions on first start
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen", HOME=str(tmp_path),
+               XDG_CONFIG_HOME=str(tmp_path / "config"), XDG_DATA_HOME=str(tmp_path / "data"))
+    done = subprocess.run([sys.executable, "-c", INTERACTIVE_PROBE, small_project.path],
+                          capture_output=True, text=True, env=env, timeout=60,
+                          cwd=str(Path(__file__).resolve().parents[2]))
+    assert done.returncode == 0, done.stderr
+    status, path, count, notice = done.stdout.split()[-4:]
+    assert (status, path, count) == ("0", small_project.path, "2")
+    assert notice == "True"  # the hot-stage cautions on first start
