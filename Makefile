@@ -10,21 +10,23 @@ DEMO := sample_images/demo.spherokin.json
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
-	$(BIN)/python -m pip install --upgrade pip
+	$(BIN)/python -m pip install --quiet --upgrade pip
 
 $(VENV)/.installed: pyproject.toml | $(BIN)/python
-	$(BIN)/python -m pip install -e .
+	$(BIN)/python -m pip install --quiet -e .
 	touch $@
 
 $(VENV)/.installed-test: pyproject.toml | $(BIN)/python
-	$(BIN)/python -m pip install -e ".[test]"
+	$(BIN)/python -m pip install --quiet -e ".[test]"
 	touch $(VENV)/.installed $@
 
 install: $(VENV)/.installed
 install-test: $(VENV)/.installed-test
 
+# Exit status 2 (no display, or a bad file) has already been explained in one line by
+# spherokin itself; make need not add its own error line on top.
 run: $(VENV)/.installed
-	@$(BIN)/spherokin gui $(DEMO)
+	@$(BIN)/spherokin gui $(DEMO); status=$$?; [ $$status -eq 0 ] || [ $$status -eq 2 ] || exit $$status
 
 test: $(VENV)/.installed-test
 	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest
