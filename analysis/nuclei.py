@@ -273,13 +273,22 @@ def boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
     return (labels > 0) & ((hi != lab) | (lo != lab))
 
 
+def label_order(flat: np.ndarray) -> np.ndarray:
+    """Stable argsort of non-negative integer labels (a radix sort when they fit 16 bits)."""
+    if flat.size and 0 <= int(flat.min()) and int(flat.max()) < 65536:
+        flat = flat.astype(np.uint16)
+    return np.argsort(flat, kind="stable")
+
+
 def pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
-    """Flat pixel indices of each positive label."""
+    """Flat pixel indices (ascending) of each positive label."""
     flat = labels.ravel()
-    order = np.argsort(flat, kind="stable")
-    ids, starts = np.unique(flat[order], return_index=True)
-    ends = np.append(starts[1:], flat.size)
-    return {int(i): order[a:b] for i, a, b in zip(ids, starts, ends) if i > 0}
+    if flat.size == 0 or int(flat.max()) <= 0:
+        return {}
+    order = label_order(np.maximum(flat, 0))
+    ends = np.cumsum(np.bincount(np.maximum(flat, 0)))
+    starts = ends - np.bincount(np.maximum(flat, 0))
+    return {int(i): order[starts[i]:ends[i]] for i in range(1, ends.size) if ends[i] > starts[i]}
 
 
 def cone_model(shape, groups: dict, cones: dict) -> tuple[np.ndarray, np.ndarray]:
@@ -290,7 +299,7 @@ def cone_model(shape, groups: dict, cones: dict) -> tuple[np.ndarray, np.ndarray
     ``t0_s`` and ``slope_s_per_px`` (a :class:`analysis.growth.ConeFit`).
     """
     h, w = shape
-    best = np.full(shape, np.inf)
+    best = np.full(shape, np.inf, np.float32)  # float32: ties closer than ~1e-4 s do not matter
     owner = np.zeros(shape, np.int32)
     for label, cone in cones.items():
         pix = groups.get(label)
@@ -300,13 +309,16 @@ def cone_model(shape, groups: dict, cones: dict) -> tuple[np.ndarray, np.ndarray
         margin = 12 + int(0.5 * max(np.ptp(y), np.ptp(x)))
         y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
         x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
-        yy, xx = np.ogrid[y0:y1, x0:x1]
-        t = cone.t0_s + cone.slope_s_per_px * np.hypot(xx - cone.x_px, yy - cone.y_px)
+        t = np.square(np.arange(y0, y1, dtype=np.float32) - np.float32(cone.y_px))[:, None] + \
+            np.square(np.arange(x0, x1, dtype=np.float32) - np.float32(cone.x_px))[None, :]
+        np.sqrt(t, out=t)
+        t *= np.float32(cone.slope_s_per_px)
+        t += np.float32(cone.t0_s)
         view, own = best[y0:y1, x0:x1], owner[y0:y1, x0:x1]
         better = t < view
-        view[better] = t[better]
+        np.copyto(view, t, where=better)
         own[better] = label
-    return best, owner
+    return best.astype(np.float64), owner
 
 
 def cone_partition(labels: np.ndarray, groups: dict, cones: dict) -> np.ndarray:
