@@ -12,8 +12,8 @@ Per frame (see :func:`arrival_map_iter`):
 2. drift of the specimen, estimated on that evidence every few frames (only where
    crystal has settled, so growing fronts are not read as motion; :mod:`analysis.align`)
    and undone by resampling the evidence onto frame 0's grid, fused with its smoothing;
-3. detection: a melt pixel whose evidence reaches the threshold starts being *tracked*;
-   it must stay above ``hysteresis × threshold`` for ``persistence_frames`` frames
+3. detection (:mod:`analysis.pixel_tracking`): a melt pixel whose evidence reaches the
+   threshold starts being *tracked*; it must stay above ``hysteresis × threshold`` for ``persistence_frames`` frames
    (flicker and noise spikes do not), otherwise it goes back to melt;
 4. timing: a tracked pixel keeps the evidence of the frame before detection and of the
    next ``track_frames`` frames. Its arrival is where the evidence crossed *half of its
@@ -43,15 +43,14 @@ from . import segment
 from .align import (AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, extrapolate_unseen_drift,
                     warp_onto_reference)
 from .errors import InputError
+from .pixel_tracking import DONE, MELT, PassState, retire_all, step_frame
 from .progress import Progress, run_to_completion
 
 __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
 
 _STAGE = "arrival times"
 _NEVER, _UNUSABLE = -1, -2
-_MELT, _TRACKING, _DONE = 0, 1, 2
 _SETTLE_FRAMES = 6  # frames after detection before a pixel's content is steady enough to register on
-_MIN_HISTORY = 4    # columns of evidence (pre-detection frame included) needed to judge a plateau
 # Plateau (in thresholds) above which a pixel's half-plateau crossing lies after its
 # pre-detection frame, so its time is not limited by the threshold.
 _RELIABLE_CONTRAST = 2.5
@@ -240,69 +239,6 @@ def _checked_stack(stack, start_frame: int = 0) -> tuple[np.ndarray, float]:
     return times[start_frame:], float(um)
 
 
-class _Cohort:
-    """Pixels detected in the same frame, tracked together until they retire."""
-
-    def __init__(self, index, frame, before, now, width):
-        self.index = index
-        self.first = frame                      # frame index of detection
-        self.history = np.zeros((index.size, width), np.float32)
-        self.history[:, 0], self.history[:, 1] = before, now
-        self.count = 2                          # filled history columns
-
-    def record(self, evidence_flat):
-        self.history[:, self.count] = evidence_flat[self.index]
-        self.count += 1
-
-    def keep(self, chosen):
-        self.index, self.history = self.index[chosen], self.history[chosen]
-
-
-def _half_plateau_times(history, count, first, times, threshold):
-    """Arrival time and plateau of retired pixels from their evidence histories.
-
-    Column j of a history holds frame ``first + j - 1``; ``count`` columns are filled.
-    The plateau is the mean of the last (up to) three columns; the arrival is where the
-    evidence first reached half of it (never before the pre-detection value), linearly
-    interpolated in time.
-    """
-    n, width = history.shape
-    cols = np.arange(count)
-    history = history[:, :count]
-    tail = cols >= max(count - 3, 1)
-    plateau = history[:, tail].mean(axis=1)
-    level = np.maximum(0.5 * plateau, np.minimum(history[:, 0] + 1e-3 * threshold, history[:, 1]))
-    above = (cols[None, :] >= 1) & (history >= level[:, None])
-    j = np.argmax(above, axis=1)
-    j = np.where(above.any(axis=1), j, 1)
-    rows = np.arange(n)
-    lo, hi = history[rows, j - 1], history[rows, j]
-    fraction = np.clip((level - lo) / np.maximum(hi - lo, 1e-6), 0.0, 1.0)
-    frame_hi = np.minimum(first + j - 1, times.size - 1)
-    frame_lo = np.maximum(frame_hi - 1, 0)
-    arrival = times[frame_lo] + fraction * (times[frame_hi] - times[frame_lo])
-    return arrival.astype(np.float32), plateau.astype(np.float32)
-
-
-class _PassState:
-    """Everything the streaming pass keeps between frames (all O(H·W))."""
-
-    def __init__(self, shape, n_frames, settings):
-        size = shape[0] * shape[1]
-        self.shape = shape
-        self.status = np.zeros(size, np.uint8)
-        self.arrival = np.full(size, np.inf, np.float32)
-        self.contrast = np.zeros(size, np.float32)
-        self.previous = np.zeros(size, np.float32)
-        self.detected = np.full(size, np.iinfo(np.int32).max, np.int32)   # frame of detection
-        self.shifts = np.zeros((n_frames, 2))
-        self.measured = np.zeros(n_frames, bool)
-        self.cohorts: list[_Cohort] = []
-        self.gate = np.zeros(size, np.float32)   # detection level: threshold on melt, inf elsewhere
-        self.width = settings.track_frames + 1
-        self.threshold = float("nan")
-        self.settings = settings
-
 
 def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
                      ) -> Generator[Progress, None, ArrivalMap]:
@@ -328,11 +264,11 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     mode = segment.resolve_channel_mode(settings.channel, raw0)
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
     model, threshold, at_start = _set_up(first, second, settings, mode, integer_data=raw0.dtype.kind in "ui")
-    state = _PassState(first.shape[:2], n, settings)
+    state = PassState(first.shape[:2], n, settings)
     state.gate[:] = threshold
     state.threshold = threshold
     state.gate[at_start.ravel()] = np.inf
-    state.status[at_start.ravel()] = _DONE
+    state.status[at_start.ravel()] = DONE
     state.arrival[at_start.ravel()] = times[0]
     drift = None if settings.registration == "off" else DriftTracker(coarse_sigma_px=None, crop_px=192)
     if drift is not None:
@@ -355,9 +291,9 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
             reference_sum = reference_count = None  # done: free the accumulators
         state.shifts[k] = _frame_shift(state, drift, diff, model, at_start, k)
         specimen = segment.evidence_from_difference(diff, model, _applied_shift(state.shifts[k], settings.registration))
-        _step(state, specimen.ravel(), k, times, threshold)
+        step_frame(state, specimen.ravel(), k, times, threshold)
         yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
-    _retire_all(state, times, threshold)
+    retire_all(state, times, threshold)
     if drift is not None:
         _regrid_unseen_drift(state, at_start, times[0])
     return _finish(state, times, um_per_px, threshold, at_start, model, mode)
@@ -448,7 +384,7 @@ def _melt_sample(state, step, threshold):
     never detected, and not next to anything detected (extinction arms inside a
     spherulite look almost like melt, but not quite). Drift is slow enough to ignore."""
     quiet = state.previous.reshape(state.shape)[::step, ::step] < 0.5 * threshold
-    untouched = (state.status.reshape(state.shape)[::step, ::step] == _MELT).astype(np.uint8)
+    untouched = (state.status.reshape(state.shape)[::step, ::step] == MELT).astype(np.uint8)
     return quiet & cv2.erode(untouched, np.ones((5, 5), np.uint8)).astype(bool)
 
 
@@ -472,57 +408,6 @@ def _applied_shift(shift, mode):
         return (0.0, 0.0)
     return shift
 
-
-def _step(state, evidence_flat, k, times, threshold):
-    """Detect, track and retire pixels for frame k."""
-    settings = state.settings
-    for cohort in state.cohorts:
-        cohort.record(evidence_flat)
-        if cohort.count - 2 <= settings.persistence_frames - 1:  # still proving it persists
-            held = cohort.history[:, cohort.count - 1] >= settings.hysteresis * threshold
-            if not held.all():
-                _release(state, cohort.index[~held], threshold)
-                cohort.keep(held)
-    while state.cohorts and state.cohorts[0].count >= state.width:
-        _retire(state, state.cohorts.pop(0), times)
-    fresh = np.flatnonzero(evidence_flat >= state.gate)
-    if fresh.size:
-        state.cohorts.append(_Cohort(fresh, k, state.previous[fresh], evidence_flat[fresh], state.width))
-        state.status[fresh] = _TRACKING
-        state.gate[fresh] = np.inf
-        state.detected[fresh] = k
-    state.previous = evidence_flat
-
-
-def _release(state, index, threshold):
-    """Pixels whose evidence did not persist go back to melt."""
-    state.status[index] = _MELT
-    state.gate[index] = threshold
-    state.detected[index] = np.iinfo(np.int32).max
-
-
-def _retire(state, cohort, times):
-    if cohort.index.size == 0:
-        return
-    arrival, plateau = _half_plateau_times(cohort.history, cohort.count, cohort.first, times, state.threshold)
-    state.arrival[cohort.index] = arrival
-    state.contrast[cohort.index] = plateau
-    state.status[cohort.index] = _DONE
-
-
-def _retire_all(state, times, threshold):
-    """End of the record: pixels detected in the last two frames have no plateau yet and
-    stay uncounted; the others count if their evidence held up."""
-    for cohort in state.cohorts:
-        if cohort.count < _MIN_HISTORY:
-            _release(state, cohort.index, threshold)
-            continue
-        low = cohort.history[:, 1:cohort.count] < state.settings.hysteresis * threshold
-        held = ~low.any(axis=1)
-        _release(state, cohort.index[~held], threshold)
-        cohort.keep(held)
-        _retire(state, cohort, times)
-    state.cohorts = []
 
 
 def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> ArrivalMap:
