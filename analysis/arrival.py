@@ -13,8 +13,9 @@ Per frame (see :func:`arrival_map_iter`):
    crystal has settled, so growing fronts are not read as motion; :mod:`analysis.align`)
    and undone by resampling the evidence onto frame 0's grid, fused with its smoothing;
 3. detection (:mod:`analysis.pixel_tracking`): a melt pixel whose evidence reaches the
-   threshold starts being *tracked*; it must stay above ``hysteresis × threshold`` for ``persistence_frames`` frames
-   (flicker and noise spikes do not), otherwise it goes back to melt;
+   threshold starts being *tracked*; it must stay above ``hysteresis × threshold`` for
+   ``persistence_frames`` frames (flicker and noise spikes do not), otherwise it goes
+   back to melt;
 4. timing: a tracked pixel keeps the evidence of the frame before detection and of the
    next ``track_frames`` frames. Its arrival is where the evidence crossed *half of its
    own plateau* (linear interpolation between the two frames around the crossing). A
