@@ -10,8 +10,6 @@ unchanged territories cost nothing when edits are replayed.
 
 from __future__ import annotations
 
-import hashlib
-
 import numpy as np
 
 from . import growth, nuclei
@@ -50,7 +48,7 @@ def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
     """Cone fit of one territory (cached); ``refine`` adds the refit without the apex.
     ``warm``: an earlier fit of nearly the same pixels to start from (fewer iterations)."""
     chosen = fit_pixels(ctx, pix, band, spans, settings)
-    key = ("cone", hashlib.sha1(chosen.tobytes()).hexdigest(), det.fixed_xy, refine)
+    key = ("cone", digest(chosen), det.fixed_xy, refine)
     if key in ctx.cache:
         return ctx.cache[key]
     y, x = np.divmod(chosen, ctx.shape[1])
@@ -82,14 +80,22 @@ def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
     return fit
 
 
-def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
-    """Radii of one spherulite (cached on its pixels, centre, spans and neighbourhood)."""
+def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings):
+    """Radii of one spherulite and their linearity test (cached on its pixels, centre,
+    spans and neighbourhood)."""
     rows, cols = np.divmod(pix, ctx.shape[1]) if pix.size else (np.zeros(1, int), np.zeros(1, int))
     r = 3 + int(max(np.ptp(rows), np.ptp(cols)))
     y0, x0 = max(int(cy) - r, 0), max(int(cx) - r, 0)
     window = labels[y0:max(int(cy) + r + 1, 0), x0:max(int(cx) + r + 1, 0)]
     key = ("radii", det_id, digest(pix, window, (cx, cy, tuple(spans))))
-    return cached(ctx, key, lambda: _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings))
+    return cached(ctx, key, lambda: _tested(_measure_radii(ctx, det_id, pix, labels, cx, cy, spans,
+                                                            settings), settings))
+
+
+def _tested(series: RadiusSeries, settings) -> tuple[RadiusSeries, growth.LinearityTest]:
+    return series, growth.linearity_test(series.time_s[series.used], series.radius_um[series.used],
+                                         alpha=settings.nonlinear_alpha,
+                                         min_slope_change=settings.nonlinear_min_change)
 
 
 def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
@@ -116,11 +122,8 @@ def _edge(ctx, det, fit) -> bool:
     return det.fixed_xy is None and not inside
 
 
-def _status(ctx, det, fit, series, settings) -> tuple[str, str]:
+def _status(ctx, det, fit, series, lin, settings) -> tuple[str, str]:
     """Status and the linearity test's description."""
-    lin = growth.linearity_test(series.time_s[series.used], series.radius_um[series.used],
-                                alpha=settings.nonlinear_alpha,
-                                min_slope_change=settings.nonlinear_min_change)
     if det.excluded:
         return "excluded", lin.description
     if not fit.ok:
@@ -144,8 +147,8 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         seeds = np.concatenate(det.seeds)
         sy, sx = np.divmod(seeds, ctx.shape[1])
         cx, cy = det.fixed_xy or (float(sx.mean()), float(sy.mean()))
-    series = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
-    status, _ = _status(ctx, det, fit, series, settings)
+    series, lin = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
+    status, _ = _status(ctx, det, fit, series, lin, settings)
     frames = ctx.frame_index.ravel()[pix]
     seen = frames[frames >= 0]
     g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None

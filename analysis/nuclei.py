@@ -149,12 +149,19 @@ def markers_from_labels(labels: np.ndarray, work: np.ndarray) -> Markers:
     """Describe marker regions (centroids, depth, border contact) of a label image."""
     labels = labels.astype(np.int32)
     n = int(labels.max())
-    index = np.arange(1, n + 1)
     if n == 0:
         empty = np.zeros((0,))
         return Markers(labels, np.zeros((0, 2)), empty, np.zeros(0, bool))
-    cy_cx = np.array(ndi.center_of_mass(np.ones_like(labels), labels, index)).reshape(n, 2)
-    min_t = np.asarray(ndi.minimum(work, labels, index), dtype=float).reshape(n)
+    # Markers are small: work on their pixels only, not on whole-image label scans.
+    flat = np.flatnonzero(labels)
+    which = labels.ravel()[flat]
+    rows, cols = np.divmod(flat, labels.shape[1])
+    count = np.bincount(which, minlength=n + 1)[1:]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cy_cx = np.column_stack([np.bincount(which, rows, n + 1)[1:] / count,
+                                 np.bincount(which, cols, n + 1)[1:] / count])
+    min_t = np.full(n, np.inf)
+    np.minimum.at(min_t, which - 1, np.asarray(work, dtype=float).ravel()[flat])
     border = np.zeros(labels.shape, bool)
     border[0, :] = border[-1, :] = border[:, 0] = border[:, -1] = True
     touches = np.zeros(n + 1, bool)
@@ -332,5 +339,7 @@ def cone_partition(labels: np.ndarray, groups: dict, cones: dict) -> np.ndarray:
     without a usable cone keep their labels.
     """
     best, owner = cone_model(labels.shape, groups, cones)
-    movable = np.isin(labels, [k for k, c in cones.items() if c.ok]) & np.isfinite(best)
+    with_cone = np.zeros(max(int(labels.max()), max(cones, default=0)) + 1, bool)
+    with_cone[[k for k, c in cones.items() if c.ok and k >= 0]] = True
+    movable = with_cone[labels] & np.isfinite(best)  # territory labels are >= 0
     return np.where(movable, owner, labels).astype(np.int32)

@@ -64,9 +64,11 @@ class Detection:
 
 
 def auto_detections(ctx: Context) -> list[Detection]:
-    flat = ctx.markers.labels.ravel()
-    order = nuclei.label_order(flat)
-    bounds = np.searchsorted(flat[order], np.arange(1, ctx.markers.xy_px.shape[0] + 2))
+    marked = np.flatnonzero(ctx.markers.labels)  # markers are small: sort only their pixels
+    which = ctx.markers.labels.ravel()[marked]
+    ranked = nuclei.label_order(which)
+    order = marked[ranked]
+    bounds = np.searchsorted(which[ranked], np.arange(1, ctx.markers.xy_px.shape[0] + 2))
     return [Detection(k + 1, [order[bounds[k]:bounds[k + 1]]], tuple(ctx.auto_lookup_xy[k]))
             for k in range(ctx.markers.xy_px.shape[0])]
 
@@ -198,10 +200,15 @@ def _split_territory(ctx, labels, det, by_id) -> None:
     window[region[y0:y1, x0:x1]] = split[region[y0:y1, x0:x1]]
 
 
+def _raw(array: np.ndarray) -> memoryview:
+    """The array's bytes without a copy (when it is contiguous)."""
+    return memoryview(np.ascontiguousarray(array)).cast("B") if array.size else b""
+
+
 def digest(*parts) -> str:
     key = hashlib.sha1()
     for part in parts:
-        key.update(part.tobytes() if isinstance(part, np.ndarray) else repr(part).encode())
+        key.update(_raw(part) if isinstance(part, np.ndarray) else repr(part).encode())
     return key.hexdigest()
 
 

@@ -195,6 +195,8 @@ def evidence_from_difference(diff: np.ndarray, model: MeltModel, shift_yx=(0.0, 
         kernel_y = _shifted_gaussian(model.smoothing_px, radius, dy - whole_y)
         kernel_x = _shifted_gaussian(model.smoothing_px, radius, dx - whole_x)
         smooth = cv2.sepFilter2D(diff, cv2.CV_32F, kernel_x, kernel_y, borderType=cv2.BORDER_REPLICATE)
+    if model.channels == 1 and (whole_y or whole_x):
+        return _slide(smooth, whole_y, whole_x, magnitude=True)  # one pass for both
     magnitude = np.abs(smooth, out=smooth)
     if model.channels > 1:
         magnitude = cv2.transform(magnitude, np.ones((1, model.channels), np.float32))
@@ -213,15 +215,20 @@ def _shifted_gaussian(sigma: float, radius: int, fraction: float) -> np.ndarray:
     return ((1.0 - fraction) * gauss + fraction * np.roll(gauss, 1)).astype(np.float32)
 
 
-def _slide(image: np.ndarray, dy: int, dx: int) -> np.ndarray:
-    """``out(p) = image(p + (dy, dx))`` for whole pixels, zero where that is outside."""
+def _slide(image: np.ndarray, dy: int, dx: int, *, magnitude: bool = False) -> np.ndarray:
+    """``out(p) = image(p + (dy, dx))`` for whole pixels, zero where that is outside
+    (``magnitude``: ``|image(p + (dy, dx))|``)."""
     height, width = image.shape[:2]
     rows = slice(max(-dy, 0), min(height - dy, height))
     cols = slice(max(-dx, 0), min(width - dx, width))
     if rows.stop <= rows.start or cols.stop <= cols.start:
         return np.zeros_like(image)
     out = np.empty_like(image)
-    out[rows, cols] = image[rows.start + dy:rows.stop + dy, cols.start + dx:cols.stop + dx]
+    source = image[rows.start + dy:rows.stop + dy, cols.start + dx:cols.stop + dx]
+    if magnitude:
+        np.abs(source, out=out[rows, cols])
+    else:
+        out[rows, cols] = source
     out[:rows.start], out[rows.stop:] = 0, 0
     out[:, :cols.start], out[:, cols.stop:] = 0, 0
     return out
