@@ -42,7 +42,7 @@ from .edits import Edit
 from .errors import InputError
 from .evaluation import evaluate, fit_pixels, result_of
 from .progress import Progress, run_to_completion, scaled
-from .replay import Context, auto_detections, replay
+from .replay import Context, auto_detections, cached, digest, replay
 from .results import ExperimentResult
 
 
@@ -179,11 +179,18 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
         if ctx.markers.xy_px.shape[0] == before:
             break
     yield Progress("fitting growth cones", 0.7)
-    automatic = result_of(ctx, auto_detections(ctx), [], [], settings)
+    automatic, _, _ = _automatic_evaluation(ctx, settings)
     for sph in automatic.spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
+
+
+def _automatic_evaluation(ctx: Context, settings):
+    """The automatic detections evaluated (see evaluation.evaluate), memoised on the
+    markers: a round of checks that changes nothing costs no second evaluation."""
+    key = ("automatic evaluation", digest(ctx.markers.labels, ctx.base_territories))
+    return cached(ctx, key, lambda: evaluate(ctx, auto_detections(ctx), [], [], settings))
 
 
 def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray) -> np.ndarray:
@@ -204,7 +211,7 @@ def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray)
 
 def _with_missed_nuclei(ctx: Context, settings) -> Context:
     """Add markers for nuclei without a regional minimum (see nuclei.missed_nuclei)."""
-    result, fits, groups = evaluate(ctx, auto_detections(ctx), [], [], settings)
+    result, fits, groups = _automatic_evaluation(ctx, settings)
     model, _ = nuclei.cone_model(ctx.shape, groups, fits)
     measured = np.isfinite(ctx.fit_arrival) & ~ctx.filled & ~ctx.at_start & (ctx.frame_index >= 0)
     seeds = nuclei.missed_nuclei(
@@ -250,7 +257,7 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
     """Give two markers to territories that hold two nuclei (nuclei.split_candidates)."""
-    result, fits, groups = evaluate(ctx, auto_detections(ctx), [], [], settings)
+    result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
     next_id = ctx.markers.xy_px.shape[0] + 1
     for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
