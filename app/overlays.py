@@ -71,6 +71,37 @@ def front_radii_px(marks: Sequence[OverlayMark], time_s: float, um_per_px: float
     return radii
 
 
+def clipped_fronts(marks: Sequence[OverlayMark], radii_px: np.ndarray,
+                   territories: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Polylines of fitted front circles, drawn only inside each spherulite's territory.
+
+    Returns ``x, y, connect`` for all circles at once: each circle sampled about every
+    6 px, and for each point whether a line joins it to the next. ``territories`` is the
+    analysis's label image (spherulite id per pixel): past impingement a fitted circle
+    would cross its neighbours, where the real front has stopped, and outside the field
+    nothing was seen, so neither part is drawn. One vectorised pass keeps a frame change
+    within the scrubbing budget.
+    """
+    ids = np.array([m.id for m in marks], dtype=np.int64)
+    cx = np.array([m.x_px for m in marks])
+    cy = np.array([m.y_px for m in marks])
+    radii = np.asarray(radii_px, dtype=float)
+    counts = np.clip(np.pi * radii / 3.0, 16, 240).astype(int) + 1
+    owner = np.repeat(np.arange(len(marks)), counts)
+    first = np.repeat(np.cumsum(counts) - counts, counts)
+    angle = 2.0 * np.pi * (np.arange(counts.sum()) - first) / (counts[owner] - 1)
+    x = cx[owner] + radii[owner] * np.cos(angle)
+    y = cy[owner] + radii[owner] * np.sin(angle)
+    rows, cols = np.rint(y).astype(int), np.rint(x).astype(int)
+    height, width = territories.shape
+    inside = (rows >= 0) & (rows < height) & (cols >= 0) & (cols < width)
+    own = np.zeros(len(x), dtype=bool)
+    own[inside] = territories[rows[inside], cols[inside]] == ids[owner[inside]]
+    connect = own & np.append(own[1:], False)
+    connect[np.cumsum(counts) - 1] = False  # never join one circle to the next
+    return x, y, connect.astype(np.int32)
+
+
 def _pen(colour: QColor, width: float, style=Qt.SolidLine) -> QPen:
     pen = QPen(colour, width)
     pen.setCosmetic(True)
@@ -111,6 +142,7 @@ class OverlayLayer:
         self._centres = {s: _HaloPath(self._root, status_colour(s), 1.4) for s in STATUS_COLOURS}
         self._labels = IdLabels(self._root)
         self._marks: list[OverlayMark] = []
+        self._territories: np.ndarray | None = None
         self._selected_id = -1
         self._offset = QPointF(0, 0)
         self.visible = {"fronts": True, "centres": True, "ids": True}
@@ -119,9 +151,15 @@ class OverlayLayer:
     def marks(self) -> list[OverlayMark]:
         return self._marks
 
-    def set_marks(self, marks: Sequence[OverlayMark], selected_id: int = -1) -> None:
-        """New analysis: rebuild centres and ids (fronts follow on ``update_fronts``)."""
+    def set_marks(self, marks: Sequence[OverlayMark], selected_id: int = -1,
+                  territories: np.ndarray | None = None) -> None:
+        """New analysis: rebuild centres and ids (fronts follow on ``update_fronts``).
+
+        ``territories`` is the analysis's label image (spherulite id per pixel on frame
+        0's grid); with it, fronts are clipped to each spherulite's own territory.
+        """
         self._marks = list(marks)
+        self._territories = territories
         self._selected_id = selected_id
         self._build_centres()
         self._build_labels()
@@ -145,19 +183,31 @@ class OverlayLayer:
 
     def update_fronts(self, time_s: float | None, um_per_px: float | None) -> None:
         """Redraw the fitted fronts at ``time_s`` (seconds from the isothermal start)."""
-        paths = {s: QPainterPath() for s in self._fronts}
-        selected = QPainterPath()
+        pieces: dict[str, list] = {s: [] for s in self._fronts}
+        selected: list = []
         if time_s is not None and um_per_px and self._marks:
             radii = front_radii_px(self._marks, time_s, um_per_px)
             for mark, radius in zip(self._marks, radii):
                 if not radius > 0:
                     continue
-                rect = QRectF(mark.x_px - radius, mark.y_px - radius, 2 * radius, 2 * radius)
-                target = selected if mark.id == self._selected_id else paths.get(mark.status)
-                (target if target is not None else paths["ok"]).addEllipse(rect)
-        for status, path in paths.items():
-            self._fronts[status].set_path(path)
-        self._selected.set_path(selected)
+                target = selected if mark.id == self._selected_id else pieces.get(mark.status)
+                (target if target is not None else pieces["ok"]).append((mark, radius))
+        for status, parts in pieces.items():
+            self._fronts[status].set_path(self._front_path(parts))
+        self._selected.set_path(self._front_path(selected))
+
+    def _front_path(self, parts: list) -> QPainterPath:
+        """Whole circles without territories (cheap ellipses), else clipped polylines."""
+        if self._territories is None:
+            path = QPainterPath()
+            for mark, radius in parts:
+                path.addEllipse(QRectF(mark.x_px - radius, mark.y_px - radius, 2 * radius, 2 * radius))
+            return path
+        if not parts:
+            return QPainterPath()
+        marks, radii = zip(*parts)
+        x, y, connect = clipped_fronts(marks, np.array(radii), self._territories)
+        return pg.arrayToQPath(x, y, connect=connect)
 
     def _build_centres(self) -> None:
         paths = {s: QPainterPath() for s in self._centres}

@@ -257,7 +257,8 @@ class StackViewer(QWidget):
 
     def _refresh_marks(self) -> None:
         result = self._model.result(self._index) if self._index >= 0 else None
-        self.overlay.set_marks(marks_from_result(result), self._model.selected_id)
+        territories = result.extra.get("territories") if result is not None else None
+        self.overlay.set_marks(marks_from_result(result), self._model.selected_id, territories)
 
     def _update_overlay_frame(self, frame: int) -> None:
         time_s = self.time_from_start_s(frame)

@@ -2,7 +2,7 @@
 
 Target: < ~16 ms per frame change (draw + paint) so scrubbing stays smooth. Writes a
 1024×1024 16-bit stack of 60 frames to a temporary folder, gives the viewer 80 fitted
-spherulites to overlay, and times ``show_frame`` followed by a synchronous repaint,
+spherulites to overlay (fronts clipped to Voronoi territories, as after an analysis), and times ``show_frame`` followed by a synchronous repaint,
 from the file (cold) and from the frame cache (warm). Prints a table.
 
 Run: ``QT_QPA_PLATFORM=offscreen .venv/bin/python tests/benchmarks/gui_scrub.py``
@@ -57,7 +57,19 @@ def synthetic_result(stack: str) -> ExperimentResult:
         growth_rate=PooledGrowthRate(30.0, 29.0, 31.0, SPHERULITES),
         nucleation=Nucleation(SPHERULITES, "athermal", None, None, None, None, None),
         area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0),
-        avrami_film=None, avrami_predicted=None)
+        avrami_film=None, avrami_predicted=None,
+        extra={"territories": nearest_centre_labels(spherulites)})
+
+
+def nearest_centre_labels(spherulites) -> np.ndarray:
+    """Territories as the analysis gives them: a label image of spherulite ids (Voronoi)."""
+    from scipy.spatial import cKDTree
+
+    centres = np.array([(s.y_px, s.x_px) for s in spherulites])
+    rows, cols = np.mgrid[0:SIZE, 0:SIZE]
+    _, nearest = cKDTree(centres).query(np.column_stack([rows.ravel(), cols.ravel()]))
+    ids = np.array([s.id for s in spherulites], dtype=np.int32)
+    return ids[nearest].reshape(SIZE, SIZE)
 
 
 def time_frames(viewer, frames) -> list[float]:
