@@ -34,6 +34,8 @@ test: $(VENV)/.installed-test
 benchmarks: $(VENV)/.installed-test
 	$(BIN)/python tests/benchmarks/accuracy.py
 	$(BIN)/python tests/benchmarks/speed.py
+	QT_QPA_PLATFORM=offscreen $(BIN)/python tests/benchmarks/gui_scrub.py
+	$(BIN)/python tests/benchmarks/open_large_stack.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info
