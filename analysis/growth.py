@@ -176,17 +176,14 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
     cx, cy = start_xy
     t0, s = _linear_start(x, y, t, cx, cy) if start_t0_slope is None else start_t0_slope
     if fixed_centre:
-        q = _soft_l1_minimum(lambda q: _residuals((cx, cy, q[0], q[1]), x, y, t),
-                             lambda q: _jacobian((cx, cy, q[0], q[1]), x, y, t)[:, 2:],
-                             np.array([t0, s]), f_scale_s)
+        q = _soft_l1_minimum(_cone_problem(x, y, t, (cx, cy)), np.array([t0, s]), f_scale_s)
         p = np.array([cx, cy, *q])
         jac = _jacobian(p, x, y, t)[:, 2:]
     else:
         lo, hi = _centre_bounds(field_shape)
         x0 = np.array([np.clip(cx, lo[0], hi[0]), np.clip(cy, lo[1], hi[1]), t0, s])
         # Unbounded (much cheaper per step); the bounds are checked after.
-        p = _soft_l1_minimum(lambda q: _residuals(q, x, y, t), lambda q: _jacobian(q, x, y, t),
-                             x0, f_scale_s)
+        p = _soft_l1_minimum(_cone_problem(x, y, t), x0, f_scale_s)
         if not (lo[0] <= p[0] <= hi[0] and lo[1] <= p[1] <= hi[1]):
             return failed_fit("cone apex far outside the field", t.size, n_levels)
         jac = _jacobian(p, x, y, t)
@@ -195,41 +192,65 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
     return _summarise(p, jac, _residuals(p, x, y, t), t, n_levels, n_params, fixed_centre)
 
 
-def _soft_l1_minimum(residuals, jacobian, p0, f_scale: float, *, max_steps: int = 200,
-                     xtol: float = 1e-8, ftol: float = 1e-8) -> np.ndarray:
-    """Parameters minimising the soft-L1 cost of ``residuals`` (see :func:`soft_l1_cost`).
+def _cone_problem(x, y, t, centre=None):
+    """Residuals of the cone (as :func:`_residuals`) with a deferred Jacobian (as
+    :func:`_jacobian`) sharing the distances: parameters (x, y, t0, s), or (t0, s)
+    around a fixed ``centre``."""
+    def evaluate(q):
+        cx, cy, t0, s = q if centre is None else (centre[0], centre[1], q[0], q[1])
+        dx, dy = x - cx, y - cy
+        dist = np.hypot(dx, dy)
+        resid = t0 + s * dist - t
 
-    Levenberg-Marquardt on the iteratively reweighted normal equations: the soft-L1 loss
-    is a concave function of r^2, so weights w = 1 / sqrt(1 + (r/f)^2) make a weighted
-    least-squares problem whose minimum lowers the robust cost (Holland & Welsch 1977,
-    Commun. Stat. Theory Methods 6, 813; Marquardt 1963, J. SIAM 11, 431). The same
-    minimum as scipy.optimize.least_squares(loss="soft_l1"), with the same tolerances,
-    at a fraction of the cost for these small problems. Only accepted steps lower the
-    cost; stops when the step or the relative cost change falls below the tolerances.
+        def jacobian():
+            if centre is not None:
+                return np.column_stack([np.ones_like(dist), dist])
+            safe = np.maximum(dist, 1e-9)
+            return np.column_stack([-s * dx / safe, -s * dy / safe, np.ones_like(dist), dist])
+        return resid, jacobian
+    return evaluate
+
+
+def _soft_l1_minimum(evaluate, p0, f_scale: float, *, max_steps: int = 200,
+                     xtol: float = 1e-8, ftol: float = 1e-8) -> np.ndarray:
+    """Parameters minimising the soft-L1 cost (see :func:`soft_l1_cost`) of a problem.
+
+    ``evaluate(p)`` returns the residuals at ``p`` and a function that builds their
+    Jacobian. Levenberg-Marquardt on the iteratively reweighted normal equations: the
+    soft-L1 loss is a concave function of r^2, so weights w = 1 / sqrt(1 + (r/f)^2)
+    make a weighted least-squares problem whose minimum lowers the robust cost (Holland
+    & Welsch 1977, Commun. Stat. Theory Methods 6, 813; Marquardt 1963, J. SIAM 11,
+    431). The same minimum as scipy.optimize.least_squares(loss="soft_l1"), with the
+    same tolerances, at a fraction of the cost for these small problems. Only accepted
+    steps lower the cost; stops when the step or the relative cost change falls below
+    the tolerances.
     """
     p = np.asarray(p0, dtype=float).copy()
-    r = residuals(p)
-    cost = soft_l1_cost(r, f_scale)
+    resid, jacobian = evaluate(p)
+    root = np.sqrt(1.0 + (resid / f_scale) ** 2)
+    cost = f_scale ** 2 * float(np.sum(root - 1.0))
     damping = 1e-3
     for _ in range(max_steps):
-        jac = jacobian(p)
-        weighted = jac * (1.0 / np.sqrt(1.0 + (r / f_scale) ** 2))[:, None]
+        jac = jacobian()
+        weighted = jac / root[:, None]
         normal = np.einsum("ij,ik->jk", weighted, jac)
-        gradient = np.einsum("ij,i->j", weighted, r)
+        gradient = np.einsum("ij,i->j", weighted, resid)
         while True:
             try:
                 step = np.linalg.solve(normal + damping * np.diag(np.diag(normal) + 1e-12), -gradient)
             except np.linalg.LinAlgError:
                 step = None
             if step is not None and np.all(np.isfinite(step)):
-                trial_r = residuals(p + step)
-                trial = soft_l1_cost(trial_r, f_scale)
+                trial_resid, trial_jacobian = evaluate(p + step)
+                trial_root = np.sqrt(1.0 + (trial_resid / f_scale) ** 2)
+                trial = f_scale ** 2 * float(np.sum(trial_root - 1.0))
                 if np.isfinite(trial) and trial <= cost:
                     break
             damping *= 10.0
             if damping > 1e12:
                 return p
-        p, r, previous, cost = p + step, trial_r, cost, trial
+        p, previous, cost = p + step, cost, trial
+        resid, jacobian, root = trial_resid, trial_jacobian, trial_root
         damping = max(damping / 10.0, 1e-12)
         if (np.linalg.norm(step) < xtol * (xtol + np.linalg.norm(p))
                 or previous - cost < ftol * max(previous, 1e-300)):
