@@ -42,7 +42,7 @@ import cv2
 import numpy as np
 
 __all__ = [
-    "REGISTRATION_MODES", "AUTO_WARP_TOLERANCE_PX", "ShiftEstimate", "DriftTracker",
+    "REGISTRATION_MODES", "AUTO_WARP_TOLERANCE_PX", "ShiftEstimate", "DriftTracker", "WindowedImage",
     "bandpass", "estimate_shift", "warp_onto_reference", "extrapolate_unseen_drift", "drift_path",
 ]
 
@@ -165,6 +165,31 @@ def _refine(reference, moving, window, shift_yx, steps):
     return shift
 
 
+class WindowedImage:
+    """A registration image computed only where it is looked at.
+
+    ``window(rows, cols)`` returns the float32 image over two slices. The tracker reads a
+    crop with a wide margin on most frames and the whole image only when it picks a new
+    key frame, so a caller whose image is costly to make (a smoothed difference) saves
+    computing the rest. The margin is wider than every filter the tracker applies, so the
+    crop equals that part of the whole image.
+    """
+
+    def __init__(self, shape, window):
+        self.shape = tuple(shape)
+        self.window = window
+
+    @classmethod
+    def of(cls, image) -> "WindowedImage":
+        if isinstance(image, cls):
+            return image
+        image = np.asarray(image, np.float32)
+        return cls(image.shape, lambda rows, cols: image[rows, cols])
+
+    def whole(self) -> np.ndarray:
+        return self.window(slice(0, self.shape[0]), slice(0, self.shape[1]))
+
+
 class DriftTracker:
     """Cumulative specimen drift relative to frame 0, one frame at a time.
 
@@ -229,14 +254,15 @@ class DriftTracker:
         self._matches: list[tuple[int, np.ndarray]] = []
         self._frame = 0
 
-    def update(self, image: np.ndarray, settled=None) -> np.ndarray:
-        """Register the next frame's image; returns its cumulative shift (dy, dx), px.
+    def update(self, image, settled=None) -> np.ndarray:
+        """Register the next frame's image (an array or a :class:`WindowedImage`);
+        returns its cumulative shift (dy, dx), px.
 
         ``settled`` is a boolean (H, W) array, or a callable ``settled(rows, cols)``
         returning the mask for a window given as two slices (so that a caller can
         compute only the part that is used), or None (every pixel).
         """
-        image = np.asarray(image, np.float32)
+        image = WindowedImage.of(image)
         if self._key is None:
             self._start(image, settled)
             return self.shift_yx.copy()
@@ -294,7 +320,8 @@ class DriftTracker:
 
     def _renew(self, image, settled):
         """Make this frame the key frame, choosing the window with the most texture."""
-        self._origin = self._busiest_origin(image if settled is None else image * _window_of(settled, (
+        whole = image.whole()
+        self._origin = self._busiest_origin(whole if settled is None else whole * _window_of(settled, (
             slice(0, image.shape[0]), slice(0, image.shape[1]))))
         self._key = self._patch(image)
         if settled is None:
@@ -312,7 +339,8 @@ class DriftTracker:
     def _patch(self, image):
         y0, x0 = self._origin
         size = self.crop_px
-        region = image[max(y0 - _MARGIN_PX, 0):y0 + size + _MARGIN_PX, max(x0 - _MARGIN_PX, 0):x0 + size + _MARGIN_PX]
+        region = image.window(slice(max(y0 - _MARGIN_PX, 0), y0 + size + _MARGIN_PX),
+                              slice(max(x0 - _MARGIN_PX, 0), x0 + size + _MARGIN_PX))
         # A 5×5 median first: small specks fixed to the camera (dust on crystal) would
         # otherwise pull the match towards zero shift.
         passed = bandpass(cv2.medianBlur(np.ascontiguousarray(region), 5), fine_sigma_px=self.fine_sigma_px,

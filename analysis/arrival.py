@@ -41,8 +41,8 @@ import cv2
 import numpy as np
 
 from . import segment
-from .align import (AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, extrapolate_unseen_drift,
-                    warp_onto_reference)
+from .align import (AUTO_WARP_TOLERANCE_PX, REGISTRATION_MODES, DriftTracker, WindowedImage,
+                    extrapolate_unseen_drift, warp_onto_reference)
 from .errors import InputError
 from .pixel_tracking import DONE, MELT, PassState, retire_all, step_frame
 from .progress import Progress, run_to_completion
@@ -396,7 +396,8 @@ def _frame_shift(state, drift, diff, model, at_start, k):
         return state.shifts[k - 1]
     if drift.ever_measured and k % state.settings.register_every_frames:
         return drift.coast()
-    camera = segment.evidence_from_difference(diff, model)
+    camera = WindowedImage(diff.shape[:2], lambda rows, cols: segment.evidence_from_difference(
+        diff[rows, cols], model))  # only the registration window, most frames
     shift = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
     state.measured[k] = drift.measured
     return shift
