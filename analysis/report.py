@@ -218,6 +218,10 @@ def project_entries_iter(project):
 
 def report_project_iter(project, out_dir):
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
+    if not entries:
+        reasons = "; ".join(problems[:3]) or "it has no experiments"
+        raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
+                         project.path)
     constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
