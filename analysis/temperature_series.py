@@ -430,10 +430,11 @@ def read_growth_table(path) -> GrowthTable:
             raise InputError(f"row {line_no}: expected numbers in {', '.join(rows[0][c] for c in cols)}",
                              path) from None
     data = np.asarray(values, dtype=float).reshape(-1, len(cols))
+    if not np.all(np.isfinite(data)):
+        bad = 2 + int(np.flatnonzero(~np.all(np.isfinite(data), axis=1))[0])
+        raise InputError(f"row {bad}: NaN or infinite value", path)
     if data.shape[0] < 3:
         raise InputError(f"only {data.shape[0]} data rows; need at least 3 temperatures", path)
-    if not np.all(np.isfinite(data)):
-        raise InputError("table contains NaN or infinite values", path)
     if np.any(data[:, 1] <= 0):
         raise InputError("growth rates must be positive", path)
     ci = None
