@@ -239,15 +239,9 @@ class DetailsPanel(QTabWidget):
             self._model.select_spherulite(int(self.table.item(min(rows), 0).text()))
 
 
-if __name__ == "__main__":  # pragma: no cover
+if __name__ == "__main__":  # pragma: no cover - quick look
     import sys
 
-    from PySide6.QtWidgets import QApplication
+    from .preview import run_alone
 
-    app = QApplication(sys.argv)
-    shared = m.ProjectModel()
-    shared.open_project(sys.argv[1])
-    panel = DetailsPanel(shared)
-    panel.resize(500, 500)
-    panel.show()
-    sys.exit(app.exec())
+    sys.exit(run_alone(DetailsPanel, sys.argv, size=(500, 500)))

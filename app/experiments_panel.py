@@ -125,15 +125,9 @@ class ExperimentsPanel(QTableWidget):
             self.blockSignals(False)
 
 
-if __name__ == "__main__":  # pragma: no cover
+if __name__ == "__main__":  # pragma: no cover - quick look
     import sys
 
-    from PySide6.QtWidgets import QApplication
+    from .preview import run_alone
 
-    app = QApplication(sys.argv)
-    shared = m.ProjectModel()
-    shared.open_project(sys.argv[1])
-    panel = ExperimentsPanel(shared)
-    panel.resize(600, 300)
-    panel.show()
-    sys.exit(app.exec())
+    sys.exit(run_alone(ExperimentsPanel, sys.argv, size=(600, 300)))

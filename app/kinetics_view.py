@@ -365,44 +365,9 @@ class KineticsView(LazyPage):
         return export_plots(self, self.plots.plot_items(), folder, prefix)
 
 
-def run_alone(view_class, argv: list[str]) -> int:  # pragma: no cover - manual use and docs
-    """``python -m app.kinetics_view PROJECT [--experiment I] [--screenshot OUT.png]``.
-
-    Opens the project, analyses every experiment, shows the view at 1600 x 1000; with
-    ``--screenshot`` saves the rendered view and exits.
-    """
-    import argparse
-
-    from analysis.pipeline import analyze_experiment
-
-    from .model import STATUS_FAILED, ProjectModel
-
-    parser = argparse.ArgumentParser(prog=f"python -m {view_class.__module__}")
-    parser.add_argument("project")
-    parser.add_argument("--experiment", type=int, default=0)
-    parser.add_argument("--screenshot")
-    args = parser.parse_args(argv[1:])
-    app = QtWidgets.QApplication(argv[:1])
-    model = ProjectModel()
-    model.open_project(args.project)
-    for i, experiment in enumerate(model.experiments()):
-        try:
-            model.set_analysis(i, analyze_experiment(experiment), experiment)
-        except InputError as error:
-            model.set_status(i, STATUS_FAILED, str(error))
-    model.select(args.experiment)
-    view = view_class(model)
-    view.resize(1600, 1000)
-    view.show()
-    if args.screenshot:
-        app.processEvents()
-        ok = view.grab().save(args.screenshot)
-        print(args.screenshot if ok else f"{args.screenshot}: could not write the image")
-        return 0 if ok else 1
-    return app.exec()
-
-
 if __name__ == "__main__":  # pragma: no cover
     import sys
+
+    from .preview import run_alone
 
     sys.exit(run_alone(KineticsView, sys.argv))

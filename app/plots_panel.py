@@ -210,15 +210,9 @@ class PlotsPanel(QWidget):
             self._draw_radii(self._model.result(index) if index >= 0 else None)
 
 
-if __name__ == "__main__":  # pragma: no cover
+if __name__ == "__main__":  # pragma: no cover - quick look
     import sys
 
-    from PySide6.QtWidgets import QApplication
+    from .preview import run_alone
 
-    app = QApplication(sys.argv)
-    shared = m.ProjectModel()
-    shared.open_project(sys.argv[1])
-    panel = PlotsPanel(shared)
-    panel.resize(600, 800)
-    panel.show()
-    sys.exit(app.exec())
+    sys.exit(run_alone(PlotsPanel, sys.argv, size=(600, 800)))

@@ -231,6 +231,6 @@ class TemperatureView(LazyPage):
 if __name__ == "__main__":  # pragma: no cover
     import sys
 
-    from .kinetics_view import run_alone
+    from .preview import run_alone
 
     sys.exit(run_alone(TemperatureView, sys.argv))

@@ -351,12 +351,6 @@ class StackViewer(QWidget):
 if __name__ == "__main__":  # pragma: no cover - quick look
     import sys
 
-    from PySide6.QtWidgets import QApplication
+    from .preview import run_alone
 
-    app = QApplication(sys.argv)
-    shared = m.ProjectModel()
-    shared.open_project(sys.argv[1])
-    viewer = StackViewer(shared)
-    viewer.resize(1000, 800)
-    viewer.show()
-    sys.exit(app.exec())
+    sys.exit(run_alone(StackViewer, sys.argv, size=(1000, 800)))
