@@ -21,6 +21,8 @@ from scipy import ndimage as ndi
 from skimage.morphology import h_minima
 from skimage.segmentation import watershed
 
+from . import segment
+
 
 @dataclass(frozen=True)
 class Markers:
@@ -73,15 +75,25 @@ def _extend_below_start(work, at_start, times_s) -> np.ndarray:
     """Inside regions already crystalline in frame 0, continue the cones downwards.
 
     Those pixels only tell that the front passed before the first frame: a flat
-    plateau that hides how many nuclei it holds. Its distance to the plateau edge times
-    the mean slope continues each cone below the first frame time, so overlapping discs
-    present at the start get one minimum each (the classic distance-transform split).
+    plateau that hides how many nuclei it holds. Each is given the latest arrival that
+    growth at the field's speed allows from every pixel measured later,
+    ``max_q t(q) − s·|p − q|`` (s = 1/G in s/px): exact on a cone when p lies between
+    its nucleus and some measured pixel, so each nucleus present at the start becomes a
+    minimum of its own whatever the shape of the frame-0 mask. Pixels no measured
+    pixel constrains fall back on their distance to the plateau edge times the slope
+    (the classic distance-transform split).
     """
     usable = np.isfinite(work) & ~at_start
-    slope = mean_slope_s_per_px(work, usable)
+    slope = segment.estimate_slowness(work, usable)
+    if not np.isfinite(slope):
+        slope = mean_slope_s_per_px(work, usable)
+    first = float(times_s[0])
+    backwards = -segment.complete_wedges(np.where(usable, -work, np.inf), slope)
     depth = ndi.distance_transform_edt(at_start)
+    fallback = first - depth * slope
+    estimate = np.where(np.isfinite(backwards), np.minimum(backwards, first), fallback)
     out = work.copy()
-    out[at_start] = float(times_s[0]) - depth[at_start] * slope
+    out[at_start] = estimate[at_start]
     return out
 
 

@@ -149,9 +149,9 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     times = np.asarray(arrival.times_s, dtype=float)
     arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
     yield Progress("finding nuclei", 0.1)
-    at_start = _solid_start(np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0]),
-                            arrival_s, times)
     filled = np.asarray(getattr(arrival, "filled", np.zeros(arrival_s.shape, bool)), bool)
+    at_start = _solid_start(np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0]),
+                            arrival_s, times, filled)
     # Inferred (filled) arrivals are not evidence of a minimum: detect on measured pixels.
     work = nuclei.working_map(np.where(filled, np.float32(np.nan), arrival_s), times,
                               smooth_px=settings.smooth_px, at_start=at_start)
@@ -193,20 +193,24 @@ def _automatic_evaluation(ctx: Context, settings):
     return cached(ctx, key, lambda: evaluate(ctx, auto_detections(ctx), [], [], settings))
 
 
-def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray) -> np.ndarray:
+def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray,
+                 filled: np.ndarray) -> np.ndarray:
     """Crystals present in frame 0 as solid regions.
 
     Their extinction arms are dark in frame 0, so the crystalline-at-start mask comes
     with gaps that the next frame fills; left as they are, each fragment would look like
     a nucleus of its own. Gaps up to ~6 px wide that were crystalline by frame 1 are
-    closed and enclosed holes filled.
+    closed and enclosed holes filled, except pixels whose front was measured after
+    frame 0 (not inferred): those were melt, e.g. the pocket between three touching discs.
     """
     if not at_start.any():
         return at_start
     disk = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (7, 7))
     closed = cv2.morphologyEx(at_start.astype(np.uint8), cv2.MORPH_CLOSE, disk) > 0
     by_frame_1 = arrival_s <= times[min(1, times.size - 1)]
-    return at_start | ndi.binary_fill_holes(closed & (by_frame_1 | at_start))
+    solid = ndi.binary_fill_holes(closed & (by_frame_1 | at_start))
+    measured_later = np.isfinite(arrival_s) & ~filled & (arrival_s > times[0])
+    return at_start | (solid & ~measured_later)
 
 
 def _with_missed_nuclei(ctx: Context, settings) -> Context:

@@ -130,6 +130,30 @@ def test_recording_that_starts_late_still_recovers_nucleation_time():
         assert s.growth_rate_um_per_min == pytest.approx(G_UM_PER_MIN, rel=0.02)
 
 
+@pytest.mark.parametrize("centres, births_s", [
+    # three discs of radius 12 px at the first frame, 20-23 px apart: one crystal with a
+    # melt pocket at the triple point
+    ([[56.0, 48.0], [76.0, 45.0], [69.0, 67.0]], [-24.0, -24.0, -24.0]),
+    # a younger, smaller third disc inside the cluster
+    ([[56.0, 48.0], [76.0, 45.0], [67.0, 62.0]], [-24.0, -24.0, -12.0]),
+    # a chain of four
+    ([[56.0, 48.0], [76.0, 45.0], [69.0, 67.0], [90.0, 62.0]], [-24.0] * 4),
+])
+def test_clusters_already_merged_in_the_first_frame_are_all_found(centres, births_s):
+    # Johnson & Mehl 1939 (Trans. AIME 135, 416): each nucleus is the apex of an
+    # arrival-time cone, so the cones measured after the first frame, continued below it,
+    # locate every nucleus of a cluster that was already one crystal in that frame.
+    times = np.arange(0.0, 120.0, 2.0)
+    centres = np.array(centres + [[150.0, 60.0]])
+    exact = growth.model_arrival_map((130, 200), centres, births_s + [-24.0], 0.5)
+    arrival = arrival_from_truth(exact, times)
+    result = pipeline.analyze_arrival(arrival).result
+    found = np.array([(s.x_px, s.y_px) for s in result.spherulites])
+    assert len(found) == len(centres)
+    for cx, cy in centres:
+        assert np.min(np.hypot(*(found - [cx, cy]).T)) < 3.0
+
+
 def test_isothermal_start_shifts_result_times():
     times = np.arange(0.0, 300.0, 3.0)
     exact = growth.model_arrival_map((120, 120), [[60.0, 60.0]], [30.0], G_PX_PER_S)
