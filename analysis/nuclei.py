@@ -249,14 +249,27 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
     return seeds
 
 
-def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
+def _axis_ends(x, y) -> tuple[np.ndarray, np.ndarray]:
+    """Ends of the principal axis (one standard deviation, at least 1.5 px) of points."""
+    pts = np.column_stack([x, y]).astype(float)
+    centre = pts.mean(axis=0)
+    evals, evecs = np.linalg.eigh(np.cov(pts.T))
+    axis = evecs[:, -1] * max(np.sqrt(max(evals[-1], 0.0)), 1.5)
+    return centre - axis, centre + axis
+
+
+def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
+                     start_region=None):
     """Two apexes (x, y) when one territory's pixels are better explained by two cones.
 
     The two-cone model (common slope) starts from the ends of the principal axis of the
-    territory's earliest 15 % of pixels. It is accepted when its soft-L1 cost is below
+    territory's earliest 15 % of pixels, and also of ``start_region`` (x, y) when given
+    (the part already crystalline in the first frame, which holds both apexes); the
+    lower cost wins. It is accepted when its soft-L1 cost is below
     half that of the single cone, the apexes are at least 3 px apart, each cone reaches
-    at least 15 % of the pixels first, and the common slope is within 25 % of the
-    field's mean slope. Returns None otherwise.
+    at least 15 % of the pixels first (5 % when the cost falls below a quarter: a
+    cluster present in the first frame shows little of its inner cones), and the common
+    slope is within 25 % of the field's mean slope. Returns None otherwise.
     """
     from .growth import cone_residuals, fit_two_cones, soft_l1_cost
 
@@ -264,18 +277,18 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float):
     early = t <= np.percentile(t, 15)
     if np.count_nonzero(early) < 5:
         return None
-    pts = np.column_stack([x[early], y[early]])
-    centre = pts.mean(axis=0)
-    evals, evecs = np.linalg.eigh(np.cov(pts.T))
-    axis = evecs[:, -1] * max(np.sqrt(max(evals[-1], 0.0)), 1.5)
-    params, cost2 = fit_two_cones(x, y, t, centre - axis, centre + axis, fit.slope_s_per_px,
-                                  f_scale_s=f_scale_s)
+    starts = [_axis_ends(x[early], y[early])]
+    if start_region is not None and len(start_region[0]) >= 5:
+        starts.append(_axis_ends(*start_region))
+    params, cost2 = min((fit_two_cones(x, y, t, a, b, fit.slope_s_per_px, f_scale_s=f_scale_s)
+                         for a, b in starts), key=lambda pc: pc[1])
     cost1 = soft_l1_cost(cone_residuals(fit, x, y, t), f_scale_s)
     a, b = params[0:2], params[3:5]
     nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
         (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
     share = float(np.mean(nearer_a))
-    if (cost2 < 0.5 * cost1 and np.hypot(*(a - b)) >= 3.0 and 0.15 <= share <= 0.85
+    balanced = 0.15 <= share <= 0.85 if cost2 >= 0.25 * cost1 else 0.05 <= share <= 0.95
+    if (cost2 < 0.5 * cost1 and np.hypot(*(a - b)) >= 3.0 and balanced
             and abs(params[6] / slope_s_per_px - 1) <= 0.25):
         return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
     return None

@@ -173,7 +173,7 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
-    for _ in range(2):  # a second round separates clusters of three
+    for _ in range(4):  # further rounds separate clusters of three or four
         before = ctx.markers.xy_px.shape[0]
         ctx = _with_split_nuclei(ctx, settings)
         if ctx.markers.xy_px.shape[0] == before:
@@ -260,16 +260,23 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
-    """Give two markers to territories that hold two nuclei (nuclei.split_candidates)."""
+    """Give two markers to territories that hold two nuclei (nuclei.split_candidates).
+
+    A split inside a crystal present in frame 0 is undone when either half then has no
+    cone fit: its apex was placed where no measured front can confirm it.
+    """
     result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
     next_id = ctx.markers.xy_px.shape[0] + 1
+    splits = []  # (spots, marker values replaced) per split
     for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
+        rows, cols = np.divmod(groups[det_id], ctx.shape[1])
+        frame_0 = ctx.at_start[rows, cols]
         apexes = nuclei.split_candidates(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
-                                         f_scale_s=0.5 * ctx.interval_s)
+                                         f_scale_s=0.5 * ctx.interval_s,
+                                         start_region=(cols[frame_0], rows[frame_0]))
         if apexes is None:
             continue
-        rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in apexes]
         spots = [(rows[k], cols[k]) for k in seeds]
         # A marker in the way that never gave a cone fit was a fragment of this nucleus.
@@ -280,8 +287,26 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         labels[spots[0]] = det_id
         labels[spots[1]] = next_id
         next_id += 1
-    if next_id == ctx.markers.xy_px.shape[0] + 1:
+        splits.append((spots, [det_id, *others]))
+    if not splits:
         return ctx
+    split_ctx = _with_marker_labels(ctx, labels)
+    _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
+    undone = False
+    for spots, replaced in splits:
+        ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
+        if all(split_fits[k].ok for k in ids) or not any(ctx.at_start[spot] for spot in spots):
+            continue
+        for spot in spots:
+            labels[spot] = 0
+        original = np.isin(ctx.markers.labels, replaced)
+        labels[original] = ctx.markers.labels[original]
+        undone = True
+    return _with_marker_labels(ctx, labels) if undone else split_ctx
+
+
+def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
+    """The context with new markers (label values need not be contiguous) and their flooding."""
     _, contiguous = np.unique(labels, return_inverse=True)  # removed fragments leave gaps
     markers = nuclei.markers_from_labels(contiguous.reshape(labels.shape), ctx.work)
     base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
