@@ -71,7 +71,7 @@ def mean_slope_s_per_px(arrival_s: np.ndarray, usable: np.ndarray) -> float:
     return float(np.mean(np.minimum(grad, np.percentile(grad, 99)))) or 1.0
 
 
-def _extend_below_start(work, at_start, times_s) -> np.ndarray:
+def _extend_below_start(work, at_start, times_s, estimate_s=None) -> np.ndarray:
     """Inside regions already crystalline in frame 0, continue the cones downwards.
 
     Those pixels only tell that the front passed before the first frame: a flat
@@ -79,9 +79,10 @@ def _extend_below_start(work, at_start, times_s) -> np.ndarray:
     growth at the field's speed allows from every pixel measured later,
     ``max_q t(q) − s·|p − q|`` (s = 1/G in s/px): exact on a cone when p lies between
     its nucleus and some measured pixel, so each nucleus present at the start becomes a
-    minimum of its own whatever the shape of the frame-0 mask. Pixels no measured
-    pixel constrains fall back on their distance to the plateau edge times the slope
-    (the classic distance-transform split).
+    minimum of its own whatever the shape of the frame-0 mask. Where ``estimate_s`` is
+    finite (the arrival pass's own extrapolation, from pixels of high contrast only)
+    it is used instead. Pixels nothing constrains fall back on their distance to the
+    plateau edge times the slope (the classic distance-transform split).
     """
     usable = np.isfinite(work) & ~at_start
     slope = segment.estimate_slowness(work, usable)
@@ -89,6 +90,8 @@ def _extend_below_start(work, at_start, times_s) -> np.ndarray:
         slope = mean_slope_s_per_px(work, usable)
     first = float(times_s[0])
     backwards = -segment.complete_wedges(np.where(usable, -work, np.inf), slope)
+    if estimate_s is not None:
+        backwards = np.where(np.isfinite(estimate_s), estimate_s, backwards)
     depth = ndi.distance_transform_edt(at_start)
     fallback = first - depth * slope
     estimate = np.where(np.isfinite(backwards), np.minimum(backwards, first), fallback)
@@ -98,20 +101,23 @@ def _extend_below_start(work, at_start, times_s) -> np.ndarray:
 
 
 def working_map(arrival_s: np.ndarray, times_s: np.ndarray, *, smooth_px: float = 1.0,
-                at_start: np.ndarray | None = None) -> np.ndarray:
+                at_start: np.ndarray | None = None,
+                below_start_s: np.ndarray | None = None) -> np.ndarray:
     """Finite, lightly smoothed copy of the arrival map for minimum detection and flooding.
 
     Unusable pixels (NaN: dust, extinction wedges left open) take the value of the nearest
     usable pixel, so a wedge or a speck of dust neither creates nor hides a minimum.
     Never-crystallised pixels (+inf) become a plateau above the last frame. Pixels
     crystalline at the start (``at_start``) are extended below the first frame time
-    (see :func:`_extend_below_start`). A 3x3 median removes isolated outliers before a
+    (see :func:`_extend_below_start`; ``below_start_s``: estimated arrivals there, NaN
+    where unknown, e.g. ``ArrivalMap.before_start_s``). A 3x3 median removes isolated outliers before a
     Gaussian of ``smooth_px`` (0 = none).
     """
     arrival = np.asarray(arrival_s, dtype=np.float32)
     work = arrival.copy()
     if at_start is not None and np.any(at_start):
-        work = _extend_below_start(work, np.asarray(at_start, bool), times_s).astype(np.float32)
+        work = _extend_below_start(work, np.asarray(at_start, bool), times_s,
+                                   below_start_s).astype(np.float32)
     never = np.isposinf(work)
     work[never] = float(np.max(times_s)) + 2.0 * frame_interval_s(times_s)
     unusable = ~np.isfinite(work)

@@ -154,7 +154,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                             arrival_s, times, filled)
     # Inferred (filled) arrivals are not evidence of a minimum: detect on measured pixels.
     work = nuclei.working_map(np.where(filled, np.float32(np.nan), arrival_s), times,
-                              smooth_px=settings.smooth_px, at_start=at_start)
+                              smooth_px=settings.smooth_px, at_start=at_start,
+                              below_start_s=getattr(arrival, "before_start_s", None))
     markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
                                   min_territory_px=settings.min_territory_px)
     base = markers.territories
