@@ -24,6 +24,13 @@ class ActionSpec:
     checkable: bool = False
     group: str | None = None
     tip: str = ""
+    argument: str | None = None  # passed to the handler, e.g. the tool name
+
+
+def _tool(name: str, text: str, shortcut: str, tip: str) -> ActionSpec:
+    """A checkable correction tool; all tools share one handler and one exclusive group."""
+    return ActionSpec(f"tool_{name}", text, "set_tool", "Tools", shortcut, "tools", True, "tool",
+                      tip, argument=name)
 
 
 K = QKeySequence.StandardKey
@@ -46,18 +53,13 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis"),
     ActionSpec("run_all", "Analyse &all experiments", "run_all", "Analysis", "Shift+F5", "analysis"),
     ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis"),
-    ActionSpec("tool_select", "&Select", "set_tool_select", "Tools", "S", "tools", True, "tool",
-               "Click a spherulite to select it"),
-    ActionSpec("tool_add", "&Add nucleus", "set_tool_add", "Tools", "N", "tools", True, "tool",
-               "Click where a nucleus was missed"),
-    ActionSpec("tool_delete", "&Delete detection", "set_tool_delete", "Tools", "D", "tools", True,
-               "tool", "Click a false detection (dust, bubble) to remove it"),
-    ActionSpec("tool_merge", "&Merge two", "set_tool_merge", "Tools", "M", "tools", True, "tool",
-               "Click the detection to keep, then the one to merge into it"),
-    ActionSpec("tool_move", "Mo&ve centre", "set_tool_move", "Tools", "C", "tools", True, "tool",
-               "Click a detection, then its true centre"),
-    ActionSpec("tool_exclude", "E&xclude / include", "set_tool_exclude", "Tools", "E", "tools",
-               True, "tool", "Click a spherulite to leave it out of (or put it back into) the statistics"),
+    _tool("select", "&Select", "S", "Click a spherulite to select it"),
+    _tool("add", "&Add nucleus", "N", "Click where a nucleus was missed"),
+    _tool("delete", "&Delete detection", "D", "Click a false detection (dust, bubble) to remove it"),
+    _tool("merge", "&Merge two", "M", "Click the detection to keep, then the one to merge into it"),
+    _tool("move", "Mo&ve centre", "C", "Click a detection, then its true centre"),
+    _tool("exclude", "E&xclude / include", "E",
+          "Click a spherulite to leave it out of (or put it back into) the statistics"),
     ActionSpec("cancel_gesture", "Cancel the &gesture", "cancel_gesture", "Tools", "Esc",
                tip="Forget the first click of a merge or a centre move"),
     ActionSpec("ignore_frames", "&Ignore frames…", "ignore_frames", "Tools", "I", "tools",
@@ -89,10 +91,11 @@ def build_actions(window: Any) -> dict[str, QAction]:
         if spec.group:
             groups.setdefault(spec.group, QActionGroup(window)).addAction(action)
         handler = getattr(window, spec.handler)
+        arguments = () if spec.argument is None else (spec.argument,)
         if spec.checkable:
-            action.toggled.connect(lambda on, h=handler: on and h())
+            action.toggled.connect(lambda on, h=handler, a=arguments: on and h(*a))
         else:
-            action.triggered.connect(lambda _checked=False, h=handler: h())
+            action.triggered.connect(lambda _checked=False, h=handler, a=arguments: h(*a))
         actions[spec.id] = action
     return actions
 

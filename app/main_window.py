@@ -328,23 +328,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._refresh_actions()
 
     # ---------------------------------------------------------------- tools and viewer
-    def set_tool_select(self) -> None:
-        self.tools.set_tool("select")
-
-    def set_tool_add(self) -> None:
-        self.tools.set_tool("add")
-
-    def set_tool_delete(self) -> None:
-        self.tools.set_tool("delete")
-
-    def set_tool_merge(self) -> None:
-        self.tools.set_tool("merge")
-
-    def set_tool_move(self) -> None:
-        self.tools.set_tool("move")
-
-    def set_tool_exclude(self) -> None:
-        self.tools.set_tool("exclude")
+    def set_tool(self, name: str) -> None:
+        self.tools.set_tool(name)
 
     def cancel_gesture(self) -> None:
         self.tools.cancel_gesture()
