@@ -54,7 +54,12 @@ def _load_command(module_name: str):
     return module
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The whole parser; with ``command`` only that subcommand's module is imported.
+
+    Importing every computing module (scipy, scikit-image, matplotlib) would cost each
+    invocation most of a second, so the others get a light parser with their help line.
+    """
     parser = argparse.ArgumentParser(
         prog="spherokin",
         description="Spherulite growth rates, nucleation and crystallization kinetics from "
@@ -77,14 +82,14 @@ def build_parser() -> argparse.ArgumentParser:
     info.set_defaults(handler=_run_info)
 
     for name, (module_name, help_text) in SUBCOMMANDS.items():
-        command = sub.add_parser(name, help=help_text)
-        module = _load_command(module_name)
+        subparser = sub.add_parser(name, help=help_text)
+        module = _load_command(module_name) if command in (None, name) else None
         if module is None:
-            command.add_argument("rest", nargs=argparse.REMAINDER, help=argparse.SUPPRESS)
-            command.set_defaults(handler=_not_available, command_name=name)
+            subparser.add_argument("rest", nargs=argparse.REMAINDER, help=argparse.SUPPRESS)
+            subparser.set_defaults(handler=_not_available, command_name=name)
         else:
-            module.add_cli_arguments(command)
-            command.set_defaults(handler=module.run_cli)
+            module.add_cli_arguments(subparser)
+            subparser.set_defaults(handler=module.run_cli)
     return parser
 
 
@@ -142,7 +147,7 @@ def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     if not argv:
         argv = ["gui"]
-    parser = build_parser()
+    parser = build_parser(argv[0] if argv[0] in SUBCOMMANDS else "")
     args = parser.parse_args(argv)
     if args.command is None:
         args = parser.parse_args(["gui", *argv])
