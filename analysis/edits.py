@@ -17,7 +17,7 @@ import math
 from dataclasses import asdict, dataclass, fields
 from typing import Any, ClassVar, Sequence
 
-from .errors import InputError
+from analysis.errors import InputError
 
 
 @dataclass(frozen=True)

@@ -13,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from .edits import Edit
+from analysis.edits import Edit
 
 #: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate.
 STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded")

@@ -4,7 +4,13 @@ import cv2
 import numpy as np
 import pytest
 
-from analysis.align import DriftTracker, bandpass, drift_path, estimate_shift, warp_onto_reference
+from analysis.arrival.registration import (
+    DriftTracker,
+    bandpass,
+    drift_path,
+    estimate_shift,
+    warp_onto_reference,
+)
 
 
 def _specimen(size=320, seed=0):

@@ -15,10 +15,15 @@ import math
 import numpy as np
 import pytest
 
-from analysis.arrival import ArrivalMap, ArrivalSettings, arrival_map, arrival_map_iter
+from analysis.arrival.arrival_map import (
+    ArrivalMap,
+    ArrivalSettings,
+    arrival_map,
+    arrival_map_iter,
+)
 from analysis.errors import InputError
 from analysis.progress import Progress
-from analysis.synthetic import StackParams, simulate_stack
+from analysis.synthetic.hot_stage import StackParams, simulate_stack
 
 MELT_RGB = np.array([0.72, 0.28, 0.62])      # first-order red-magenta
 BLUE_RGB = np.array([0.30, 0.45, 0.85])
@@ -26,7 +31,7 @@ YELLOW_RGB = np.array([0.85, 0.75, 0.30])
 
 
 class ArrayStack:
-    """Stand-in for analysis.frames.FrameStack: frames rendered on demand, never stored."""
+    """Stand-in for analysis.stack.frames.FrameStack: frames rendered on demand, never stored."""
 
     def __init__(self, render, n_frames, frame_shape, times_s, um_per_px=0.5, dtype=np.uint8, path="memory.tif"):
         self._render, self._n = render, n_frames

@@ -2,7 +2,7 @@
 
 Sources: extended-volume prefactors and worked values are derived analytically
 (Avrami 1939 J. Chem. Phys. 7, 1103; 1940 J. Chem. Phys. 8, 212 `# from memory`) and
-tabulated with a Monte Carlo check in REFERENCES.md section 1.2-1.4 ("derived here").
+tabulated with a Monte Carlo check in docs/sources.md section 1.2-1.4 ("derived here").
 """
 
 import math
@@ -10,11 +10,22 @@ import math
 import numpy as np
 import pytest
 
-from analysis.avrami import (AvramiFit, FitFailure, avrami_conversion, fit_avrami_curve,
-                             fit_avrami_window, half_time, k_from_half_time, k_per_second,
-                             mass_fraction_from_volume, predict_avrami, predict_from_result,
-                             predict_model_from_result, volume_fraction_from_mass)
 from analysis.errors import InputError
+from analysis.kinetics.avrami import (
+    AvramiFit,
+    FitFailure,
+    avrami_conversion,
+    fit_avrami_curve,
+    fit_avrami_window,
+    half_time,
+    k_from_half_time,
+    k_per_second,
+    mass_fraction_from_volume,
+    predict_avrami,
+    predict_from_result,
+    predict_model_from_result,
+    volume_fraction_from_mass,
+)
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
 
 
@@ -29,7 +40,7 @@ def make_result(*, g=10.0, mode="athermal", n_mm2=None, n_mm3=None, rate_mm2=Non
         avrami_film=None, avrami_predicted=None)
 
 
-# Worked values: REFERENCES.md section 1.4 (derived here; Avrami 1940 J. Chem. Phys. 8, 212 # from memory)
+# Worked values: docs/sources.md section 1.4 (derived here; Avrami 1940 J. Chem. Phys. 8, 212 # from memory)
 def test_worked_3d_athermal():
     # N_V = 1e6 cm^-3 = 1e3 mm^-3, G = 10 um/min
     p = predict_avrami("bulk-3d", 10.0, density_per_mm_d=1e3)
@@ -58,14 +69,14 @@ def test_worked_3d_sporadic_prefactor_pi_over_3():
 
 
 def test_2d_sporadic_prefactor():
-    # k = (pi/3) Ndot_A G^2, n = 3 (REFERENCES.md 1.2, derived here)
+    # k = (pi/3) Ndot_A G^2, n = 3 (docs/sources.md 1.2, derived here)
     p = predict_avrami("film-2d", 5.0, rate_per_mm_d_per_min=20.0)
     assert p.n == 3
     assert p.k_per_min_n == pytest.approx(math.pi / 3 * 20.0 * (5e-3) ** 2, rel=1e-12)
 
 
 def test_mixed_is_full_extended_volume_sum():
-    # X = 1 - exp(-(4pi/3) N0 G^3 t^3 - (pi/3) Ndot G^3 t^4) (REFERENCES.md 1.2, derived here)
+    # X = 1 - exp(-(4pi/3) N0 G^3 t^3 - (pi/3) Ndot G^3 t^4) (docs/sources.md 1.2, derived here)
     p = predict_avrami("bulk-3d", 10.0, density_per_mm_d=1e3, rate_per_mm_d_per_min=500.0)
     assert p.mode == "mixed"
     th = p.t_half_min
@@ -115,7 +126,7 @@ def test_fit_failures_are_falsy_values():
 
 
 def test_mass_volume_conversion():
-    # iPP w = 0.5 -> phi = 0.4771 with rho_c/rho_a = 1.0960 (REFERENCES.md 4.1, derived here)
+    # iPP w = 0.5 -> phi = 0.4771 with rho_c/rho_a = 1.0960 (docs/sources.md 4.1, derived here)
     phi = volume_fraction_from_mass(0.5, density_ratio=0.936 / 0.854)
     assert float(phi) == pytest.approx(0.4771, abs=1e-4)
     assert float(volume_fraction_from_mass(0.5, material="PP")) == pytest.approx(float(phi))
@@ -128,7 +139,7 @@ def test_mass_volume_conversion():
 
 
 def test_predict_from_result_uses_thickness_for_volume_density():
-    # N_V = N_A / h (REFERENCES.md 1.7, derived here): 100 mm^-2 over 100 um = 1e3 mm^-3
+    # N_V = N_A / h (docs/sources.md 1.7, derived here): 100 mm^-2 over 100 um = 1e3 mm^-3
     res = make_result(n_mm2=100.0, thickness_um=100.0)
     params = predict_from_result(res, "bulk-3d")
     assert params.geometry == "bulk-3d" and params.n == 3
@@ -157,10 +168,10 @@ def test_predict_from_result_mode_override_and_errors():
 @pytest.mark.parametrize("density, rate_per_s, n_theory", [(400.0, 0.0, 2), (0.0, 2.0, 3)])
 def test_monte_carlo_film_matches_2d_prediction(density, rate_per_s, n_theory):
     # Monte Carlo link: the simulator's Poisson nuclei + Johnson-Mehl growth on a pixel grid
-    # against the extended-volume prediction (REFERENCES.md 1.3, MC check derived there;
+    # against the extended-volume prediction (docs/sources.md 1.3, MC check derived there;
     # Johnson & Mehl 1939 Trans. AIME 135, 416 # from memory). About 400 nuclei per field,
     # so t_half scatters by a few % (Poisson); the mean over 3 fields is held to 5 %.
-    from analysis.synthetic import StackParams, simulate_film_kinetics
+    from analysis.synthetic.hot_stage import StackParams, simulate_film_kinetics
 
     pred = predict_avrami("film-2d", 10.0, density_per_mm_d=density,
                           rate_per_mm_d_per_min=rate_per_s * 60.0)

@@ -1,9 +1,9 @@
 """Isothermal calorimetry import and analysis.
 
 Scientific checks: the Avrami law X = 1 - exp(-k t^n) and t_half = (ln 2 / k)^(1/n)
-(Avrami 1940 J. Chem. Phys. 8, 212 `# from memory`; REFERENCES.md 1.1, derived here);
+(Avrami 1940 J. Chem. Phys. 8, 212 `# from memory`; docs/sources.md 1.1, derived here);
 fit window 3-20 % (Lorenzo et al. 2007 Polymer Testing 26, 222 `# from memory`);
-relative crystallinity from the integrated heat flow (REFERENCES.md 4.1, standard).
+relative crystallinity from the integrated heat flow (docs/sources.md 4.1, standard).
 """
 
 import argparse
@@ -15,12 +15,18 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from analysis.avrami import k_from_half_time
-from analysis.calorimetry import (Isotherm, add_cli_arguments, analyze_calorimetry_file,
-                                  analyze_isotherm, parse_window, read_isotherm, run_cli,
-                                  sniff_calorimetry_file)
+from analysis.cli.calorimetry import add_cli_arguments, run_cli
 from analysis.errors import InputError
-from analysis.synthetic import simulate_dsc_isotherm, write_dsc_csv
+from analysis.kinetics.avrami import k_from_half_time
+from analysis.kinetics.calorimetry import (
+    Isotherm,
+    analyze_calorimetry_file,
+    analyze_isotherm,
+    parse_window,
+    read_isotherm,
+    sniff_calorimetry_file,
+)
+from analysis.synthetic.hot_stage import simulate_dsc_isotherm, write_dsc_csv
 
 
 def analytic_isotherm(*, n=3.0, t_half=2.0, t0=0.5, total=400.0, exo=1.0, dt=1 / 120):
@@ -100,7 +106,7 @@ def test_dialects_units_and_columns(tmp_path):
 ])
 def test_simulated_isotherms_recover_n_and_half_time(tmp_path, kw, delimiter, decimal, unit):
     # Simulated DSC isotherm with lag, drift, transient and noise; truth from the
-    # extended-volume law (Avrami 1940 J. Chem. Phys. 8, 212 # from memory; REFERENCES.md 1.2)
+    # extended-volume law (Avrami 1940 J. Chem. Phys. 8, 212 # from memory; docs/sources.md 1.2)
     iso = simulate_dsc_isotherm(**kw)
     path = tmp_path / "sim.csv"
     write_dsc_csv(iso, path, delimiter=delimiter, decimal=decimal, time_unit=unit)
@@ -125,7 +131,7 @@ def test_transient_opposite_to_exotherm():
 
 def test_uncorrected_lag_only_shifts_half_time(tmp_path):
     # Without the lag correction a 6 s lag delays the signal; n stays within 0.05 and
-    # t_half within 3 % at t_half = 2 min (first-order lag: REFERENCES.md 4.1, Vyazovkin &
+    # t_half within 3 % at t_half = 2 min (first-order lag: docs/sources.md 4.1, Vyazovkin &
     # Sbirrazzuoli 2023 Processes 11, 1438 # from memory)
     iso = simulate_dsc_isotherm(ndot_v_per_mm3_per_s=50.0, n_v_per_mm3=0.0, seed=1)
     res = analyze_isotherm(Isotherm("sim", iso.time_s / 60, iso.heat_flow_mw, "mW", "t", "q", 5.0))
@@ -134,7 +140,7 @@ def test_uncorrected_lag_only_shifts_half_time(tmp_path):
 
 
 def test_baseline_options_and_overrides():
-    # Exact Avrami heat flow on a sloping baseline (linear baseline: REFERENCES.md 4.2, item 6,
+    # Exact Avrami heat flow on a sloping baseline (linear baseline: docs/sources.md 4.2, item 6,
     # Lorenzo et al. 2007 Polymer Testing 26, 222 # from memory)
     t, q = analytic_isotherm(n=3.0, t_half=2.0, t0=1.0)
     sloped = q + 0.02 * t

@@ -6,7 +6,7 @@ import sys
 import numpy as np
 import tifffile
 
-from analysis.cli import main
+from analysis.cli.main import main
 
 
 def _write(path, **metadata):
@@ -35,7 +35,7 @@ def test_info_on_a_truncated_tiff_exits_2_with_one_line_naming_the_file(tmp_path
     path = _write(tmp_path / "s.tif", unit="um", finterval=5)
     blob = path.read_bytes()
     (tmp_path / "cut.tif").write_bytes(blob[: len(blob) // 2])
-    result = subprocess.run([sys.executable, "-m", "analysis.cli", "info", str(tmp_path / "cut.tif")],
+    result = subprocess.run([sys.executable, "-m", "analysis.cli.main", "info", str(tmp_path / "cut.tif")],
                             capture_output=True, text=True)
     assert result.returncode == 2
     lines = result.stderr.strip().splitlines()

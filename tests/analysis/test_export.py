@@ -9,8 +9,9 @@ import cv2
 import numpy as np
 import pytest
 
-from analysis import export, growth, pipeline
 from analysis.errors import InputError
+from analysis.reporting import export
+from analysis.spherulites import growth, pipeline
 
 
 @pytest.fixture(scope="module")
@@ -76,7 +77,7 @@ def test_unwritable_output_folder_is_an_input_error(result, tmp_path):
 
 # ---------------------------------------------------------------- end to end through the CLI
 def _simulated_tiff(tmp_path, **overrides):
-    from analysis import synthetic
+    from analysis.synthetic import hot_stage as synthetic
 
     params = dataclasses.replace(
         synthetic.StackParams(), n_frames=40, height_px=160, width_px=160, interval_s=10.0,
@@ -90,8 +91,8 @@ def test_analyze_command_writes_the_four_files_with_accurate_growth(tmp_path):
     # nucleation time within 1 frame) — common practice; the full matrix is in
     # tests/benchmarks/accuracy.py. Constant G of a Johnson-Mehl film (Johnson & Mehl
     # 1939, Trans. AIME 135, 416).
-    from analysis import synthetic
-    from analysis.cli import main
+    from analysis.cli.main import main
+    from analysis.synthetic import hot_stage as synthetic
 
     path, sim = _simulated_tiff(tmp_path)
     out = tmp_path / "out"
@@ -115,7 +116,7 @@ def test_analyze_command_writes_the_four_files_with_accurate_growth(tmp_path):
 def test_analyze_without_calibration_exits_2_naming_the_file(tmp_path, capsys):
     import tifffile
 
-    from analysis.cli import main
+    from analysis.cli.main import main
 
     tifffile.imwrite(tmp_path / "bare.tif", np.zeros((4, 32, 32), np.uint8), photometric="minisblack")
     assert main(["analyze", str(tmp_path / "bare.tif"), "--out", str(tmp_path / "o")]) == 2

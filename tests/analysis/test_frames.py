@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from analysis.errors import InputError
-from analysis.frames import open_stack
+from analysis.stack.frames import open_stack
 
 
 def _frames(n=6, shape=(24, 32), dtype=np.uint8, seed=0):

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from analysis import fronts, growth
+from analysis.spherulites import fronts, growth
 
 
 def _pixels(arrival, labels, label, times):

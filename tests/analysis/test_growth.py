@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from analysis import growth
+from analysis.spherulites import growth
 
 
 def _cone_pixels(rng, *, cx=31.3, cy=28.7, t0=5.0, g=0.8, noise=0.5, radius=40, interval=2.0):

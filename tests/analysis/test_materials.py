@@ -1,21 +1,26 @@
-"""Material table: values, sources and tags as listed in REFERENCES.md section 3."""
+"""Material table: values, sources and tags as listed in docs/sources.md section 3."""
 
 import json
 
 import pytest
 
 from analysis.errors import InputError
-from analysis.materials import VALUE_KEYS, get_material, list_materials, load_material_file
+from analysis.kinetics.materials import (
+    VALUE_KEYS,
+    get_material,
+    list_materials,
+    load_material_file,
+)
 
-# (material, key, value, tag). Values, sources and tags as in REFERENCES.md tables 3.1/3.2.
+# (material, key, value, tag). Values, sources and tags as in docs/sources.md tables 3.1/3.2.
 TABLE = [
     ("PE", "tm0_c", 141.1, "confirmed"),        # Broadhurst, J. Res. NBS 1962-63
     ("PE", "dh0_j_per_g", 293.0, "from memory"),  # Wunderlich # from memory
     ("PE", "sigma_e_mj_m2", 90.0, "from memory"),  # Hoffman & Miller 1997, Polymer 38, 3151 # from memory
     ("iPP", "tm0_c", 185.0, "from memory"),     # Clark & Hoffman 1984 # from memory
     ("iPP", "dh0_j_per_g", 207.0, "from memory"),  # handbook # from memory
-    ("iPP", "rho_c_g_cm3", 0.936, "from memory"),  # handbook value, REFERENCES.md 3.1 # from memory
-    ("iPP", "rho_a_g_cm3", 0.854, "from memory"),  # handbook value, REFERENCES.md 3.1 # from memory
+    ("iPP", "rho_c_g_cm3", 0.936, "from memory"),  # handbook value, docs/sources.md 3.1 # from memory
+    ("iPP", "rho_a_g_cm3", 0.854, "from memory"),  # handbook value, docs/sources.md 3.1 # from memory
     ("PET", "dh0_j_per_g", 140.0, "confirmed"),  # Palys & Phillips 1980 as used in LH work
     ("PET", "b0_angstrom", 5.53, "confirmed"),   # Palys & Phillips 1980
     ("PEO", "dh0_j_per_g", 215.6, "confirmed"),  # Afifi-Effat & Hay 1972
@@ -25,7 +30,7 @@ TABLE = [
     ("PBT", "dh0_j_per_g", 140.0, "confirmed"),  # Illers 1980, Colloid Polym. Sci.
     ("PEEK", "dh0_j_per_g", 122.5, "confirmed"),  # Mehmet-Alkan & Hay 1992, Polymer 33, 3527
     ("PEEK", "tm0_c", 389.0, "confirmed"),       # Lee & Porter 1987, Macromolecules 20, 1336
-    ("PCL", "tm0_c", 69.0, "confirmed"),         # PCL crystallization studies I (REFERENCES.md [C10])
+    ("PCL", "tm0_c", 69.0, "confirmed"),         # PCL crystallization studies I (docs/sources.md [C10])
     ("PVDF", "dh0_j_per_g", 104.7, "from memory"),  # Nakagawa & Ishida 1973 # from memory
 ]
 
@@ -45,7 +50,7 @@ def test_every_value_has_source_and_known_tag():
 
 
 def test_derived_quantities():
-    # Delta h_f = dH0 * rho_c; PE 293 * 1.000 -> 2.93e8 J/m3, iPP ratio 1.096 (REFERENCES.md 3.1, 4.1)
+    # Delta h_f = dH0 * rho_c; PE 293 * 1.000 -> 2.93e8 J/m3, iPP ratio 1.096 (docs/sources.md 3.1, 4.1)
     assert get_material("PE").delta_hf_j_per_m3 == pytest.approx(2.93e8)
     assert get_material("ipp").density_ratio == pytest.approx(1.0960, abs=1e-4)
     assert get_material("PE").b0_m == pytest.approx(4.15e-10)

@@ -5,7 +5,7 @@ import math
 import numpy as np
 import pytest
 
-from analysis import nucleation
+from analysis.spherulites import nucleation
 
 
 def _exposure_2d_athermal(n_a_per_mm2, g_mm_per_s, times_s, area_mm2):

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from analysis import growth, nuclei
+from analysis.spherulites import growth, nuclei
 
 
 def _quantised(arrival, times):

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from analysis import edits as e
-from analysis import growth, pipeline
 from analysis.errors import InputError
+from analysis.spherulites import growth, pipeline
 
 UM_PER_PX = 0.8
 G_PX_PER_S = 0.25  # 12 µm/min at 0.8 µm/px

@@ -9,9 +9,15 @@ import pytest
 
 from analysis import edits as E
 from analysis.errors import InputError
-from analysis.project import (
-    SCHEMA_VERSION, CalorimetrySource, Experiment, Project, load_project, migrate,
-    open_experiment_stack, save_project,
+from analysis.project.file import (
+    SCHEMA_VERSION,
+    CalorimetrySource,
+    Experiment,
+    Project,
+    load_project,
+    migrate,
+    open_experiment_stack,
+    save_project,
 )
 
 FIXTURE_V1 = Path(__file__).parent / "fixtures" / "project_v1.spherokin.json"
@@ -51,7 +57,7 @@ def test_save_is_atomic_and_leaves_no_temporary_files(tmp_path, monkeypatch):
     def explode(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr("analysis.project.os.replace", explode)
+    monkeypatch.setattr("analysis.project.file.os.replace", explode)
     with pytest.raises(OSError):
         save_project(replace(project, material="PET"), target)
     assert target.read_text() == before  # the old file survives a failed save
@@ -71,8 +77,8 @@ def test_migration_chain_runs_step_by_step(monkeypatch):
         document["renamed"] = document.pop("old", None)
         return document
 
-    monkeypatch.setattr("analysis.project.SCHEMA_VERSION", 2)
-    monkeypatch.setitem(__import__("analysis.project").project.MIGRATIONS, 1, v1_to_v2)
+    monkeypatch.setattr("analysis.project.file.SCHEMA_VERSION", 2)
+    monkeypatch.setitem(__import__("analysis.project.file").project.file.MIGRATIONS, 1, v1_to_v2)
     migrated = migrate({"format": "spherokin-project", "schema_version": 1, "old": 3}, "x")
     assert migrated == {"format": "spherokin-project", "schema_version": 2, "renamed": 3}
 

@@ -9,20 +9,20 @@ import numpy as np
 import pytest
 from openpyxl import load_workbook
 
-from analysis.calorimetry import analyze_calorimetry_file
 from analysis.errors import InputError
-from analysis.project import Experiment, Project
-from analysis.report import build_report, series_constants
+from analysis.kinetics.calorimetry import analyze_calorimetry_file
+from analysis.kinetics.lauritzen_hoffman import LHConstants, lh_growth_rate
+from analysis.project.file import Experiment, Project
+from analysis.reporting.report import build_report, series_constants
+from analysis.reporting.tables import ReportEntry
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
-from analysis.synthetic import simulate_dsc_isotherm, write_dsc_csv
-from analysis.tables import ReportEntry
-from analysis.temperature_series import LHConstants, lh_growth_rate
+from analysis.synthetic.hot_stage import simulate_dsc_isotherm, write_dsc_csv
 
 CONST = LHConstants(tm0_c=185.0, tg_c=-10.0)
 
 
 def fixture_b_rate(tc):
-    # Synthetic fixture B (REFERENCES.md 2.5, derived here; Lauritzen & Hoffman 1960 J. Res.
+    # Synthetic fixture B (docs/sources.md 2.5, derived here; Lauritzen & Hoffman 1960 J. Res.
     # NBS 64A, 73 # from memory): regime III below 137 C, regime II above
     if tc <= 137.0:
         return float(lh_growth_rate([tc], math.exp(32.542025), 5.5e5, CONST)[0])
@@ -66,7 +66,7 @@ def test_build_report_writes_everything(tmp_path, calorimetry):
     lines = (tmp_path / "growth_vs_temperature.csv").read_text().splitlines()
     assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,growth_rate_um_per_min")
     doc = json.loads((tmp_path / "secondary_nucleation.json").read_text())
-    # the break of fixture B (137 C) is found within 2 K and the ratio is 2 (REFERENCES.md 2.5)
+    # the break of fixture B (137 C) is found within 2 K and the ratio is 2 (docs/sources.md 2.5)
     assert len(doc["regimes"]) == 2 and abs(doc["regimes"][0]["t_high_c"] - 137.0) <= 2.0
     assert doc["regime_ratio"] == pytest.approx(2.0, rel=0.01)
     book = load_workbook(tmp_path / "growth_vs_temperature.xlsx")
@@ -99,10 +99,10 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     """report_project: every experiment analysed, calorimetry read from the project's mapping,
     bad experiments reported and skipped. The image pipeline is replaced by hand-made
     results here (it has its own tests); everything downstream is real."""
-    import analysis.pipeline as pipeline
+    import analysis.spherulites.pipeline as pipeline
     from analysis.progress import Progress
-    from analysis.project import CalorimetrySource
-    from analysis.report import report_project
+    from analysis.project.file import CalorimetrySource
+    from analysis.reporting.report import report_project
 
     dsc = tmp_path / "dsc_130.txt"
     write_dsc_csv(simulate_dsc_isotherm(seed=5), dsc, delimiter="\t")
@@ -122,7 +122,7 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     exps = [Experiment(name=f"T{t:g}", stack_path=f"/data/{t:g}.tif", temperature_c=t,
                        calorimetry=cal if t == 130.0 else None) for t in (125.0, 127.5, 130.0, 132.5)]
     exps.append(Experiment(name="broken", stack_path="/data/x.tif"))
-    # Hoffman-Weeks pairs for Tm0 = 186 C, gamma = 2 (REFERENCES.md 5, derived here)
+    # Hoffman-Weeks pairs for Tm0 = 186 C, gamma = 2 (docs/sources.md 5, derived here)
     project = Project(experiments=tuple(exps), material="iPP",
                       series={"tm0_c": 185.0, "tg_c": -10.0,
                               "hoffman_weeks_pairs": [[130.0, 158.0], [140.0, 163.0], [135.0, 160.5]]})
@@ -132,7 +132,7 @@ def test_project_report_wiring(tmp_path, monkeypatch):
     assert len(rows) == 5
     t130 = dict(zip(rows[0].split(","), rows[3].split(",")))
     assert float(t130["dsc_avrami_n"]) == pytest.approx(3.0, abs=0.05)
-    # 4 temperatures of regime III of fixture B: one regime, Kg refit (REFERENCES.md 2.5)
+    # 4 temperatures of regime III of fixture B: one regime, Kg refit (docs/sources.md 2.5)
     doc = json.loads((tmp_path / "out" / "secondary_nucleation.json").read_text())
     assert len(doc["regimes"]) == 1 and doc["kg_k2"] == pytest.approx(5.5e5, rel=1e-6)
     hw = json.loads((tmp_path / "out" / "hoffman_weeks.json").read_text())
@@ -149,7 +149,7 @@ def test_demo_project_end_to_end(tmp_path):
     """
     from pathlib import Path
 
-    from analysis.cli import main
+    from analysis.cli.main import main
 
     demo = Path(__file__).resolve().parents[2] / "sample_images" / "demo.spherokin.json"
     assert main(["report", str(demo), "--out", str(tmp_path)]) == 0

@@ -13,8 +13,8 @@ import cv2
 import numpy as np
 import pytest
 
-from analysis import segment
-from analysis.align import warp_onto_reference
+from analysis.arrival import evidence as segment
+from analysis.arrival.registration import warp_onto_reference
 
 
 def _model(level, noise, blind=None):

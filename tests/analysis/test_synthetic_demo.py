@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 import tifffile
 
-from analysis.project import load_project, open_experiment_stack
-from analysis.synthetic import add_cli_arguments, run_cli
+from analysis.cli.simulate import add_cli_arguments, run_cli
+from analysis.project.file import load_project, open_experiment_stack
 
 DEMO = Path(__file__).resolve().parents[2] / "sample_images"
 README = (DEMO / "README.md").read_text(encoding="utf-8")

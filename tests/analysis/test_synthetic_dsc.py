@@ -10,7 +10,11 @@ import pytest
 from scipy import integrate
 
 from analysis.errors import InputError
-from analysis.synthetic import DscIsotherm, simulate_dsc_isotherm, write_dsc_csv
+from analysis.synthetic.hot_stage import (
+    DscIsotherm,
+    simulate_dsc_isotherm,
+    write_dsc_csv,
+)
 
 QUIET = dict(lag_s=0.0, baseline_drift_mw_per_min=0.0, transient_amplitude_mw=0.0, noise_mw=0.0)
 

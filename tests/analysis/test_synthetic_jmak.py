@@ -28,8 +28,12 @@ import numpy as np
 import pytest
 from scipy import integrate, optimize
 
-from analysis import synthetic
-from analysis.synthetic import StackParams, johnson_mehl_arrival, simulate_film_kinetics
+from analysis.synthetic import hot_stage as synthetic
+from analysis.synthetic.hot_stage import (
+    StackParams,
+    johnson_mehl_arrival,
+    simulate_film_kinetics,
+)
 
 SIZE_PX = 400
 SEEDS = range(6)

@@ -12,12 +12,17 @@ import cv2
 import numpy as np
 import pytest
 
+from analysis.cli.simulate import add_cli_arguments, run_cli
 from analysis.errors import InputError
-from analysis.frames import open_stack
-from analysis.synthetic import (
-    StackParams, add_cli_arguments, run_cli, simulate_film_kinetics, simulate_stack, stack_truth, write_stack,
+from analysis.stack.frames import open_stack
+from analysis.synthetic.hot_stage import (
+    StackParams,
+    simulate_film_kinetics,
+    simulate_stack,
+    stack_truth,
+    write_stack,
 )
-from analysis.synthetic_optics import retardation_to_rgb
+from analysis.synthetic.optics import retardation_to_rgb
 
 CLEAN = dict(read_noise=0.0, photons_full_scale=0.0, flicker=0.0, vignetting=0.0, dust_specks=0, scratches=0,
              drift_px_per_frame=0.0, drift_jitter_px=0.0, texture_contrast=0.0)
@@ -205,7 +210,7 @@ def test_write_stack_never_overwrites_a_real_recording(tmp_path):
 
 
 def test_spherokin_simulate_through_the_main_command_line(tmp_path, capsys):
-    from analysis.cli import main
+    from analysis.cli.main import main
 
     assert main(["simulate", "--out", str(tmp_path / "ok"), "--size", "40", "--frames", "3"]) == 0
     assert (tmp_path / "ok" / "stack.tif").is_file() and (tmp_path / "ok" / "truth.json").is_file()

@@ -7,10 +7,19 @@ import numpy as np
 import pytest
 from openpyxl import load_workbook
 
-from analysis.avrami import AvramiFit
+from analysis.kinetics.avrami import AvramiFit
+from analysis.reporting.tables import (
+    GROWTH_HEADER,
+    ReportEntry,
+    Table,
+    compare_kinetics,
+    comparison_table,
+    escape_cell,
+    growth_vs_temperature_table,
+    write_csv,
+    write_xlsx,
+)
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
-from analysis.tables import (GROWTH_HEADER, ReportEntry, Table, compare_kinetics, comparison_table,
-                             escape_cell, growth_vs_temperature_table, write_csv, write_xlsx)
 
 
 def result(tc, g=10.0, n_mm3=1e3, count=400, name="stack.tif", mode="athermal"):
@@ -47,7 +56,7 @@ def test_growth_table_rows_sorted_with_units():
     assert [row[0] for row in table.rows] == ["cold", "hot"]
     cold = dict(zip(table.header, table.rows[0]))
     assert cold["growth_rate_um_per_min"] == 30.0 and cold["n_spherulites"] == 12
-    # 3-D athermal k = (4 pi/3) N_V G^3 (REFERENCES.md 1.2, derived here)
+    # 3-D athermal k = (4 pi/3) N_V G^3 (docs/sources.md 1.2, derived here)
     assert cold["predicted_k_per_min_n"] == pytest.approx(4 * math.pi / 3 * 1e3 * 0.03 ** 3)
     assert cold["dsc_avrami_n"] == 3.0 and cold["dsc_t_half_min"] == 2.0
     hot = dict(zip(table.header, table.rows[1]))
@@ -55,7 +64,7 @@ def test_growth_table_rows_sorted_with_units():
 
 
 def test_comparison_agreement_and_disagreement():
-    # predicted t_half = 5.4901 min for N_V = 1e3 mm^-3, G = 10 um/min (REFERENCES.md 1.4)
+    # predicted t_half = 5.4901 min for N_V = 1e3 mm^-3, G = 10 um/min (docs/sources.md 1.4)
     same = ReportEntry("a", result(130.0), calorimetry=FakeCalorimetry(3.0, 5.50))
     comp = compare_kinetics(same)
     assert comp.predicted_t_half_min == pytest.approx(5.4901, rel=1e-4)
@@ -65,7 +74,7 @@ def test_comparison_agreement_and_disagreement():
     assert "faster" in fast.note and "nuclei" in fast.note
     slow = compare_kinetics(ReportEntry("c", result(130.0), calorimetry=FakeCalorimetry(1.6, 15.0)))
     assert "slower" in slow.note and "unusual" in slow.note
-    # few spherulites -> wide Poisson uncertainty (REFERENCES.md 1.6: 1/sqrt(N)) -> agreement
+    # few spherulites -> wide Poisson uncertainty (docs/sources.md 1.6: 1/sqrt(N)) -> agreement
     wide = compare_kinetics(ReportEntry("d", result(130.0, count=4), calorimetry=FakeCalorimetry(3.0, 7.0)))
     assert wide.agree
     assert compare_kinetics(ReportEntry("e", result(130.0))) is None

@@ -1,7 +1,7 @@
 """Lauritzen-Hoffman fits, regimes, surface energies, Hoffman-Weeks, growth-rate tables.
 
 Fixtures A and B are synthetic data sets generated from the Lauritzen-Hoffman equation
-(REFERENCES.md section 2.5, "derived here"; equation: Lauritzen & Hoffman 1960 J. Res. NBS
+(docs/sources.md section 2.5, "derived here"; equation: Lauritzen & Hoffman 1960 J. Res. NBS
 64A, 73 and Hoffman 1983 Polymer 24, 3 `# from memory`).
 """
 
@@ -14,11 +14,19 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from analysis.cli.lauritzen_hoffman import add_cli_arguments, run_cli
 from analysis.errors import InputError
-from analysis.temperature_series import (LHConstants, add_cli_arguments, fit_lauritzen_hoffman,
-                                         hoffman_weeks, lh_coordinates, lh_growth_rate,
-                                         read_growth_table, regime_factor, run_cli,
-                                         sigma_sigma_e_from_kg, thomas_stavely_sigma)
+from analysis.kinetics.lauritzen_hoffman import (
+    LHConstants,
+    fit_lauritzen_hoffman,
+    hoffman_weeks,
+    lh_coordinates,
+    lh_growth_rate,
+    read_growth_table,
+    regime_factor,
+    sigma_sigma_e_from_kg,
+    thomas_stavely_sigma,
+)
 
 # Fixture constants: Tm0 = 458.15 K, Tg = 263.15 K, T_inf = 233.15 K, U* = 6270 J/mol
 CONST = LHConstants(tm0_c=185.0, tg_c=-10.0)
@@ -41,14 +49,14 @@ def test_defaults_and_coordinates():
 
 
 def test_fixture_a_table_reproduced_by_equation():
-    # Fixture A values (6 significant figures) from G0, Kg (REFERENCES.md 2.5, derived here)
+    # Fixture A values (6 significant figures) from G0, Kg (docs/sources.md 2.5, derived here)
     g = lh_growth_rate(A_T, math.exp(LN_G0_III), KG_III, CONST)
     assert np.allclose(g, A_G, rtol=5e-6)
     assert g[4] == pytest.approx(5.0, rel=1e-6)
 
 
 def test_fixture_a_exact_refit():
-    # Noise-free data from the fixture parameters refit to Kg within 1e-9 (REFERENCES.md 2.5)
+    # Noise-free data from the fixture parameters refit to Kg within 1e-9 (docs/sources.md 2.5)
     g = lh_growth_rate(A_T, math.exp(LN_G0_III), KG_III, CONST)
     fit = fit_lauritzen_hoffman(A_T, g, constants=CONST)
     assert fit.overall.kg_k2 == pytest.approx(KG_III, rel=1e-9)
@@ -61,13 +69,13 @@ def test_fixture_a_exact_refit():
 
 
 def test_tm0_sensitivity():
-    # +5 K in Tm0 gives Kg = 6.78e5 K^2 (+23 %) on fixture A (REFERENCES.md 2.5, derived here)
+    # +5 K in Tm0 gives Kg = 6.78e5 K^2 (+23 %) on fixture A (docs/sources.md 2.5, derived here)
     fit = fit_lauritzen_hoffman(A_T, A_G, constants=LHConstants(190.0, -10.0))
     assert fit.overall.kg_k2 == pytest.approx(6.78e5, rel=5e-3)
 
 
 def test_fixture_b_break_found():
-    # Fixture B: regime III -> II at 137 C, Kg ratio 2 (REFERENCES.md 2.5; Hoffman 1983 # from memory)
+    # Fixture B: regime III -> II at 137 C, Kg ratio 2 (docs/sources.md 2.5; Hoffman 1983 # from memory)
     fit = fit_lauritzen_hoffman(B_T, B_G, constants=CONST, material="iPP")
     assert len(fit.regimes) == 2
     assert abs(fit.break_c - 137.0) <= 2.0
@@ -81,7 +89,7 @@ def test_fixture_b_break_found():
 
 
 def test_free_break_model_and_repeated_temperatures():
-    # Fixture B with two independent lines (REFERENCES.md 2.5, derived here)
+    # Fixture B with two independent lines (docs/sources.md 2.5, derived here)
     fit = fit_lauritzen_hoffman(B_T, B_G, constants=CONST, break_model="free")
     assert len(fit.regimes) == 2 and abs(fit.break_c - 137.0) <= 2.0
     assert fit.regimes[0].kg_k2 == pytest.approx(KG_III, rel=1e-5)
@@ -112,12 +120,12 @@ def test_noisy_break_and_weighted_ci():
 
 
 def test_surface_energies():
-    # Kg formula check value PE: 1.909e5 K^2 (REFERENCES.md 3.2, derived here from
+    # Kg formula check value PE: 1.909e5 K^2 (docs/sources.md 3.2, derived here from
     # Hoffman & Miller 1997 Polymer 38, 3151 # from memory)
     ssig = sigma_sigma_e_from_kg(1.909e5, 4, 4.15e-10, 2.80e8, 418.7)
     assert ssig == pytest.approx(0.0118 * 0.090, rel=1e-3)
     # Thomas-Stavely (Thomas & Stavely 1952 J. Chem. Soc. 4569 # from memory), alpha = 0.1:
-    # PE 12.2 mJ/m2, PET 10.6 mJ/m2 (REFERENCES.md 2.4, derived here)
+    # PE 12.2 mJ/m2, PET 10.6 mJ/m2 (docs/sources.md 2.4, derived here)
     assert thomas_stavely_sigma(2.80e8, 4.55e-10, 4.15e-10) == pytest.approx(12.2e-3, rel=5e-3)
     # (the quoted 10.6 is 10.55 rounded up, hence 1 %)
     assert thomas_stavely_sigma(2.1e8, 4.56e-10, 5.53e-10) == pytest.approx(10.6e-3, rel=1e-2)
@@ -142,7 +150,7 @@ def test_temperature_outside_window_and_bad_input():
 
 
 def test_hoffman_weeks_check_values():
-    # Tm0 = 186 C, gamma = 2: Tc 130 -> Tm 158, Tc 140 -> Tm 163 (REFERENCES.md 5, derived
+    # Tm0 = 186 C, gamma = 2: Tc 130 -> Tm 158, Tc 140 -> Tm 163 (docs/sources.md 5, derived
     # here; Hoffman & Weeks 1962 J. Res. NBS 66A, 13 # from memory)
     hw = hoffman_weeks([130.0, 140.0], [158.0, 163.0])
     assert hw.slope == pytest.approx(0.5) and hw.intercept_c == pytest.approx(93.0)

@@ -52,7 +52,7 @@ def small_project(tmp_path, disc_stack):
     """A saved two-experiment project on small disc stacks."""
     from dataclasses import replace
 
-    from analysis.project import Experiment, new_project, save_project
+    from analysis.project.file import Experiment, new_project, save_project
 
     second = write_disc_stack(tmp_path / "discs_b.tif", centres=((30, 30),))
     experiments = (

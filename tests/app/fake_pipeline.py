@@ -1,4 +1,4 @@
-"""A tiny stand-in for analysis.pipeline used by the model tests only.
+"""A tiny stand-in for analysis.spherulites.pipeline used by the model tests only.
 
 It follows the pipeline's API (analyze_experiment_iter, apply_edits, Analysis with
 .arrival and .result) with trivial, predictable detections so the model and command
@@ -15,7 +15,10 @@ import numpy as np
 from analysis.edits import nearest_index
 from analysis.progress import Progress
 from analysis.results import (
-    ExperimentResult, Nucleation, PooledGrowthRate, Spherulite,
+    ExperimentResult,
+    Nucleation,
+    PooledGrowthRate,
+    Spherulite,
 )
 
 CALLS = {"analyze": 0, "apply_edits": 0}

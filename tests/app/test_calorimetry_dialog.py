@@ -6,8 +6,8 @@ import pytest
 from PySide6 import QtWidgets
 
 from analysis.errors import InputError
-from analysis.synthetic_dsc import simulate_dsc_isotherm, write_dsc_csv
-from app.calorimetry_dialog import CalorimetryMappingDialog
+from analysis.synthetic.dsc import simulate_dsc_isotherm, write_dsc_csv
+from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 
 
 @pytest.fixture(scope="module")
@@ -67,7 +67,7 @@ def test_unreadable_file_raises_input_error_naming_it(tmp_path):
 
 
 def test_existing_mapping_is_restored(qtbot, tmp_path, isotherm):
-    from analysis.project import CalorimetrySource
+    from analysis.project.file import CalorimetrySource
 
     path = _write(tmp_path, isotherm, "run.csv")
     current = CalorimetrySource(file=path, time_col="Time (min)", heat_flow_col="Heat flow (mW)",

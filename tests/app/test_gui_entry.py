@@ -7,7 +7,7 @@ from types import SimpleNamespace
 
 from PySide6.QtGui import QImage
 
-from app import main
+from app.window import main
 
 
 def test_has_display_on_linux():
@@ -52,8 +52,8 @@ from pathlib import Path
 from types import SimpleNamespace
 from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import QApplication
-from app import main
-from app.main_window import MainWindow
+from app.window import main
+from app.window.main_window import MainWindow
 app = main._application()
 seen = {}
 def look_and_quit():

@@ -6,8 +6,8 @@ import re
 
 import pytest
 
-from app.help_content import CAUTIONS, TOPICS, topic
-from app.help_panel import HelpPanel, help_button, help_html, show_help
+from app.widgets.help_content import CAUTIONS, TOPICS, topic
+from app.widgets.help_panel import HelpPanel, help_button, help_html, show_help
 
 _YEAR = re.compile(r"\b(19|20)\d\d\b")
 

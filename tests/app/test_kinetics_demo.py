@@ -6,13 +6,12 @@ from __future__ import annotations
 import dataclasses
 
 import pytest
-
-from analysis.project import load_project
-from app.kinetics_plots import x_to_avrami_y
-from app.kinetics_view import KineticsView
-from app.model import ProjectModel
 from test_kinetics_view import _collect_qt_garbage  # noqa: F401 (autouse fixture)
 
+from analysis.project.file import load_project
+from app.core.model import ProjectModel
+from app.kinetics.plots import x_to_avrami_y
+from app.kinetics.view import KineticsView
 
 
 @pytest.fixture

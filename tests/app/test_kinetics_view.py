@@ -13,14 +13,14 @@ import gc
 import math
 
 import numpy as np
-from PySide6 import QtWidgets
 import pytest
+from PySide6 import QtWidgets
 
-from analysis.project import Experiment, Project
+from analysis.project.file import Experiment, Project
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
-from analysis.synthetic_dsc import simulate_dsc_isotherm, write_dsc_csv
-from app.kinetics_view import KineticsView
-from app.model import ProjectModel
+from analysis.synthetic.dsc import simulate_dsc_isotherm, write_dsc_csv
+from app.core.model import ProjectModel
+from app.kinetics.view import KineticsView
 
 N_A_PER_MM2, THICKNESS_UM, G_UM_PER_MIN = 400.0, 20.0, 10.0
 N_V_PER_MM3 = N_A_PER_MM2 / (THICKNESS_UM * 1e-3)  # 2e4 mm^-3
@@ -35,7 +35,7 @@ def _collect_qt_garbage():
 
 @dataclasses.dataclass(frozen=True)
 class HandMadeAnalysis:
-    """Stands in for analysis.pipeline.Analysis: the model only reads ``.result``."""
+    """Stands in for analysis.spherulites.pipeline.Analysis: the model only reads ``.result``."""
 
     result: ExperimentResult
 
@@ -123,7 +123,7 @@ def test_import_isotherm_fit_window_and_undo(view, isotherm_csv):
     assert n_default == pytest.approx(run.n, abs=0.1)  # simulated athermal bulk: n = 3
     before = {key: panel.text(key) for key in ("window", "n", "k", "r2")}
     # drag the shaded window to 10-60 % conversion: one gesture, one undo entry
-    from app.kinetics_plots import x_to_avrami_y
+    from app.kinetics.plots import x_to_avrami_y
 
     view.plots.window_region.setRegion((x_to_avrami_y(0.10), x_to_avrami_y(0.60)))
     assert model.undo_stack.count() == 2
@@ -183,7 +183,7 @@ def test_export_all_figures(view, isotherm_csv, tmp_path):
 
 
 def test_live_drag_updates_numbers_without_an_undo_entry(view, isotherm_csv):
-    from app.kinetics_plots import x_to_avrami_y
+    from app.kinetics.plots import x_to_avrami_y
 
     _import(view, isotherm_csv[0])
     model, panel = view.model, view.calorimetry_panel.form
@@ -240,7 +240,7 @@ def test_unusable_position_mid_drag_keeps_the_band(view, isotherm_csv, monkeypat
 
 
 def test_default_window_action_restores_the_guideline_window(view, isotherm_csv):
-    from app.kinetics_plots import x_to_avrami_y
+    from app.kinetics.plots import x_to_avrami_y
 
     _import(view, isotherm_csv[0])
     default_n = view.calorimetry_panel.form.text("n")

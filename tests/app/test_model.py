@@ -5,18 +5,17 @@ from __future__ import annotations
 import json
 import sys
 
+import fake_pipeline
 import pytest
 
 from analysis.edits import AddNucleus, DeleteDetection, ExcludeSpherulite, IgnoreFrames
 from analysis.progress import run_to_completion
-from app import model as m
-
-import fake_pipeline
+from app.core import model as m
 
 
 @pytest.fixture
 def fake(monkeypatch):
-    monkeypatch.setitem(sys.modules, "analysis.pipeline", fake_pipeline)
+    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
     return fake_pipeline
 
 

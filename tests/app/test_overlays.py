@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from app.overlays import OverlayMark, clipped_fronts
+from app.microscopy.overlays import OverlayMark, clipped_fronts
 
 
 def test_front_is_hidden_where_it_crosses_a_neighbour_or_leaves_the_field():

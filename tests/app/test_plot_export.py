@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from PySide6 import QtGui
 
-from app.plot_export import FIGURE_SIZE_LOGICAL, PNG_DPI, export_plot, styled_plot
+from app.widgets.plotting import FIGURE_SIZE_LOGICAL, PNG_DPI, export_plot, styled_plot
 
 
 @pytest.fixture

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from analysis.results import AvramiParameters
-from app.plots_panel import avrami_curve, nuclei_count_curve
+from app.microscopy.plots_panel import avrami_curve, nuclei_count_curve
 
 
 def test_nuclei_count_is_a_step_curve_held_to_the_end():
@@ -18,7 +18,7 @@ def test_nuclei_count_is_a_step_curve_held_to_the_end():
 
 def test_avrami_curve_starts_at_the_induction_time_and_halves_at_t_half():
     # X(t) = 1 - exp(-k t^n) reaches 1/2 at t_half = (ln 2 / k)^(1/n): Avrami 1940,
-    # J. Chem. Phys. 8, 212  # from memory (as listed in REFERENCES.md §1)
+    # J. Chem. Phys. 8, 212  # from memory (as listed in docs/sources.md §1)
     k, n, origin_s = 0.05, 2.0, 30.0
     t_s, x = avrami_curve(AvramiParameters(n, k, None), 600.0, origin_s)
     assert t_s[0] == origin_s and x[0] == 0.0
@@ -28,7 +28,11 @@ def test_avrami_curve_starts_at_the_induction_time_and_halves_at_t_half():
 
 
 def test_scale_bar_picks_round_lengths():
-    from app.annotations import format_clock, format_length_um, nice_length_um
+    from app.microscopy.annotations import (
+        format_clock,
+        format_length_um,
+        nice_length_um,
+    )
 
     assert [nice_length_um(v) for v in (0.7, 3.0, 74.0, 180.0, 999.0)] == [0.5, 2.0, 50.0, 100.0, 500.0]
     assert format_length_um(2000.0) == "2 mm" and format_length_um(50.0) == "50 µm"

@@ -9,11 +9,11 @@ from __future__ import annotations
 
 import openpyxl
 import pytest
-
-from analysis.pipeline import analyze_experiment
-from app.model import ProjectModel
-from app.temperature_view import TemperatureView
 from test_kinetics_view import _collect_qt_garbage  # noqa: F401 (autouse fixture)
+
+from analysis.spherulites.pipeline import analyze_experiment
+from app.core.model import ProjectModel
+from app.temperature.view import TemperatureView
 
 
 def test_demo_series_table_fit_and_xlsx(qtbot, demo_project_path, tmp_path):

@@ -8,9 +8,9 @@ import csv
 import openpyxl
 import pytest
 from PySide6 import QtCore, QtWidgets
-
-from app.temperature_view import TemperatureView
 from test_kinetics_view import _collect_qt_garbage, hand_made_result, model_with  # noqa: F401 (autouse fixture)
+
+from app.temperature.view import TemperatureView
 
 # Synthetic single-regime G(Tc) series generated from the LH equation with Tm0 = 185 °C,
 # Tg = -10 °C, T_inf = Tg - 30 K, U* = 6270 J/mol, Kg = 5.5e5 K^2 (exact by construction;

@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 import types
 
-from app.views import ViewSpec, build_optional_views, find_view_class
+from app.window.views import ViewSpec, build_optional_views, find_view_class
 
 
 def test_missing_module_is_skipped_quietly():
@@ -28,7 +28,7 @@ def test_available_view_is_built_with_the_model(monkeypatch):
 
     module.View = View
     monkeypatch.setitem(sys.modules, "app.sample_view_for_test", module)
-    monkeypatch.setattr("app.views.OPTIONAL_VIEWS",
+    monkeypatch.setattr("app.window.views.OPTIONAL_VIEWS",
                         (ViewSpec("s", "S", "app.sample_view_for_test", "View"),))
     ((spec, widget),) = build_optional_views("the model")
     assert spec.name == "s" and widget.model == "the model"

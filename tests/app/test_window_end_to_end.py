@@ -8,8 +8,8 @@ import pytest
 from PySide6.QtCore import QPointF, QSettings, Qt
 from PySide6.QtWidgets import QFileDialog
 
-from app import model as m
-from app.main_window import MainWindow
+from app.core import model as m
+from app.window.main_window import MainWindow
 
 
 @pytest.fixture

@@ -4,28 +4,35 @@ from __future__ import annotations
 
 import sys
 
+import fake_pipeline
 import numpy as np
 import pytest
+from conftest import write_disc_stack
 from PySide6.QtCore import QSettings
 
 from analysis.edits import (
-    AddNucleus, DeleteDetection, ExcludeSpherulite, IncludeSpherulite, MergeDetections,
+    AddNucleus,
+    DeleteDetection,
+    ExcludeSpherulite,
+    IncludeSpherulite,
+    MergeDetections,
     MoveCentre,
 )
 from analysis.errors import InputError
-from app import model as m
-from app.calibration import CalibrationDialog, scale_um_per_px
-from app.main_window import MainWindow
-from app.properties_dialog import PropertiesDialog, parse_optional_number, parse_times
-from app.stack_import import experiments_from_paths, temperature_from_name
-
-import fake_pipeline
-from conftest import write_disc_stack
+from app.core import model as m
+from app.microscopy.calibration import CalibrationDialog, scale_um_per_px
+from app.window.main_window import MainWindow
+from app.window.properties_dialog import (
+    PropertiesDialog,
+    parse_optional_number,
+    parse_times,
+)
+from app.window.stack_import import experiments_from_paths, temperature_from_name
 
 
 @pytest.fixture
 def window(qtbot, tmp_path, monkeypatch, small_project):
-    monkeypatch.setitem(sys.modules, "analysis.pipeline", fake_pipeline)
+    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
     settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
     win = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
     win.ask_unsaved_changes = lambda: "discard"  # never block on a modal question
@@ -249,7 +256,7 @@ def test_ignore_frames_targets_the_selected_spherulite_or_the_experiment(window)
 
 
 def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch):
-    from app import window_files
+    from app.window import files as window_files
 
     window.ask_calibration_source = lambda: "frame"
 

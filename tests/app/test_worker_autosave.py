@@ -5,16 +5,15 @@ from __future__ import annotations
 import sys
 import threading
 
+import fake_pipeline
 import pytest
 
 from analysis.edits import AddNucleus
 from analysis.progress import Progress
-from app import model as m
-from app.analysis_runner import AnalysisRunner
-from app.autosave import Autosaver, find_recoverable, load_recovered, side_path_for
-from app.worker import GeneratorWorker
-
-import fake_pipeline
+from app.core import model as m
+from app.core.autosave import Autosaver, find_recoverable, load_recovered, side_path_for
+from app.core.runner import AnalysisRunner
+from app.core.worker import GeneratorWorker
 
 
 def _counting(n, gate=None):
@@ -64,7 +63,7 @@ def test_worker_abort_stops_between_yields(qtbot):
 
 @pytest.fixture
 def fake(monkeypatch):
-    monkeypatch.setitem(sys.modules, "analysis.pipeline", fake_pipeline)
+    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
 
 
 def test_runner_fills_results_per_experiment(qtbot, fake, small_project):

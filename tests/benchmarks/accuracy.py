@@ -34,8 +34,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from analysis import synthetic  # noqa: E402
-from analysis.pipeline import AnalysisSettings, analyze, analyze_arrival  # noqa: E402
+from analysis.spherulites.pipeline import AnalysisSettings, analyze, analyze_arrival  # noqa: E402
+from analysis.synthetic import hot_stage as synthetic  # noqa: E402
 
 BASE = dict(n_frames=60, height_px=384, width_px=384, um_per_px=1.0, interval_s=10.0,
             growth_rate_um_per_min=12.0, n_athermal_per_mm2=250.0, dust_specks=0, scratches=0,
@@ -134,7 +134,7 @@ def run_condition(name, overrides, seeds, path, workdir, settings=AnalysisSettin
         if path == "exact-map":
             analysis = analyze_arrival(exact_arrival(sim), isothermal_start_s=start, settings=settings)
         else:
-            from analysis.frames import open_stack
+            from analysis.stack.frames import open_stack
 
             folder = synthetic.write_stack(sim, Path(workdir) / f"{abs(hash(name))}_{seed}")
             analysis = analyze(open_stack(folder / "stack.tif"), isothermal_start_s=start,

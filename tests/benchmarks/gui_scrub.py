@@ -26,9 +26,12 @@ import numpy as np  # noqa: E402
 import tifffile  # noqa: E402
 from PySide6.QtWidgets import QApplication  # noqa: E402
 
-from analysis.project import Experiment, new_project  # noqa: E402
+from analysis.project.file import Experiment, new_project  # noqa: E402
 from analysis.results import (  # noqa: E402
-    ExperimentResult, Nucleation, PooledGrowthRate, Spherulite,
+    ExperimentResult,
+    Nucleation,
+    PooledGrowthRate,
+    Spherulite,
 )
 
 SIZE, FRAMES, SPHERULITES, UM_PER_PX, INTERVAL_S = 1024, 60, 80, 0.5, 2.0
@@ -83,8 +86,8 @@ def time_frames(viewer, frames) -> list[float]:
 
 
 def main() -> int:
-    from app.model import STATUS_DONE, ProjectModel
-    from app.viewer import StackViewer
+    from app.core.model import STATUS_DONE, ProjectModel
+    from app.microscopy.viewer import StackViewer
 
     app = QApplication.instance() or QApplication([])
     with tempfile.TemporaryDirectory() as scratch:

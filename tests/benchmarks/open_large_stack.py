@@ -14,7 +14,7 @@ from pathlib import Path
 
 import tifffile
 
-from analysis.frames import open_stack
+from analysis.stack.frames import open_stack
 
 FRAMES, SIZE = 1024, 2048
 
@@ -33,7 +33,7 @@ def main() -> None:
         stack[FRAMES // 2].sum()
         one_frame = time.perf_counter() - start
         start = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "analysis.cli", "info", str(path)], check=True,
+        subprocess.run([sys.executable, "-m", "analysis.cli.main", "info", str(path)], check=True,
                        capture_output=True)
         cli = time.perf_counter() - start
     print("| measure | value |\n|---|---|")

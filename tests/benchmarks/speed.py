@@ -24,10 +24,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from analysis import synthetic  # noqa: E402
 from analysis.edits import AddNucleus, DeleteDetection  # noqa: E402
-from analysis.frames import open_stack  # noqa: E402
-from analysis.pipeline import analyze, analyze_arrival, apply_edits  # noqa: E402
+from analysis.spherulites.pipeline import analyze, analyze_arrival, apply_edits  # noqa: E402
+from analysis.stack.frames import open_stack  # noqa: E402
+from analysis.synthetic import hot_stage as synthetic  # noqa: E402
 
 
 def minimal_pass(stack) -> int:

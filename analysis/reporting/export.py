@@ -1,0 +1,188 @@
+"""Files written by ``spherokin analyze``: spherulites.csv, radii.csv, summary.json,
+overlay.png (formats in docs/design.md), and the ``analyze`` command line.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import os
+from typing import Any
+
+import numpy as np
+
+from analysis.errors import InputError
+
+SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
+                      "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
+                      "status", "source")
+RADII_COLUMNS = ("id", "time_s", "radius_um", "free_fraction")
+
+# Overlay colours (BGR): our own palette, chosen to read on grey and on colour images.
+_FRONT_OK = (80, 220, 250)
+_FRONT_OTHER = (170, 120, 255)
+_CENTRE = (255, 255, 90)
+_LABEL = (255, 255, 255)
+
+
+def _number(value) -> Any:
+    """JSON-safe number: None for missing or non-finite values."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def _cell(value) -> str:
+    """CSV cell text; a leading = + - @ is escaped with a quote (formula injection)."""
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        text = "" if not math.isfinite(value) else repr(round(value, 6))
+        return text
+    text = str(value)
+    if text[:1] in ("=", "+", "-", "@"):
+        return "'" + text
+    return text
+
+
+def _number_cell(value) -> str:
+    """Numeric cell: numbers are never escaped (a negative time is data, not a formula)."""
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return ""
+    return repr(round(float(value), 6)) if isinstance(value, float) else str(value)
+
+
+def spherulite_rows(result) -> list[list[str]]:
+    rows = []
+    um = result.um_per_px
+    for s in result.spherulites:
+        numbers = [s.id, s.x_px, s.y_px, s.x_px * um, s.y_px * um, s.nucleation_time_s,
+                   s.first_seen_s, s.growth_rate_um_per_min, s.growth_rate_ci95_um_per_min,
+                   s.r2, s.n_points]
+        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source)])
+    return rows
+
+
+def radii_rows(result) -> list[list[str]]:
+    rows = []
+    for series in result.radii:
+        for t, r, f in zip(series.time_s, series.radius_um, series.free_fraction):
+            rows.append([_number_cell(series.id), _number_cell(float(t)), _number_cell(float(r)),
+                         _number_cell(float(f))])
+    return rows
+
+
+def _write_csv(path: str, header, rows) -> None:
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(header)
+        writer.writerows(rows)
+
+
+def _avrami_dict(params, *, with_geometry: bool) -> dict[str, Any]:
+    out = {"n": None, "k_per_min_n": None, "t_half_min": None}
+    if params is not None:
+        out = {"n": _number(params.n), "k_per_min_n": _number(params.k_per_min_n),
+               "t_half_min": _number(params.t_half_min)}
+    if with_geometry:
+        geometry = params.geometry if params is not None else None
+        out = {"geometry": geometry, **out}
+    return out
+
+
+def summary_dict(result) -> dict[str, Any]:
+    """The summary.json record of a result (schema 1, docs/design.md)."""
+    g, nuc = result.growth_rate, result.nucleation
+    return {
+        "schema": 1,
+        "stack": result.stack,
+        "frames": int(result.frames),
+        "um_per_px": _number(result.um_per_px),
+        "interval_s": _number(result.interval_s),
+        "temperature_c": _number(result.temperature_c),
+        "thickness_um": _number(result.thickness_um),
+        "growth_rate_um_per_min": {"value": _number(g.value), "ci95_low": _number(g.ci95_low),
+                                   "ci95_high": _number(g.ci95_high), "n": int(g.n)},
+        "nucleation": {"count": int(nuc.count), "mode": nuc.mode,
+                       "density_per_mm2": _number(nuc.density_per_mm2),
+                       "density_per_mm3": _number(nuc.density_per_mm3),
+                       "rate_per_mm2_per_min": _number(nuc.rate_per_mm2_per_min),
+                       "rate_per_mm3_per_min": _number(nuc.rate_per_mm3_per_min),
+                       "induction_time_s": _number(nuc.induction_time_s)},
+        "area_fraction": {"time_s": [_number(t) for t in result.area_fraction_time_s],
+                          "value": [_number(x) for x in result.area_fraction]},
+        "avrami_film": _avrami_dict(result.avrami_film, with_geometry=False),
+        "avrami_predicted": _avrami_dict(result.avrami_predicted, with_geometry=True),
+    }
+
+
+def _display_image(frame: np.ndarray) -> np.ndarray:
+    """8-bit BGR copy of a frame, contrast-stretched between its 0.5 and 99.5 percentiles."""
+    import cv2
+
+    img = np.asarray(frame, dtype=np.float64)
+    lo, hi = np.nanpercentile(img, [0.5, 99.5])
+    scaled = np.clip((img - lo) / max(hi - lo, 1e-12) * 255.0, 0, 255).astype(np.uint8)
+    if scaled.ndim == 2:
+        return cv2.cvtColor(scaled, cv2.COLOR_GRAY2BGR)
+    return cv2.cvtColor(scaled, cv2.COLOR_RGB2BGR)
+
+
+def overlay_image(result, background: np.ndarray | None, *, shape=None) -> np.ndarray:
+    """BGR image: the last frame (or black) with fronts at the last frame time, centres, ids.
+
+    The drawn front is each spherulite's territory outline from the arrival map when the
+    result carries it, else the fitted circle at the last frame time.
+    """
+    import cv2
+
+    if background is None:
+        h, w = shape
+        img = np.zeros((h, w, 3), np.uint8)
+    else:
+        img = _display_image(background)
+    labels = result.extra.get("territories") if isinstance(result.extra, dict) else None
+    thickness = max(1, img.shape[1] // 600)
+    for s in result.spherulites:
+        colour = _FRONT_OK if s.status == "ok" else _FRONT_OTHER
+        if labels is not None and labels.shape == img.shape[:2]:
+            mask = (labels == s.id).astype(np.uint8)
+            contours, _ = cv2.findContours(mask, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_SIMPLE)
+            cv2.drawContours(img, contours, -1, colour, thickness)
+        centre = (int(round(s.x_px)), int(round(s.y_px)))
+        cv2.drawMarker(img, centre, _CENTRE, cv2.MARKER_TILTED_CROSS, 6 + 3 * thickness, thickness)
+        cv2.putText(img, str(s.id), (centre[0] + 4, centre[1] - 4), cv2.FONT_HERSHEY_SIMPLEX,
+                    0.35 * thickness + 0.1, _LABEL, 1, cv2.LINE_AA)
+    return img
+
+
+def write_analysis_outputs(result, out_dir, *, arrival=None, stack=None) -> list[str]:
+    """Write spherulites.csv, radii.csv, summary.json and overlay.png into ``out_dir``.
+
+    ``stack`` (a FrameStack) supplies the last frame for the overlay; without it the
+    overlay is drawn on black at the arrival map's size. Returns the written paths.
+    """
+    import cv2
+
+    out_dir = os.fspath(out_dir)
+    try:
+        os.makedirs(out_dir, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder: {exc.strerror}", out_dir) from None
+    paths = [os.path.join(out_dir, name) for name in
+             ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")]
+    _write_csv(paths[0], SPHERULITE_COLUMNS, spherulite_rows(result))
+    _write_csv(paths[1], RADII_COLUMNS, radii_rows(result))
+    with open(paths[2], "w", encoding="utf-8") as fh:
+        json.dump(summary_dict(result), fh, indent=2, allow_nan=False)
+        fh.write("\n")
+    background = stack[len(stack) - 1] if stack is not None and len(stack) else None
+    shape = None if arrival is None else np.asarray(arrival.arrival_s).shape
+    if background is None and shape is None:
+        labels = result.extra.get("territories")
+        shape = labels.shape if labels is not None else (256, 256)
+    if not cv2.imwrite(paths[3], overlay_image(result, background, shape=shape)):
+        raise InputError("could not write overlay.png", paths[3])
+    return paths

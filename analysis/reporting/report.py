@@ -1,0 +1,244 @@
+"""``spherokin report``: tables, fits and figures for a whole project.
+
+Public API
+----------
+``build_report(entries, out_dir, *, constants=None, material=None) -> ReportSummary``
+    From ready ``tables.ReportEntry`` objects (no image analysis): writes
+    ``growth_vs_temperature.csv``/``.xlsx`` (sheets: growth_vs_temperature,
+    kinetics_comparison), ``kinetics_comparison.csv``, ``secondary_nucleation.json`` (when
+    constants and at least 3 temperatures are available) and the figures
+    ``growth_rate_vs_temperature``, ``lauritzen_hoffman``, ``avrami_microscopy``,
+    ``avrami_calorimetry``, ``conversion_comparison`` (each .png and .svg); with
+    ``hoffman_weeks_pairs`` also ``hoffman_weeks.json`` and its figure.
+``project_entries_iter(project) -> Generator[Progress, None, (entries, problems)]``
+    Analyses every experiment (``pipeline.analyze_experiment_iter``) and its calorimetry.
+``report_project_iter(project, out_dir)`` / ``report_project(project, out_dir)``
+``series_constants(project) -> (LHConstants | None, note)``: Tm0/Tg from
+    ``project.series`` (tm0_c, tg_c, u_star_j_per_mol, t_inf_c), else from the material table.
+``add_cli_arguments(parser)`` / ``run_cli(args)``.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from analysis.errors import InputError
+from analysis.kinetics.lauritzen_hoffman import (
+    LHConstants,
+    fit_lauritzen_hoffman,
+    hoffman_weeks,
+    write_secondary_nucleation,
+)
+from analysis.progress import Progress, run_to_completion, scaled
+from analysis.reporting import figures
+from analysis.reporting.tables import (
+    ReportEntry,
+    comparison_table,
+    growth_vs_temperature_table,
+    write_csv,
+    write_xlsx,
+)
+
+#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
+HW_PAIRS_KEY = "hoffman_weeks_pairs"
+
+__all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "project_entries_iter",
+           "report_project", "report_project_iter", "series_constants"]
+
+
+@dataclass(frozen=True)
+class ReportSummary:
+    out_dir: str
+    files: tuple[str, ...]
+    lauritzen_hoffman: object | None = None  # temperature_series.LHAnalysis
+    problems: tuple[str, ...] = field(default=())
+
+
+def _lh_inputs(entries):
+    rows = [(e.result.temperature_c, e.result.growth_rate) for e in entries
+            if e.result.temperature_c is not None and e.result.growth_rate.value]
+    tc = np.array([r[0] for r in rows], dtype=float)
+    g = np.array([r[1].value for r in rows], dtype=float)
+    cis = [None if r[1].ci95_low is None or r[1].ci95_high is None
+           else (r[1].ci95_high - r[1].ci95_low) / 2 for r in rows]
+    ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
+    return tc, g, ci
+
+
+def _lauritzen_hoffman(entries, constants, material, problems):
+    if constants is None:
+        problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
+        return None
+    tc, g, ci = _lh_inputs(entries)
+    if np.unique(tc).size < 3:
+        problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
+        return None
+    try:
+        lh = fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material)
+    except InputError as err:
+        problems.append(f"Lauritzen-Hoffman fit skipped: {err}")
+        return None
+    problems.extend(lh.warnings)
+    return lh
+
+
+def _avrami_curves(entries):
+    micro, dsc = [], []
+    for e in entries:
+        label = f"{e.result.temperature_c:g} °C" if e.result.temperature_c is not None else e.name
+        r = e.result
+        if r.area_fraction.size:
+            start = (r.nucleation.induction_time_s or 0.0) / 60.0
+            micro.append(figures.AvramiCurve(label, r.area_fraction_time_s / 60.0 - start,
+                                             r.area_fraction))
+        if e.calorimetry is not None:
+            t, x = e.calorimetry.conversion_table()
+            dsc.append(figures.AvramiCurve(label, t - e.calorimetry.induction_time_min, x,
+                                           e.calorimetry.avrami))
+    return micro, dsc
+
+
+def _with_film_fits(curves):
+    from analysis.kinetics.avrami import fit_avrami_window
+
+    return [figures.AvramiCurve(c.label, c.t_min, c.x, fit_avrami_window(c.t_min, c.x))
+            for c in curves]
+
+
+def _write_figures(entries, lh, material, out: Path) -> list[Path]:
+    micro, dsc = _avrami_curves(entries)
+    made = [
+        ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
+        ("avrami_microscopy", figures.avrami_figure(_with_film_fits(micro), "Microscopy (area fraction)")),
+        ("avrami_calorimetry", figures.avrami_figure(dsc, "Calorimetry")),
+        ("conversion_comparison", figures.conversion_comparison_figure(entries, material)),
+    ]
+    if lh is not None:
+        made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh)))
+    paths = []
+    for stem, fig in made:
+        paths.extend(figures.save_figure(fig, out / stem))
+    return paths
+
+
+def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
+    """``hoffman_weeks.json`` and its figure from (Tc, Tm) pairs in deg C, if there are any."""
+    pairs = [p for p in (pairs or []) if p is not None and len(p) == 2 and None not in p]
+    if not pairs:
+        return []
+    tc, tm = (np.array(v, dtype=float) for v in zip(*pairs))
+    hw = hoffman_weeks(tc, tm)
+    if not hw:
+        problems.append(f"Hoffman-Weeks skipped: {hw.reason}")
+        return []
+    doc = {"schema": 1, "pairs": [[float(a), float(b)] for a, b in zip(tc, tm)],
+           "tm0_c": hw.tm0_c, "gamma": hw.gamma, "slope": hw.slope,
+           "intercept_c": hw.intercept_c, "r2": hw.r2, "caveat": hw.caveat}
+    path = out / "hoffman_weeks.json"
+    path.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    return [path, *figures.save_figure(figures.hoffman_weeks_figure(tc, tm, hw),
+                                       out / "hoffman_weeks")]
+
+
+def build_report(entries, out_dir, *, constants: LHConstants | None = None,
+                 material: str | None = None, problems=(),
+                 hoffman_weeks_pairs=None) -> ReportSummary:
+    """Write every table, fit and figure for ready entries (see module doc).
+
+    ``hoffman_weeks_pairs``: optional [(Tc, Tm), ...] in deg C for ``hoffman_weeks.json``.
+    """
+    entries = list(entries)
+    if not entries:
+        raise InputError("the project has no analysable experiment; nothing to report")
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    problems = list(problems)
+    growth, comparison = growth_vs_temperature_table(entries), comparison_table(entries)
+    files = [write_csv(growth, out / "growth_vs_temperature.csv"),
+             write_csv(comparison, out / "kinetics_comparison.csv"),
+             write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
+                        out / "growth_vs_temperature.xlsx")]
+    lh = _lauritzen_hoffman(entries, constants, material, problems)
+    if lh is not None:
+        files.append(write_secondary_nucleation(lh, out))
+    files.extend(_write_figures(entries, lh, material, out))
+    files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
+    return ReportSummary(str(out), tuple(str(f) for f in files), lh, tuple(problems))
+
+
+def series_constants(project) -> tuple[LHConstants | None, str]:
+    """LH constants from the project's series settings, completed from the material table."""
+    series = dict(project.series or {})
+    tm0, tg = series.get("tm0_c"), series.get("tg_c")
+    note = "Tm0 and Tg from the project"
+    if (tm0 is None or tg is None) and project.material:
+        from analysis.kinetics.materials import get_material
+
+        mat = get_material(project.material)
+        tm0 = mat.tm0_c if tm0 is None else tm0
+        tg = mat.tg_c if tg is None else tg
+        note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
+    if tm0 is None or tg is None:
+        return None, "no Tm0/Tg: set them for the series or choose a material"
+    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol") or 6270.0),
+                       series.get("t_inf_c")), note
+
+
+def _calorimetry(experiment, material):
+    from analysis.kinetics.calorimetry import analyze_source
+
+    source = experiment.calorimetry
+    if source.material is None and material is not None:
+        from dataclasses import replace
+
+        source = replace(source, material=material)
+    return analyze_source(source)
+
+
+def project_entries_iter(project):
+    """Analyse every experiment; returns (entries, problems). Bad experiments are skipped."""
+    from analysis.spherulites.pipeline import analyze_experiment_iter
+
+    entries, problems = [], []
+    count = max(1, len(project.experiments))
+    for i, exp in enumerate(project.experiments):
+        yield Progress("analysing experiments", i / count, exp.name)
+        try:
+            analysis = yield from scaled(analyze_experiment_iter(exp), i / count, (i + 0.9) / count)
+        except InputError as err:
+            problems.append(f"{exp.name}: skipped ({err})")
+            continue
+        cal, cal_problem = None, None
+        if exp.calorimetry is not None:
+            try:
+                cal = _calorimetry(exp, project.material)
+            except InputError as err:
+                cal_problem = str(err)
+                problems.append(f"{exp.name}: calorimetry skipped ({err})")
+        entries.append(ReportEntry(exp.name, analysis.result, exp.geometry, exp.mode_override,
+                                   cal, cal_problem))
+    yield Progress("analysing experiments", 1.0)
+    return entries, problems
+
+
+def report_project_iter(project, out_dir):
+    entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
+    if not entries:
+        reasons = "; ".join(problems[:3]) or "it has no experiments"
+        raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
+                         project.path)
+    constants, note = series_constants(project)
+    yield Progress("writing report", 0.9, note)
+    summary = build_report(entries, out_dir, constants=constants, material=project.material,
+                           problems=problems,
+                           hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
+    yield Progress("writing report", 1.0)
+    return summary
+
+
+def report_project(project, out_dir) -> ReportSummary:
+    return run_to_completion(report_project_iter(project, out_dir))

@@ -1,0 +1,322 @@
+"""One set of detections evaluated: territories, cone fits, radii and the whole result.
+
+Territories are redrawn as the Johnson-Mehl cells of provisional cones, fitted, and
+redrawn from the fits (:func:`evaluate`); each spherulite gets a robust cone fit
+(:mod:`analysis.spherulites.growth`), radii along free directions (:mod:`analysis.spherulites.fronts`) and a
+status; the pooled rate, nucleation statistics and X(t) follow. Fits, radii and
+partitions are memoised in the context's cache, keyed on their input pixels, so
+unchanged territories cost nothing when edits are replayed.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from analysis.results import (
+    ExperimentResult,
+    PooledGrowthRate,
+    RadiusSeries,
+    Spherulite,
+)
+from analysis.spherulites import growth, nuclei
+from analysis.spherulites.fronts import blocked_distance, front_radii
+from analysis.spherulites.nucleation import (
+    MeltExposure,
+    area_fraction,
+    field_area_mm2,
+    film_avrami,
+    nucleation_statistics,
+    predicted_avrami,
+)
+from analysis.spherulites.replay import cached, digest, edited_territories
+
+
+def ignored_mask(frames: np.ndarray, spans) -> np.ndarray:
+    bad = np.zeros(frames.shape, bool)
+    for first, last in spans:
+        bad |= (frames >= first) & (frames <= last)
+    return bad
+
+
+def _fit_usable(ctx) -> np.ndarray:
+    """Flat mask of pixels a cone fit may use: a measured arrival within the record."""
+    return cached(ctx, ("fit usable",), lambda: (
+        np.isfinite(ctx.fit_arrival) & ~ctx.near_start & ~ctx.filled & (ctx.frame_index >= 0)).ravel())
+
+
+def fit_pixels(ctx, pix, band, spans, settings):
+    usable = _fit_usable(ctx)[pix]
+    if spans:
+        usable &= ~ignored_mask(ctx.frame_index.ravel()[pix], spans)
+    inner = usable & ~band.ravel()[pix]
+    chosen = pix[inner] if np.count_nonzero(inner) >= 30 else pix[usable]
+    step = max(1, int(np.ceil(chosen.size / settings.max_fit_pixels)))
+    return chosen[::step]
+
+
+def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
+          warm: growth.ConeFit | None = None) -> growth.ConeFit:
+    """Cone fit of one territory (cached); ``refine`` adds the refit without the apex.
+    ``warm``: an earlier fit of nearly the same pixels to start from (fewer iterations)."""
+    chosen = fit_pixels(ctx, pix, band, spans, settings)
+    key = ("cone", digest(chosen), det.fixed_xy, refine)
+    if key in ctx.cache:
+        return ctx.cache[key]
+    y, x = np.divmod(chosen, ctx.shape[1])
+    start, guess = det.fixed_xy, None
+    if start is None and warm is not None and warm.ok:
+        start, guess = (warm.x_px, warm.y_px), (warm.t0_s, warm.slope_s_per_px)
+    if start is None:
+        seeds = np.concatenate(det.seeds)
+        sy, sx = np.divmod(seeds, ctx.shape[1])
+        start = (float(sx.mean()), float(sy.mean()))
+    t, levels = ctx.fit_arrival.ravel()[chosen], ctx.frame_index.ravel()[chosen]
+    fixed = det.fixed_xy is not None
+    fit = growth.fit_cone(x, y, t, levels, start_xy=start, f_scale_s=0.5 * ctx.interval_s,
+                          fixed_centre=fixed, field_shape=ctx.shape, start_t0_slope=guess)
+    if refine and fit.ok and settings.apex_exclusion_px > 0:
+        # Near the apex the measured front is a small, strongly curved disc whose
+        # timing the segmentation blur delays; refit without it.
+        outer = np.hypot(x - fit.x_px, y - fit.y_px) >= settings.apex_exclusion_px
+        if np.count_nonzero(outer) >= 30:
+            refit = growth.fit_cone(x[outer], y[outer], t[outer], levels[outer],
+                                    start_xy=(fit.x_px, fit.y_px), f_scale_s=0.5 * ctx.interval_s,
+                                    fixed_centre=fixed, field_shape=ctx.shape,
+                                    start_t0_slope=(fit.t0_s, fit.slope_s_per_px))
+            # Without the apex the centre of a cone cut by the border or a neighbour is
+            # poorly pinned: keep the refit only when it confirms the centre.
+            if refit.ok and np.hypot(refit.x_px - fit.x_px, refit.y_px - fit.y_px) <= 1.0:
+                fit = refit
+    ctx.cache[key] = fit
+    return fit
+
+
+def _radius_series(ctx, det_id, pix, labels, cx, cy, spans, settings):
+    """Radii of one spherulite and their linearity test (cached on its pixels, centre,
+    spans and neighbourhood)."""
+    rows, cols = np.divmod(pix, ctx.shape[1]) if pix.size else (np.zeros(1, int), np.zeros(1, int))
+    r = 3 + int(max(np.ptp(rows), np.ptp(cols)))
+    y0, x0 = max(int(cy) - r, 0), max(int(cx) - r, 0)
+    window = labels[y0:max(int(cy) + r + 1, 0), x0:max(int(cx) + r + 1, 0)]
+    key = ("radii", det_id, digest(pix, window, (cx, cy, tuple(spans))))
+    return cached(ctx, key, lambda: _tested(_measure_radii(ctx, det_id, pix, labels, cx, cy, spans,
+                                                            settings), settings))
+
+
+def _tested(series: RadiusSeries, settings) -> tuple[RadiusSeries, growth.LinearityTest]:
+    return series, growth.linearity_test(series.time_s[series.used], series.radius_um[series.used],
+                                         alpha=settings.nonlinear_alpha,
+                                         min_slope_change=settings.nonlinear_min_change)
+
+
+def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusSeries:
+    frames = ctx.frame_index.ravel()[pix]
+    keep = frames >= 0
+    y, x = np.divmod(pix[keep], ctx.shape[1])
+    reach = float(np.max(np.hypot(x - cx, y - cy))) + 3.0 if x.size else 3.0
+    blocked = blocked_distance(labels, det_id, cx, cy, n_sectors=settings.n_sectors, reach_px=reach)
+    samples = front_radii(x, y, frames[keep], blocked, cx, cy, ctx.frames)
+    ok = np.isfinite(samples.radius_px)
+    frame_ids = np.flatnonzero(ok)
+    used = (samples.free_fraction[ok] >= settings.min_free_fraction) & \
+        (samples.radius_px[ok] >= 3.0) & ~ignored_mask(frame_ids, spans)  # < 3 px: pixel-limited
+    return RadiusSeries(det_id, ctx.times_s[ok] - ctx.isothermal_start_s,
+                        samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
+
+
+def _edge(ctx, det, fit) -> bool:
+    """Nucleated outside the field: the fitted centre lies outside it. (A minimum on the
+    border decides only when there is no fit, see :func:`_status`.) Counting by the
+    fitted centre keeps the count unbiased for nuclei right at the border."""
+    h, w = ctx.shape
+    inside = -0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5
+    return det.fixed_xy is None and not inside
+
+
+def _status(ctx, det, fit, series, lin, settings) -> tuple[str, str]:
+    """Status and the linearity test's description."""
+    if det.excluded:
+        return "excluded", lin.description
+    if not fit.ok:
+        on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
+        return ("edge" if on_border else "few-points"), fit.reason
+    if det.excluded is False:
+        return "ok", lin.description
+    if _edge(ctx, det, fit):
+        return "edge", lin.description
+    if np.count_nonzero(series.used) < settings.min_points:
+        return "few-points", lin.description
+    return ("nonlinear" if lin.nonlinear else "ok"), lin.description
+
+
+def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
+    spans = global_spans + det.ignored
+    fit = _cone(ctx, det, pix, band, spans, settings, warm=warm)
+    if fit.ok:
+        cx, cy = fit.x_px, fit.y_px
+    else:
+        seeds = np.concatenate(det.seeds)
+        sy, sx = np.divmod(seeds, ctx.shape[1])
+        cx, cy = det.fixed_xy or (float(sx.mean()), float(sy.mean()))
+    series, lin = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
+    status, _ = _status(ctx, det, fit, series, lin, settings)
+    frames = ctx.frame_index.ravel()[pix]
+    seen = frames[frames >= 0]
+    g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None
+    ci = fit.g_ci95_px_per_s()
+    sph = Spherulite(
+        id=det.id, x_px=float(cx), y_px=float(cy),
+        nucleation_time_s=float(fit.t0_s - ctx.isothermal_start_s) if fit.ok else None,
+        first_seen_s=float(ctx.times_s[seen.min()] - ctx.isothermal_start_s) if seen.size else None,
+        growth_rate_um_per_min=g,
+        growth_rate_ci95_um_per_min=growth.growth_rate_um_per_min(ci, ctx.um_per_px),
+        r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
+        n_points=int(fit.n_levels), status=status, source=det.source)
+    return sph, series, fit
+
+
+# ---------------------------------------------------------------- whole result
+def _provisional_cones(ctx, live) -> dict:
+    """A cone per single-seed detection from its seed (apex, lowest working-map time)
+    and the field's mean slope; merged detections get none (they keep their flooding)."""
+    cones = {}
+    for d in live:
+        if len(d.seeds) != 1:
+            continue
+        sy, sx = np.divmod(d.seeds[0], ctx.shape[1])
+        t0 = float(np.min(ctx.work.ravel()[d.seeds[0]]))
+        cones[d.id] = growth.ConeFit(float(sx.mean()), float(sy.mean()), t0, ctx.slope_s_per_px,
+                                     0, 0, 0, 0, 0, 1.0, 0, 0)
+    return cones
+
+
+def _partition(ctx, dets, global_spans, settings):
+    """Flooded territories, redrawn from provisional cones, fitted, redrawn from the fits."""
+    live = [d for d in dets if not (d.deleted or d.merged)]
+    flooded = edited_territories(ctx, dets)
+    cones = _provisional_cones(ctx, live)
+    labels = cached(ctx, ("provisional", digest(flooded, sorted(cones.items()))),
+                     lambda: nuclei.cone_partition(flooded, _groups(ctx, flooded), cones))
+    band = nuclei.boundary_band(labels, settings.boundary_band_px)
+    groups = _groups(ctx, labels)
+    empty = np.zeros(0, np.int64)
+    fits = {d.id: _cone(ctx, d, groups.get(d.id, empty), band, global_spans + d.ignored, settings,
+                        refine=False) for d in live}
+    single = {k: f for k, f in fits.items() if len(by_seeds[k]) == 1} if (
+        by_seeds := {d.id: d.seeds for d in live}) else {}
+    final = cached(ctx, ("final", digest(labels, sorted(single.items()))),
+                    lambda: nuclei.cone_partition(labels, groups, single))
+    return final, fits
+
+
+def _groups(ctx, labels):
+    return cached(ctx, ("groups", digest(labels)), lambda: nuclei.pixel_groups(labels))
+
+
+def result_of(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
+    return evaluate(ctx, dets, global_spans, unapplied, settings)[0]
+
+
+def evaluate(ctx, dets, global_spans, unapplied, settings):
+    """The result, and the final fits by detection id and their pixel groups."""
+    labels, provisional = _partition(ctx, dets, global_spans, settings)
+    band = nuclei.boundary_band(labels, settings.boundary_band_px)
+    groups = _groups(ctx, labels)
+    empty = np.zeros(0, np.int64)
+    spherulites, radii, fits = [], [], []
+    for det in dets:
+        if det.deleted or det.merged:
+            continue
+        sph, series, fit = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
+                                       global_spans, settings, provisional.get(det.id))
+        spherulites.append(sph)
+        radii.append(series)
+        fits.append(fit)
+    pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
+    time_s, fraction = _area_fraction(ctx, global_spans)
+    nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
+    film = film_avrami(time_s, fraction, nucleation.induction_time_s)
+    predicted = predicted_avrami(ctx.geometry, ctx.thickness_um, pooled.value, nucleation,
+                                 burst_density)
+    result = ExperimentResult(
+        stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
+        temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
+        spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
+        nucleation=nucleation, area_fraction_time_s=time_s, area_fraction=fraction,
+        avrami_film=film, avrami_predicted=predicted, unapplied_edits=tuple(unapplied),
+        warnings=tuple(_warnings(ctx, spherulites, fits)),
+        extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
+               "geometry": ctx.geometry})
+    return result, dict(zip([s.id for s in spherulites], fits)), groups
+
+
+def _pooled(spherulites, fits, um_per_px) -> tuple[PooledGrowthRate, str]:
+    g, se = [], []
+    for s, f in zip(spherulites, fits):
+        if s.status == "ok" and f.ok and f.dof >= 1:
+            g.append(s.growth_rate_um_per_min)
+            se_slope = f.se_slope_s_per_px / f.slope_s_per_px ** 2
+            se.append(growth.growth_rate_um_per_min(se_slope, um_per_px))
+    pooled = growth.pooled_rate(g, se)
+    if pooled.value is None:
+        return PooledGrowthRate(None, None, None, 0), pooled.description
+    return PooledGrowthRate(pooled.value, pooled.value - pooled.ci95_half_width,
+                            pooled.value + pooled.ci95_half_width, pooled.n), pooled.description
+
+
+def _area_fraction(ctx, global_spans):
+    fraction = cached(ctx, ("area fraction",), lambda: area_fraction(ctx.arrival_s, ctx.times_s))
+    keep = ~ignored_mask(np.arange(ctx.frames), global_spans)
+    return ctx.times_s[keep] - ctx.isothermal_start_s, fraction[keep]
+
+
+def _counted(spherulites, fits, shape) -> list:
+    """(spherulite, fit) pairs that count as nuclei inside the field.
+
+    Nuclei count by their centre (REFERENCES §1.6); edge spherulites never count. A
+    ``few-points`` detection counts only when its cone fit grows within 30 % of the
+    field's median G (common practice): with fewer frames a real late nucleus still
+    grows like its neighbours, whereas dust or a segmentation artefact does not.
+    """
+    h, w = shape
+    g_ok = [s.growth_rate_um_per_min for s in spherulites if s.status == "ok"]
+    g_med = float(np.median(g_ok)) if g_ok else None
+    out = []
+    for s, f in zip(spherulites, fits):
+        if s.status == "edge" or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
+            continue
+        if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
+                                         abs(s.growth_rate_um_per_min / g_med - 1) > 0.30):
+            continue
+        out.append((s, f))
+    return out
+
+
+def _nucleation(ctx, spherulites, fits, time_s, fraction):
+    t0, se = [], []
+    for s, f in _counted(spherulites, fits, ctx.shape):
+        t0.append(s.nucleation_time_s)
+        se.append(f.se_t0_s)
+    area = field_area_mm2(ctx.shape, ctx.um_per_px)
+    exposure = MeltExposure.from_fraction(time_s, fraction, area)
+    end = float(time_s[-1]) if time_s.size else 0.0
+    return nucleation_statistics(t0, exposure=exposure, field_area_mm2=area,
+                                 interval_s=ctx.interval_s, thickness_um=ctx.thickness_um,
+                                 end_s=end, t0_se_s=se)
+
+
+def _warnings(ctx, spherulites, fits) -> list[str]:
+    out = []
+    few = [s for s in spherulites if s.status == "few-points"]
+    counted = {s.id for s, _ in _counted(spherulites, fits, ctx.shape)}
+    dubious = [s.id for s in few if s.id not in counted]
+    if dubious:
+        out.append(f"{len(dubious)} detections with too little or inconsistent growth are not "
+                   f"counted as nuclei (ids {', '.join(map(str, dubious[:10]))})")
+    if not spherulites:
+        out.append("no spherulite found in the arrival map")
+    usable = ~np.isnan(ctx.arrival_s)
+    if usable.any() and np.all(ctx.at_start[usable]):
+        out.append("the field is crystalline in the first frame: nothing grows in the record")
+    return out
+

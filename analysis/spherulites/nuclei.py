@@ -1,0 +1,378 @@
+"""Nuclei and territories from an arrival-time map.
+
+Isothermal crystallization is irreversible, so each pixel has one arrival time: the time
+the growth front reached it. Inside one spherulite the arrival time rises away from the
+nucleus as a cone, so nuclei are the *regional minima* of the arrival map, and the basin
+of each minimum under a watershed flooding is the spherulite's territory: the
+Johnson-Mehl tessellation of the field (Johnson & Mehl 1939, Trans. AIME 135, 416).
+
+Conventions: arrays in (row, column) order; pixel centres at integers; marker positions
+are returned as (x_px, y_px) = (column, row); times in seconds on the recording clock.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+from scipy import ndimage as ndi
+from skimage.morphology import h_minima
+from skimage.segmentation import watershed
+
+from analysis.arrival import evidence as segment
+
+
+@dataclass(frozen=True)
+class Markers:
+    """Seed regions of the watershed, one per detected nucleus.
+
+    Attributes
+    ----------
+    labels : np.ndarray
+        int32 (H, W): marker k occupies the pixels equal to k (1-based); 0 elsewhere.
+    xy_px : np.ndarray
+        float (n, 2): centroid (x, y) of each marker region, px.
+    min_time_s : np.ndarray
+        float (n,): smoothed arrival time at the marker, s.
+    on_border : np.ndarray
+        bool (n,): the marker touches the field border (candidate edge spherulite).
+    territories : np.ndarray or None
+        int32 (H, W) watershed basins of the markers, when the detection computed them.
+    """
+
+    labels: np.ndarray
+    xy_px: np.ndarray
+    min_time_s: np.ndarray
+    on_border: np.ndarray
+    territories: np.ndarray | None = None  # their watershed basins, when already computed
+
+
+def frame_interval_s(times_s: np.ndarray) -> float:
+    """Median spacing of the frame times, s (1.0 when there is a single frame)."""
+    steps = np.diff(np.asarray(times_s, dtype=float))
+    steps = steps[np.isfinite(steps) & (steps > 0)]
+    return float(np.median(steps)) if steps.size else 1.0
+
+
+def mean_slope_s_per_px(arrival_s: np.ndarray, usable: np.ndarray) -> float:
+    """Mean arrival-time gradient |grad t| over usable pixels, s/px (about 1/G).
+
+    Quantisation to frames turns the cone into steps, but a central difference spreads
+    each step over two pixels, so the mean gradient is still the mean of 1/G. The top
+    percent (impingement creases) is clipped.
+    """
+    gy, gx = np.gradient(np.where(usable, arrival_s, np.nan).astype(np.float64))
+    grad = np.hypot(gx, gy)
+    grad = grad[np.isfinite(grad)]
+    if grad.size == 0:
+        return 1.0
+    return float(np.mean(np.minimum(grad, np.percentile(grad, 99)))) or 1.0
+
+
+def _extend_below_start(work, at_start, times_s, estimate_s=None) -> np.ndarray:
+    """Inside regions already crystalline in frame 0, continue the cones downwards.
+
+    Those pixels only tell that the front passed before the first frame: a flat
+    plateau that hides how many nuclei it holds. Each is given the latest arrival that
+    growth at the field's speed allows from every pixel measured later,
+    ``max_q t(q) − s·|p − q|`` (s = 1/G in s/px): exact on a cone when p lies between
+    its nucleus and some measured pixel, so each nucleus present at the start becomes a
+    minimum of its own whatever the shape of the frame-0 mask. Where ``estimate_s`` is
+    finite (the arrival pass's own extrapolation, from pixels of high contrast only)
+    it is used instead. Pixels nothing constrains fall back on their distance to the
+    plateau edge times the slope (the classic distance-transform split).
+    """
+    usable = np.isfinite(work) & ~at_start
+    slope = segment.estimate_slowness(work, usable)
+    if not np.isfinite(slope):
+        slope = mean_slope_s_per_px(work, usable)
+    first = float(times_s[0])
+    backwards = -segment.complete_wedges(np.where(usable, -work, np.inf), slope)
+    if estimate_s is not None:
+        backwards = np.where(np.isfinite(estimate_s), estimate_s, backwards)
+    depth = ndi.distance_transform_edt(at_start)
+    fallback = first - depth * slope
+    estimate = np.where(np.isfinite(backwards), np.minimum(backwards, first), fallback)
+    out = work.copy()
+    out[at_start] = estimate[at_start]
+    return out
+
+
+def working_map(arrival_s: np.ndarray, times_s: np.ndarray, *, smooth_px: float = 1.0,
+                at_start: np.ndarray | None = None,
+                below_start_s: np.ndarray | None = None) -> np.ndarray:
+    """Finite, lightly smoothed copy of the arrival map for minimum detection and flooding.
+
+    Unusable pixels (NaN: dust, extinction wedges left open) take the value of the nearest
+    usable pixel, so a wedge or a speck of dust neither creates nor hides a minimum.
+    Never-crystallised pixels (+inf) become a plateau above the last frame. Pixels
+    crystalline at the start (``at_start``) are extended below the first frame time
+    (see :func:`_extend_below_start`; ``below_start_s``: estimated arrivals there, NaN
+    where unknown, e.g. ``ArrivalMap.before_start_s``). A 3x3 median removes isolated outliers before a
+    Gaussian of ``smooth_px`` (0 = none).
+    """
+    arrival = np.asarray(arrival_s, dtype=np.float32)
+    work = arrival.copy()
+    if at_start is not None and np.any(at_start):
+        work = _extend_below_start(work, np.asarray(at_start, bool), times_s,
+                                   below_start_s).astype(np.float32)
+    never = np.isposinf(work)
+    work[never] = float(np.max(times_s)) + 2.0 * frame_interval_s(times_s)
+    unusable = ~np.isfinite(work)
+    if unusable.all():
+        return np.zeros_like(work)
+    if unusable.any():
+        _, (iy, ix) = ndi.distance_transform_edt(unusable, return_indices=True)
+        work = work[iy, ix]
+    work = cv2.medianBlur(np.ascontiguousarray(work), 3)
+    if smooth_px > 0:
+        work = cv2.GaussianBlur(work, (0, 0), smooth_px)
+    return work
+
+
+def crystallised_mask(arrival_s: np.ndarray) -> np.ndarray:
+    """Pixels that crystallised during the record or were unusable (everything but +inf)."""
+    return ~np.isposinf(np.asarray(arrival_s))
+
+
+def find_markers(work: np.ndarray, arrival_s: np.ndarray, times_s: np.ndarray, *,
+                 depth_frames: float = 1.0, min_territory_px: int = 20) -> Markers:
+    """Regional minima of the working map that are deep and large enough to be nuclei.
+
+    A minimum must be at least ``depth_frames`` frame intervals deeper than the saddle
+    to its neighbours (h-minima transform), so quantisation to frame times and pixel
+    noise do not split a spherulite; its territory must hold at least
+    ``min_territory_px`` pixels, else it is a noise pit and is dropped (the flooding is
+    then redone without it). A late nucleus in a melt pocket qualifies once it has grown
+    for about one frame interval before meeting its neighbours.
+    """
+    h = max(depth_frames, 0.05) * frame_interval_s(times_s)
+    valid = crystallised_mask(arrival_s)
+    seeds = h_minima(work, h).astype(bool) & valid
+    labels, _ = ndi.label(seeds, structure=np.ones((3, 3), bool))
+    for _ in range(3):
+        flooded = watershed(work, labels, mask=valid).astype(np.int32)
+        area = np.bincount(flooded.ravel(), minlength=labels.max() + 1)
+        small = np.flatnonzero(area[1:] < min_territory_px) + 1
+        if small.size == 0:
+            return dataclasses.replace(markers_from_labels(labels, work), territories=flooded)
+        labels[np.isin(labels, small)] = 0
+        labels, _ = ndi.label(labels > 0, structure=np.ones((3, 3), bool))
+    return markers_from_labels(labels, work)
+
+
+def markers_from_labels(labels: np.ndarray, work: np.ndarray) -> Markers:
+    """Describe marker regions (centroids, depth, border contact) of a label image."""
+    labels = labels.astype(np.int32)
+    n = int(labels.max())
+    if n == 0:
+        empty = np.zeros((0,))
+        return Markers(labels, np.zeros((0, 2)), empty, np.zeros(0, bool))
+    # Markers are small: work on their pixels only, not on whole-image label scans.
+    flat = np.flatnonzero(labels)
+    which = labels.ravel()[flat]
+    rows, cols = np.divmod(flat, labels.shape[1])
+    count = np.bincount(which, minlength=n + 1)[1:]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cy_cx = np.column_stack([np.bincount(which, rows, n + 1)[1:] / count,
+                                 np.bincount(which, cols, n + 1)[1:] / count])
+    min_t = np.full(n, np.inf)
+    np.minimum.at(min_t, which - 1, np.asarray(work, dtype=float).ravel()[flat])
+    border = np.zeros(labels.shape, bool)
+    border[0, :] = border[-1, :] = border[:, 0] = border[:, -1] = True
+    touches = np.zeros(n + 1, bool)
+    touches[np.unique(labels[border])] = True
+    return Markers(labels, cy_cx[:, ::-1].copy(), min_t, touches[1:])
+
+
+def territories(work: np.ndarray, arrival_s: np.ndarray, marker_labels: np.ndarray) -> np.ndarray:
+    """Watershed of the working map from the markers: int32 territory labels, 0 = none.
+
+    Never-crystallised pixels stay 0, so a melt pocket never separates two territories.
+    """
+    valid = crystallised_mask(arrival_s)
+    return watershed(work, marker_labels, mask=valid).astype(np.int32)
+
+
+def snap_to_minimum(work: np.ndarray, x_px: float, y_px: float, radius_px: float) -> tuple[int, int]:
+    """(row, col) of the lowest working-map pixel within ``radius_px`` of a click.
+
+    A nucleus added by hand is seeded at the local minimum near the click, because a seed
+    on a slope of the cone would flood only the uphill side.
+    """
+    h, w = work.shape
+    r = max(int(round(radius_px)), 0)
+    row, col = int(round(y_px)), int(round(x_px))
+    row, col = min(max(row, 0), h - 1), min(max(col, 0), w - 1)
+    y0, y1, x0, x1 = max(row - r, 0), min(row + r + 1, h), max(col - r, 0), min(col + r + 1, w)
+    window = work[y0:y1, x0:x1]
+    yy, xx = np.mgrid[y0:y1, x0:x1]
+    inside = (yy - y_px) ** 2 + (xx - x_px) ** 2 <= r * r + 0.5
+    masked = np.where(inside, window, np.inf)
+    k = int(np.argmin(masked))
+    return int(yy.ravel()[k]), int(xx.ravel()[k])
+
+
+def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarray, *,
+                  frames: np.ndarray, interval_s: float, slope_s_per_px: float,
+                  existing_xy: np.ndarray, min_area_px: int = 30) -> list[tuple[int, int]]:
+    """Seeds (row, col) of nuclei that have no regional minimum, found from the fits.
+
+    A nucleus born just as a neighbour's front reaches it grows away from that front
+    only: the arrival map rises from it, but it is not a regional minimum (the
+    neighbour's side is lower), so no marker finds it. Its pixels, however, crystallise
+    earlier than any fitted cone predicts. Connected regions where the measured arrival
+    precedes the fitted model (``model_s``) by more than 1.5 frame intervals and that
+    hold ``min_area_px`` pixels are fitted with their own cone; the region becomes a
+    nucleus when that fit converges with a slope within 25 % of the field's mean slope
+    and an apex within 3 px of the region and more than 3 px from every known nucleus.
+    The seed is the region's pixel nearest the apex.
+    """
+    from analysis.spherulites.growth import (
+        fit_cone,  # local: growth does not need nuclei
+    )
+
+    usable = measured & np.isfinite(model_s) & np.isfinite(arrival_s)
+    deficit = np.zeros(arrival_s.shape)
+    np.subtract(model_s, arrival_s, out=deficit, where=usable)
+    mask = (deficit > 1.5 * interval_s).astype(np.uint8)
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    seeds = []
+    for k in range(1, count):
+        if stats[k, cv2.CC_STAT_AREA] < min_area_px:
+            continue
+        yy, xx = np.nonzero(labels == k)
+        start = int(np.argmin(arrival_s[yy, xx]))
+        fit = fit_cone(xx, yy, arrival_s[yy, xx], frames[yy, xx], start_xy=(xx[start], yy[start]),
+                       f_scale_s=0.5 * interval_s, field_shape=arrival_s.shape)
+        if not fit.ok or abs(fit.slope_s_per_px / slope_s_per_px - 1) > 0.25:
+            continue
+        gap = np.hypot(xx - fit.x_px, yy - fit.y_px)
+        near = int(np.argmin(gap))
+        known = np.hypot(*(np.asarray(existing_xy, float).reshape(-1, 2) - [fit.x_px, fit.y_px]).T)
+        if gap[near] <= 3.0 and (known.size == 0 or known.min() > 3.0):
+            seeds.append((int(yy[near]), int(xx[near])))
+    return seeds
+
+
+def _axis_ends(x, y) -> tuple[np.ndarray, np.ndarray]:
+    """Ends of the principal axis (one standard deviation, at least 1.5 px) of points."""
+    pts = np.column_stack([x, y]).astype(float)
+    centre = pts.mean(axis=0)
+    evals, evecs = np.linalg.eigh(np.cov(pts.T))
+    axis = evecs[:, -1] * max(np.sqrt(max(evals[-1], 0.0)), 1.5)
+    return centre - axis, centre + axis
+
+
+def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
+                     start_region=None):
+    """Two apexes (x, y) when one territory's pixels are better explained by two cones.
+
+    The two-cone model (common slope) starts from the ends of the principal axis of the
+    territory's earliest 15 % of pixels, and also of ``start_region`` (x, y) when given
+    (the part already crystalline in the first frame, which holds both apexes); the
+    lower cost wins. It is accepted when its soft-L1 cost is below
+    half that of the single cone, the apexes are at least 3 px apart, each cone reaches
+    at least 15 % of the pixels first (5 % when the cost falls below a quarter: a
+    cluster present in the first frame shows little of its inner cones), and the common
+    slope is within 25 % of the field's mean slope. Returns None otherwise.
+    """
+    from analysis.spherulites.growth import cone_residuals, fit_two_cones, soft_l1_cost
+
+    x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
+    early = t <= np.percentile(t, 15)
+    if np.count_nonzero(early) < 5:
+        return None
+    starts = [_axis_ends(x[early], y[early])]
+    if start_region is not None and len(start_region[0]) >= 5:
+        starts.append(_axis_ends(*start_region))
+    params, cost2 = min((fit_two_cones(x, y, t, a, b, fit.slope_s_per_px, f_scale_s=f_scale_s)
+                         for a, b in starts), key=lambda pc: pc[1])
+    cost1 = soft_l1_cost(cone_residuals(fit, x, y, t), f_scale_s)
+    a, b = params[0:2], params[3:5]
+    nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
+        (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
+    share = float(np.mean(nearer_a))
+    balanced = 0.15 <= share <= 0.85 if cost2 >= 0.25 * cost1 else 0.05 <= share <= 0.95
+    if (cost2 < 0.5 * cost1 and np.hypot(*(a - b)) >= 3.0 and balanced
+            and abs(params[6] / slope_s_per_px - 1) <= 0.25):
+        return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
+    return None
+
+
+def boundary_band(labels: np.ndarray, band: int) -> np.ndarray:
+    """Pixels within ``band`` px of another territory (melt and unassigned are neutral)."""
+    if band <= 0:
+        return np.zeros(labels.shape, bool)
+    kernel = np.ones((2 * band + 1, 2 * band + 1), np.uint8)
+    lab = labels.astype(np.float32)
+    hi = cv2.dilate(lab, kernel)
+    lo = cv2.erode(np.where(labels > 0, lab, np.float32(3e7)), kernel)
+    return (labels > 0) & ((hi != lab) | (lo != lab))
+
+
+def label_order(flat: np.ndarray) -> np.ndarray:
+    """Stable argsort of non-negative integer labels (a radix sort when they fit 16 bits)."""
+    if flat.size and 0 <= int(flat.min()) and int(flat.max()) < 65536:
+        flat = flat.astype(np.uint16)
+    return np.argsort(flat, kind="stable")
+
+
+def pixel_groups(labels: np.ndarray) -> dict[int, np.ndarray]:
+    """Flat pixel indices (ascending) of each positive label."""
+    flat = labels.ravel()
+    if flat.size == 0 or int(flat.max()) <= 0:
+        return {}
+    order = label_order(np.maximum(flat, 0))
+    ends = np.cumsum(np.bincount(np.maximum(flat, 0)))
+    starts = ends - np.bincount(np.maximum(flat, 0))
+    return {int(i): order[starts[i]:ends[i]] for i in range(1, ends.size) if ends[i] > starts[i]}
+
+
+def cone_model(shape, groups: dict, cones: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Earliest arrival over the given cones, each evaluated around its territory, and
+    which cone gives it (0 where none reaches).
+
+    ``cones`` maps a territory label to an object with ``ok``, ``x_px``, ``y_px``,
+    ``t0_s`` and ``slope_s_per_px`` (a :class:`analysis.spherulites.growth.ConeFit`).
+    """
+    h, w = shape
+    best = np.full(shape, np.inf, np.float32)  # float32: ties closer than ~1e-4 s do not matter
+    owner = np.zeros(shape, np.int32)
+    for label, cone in cones.items():
+        pix = groups.get(label)
+        if pix is None or pix.size == 0 or not cone.ok:
+            continue
+        y, x = np.divmod(pix, w)
+        margin = 12 + int(0.5 * max(np.ptp(y), np.ptp(x)))
+        y0, y1 = max(int(y.min()) - margin, 0), min(int(y.max()) + margin + 1, h)
+        x0, x1 = max(int(x.min()) - margin, 0), min(int(x.max()) + margin + 1, w)
+        t = np.square(np.arange(y0, y1, dtype=np.float32) - np.float32(cone.y_px))[:, None] + \
+            np.square(np.arange(x0, x1, dtype=np.float32) - np.float32(cone.x_px))[None, :]
+        np.sqrt(t, out=t)
+        t *= np.float32(cone.slope_s_per_px)
+        t += np.float32(cone.t0_s)
+        view, own = best[y0:y1, x0:x1], owner[y0:y1, x0:x1]
+        better = t < view
+        np.copyto(view, t, where=better)
+        own[better] = label
+    return best.astype(np.float64), owner
+
+
+def cone_partition(labels: np.ndarray, groups: dict, cones: dict) -> np.ndarray:
+    """Territories redrawn as the Johnson-Mehl cells of the given cones.
+
+    A watershed of the arrival map floods in arrival order, and where two cones meet
+    obliquely its boundary locks onto pixel rows or columns and can sit many pixels
+    off the true one. Each pixel of a territory with a cone is given instead to the
+    cone (of its own or a nearby territory) that reaches it first, which is the
+    Johnson-Mehl rule itself (Johnson & Mehl 1939). Unassigned pixels and territories
+    without a usable cone keep their labels.
+    """
+    best, owner = cone_model(labels.shape, groups, cones)
+    with_cone = np.zeros(max(int(labels.max()), max(cones, default=0)) + 1, bool)
+    with_cone[[k for k, c in cones.items() if c.ok and k >= 0]] = True
+    movable = with_cone[labels] & np.isfinite(best)  # territory labels are >= 0
+    return np.where(movable, owner, labels).astype(np.int32)

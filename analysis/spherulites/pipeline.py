@@ -1,0 +1,408 @@
+"""From a time-lapse stack to an :class:`ExperimentResult`, and the user's edits replayed.
+
+Stages: one streaming pass over the frames builds the arrival-time map
+(:mod:`analysis.arrival.arrival_map`); nuclei are its regional minima (:mod:`analysis.spherulites.nuclei`),
+completed by two checks against the first fits — regions that crystallise earlier than
+any fitted cone predicts hold a nucleus without a minimum, and territories that two
+cones explain far better than one hold two nuclei; territories are the Johnson-Mehl
+cells of the fitted cones (a watershed of the map gives the starting partition); a
+robust cone fit per territory gives centre, nucleation time and G
+(:mod:`analysis.spherulites.growth`); radii along free directions are measured from the map
+(:mod:`analysis.spherulites.fronts`); nucleation statistics and X(t) follow
+(:mod:`analysis.spherulites.nucleation`). Edits change only markers, statuses and frame masks, so
+:func:`apply_edits` re-partitions and refits from cached state without touching frames
+(the cached state and the replay: :mod:`analysis.spherulites.replay`; one set of detections
+evaluated into a result: :mod:`analysis.spherulites.evaluation`).
+
+Edit semantics (replayed in list order; a target is the detection whose centre is
+nearest to the edit's point within ``AnalysisSettings.edit_tolerance_px``):
+``add_nucleus`` seeds a new territory at the arrival-map minimum within 3 px of the
+click (source ``manual``); ``delete_detection`` removes the detection and leaves its
+territory *unassigned* (no neighbour absorbs it: a deleted detection is usually dust or
+a scratch whose pixels would spoil the neighbours' cone fits; its area still counts as
+crystallised in X(t)); ``merge_detections`` joins the second territory to the first;
+``move_centre`` holds the centre at the new point and refits t0 and G; ``exclude`` and
+``include`` set the status (``include`` also forces an automatic reject to ``ok`` when
+it has a growth rate); ``ignore_frames`` removes the frames from one spherulite's data or,
+without a position, from the whole experiment (fits, radii and X(t)).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Any, Generator, Sequence
+
+import cv2
+import numpy as np
+from scipy import ndimage as ndi
+
+from analysis.edits import Edit
+from analysis.errors import InputError
+from analysis.progress import Progress, run_to_completion, scaled
+from analysis.results import ExperimentResult
+from analysis.spherulites import growth, nuclei
+from analysis.spherulites.evaluation import evaluate, fit_pixels, result_of
+from analysis.spherulites.replay import Context, auto_detections, cached, digest, replay
+
+_AUTOMATIC = ("result without edits",)  # cache key
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Tunable analysis settings, stored with the experiment (``to_dict``/``from_dict``).
+
+    Attributes
+    ----------
+    arrival : dict
+        Settings of the arrival-map pass (``analysis.arrival.arrival_map.ArrivalSettings`` fields).
+    sensitivity_frames : float
+        Minimum depth of an arrival-map minimum below its saddle, in frame intervals, for
+        it to count as a nucleus. Lower finds later/closer nuclei but risks splits.
+    min_territory_px : int
+        Smallest territory kept, px.
+    smooth_px : float
+        Gaussian smoothing of the arrival map before detection, px.
+    boundary_band_px : int
+        Pixels this close to another territory are left out of the cone fit.
+    apex_exclusion_px : float
+        Pixels this close to the fitted centre are left out of a second fit (0 = none).
+    max_fit_pixels : int
+        Territories with more usable pixels are subsampled (evenly) for the fit.
+    n_sectors : int
+        Angular sectors for the radius measurement.
+    min_free_fraction : float
+        A radius enters the linearity test when at least this fraction of directions is free.
+    min_points : int
+        Fewer frames than this of free growth -> status ``few-points``.
+    nonlinear_alpha, nonlinear_min_change : float
+        Significance and minimum relative slope change of the non-linear growth test.
+    edit_tolerance_px : float
+        How far from a detection's centre an edit may point and still find it.
+    """
+
+    arrival: dict = field(default_factory=dict)
+    sensitivity_frames: float = 0.5
+    min_territory_px: int = 20
+    smooth_px: float = 1.0
+    boundary_band_px: int = 2
+    apex_exclusion_px: float = 6.0
+    max_fit_pixels: int = 4000
+    n_sectors: int = 36
+    min_free_fraction: float = 0.25
+    min_points: int = 4
+    nonlinear_alpha: float = 0.01
+    nonlinear_min_change: float = 0.20
+    edit_tolerance_px: float = 15.0
+
+    def to_dict(self) -> dict[str, Any]:
+        return dataclasses.asdict(self)
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any] | None, *, path: str | None = None) -> "AnalysisSettings":
+        """Settings from a stored dict; unknown keys are ignored, bad values raise InputError."""
+        d = dict(d or {})
+        known = {f.name: f for f in dataclasses.fields(cls)}
+        values = {k: v for k, v in d.items() if k in known}
+        try:
+            settings = cls(**values)
+        except TypeError as exc:
+            raise InputError(f"bad analysis settings: {exc}", path) from None
+        settings.validate(path)
+        return settings
+
+    def validate(self, path: str | None = None) -> None:
+        checks = [("sensitivity_frames", self.sensitivity_frames > 0),
+                  ("min_territory_px", self.min_territory_px >= 1),
+                  ("smooth_px", self.smooth_px >= 0), ("boundary_band_px", self.boundary_band_px >= 0),
+                  ("max_fit_pixels", self.max_fit_pixels >= 50), ("n_sectors", self.n_sectors >= 8),
+                  ("min_free_fraction", 0 <= self.min_free_fraction <= 1),
+                  ("min_points", self.min_points >= 2), ("nonlinear_alpha", 0 < self.nonlinear_alpha < 1),
+                  ("edit_tolerance_px", self.edit_tolerance_px > 0),
+                  ("arrival", isinstance(self.arrival, dict))]
+        for name, ok in checks:
+            try:
+                good = bool(ok)
+            except (TypeError, ValueError):
+                good = False
+            if not good:
+                raise InputError(f"analysis setting {name} = {getattr(self, name)!r} is out of range", path)
+
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """An analysed stack: the arrival map, the result with edits applied, cached state."""
+
+    arrival: Any
+    result: ExperimentResult
+    settings: AnalysisSettings = AnalysisSettings()
+    edits: tuple = ()
+    _context: Context | None = field(default=None, repr=False, compare=False)
+
+
+
+# ---------------------------------------------------------------- public API
+def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, temperature_c,
+                          thickness_um, geometry) -> Generator[Progress, None, Context]:
+    times = np.asarray(arrival.times_s, dtype=float)
+    arrival_s = np.asarray(arrival.arrival_s, dtype=np.float32)
+    yield Progress("finding nuclei", 0.1)
+    filled = np.asarray(getattr(arrival, "filled", np.zeros(arrival_s.shape, bool)), bool)
+    at_start = _solid_start(np.asarray(arrival.crystalline_at_start, bool) | (arrival_s <= times[0]),
+                            arrival_s, times, filled)
+    # Inferred (filled) arrivals are not evidence of a minimum: detect on measured pixels.
+    work = nuclei.working_map(np.where(filled, np.float32(np.nan), arrival_s), times,
+                              smooth_px=settings.smooth_px, at_start=at_start,
+                              below_start_s=getattr(arrival, "before_start_s", None))
+    markers = nuclei.find_markers(work, arrival_s, times, depth_frames=settings.sensitivity_frames,
+                                  min_territory_px=settings.min_territory_px)
+    base = markers.territories
+    if base is None:
+        base = nuclei.territories(work, arrival_s, markers.labels)
+    ctx = Context(stack=stack, frames=times.size, shape=arrival_s.shape, times_s=times,
+                   interval_s=nuclei.frame_interval_s(times), um_per_px=float(arrival.um_per_px),
+                   isothermal_start_s=float(isothermal_start_s), temperature_c=temperature_c,
+                   thickness_um=thickness_um, geometry=geometry, work=work,
+                   fit_arrival=growth.dequantised(arrival_s, times),
+                   frame_index=np.asarray(arrival.frame_index, np.int32), at_start=at_start,
+                   near_start=cv2.dilate(at_start.astype(np.uint8), np.ones((5, 5), np.uint8)) > 0,
+                   filled=filled,
+                   arrival_s=arrival_s, markers=markers, base_territories=base,
+                   auto_lookup_xy=markers.xy_px.copy(),
+                   slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
+    yield Progress("fitting growth cones", 0.4)
+    ctx = _with_missed_nuclei(ctx, settings)
+    for _ in range(4):  # further rounds separate clusters of three or four
+        before = ctx.markers.xy_px.shape[0]
+        ctx = _with_split_nuclei(ctx, settings)
+        if ctx.markers.xy_px.shape[0] == before:
+            break
+    yield Progress("fitting growth cones", 0.7)
+    automatic, _, _ = _automatic_evaluation(ctx, settings)
+    for sph in automatic.spherulites:
+        ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
+    ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
+    return ctx
+
+
+def _automatic_evaluation(ctx: Context, settings):
+    """The automatic detections evaluated (see evaluation.evaluate), memoised on the
+    markers: a round of checks that changes nothing costs no second evaluation."""
+    key = ("automatic evaluation", digest(ctx.markers.labels, ctx.base_territories))
+    return cached(ctx, key, lambda: evaluate(ctx, auto_detections(ctx), [], [], settings))
+
+
+def _solid_start(at_start: np.ndarray, arrival_s: np.ndarray, times: np.ndarray,
+                 filled: np.ndarray) -> np.ndarray:
+    """Crystals present in frame 0 as solid regions.
+
+    Their extinction arms are dark in frame 0, so the crystalline-at-start mask comes
+    with gaps that the next frame fills; left as they are, each fragment would look like
+    a nucleus of its own. Gaps up to ~6 px wide that were crystalline by frame 1 are
+    closed and enclosed holes filled, except pixels whose front was measured after
+    frame 0 (not inferred): those were melt, e.g. the pocket between three touching discs.
+    """
+    if not at_start.any():
+        return at_start
+    disk = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (7, 7))
+    closed = cv2.morphologyEx(at_start.astype(np.uint8), cv2.MORPH_CLOSE, disk) > 0
+    by_frame_1 = arrival_s <= times[min(1, times.size - 1)]
+    solid = ndi.binary_fill_holes(closed & (by_frame_1 | at_start))
+    measured_later = np.isfinite(arrival_s) & ~filled & (arrival_s > times[0])
+    return at_start | (solid & ~measured_later)
+
+
+def _with_missed_nuclei(ctx: Context, settings) -> Context:
+    """Add markers for nuclei without a regional minimum (see nuclei.missed_nuclei)."""
+    result, fits, groups = _automatic_evaluation(ctx, settings)
+    model, _ = nuclei.cone_model(ctx.shape, groups, fits)
+    measured = np.isfinite(ctx.fit_arrival) & ~ctx.filled & ~ctx.at_start & (ctx.frame_index >= 0)
+    seeds = nuclei.missed_nuclei(
+        ctx.fit_arrival, measured, model, frames=ctx.frame_index, interval_s=ctx.interval_s,
+        slope_s_per_px=ctx.slope_s_per_px, existing_xy=[(s.x_px, s.y_px) for s in result.spherulites],
+        min_area_px=max(settings.min_territory_px, 30))
+    seeds = [(row, col) for row, col in seeds if ctx.markers.labels[row, col] == 0]
+    if not seeds:
+        return ctx
+    labels = ctx.markers.labels.copy()
+    for k, (row, col) in enumerate(seeds):
+        labels[row, col] = ctx.markers.xy_px.shape[0] + k + 1
+    markers = nuclei.markers_from_labels(labels, ctx.work)
+    base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
+    return dataclasses.replace(ctx, markers=markers, base_territories=base,
+                               auto_lookup_xy=markers.xy_px.copy())
+
+
+def _split_pixels(ctx, result, fits, groups, settings) -> dict:
+    """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
+    scale above 1.5 times the field's typical one, non-linear growth, or a slope more
+    than 25 % off the field's mean."""
+    band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
+    data, scales = {}, {}
+    for sph in result.spherulites:
+        fit = fits[sph.id]
+        if not fit.ok:
+            continue
+        pix = fit_pixels(ctx, groups.get(sph.id, np.zeros(0, np.int64)), band, [], settings)
+        if pix.size < 100:
+            continue
+        y, x = np.divmod(pix, ctx.shape[1])
+        t = ctx.fit_arrival.ravel()[pix]
+        scales[sph.id] = growth.residual_scale_s(fit, x, y, t)
+        data[sph.id] = (x, y, t, fit, sph.status)
+    if not scales:
+        return {}
+    typical = float(np.median(list(scales.values())))
+    odd_slope = {k for k, v in data.items() if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > 0.25}
+    return {k: v for k, v in data.items()
+            if scales[k] > 1.5 * typical or v[4] == "nonlinear" or k in odd_slope}
+
+
+def _with_split_nuclei(ctx: Context, settings) -> Context:
+    """Give two markers to territories that hold two nuclei (nuclei.split_candidates).
+
+    A split inside a crystal present in frame 0 is undone when either half then has no
+    cone fit: its apex was placed where no measured front can confirm it.
+    """
+    result, fits, groups = _automatic_evaluation(ctx, settings)
+    labels = ctx.markers.labels.copy()
+    next_id = ctx.markers.xy_px.shape[0] + 1
+    splits = []  # (spots, marker values replaced) per split
+    for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
+        rows, cols = np.divmod(groups[det_id], ctx.shape[1])
+        frame_0 = ctx.at_start[rows, cols]
+        apexes = nuclei.split_candidates(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
+                                         f_scale_s=0.5 * ctx.interval_s,
+                                         start_region=(cols[frame_0], rows[frame_0]))
+        if apexes is None:
+            continue
+        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in apexes]
+        spots = [(rows[k], cols[k]) for k in seeds]
+        # A marker in the way that never gave a cone fit was a fragment of this nucleus.
+        others = {int(labels[r, c]) for r, c in spots} - {0, det_id}
+        if spots[0] == spots[1] or any(k not in fits or fits[k].ok for k in others):
+            continue
+        labels[np.isin(labels, [det_id, *others])] = 0
+        labels[spots[0]] = det_id
+        labels[spots[1]] = next_id
+        next_id += 1
+        splits.append((spots, [det_id, *others]))
+    if not splits:
+        return ctx
+    split_ctx = _with_marker_labels(ctx, labels)
+    _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
+    undone = False
+    for spots, replaced in splits:
+        ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
+        if all(split_fits[k].ok for k in ids) or not any(ctx.at_start[spot] for spot in spots):
+            continue
+        for spot in spots:
+            labels[spot] = 0
+        original = np.isin(ctx.markers.labels, replaced)
+        labels[original] = ctx.markers.labels[original]
+        undone = True
+    return _with_marker_labels(ctx, labels) if undone else split_ctx
+
+
+def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
+    """The context with new markers (label values need not be contiguous) and their flooding."""
+    _, contiguous = np.unique(labels, return_inverse=True)  # removed fragments leave gaps
+    markers = nuclei.markers_from_labels(contiguous.reshape(labels.shape), ctx.work)
+    base = nuclei.territories(ctx.work, ctx.arrival_s, markers.labels)
+    return dataclasses.replace(ctx, markers=markers, base_territories=base,
+                               auto_lookup_xy=markers.xy_px.copy())
+
+
+def _check_inputs(arrival, thickness_um, geometry, path) -> None:
+    if not (np.isfinite(arrival.um_per_px) and arrival.um_per_px > 0):
+        raise InputError(f"pixel size {arrival.um_per_px!r} um must be positive", path)
+    times = np.asarray(arrival.times_s, dtype=float)
+    if times.size < 2 or not np.all(np.isfinite(times)) or np.any(np.diff(times) <= 0):
+        raise InputError("frame times must be finite and increasing over at least 2 frames", path)
+    if thickness_um is not None and not (np.isfinite(thickness_um) and thickness_um > 0):
+        raise InputError(f"film thickness {thickness_um!r} um must be positive", path)
+    if geometry not in ("film-2d", "bulk-3d"):
+        raise InputError(f"unknown geometry {geometry!r} (film-2d or bulk-3d)", path)
+
+
+def analyze_arrival_iter(arrival, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
+                         isothermal_start_s: float = 0.0, temperature_c: float | None = None,
+                         thickness_um: float | None = None, stack: str = "",
+                         geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+    """Analyse an existing arrival map (no frames needed); see :func:`analyze_iter`."""
+    _check_inputs(arrival, thickness_um, geometry, stack or None)
+    ctx = yield from _context_from_arrival(
+        arrival, settings, stack=stack, isothermal_start_s=isothermal_start_s,
+        temperature_c=temperature_c, thickness_um=thickness_um, geometry=geometry)
+    yield Progress("applying edits", 0.9)
+    analysis = _with_edits(arrival, ctx, settings, edits)
+    yield Progress("done", 1.0)
+    return analysis
+
+
+def analyze_arrival(arrival, **kwargs) -> Analysis:
+    return run_to_completion(analyze_arrival_iter(arrival, **kwargs))
+
+
+def apply_edits(analysis: Analysis, edits: Sequence[Edit]) -> Analysis:
+    """The analysis with ``edits`` (the whole list) replayed over the automatic detections.
+
+    No pass over frames: markers, territories and fits are recomputed from cached state,
+    and unchanged territories reuse their cached fits.
+    """
+    if analysis._context is None:
+        raise ValueError("this Analysis carries no replay state")
+    return _with_edits(analysis.arrival, analysis._context, analysis.settings, edits)
+
+
+def _with_edits(arrival, ctx, settings, edits) -> Analysis:
+    edits = tuple(edits)
+    result = ctx.cache.get(_AUTOMATIC) if not edits else None
+    if result is None:
+        dets, spans, unapplied = replay(ctx, edits, settings)
+        result = result_of(ctx, dets, spans, unapplied, settings)
+    return Analysis(arrival, result, settings, edits, ctx)
+
+
+def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
+                 isothermal_start_s: float = 0.0, temperature_c: float | None = None,
+                 thickness_um: float | None = None,
+                 geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+    """Analyse a :class:`FrameStack`: arrival map, nuclei, growth fits, nucleation, X(t).
+
+    Yields :class:`Progress`; returns an :class:`Analysis`. Times in the result are
+    seconds from ``isothermal_start_s`` (on the stack's clock). InputError when the
+    stack lacks its calibration.
+    """
+    from analysis.arrival.arrival_map import ArrivalSettings, arrival_map_iter
+
+    stack.require_calibration()
+    arrival_settings = ArrivalSettings.from_dict(settings.arrival)
+    arrival = yield from scaled(arrival_map_iter(stack, settings=arrival_settings), 0.0, 0.85)
+    analysis = yield from scaled(analyze_arrival_iter(
+        arrival, settings=settings, edits=edits, isothermal_start_s=isothermal_start_s,
+        temperature_c=temperature_c, thickness_um=thickness_um, stack=str(stack.path),
+        geometry=geometry), 0.85, 1.0)
+    return analysis
+
+
+def analyze(stack, **kwargs) -> Analysis:
+    return run_to_completion(analyze_iter(stack, **kwargs))
+
+
+def analyze_experiment_iter(experiment) -> Generator[Progress, None, Analysis]:
+    """Analyse a project :class:`Experiment` with its settings, calibration and edits."""
+    from analysis.project.file import open_experiment_stack
+
+    stack = open_experiment_stack(experiment)
+    settings = AnalysisSettings.from_dict(experiment.settings, path=experiment.stack_path)
+    return (yield from analyze_iter(
+        stack, settings=settings, edits=tuple(experiment.edits),
+        isothermal_start_s=experiment.isothermal_start_s or 0.0,
+        temperature_c=experiment.temperature_c, thickness_um=experiment.thickness_um,
+        geometry=getattr(experiment, "geometry", "film-2d") or "film-2d"))
+
+
+def analyze_experiment(experiment) -> Analysis:
+    return run_to_completion(analyze_experiment_iter(experiment))

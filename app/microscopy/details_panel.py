@@ -1,0 +1,257 @@
+"""Details of the current experiment: summary, spherulite table and the edit list.
+
+The summary describes the selected spherulite (or the experiment when none is
+selected). The spherulite table shows every detection with its ``source`` (auto or
+manual); the edit list shows the user's corrections in order and marks those the last
+analysis could not apply, so none is ever silently lost.
+
+Run alone: ``python -m app.microscopy.details_panel PROJECT``.
+"""
+
+from __future__ import annotations
+
+import html
+from typing import Any
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QBrush, QColor
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QHBoxLayout,
+    QLabel,
+    QListWidget,
+    QListWidgetItem,
+    QPushButton,
+    QTableWidget,
+    QTableWidgetItem,
+    QTabWidget,
+    QTextBrowser,
+    QVBoxLayout,
+    QWidget,
+)
+
+from app.core import model as m
+from app.microscopy.overlays import STATUS_WORDS, status_colour
+
+SPHERULITE_COLUMNS = ("id", "x (px)", "y (px)", "t0 (s)", "G (µm/min)", "CI95 ±", "R²",
+                      "points", "status", "source")
+UNAPPLIED_COLOUR = "#ffb0b0"
+
+
+def _num(value: Any, fmt: str = ".3g", unit: str = "") -> str:
+    return "—" if value is None else f"{value:{fmt}}{unit}"
+
+
+def spherulite_row(s: Any) -> tuple[str, ...]:
+    return (str(s.id), f"{s.x_px:.1f}", f"{s.y_px:.1f}", _num(s.nucleation_time_s, ".1f"),
+            _num(s.growth_rate_um_per_min), _num(s.growth_rate_ci95_um_per_min, ".2g"),
+            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source)
+
+
+def spherulite_html(s: Any, um_per_px: float | None) -> str:
+    where = f"({s.x_px:.1f}, {s.y_px:.1f}) px"
+    if um_per_px:
+        where += f" = ({s.x_px * um_per_px:.1f}, {s.y_px * um_per_px:.1f}) µm"
+    rows = [
+        ("Centre", where),
+        ("Nucleation time", _num(s.nucleation_time_s, ".1f", " s from reaching Tc")),
+        ("First seen", _num(s.first_seen_s, ".1f", " s")),
+        ("Growth rate G", _num(s.growth_rate_um_per_min, ".3g", " µm/min")
+         + ("" if s.growth_rate_ci95_um_per_min is None
+            else f" ± {s.growth_rate_ci95_um_per_min:.2g} (95 %)")),
+        ("R² of the radius fit", _num(s.r2, ".4f")),
+        ("Radius points", str(s.n_points)),
+        ("Status", f"{s.status}: {STATUS_WORDS.get(s.status, '')}"),
+        ("Source", s.source),
+    ]
+    return _table_html(f"Spherulite {s.id}", rows)
+
+
+def experiment_html(experiment: Any, result: Any, status: str, message: str) -> str:
+    rows = [("Tc", _num(experiment.temperature_c, "g", " °C")),
+            ("Scale", _num(experiment.um_per_px, ".4g", " µm/px") if experiment.um_per_px
+             else "from the file, if it has one"),
+            ("Film thickness", _num(experiment.thickness_um, "g", " µm")),
+            ("Isothermal start", f"{experiment.isothermal_start_s:g} s on the recording clock"),
+            ("Analysis", status + (f": {message}" if message else ""))]
+    if result is not None:
+        rows += _result_rows(result)
+    body = _table_html(html.escape(experiment.name), rows)
+    if result is not None and result.warnings:
+        body += "<p><b>Warnings</b><br>" + "<br>".join(map(html.escape, result.warnings)) + "</p>"
+    if experiment.notes:
+        body += f"<p><b>Notes</b><br>{html.escape(experiment.notes)}</p>"
+    return body
+
+
+def _result_rows(result: Any) -> list[tuple[str, str]]:
+    g, nuc = result.growth_rate, result.nucleation
+    ci = "" if g.ci95_low is None else f" (95 % CI {g.ci95_low:.3g} – {g.ci95_high:.3g})"
+    rows = [("Frames", str(result.frames)),
+            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci + f", n = {g.n}"),
+            ("Nuclei", f"{nuc.count}, mode {nuc.mode or '—'}"),
+            ("Density", _num(nuc.density_per_mm2, ".3g", " mm⁻²") + " | "
+             + _num(nuc.density_per_mm3, ".3g", " mm⁻³")),
+            ("Nucleation rate", _num(nuc.rate_per_mm2_per_min, ".3g", " mm⁻² min⁻¹")),
+            ("Induction time", _num(nuc.induction_time_s, ".1f", " s"))]
+    if nuc.mode_test:
+        rows.append(("Mode test", nuc.mode_test))
+    for label, avrami in (("Avrami, film X(t)", result.avrami_film),
+                          ("Avrami, predicted", result.avrami_predicted)):
+        if avrami is not None and avrami.n is not None:
+            rows.append((label, f"n = {avrami.n:.2f}, k = {_num(avrami.k_per_min_n)} min⁻ⁿ, "
+                                f"t½ = {_num(avrami.t_half_min, '.3g')} min"))
+    return rows
+
+
+def _table_html(title: str, rows: list[tuple[str, str]]) -> str:
+    cells = "".join(f"<tr><td style='color:#9aa4b2;padding-right:10px'>{html.escape(k)}</td>"
+                    f"<td>{html.escape(v)}</td></tr>" for k, v in rows)
+    return f"<h3 style='margin:2px 0'>{title}</h3><table>{cells}</table>"
+
+
+class SortableItem(QTableWidgetItem):
+    """Sorts numbers as numbers ('—' last), words as words."""
+
+    def _key(self) -> tuple:
+        try:
+            return (0, float(self.text()), "")
+        except ValueError:
+            return (1, 0.0, self.text())
+
+    def __lt__(self, other: QTableWidgetItem) -> bool:
+        if isinstance(other, SortableItem):
+            return self._key() < other._key()
+        return super().__lt__(other)
+
+
+class DetailsPanel(QTabWidget):
+    """Summary / Spherulites / Edits tabs for the current experiment."""
+
+    def __init__(self, model: "m.ProjectModel", parent: QWidget | None = None):
+        super().__init__(parent)
+        self._model = model
+        self.summary = QTextBrowser()
+        self.table = QTableWidget(0, len(SPHERULITE_COLUMNS))
+        self.table.setHorizontalHeaderLabels(SPHERULITE_COLUMNS)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SingleSelection)
+        self.table.setEditTriggers(QAbstractItemView.NoEditTriggers)
+        self.table.verticalHeader().setVisible(False)
+        self.table.horizontalHeader().setSortIndicator(0, Qt.AscendingOrder)
+        self.table.itemSelectionChanged.connect(self._on_table_selected)
+        self.addTab(self.summary, "Summary")
+        self.addTab(self.table, "Spherulites")
+        self.addTab(self._build_edits_tab(), "Edits")
+        model.selection_changed.connect(lambda *_: self.refresh())
+        model.analysis_updated.connect(self._on_index_event)
+        model.experiment_changed.connect(self._on_index_event)
+        model.status_changed.connect(self._on_status_changed)
+        model.project_replaced.connect(self.refresh)
+        self.refresh()
+
+    def _build_edits_tab(self) -> QWidget:
+        page = QWidget()
+        layout = QVBoxLayout(page)
+        layout.setContentsMargins(2, 2, 2, 2)
+        self.edits_note = QLabel()
+        self.edits_note.setWordWrap(True)
+        self.edits_list = QListWidget()
+        remove = QPushButton("Remove edit")
+        remove.setToolTip("Take the selected edit out of the list (undoable)")
+        remove.clicked.connect(self._remove_selected_edit)
+        row = QHBoxLayout()
+        row.addStretch(1)
+        row.addWidget(remove)
+        layout.addWidget(self.edits_note)
+        layout.addWidget(self.edits_list, 1)
+        layout.addLayout(row)
+        return page
+
+    def _on_index_event(self, index: int) -> None:
+        if index == self._model.current_index:
+            self.refresh()
+
+    def _on_status_changed(self, index: int) -> None:
+        if index == self._model.current_index and self._model.selected_spherulite() is None:
+            self._show_summary(index)  # cheap: the tables do not change with the status
+
+    def _show_summary(self, index: int) -> None:
+        selected = self._model.selected_spherulite()
+        result = self._model.result(index)
+        if selected is not None:
+            self.summary.setHtml(spherulite_html(selected, result.um_per_px))
+        else:
+            self.summary.setHtml(experiment_html(self._model.experiment(index), result,
+                                                 self._model.status(index),
+                                                 self._model.status_message(index)))
+
+    def refresh(self) -> None:
+        index = self._model.current_index
+        if index < 0:
+            self.summary.setHtml("<p>No experiment. Add stacks with File ▸ Add stacks, "
+                                 "or drop TIFF files, folders or videos on the window.</p>")
+            self.table.setRowCount(0)
+            self.edits_list.clear()
+            self.edits_note.setText("")
+            return
+        result = self._model.result(index)
+        self._show_summary(index)
+        self._fill_table(result)
+        self._fill_edits(index, result)
+
+    def _fill_table(self, result: Any) -> None:
+        spherulites = () if result is None else result.spherulites
+        self.table.blockSignals(True)
+        self.table.setSortingEnabled(False)  # fill first, then let the user's sort apply
+        self.table.setRowCount(len(spherulites))
+        for row, s in enumerate(spherulites):
+            for column, text in enumerate(spherulite_row(s)):
+                item = SortableItem(text)
+                if column == 8:
+                    item.setForeground(QBrush(status_colour(s.status)))
+                self.table.setItem(row, column, item)
+        self.table.setSortingEnabled(True)
+        for row in range(self.table.rowCount()):
+            if self.table.item(row, 0).text() == str(self._model.selected_id):
+                self.table.selectRow(row)
+        self.table.blockSignals(False)
+
+    def _fill_edits(self, index: int, result: Any) -> None:
+        edits = self._model.experiment(index).edits
+        unapplied = set(result.unapplied_edits) if result is not None else set()
+        self.edits_list.clear()
+        for position, edit in enumerate(edits):
+            text = f"{position + 1}. {m.describe_edit(edit)}"
+            item = QListWidgetItem(text)
+            if edit in unapplied:
+                item.setText(text + "  — NOT APPLIED")
+                item.setToolTip("The last analysis found no detection at this point; the "
+                                "edit is kept and applies again if one appears.")
+                item.setForeground(QBrush(QColor(UNAPPLIED_COLOUR)))
+            item.setData(Qt.UserRole, position)
+            self.edits_list.addItem(item)
+        count = len(unapplied)
+        self.edits_note.setText(
+            f"{len(edits)} edit(s); {count} not applied by the last analysis." if count
+            else f"{len(edits)} edit(s), all applied." if result is not None and edits
+            else f"{len(edits)} edit(s).")
+        self.setTabText(2, f"Edits ({len(edits)}{', ' + str(count) + ' not applied' if count else ''})")
+
+    def _remove_selected_edit(self) -> None:
+        item = self.edits_list.currentItem()
+        if item is not None and self._model.current_index >= 0:
+            self._model.remove_edit(self._model.current_index, item.data(Qt.UserRole))
+
+    def _on_table_selected(self) -> None:
+        rows = {i.row() for i in self.table.selectedIndexes()}
+        if rows:
+            self._model.select_spherulite(int(self.table.item(min(rows), 0).text()))
+
+
+if __name__ == "__main__":  # pragma: no cover - quick look
+    import sys
+
+    from app.widgets.preview import run_alone
+
+    sys.exit(run_alone(DetailsPanel, sys.argv, size=(500, 500)))

@@ -1,0 +1,138 @@
+"""The experiments list: one row per crystallization temperature.
+
+Columns: name, Tc, number of spherulites, pooled growth rate G ± CI half-width, and the
+analysis status. Selecting a row selects the experiment everywhere; double-click opens
+its properties.
+
+Run alone: ``python -m app.microscopy.experiments_panel PROJECT``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QBrush, QColor
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QHeaderView,
+    QTableWidget,
+    QTableWidgetItem,
+)
+
+from app.core import model as m
+
+COLUMNS = ("Experiment", "Tc (°C)", "n", "G (µm/min)", "Status")
+COLUMN_TIPS = ("Name of the experiment (one stack)", "Crystallization temperature",
+               "Number of spherulites detected (manual ones included)",
+               "Pooled growth rate ± half-width of its 95 % confidence interval",
+               "State of the analysis")
+STATUS_TINTS = {
+    m.STATUS_DONE: "#7fd8a8",
+    m.STATUS_STALE: "#ffcc66",
+    m.STATUS_FAILED: "#ff7f7f",
+    m.STATUS_RUNNING: "#8fc7ff",
+    m.STATUS_QUEUED: "#b5b5d0",
+    m.STATUS_CANCELLED: "#c0a080",
+}
+
+
+def format_growth_rate(result: Any) -> str:
+    """'12.4 ± 0.8' (95 % CI half-width) or '—' when there is no pooled G."""
+    if result is None or result.growth_rate.value is None:
+        return "—"
+    rate = result.growth_rate
+    if rate.ci95_low is None or rate.ci95_high is None:
+        return f"{rate.value:.3g}"
+    half = (rate.ci95_high - rate.ci95_low) / 2.0
+    return f"{rate.value:.3g} ± {half:.2g}"
+
+
+def row_values(model: "m.ProjectModel", index: int) -> tuple[str, ...]:
+    experiment, result = model.experiment(index), model.result(index)
+    tc = "—" if experiment.temperature_c is None else f"{experiment.temperature_c:g}"
+    count = "—" if result is None else str(len(result.spherulites))
+    status = model.status(index)
+    if status == m.STATUS_RUNNING and model.status_message(index):
+        status = f"running: {model.status_message(index)}"
+    return experiment.name, tc, count, format_growth_rate(result), status
+
+
+class ExperimentsPanel(QTableWidget):
+    """Table of the project's experiments, kept in step with the model."""
+
+    properties_requested = Signal(int)
+
+    def __init__(self, model: "m.ProjectModel", parent=None):
+        super().__init__(0, len(COLUMNS), parent)
+        self._model = model
+        self.setHorizontalHeaderLabels(COLUMNS)
+        for column, tip in enumerate(COLUMN_TIPS):
+            self.horizontalHeaderItem(column).setToolTip(tip)
+        self.setSelectionBehavior(QAbstractItemView.SelectRows)
+        self.setSelectionMode(QAbstractItemView.SingleSelection)
+        self.setEditTriggers(QAbstractItemView.NoEditTriggers)
+        self.verticalHeader().setVisible(False)
+        self.setTextElideMode(Qt.ElideMiddle)
+        self.setWordWrap(False)
+        header = self.horizontalHeader()
+        header.setSectionResizeMode(0, QHeaderView.Stretch)
+        for column in range(1, len(COLUMNS)):
+            header.setSectionResizeMode(column, QHeaderView.ResizeToContents)
+        self.itemSelectionChanged.connect(self._on_rows_selected)
+        self.cellDoubleClicked.connect(lambda row, _col: self.properties_requested.emit(row))
+        for signal in (model.project_replaced, model.experiments_inserted, model.experiments_removed):
+            signal.connect(lambda *_: self.rebuild())
+        model.experiment_changed.connect(self.refresh_row)
+        model.analysis_updated.connect(self.refresh_row)
+        model.status_changed.connect(self.refresh_row)
+        model.selection_changed.connect(self._on_selection_changed)
+        self.rebuild()
+
+    def rebuild(self) -> None:
+        self.blockSignals(True)
+        self.setRowCount(self._model.experiment_count())
+        for row in range(self._model.experiment_count()):
+            self._fill_row(row)
+        self.blockSignals(False)
+        self._on_selection_changed(self._model.current_index, -1)
+
+    def refresh_row(self, row: int) -> None:
+        if 0 <= row < self.rowCount():
+            self._fill_row(row)
+
+    def _fill_row(self, row: int) -> None:
+        values = row_values(self._model, row)
+        tint = STATUS_TINTS.get(self._model.status(row))
+        for column, text in enumerate(values):
+            item = self.item(row, column)
+            if item is None:
+                item = QTableWidgetItem()
+                self.setItem(row, column, item)
+            item.setText(text)
+            if column == 0:
+                item.setToolTip(text)
+            if column in (1, 2, 3):
+                item.setTextAlignment(Qt.AlignRight | Qt.AlignVCenter)
+            if column == 4:
+                item.setForeground(QBrush(QColor(tint)) if tint else QBrush())
+                item.setToolTip(self._model.status_message(row) or text)
+
+    def _on_rows_selected(self) -> None:
+        rows = {index.row() for index in self.selectedIndexes()}
+        if rows:
+            self._model.select(min(rows))
+
+    def _on_selection_changed(self, index: int, _spherulite_id: int) -> None:
+        if index >= 0 and index < self.rowCount() and self.currentRow() != index:
+            self.blockSignals(True)
+            self.selectRow(index)
+            self.blockSignals(False)
+
+
+if __name__ == "__main__":  # pragma: no cover - quick look
+    import sys
+
+    from app.widgets.preview import run_alone
+
+    sys.exit(run_alone(ExperimentsPanel, sys.argv, size=(600, 300)))

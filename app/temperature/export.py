@@ -1,0 +1,232 @@
+"""Tables and the report of the temperature series, through ``analysis.reporting.tables`` and
+``analysis.reporting.report``.
+
+Files are written to a temporary name beside the target and renamed into place, so a
+failed export never damages an earlier good file. The report runs in the shared
+``GeneratorWorker`` with a progress bar and Cancel.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from PySide6 import QtCore, QtWidgets
+
+from analysis.errors import InputError
+from analysis.kinetics.calorimetry import analyze_source
+from analysis.progress import Progress, scaled
+from analysis.reporting.report import (
+    HW_PAIRS_KEY,
+    build_report,
+    project_entries_iter,
+    series_constants,
+)
+from analysis.reporting.tables import (
+    ReportEntry,
+    comparison_table,
+    growth_vs_temperature_table,
+    write_csv,
+    write_xlsx,
+)
+
+#: Display names for the table's columns (the files keep the snake_case names).
+DISPLAY_NAMES = {
+    "experiment": "experiment", "temperature_c": "Tc (°C)", "growth_rate_um_per_min": "G (µm/min)",
+    "growth_rate_ci95_low_um_per_min": "G 95 % low (µm/min)",
+    "growth_rate_ci95_high_um_per_min": "G 95 % high (µm/min)", "n_spherulites": "spherulites",
+    "nucleation_mode": "mode", "nucleus_density_per_mm2": "N_A (mm⁻²)",
+    "nucleus_density_per_mm3": "N_V (mm⁻³)", "nucleation_rate_per_mm2_per_min": "Ṅ_A (mm⁻² min⁻¹)",
+    "nucleation_rate_per_mm3_per_min": "Ṅ_V (mm⁻³ min⁻¹)", "predicted_geometry": "geometry",
+    "predicted_avrami_n": "predicted n", "predicted_k_per_min_n": "predicted k (min⁻ⁿ)",
+    "predicted_t_half_min": "predicted t½ (min)", "dsc_avrami_n": "DSC n",
+    "dsc_k_per_min_n": "DSC k (min⁻ⁿ)", "dsc_t_half_min": "DSC t½ fit (min)",
+    "dsc_t_half_measured_min": "DSC t½ read (min)", "dsc_induction_time_min": "DSC t₀ (min)",
+    "dsc_r2": "DSC R²",
+}
+
+
+def report_entries(model, cache) -> list:
+    """One ``analysis.reporting.tables.ReportEntry`` per analysed experiment."""
+    entries = []
+    for i, experiment in enumerate(model.experiments()):
+        result = model.result(i)
+        if result is None:
+            continue
+        calorimetry, problem = None, None
+        if experiment.calorimetry is not None:
+            try:
+                calorimetry = cache.analyze(experiment.calorimetry)
+            except InputError as error:
+                problem = str(error)
+        entries.append(ReportEntry(experiment.name, result, experiment.geometry,
+                                   experiment.mode_override, calorimetry, problem))
+    return entries
+
+
+def table_rows(model, cache) -> tuple[list[str], list[list]]:
+    """Display header and rows of the growth-rate-versus-temperature table."""
+    table = growth_vs_temperature_table(report_entries(model, cache))
+    return [DISPLAY_NAMES.get(name, name) for name in table.header], table.rows
+
+
+def write_table(model, cache, path: str, kind: str) -> str:
+    """CSV (growth table) or XLSX (growth table + comparison sheet), written atomically."""
+    entries = report_entries(model, cache)
+    growth = growth_vs_temperature_table(entries)
+    if kind == "csv":
+        return _atomic(path, lambda temporary: write_csv(growth, temporary))
+    if kind == "xlsx":
+        sheets = {"growth_vs_temperature": growth, "comparison": comparison_table(entries)}
+        return _atomic(path, lambda temporary: write_xlsx(sheets, temporary))
+    raise ValueError(f"unknown table format {kind!r}")
+
+
+def _atomic(path: str, write) -> str:
+    target = Path(path)
+    if not target.parent.is_dir():
+        raise OSError(f"{target}: the folder does not exist")
+    handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=target.suffix)
+    os.close(handle)
+    try:
+        write(temporary)
+        os.replace(temporary, target)
+    except OSError as error:
+        raise OSError(f"{target}: could not write the table ({error.strerror or error})") from error
+    finally:
+        if os.path.exists(temporary):
+            os.remove(temporary)
+    return str(target)
+
+
+
+@dataclass(frozen=True)
+class ReportSnapshot:
+    """What the report needs, taken in the GUI thread: the project and every fresh result."""
+
+    project: object
+    results: tuple  # ExperimentResult or None (to be analysed in the worker), per experiment
+
+
+def report_snapshot(model) -> ReportSnapshot:
+    from app.core.model import STATUS_DONE
+
+    results = tuple(model.result(i) if model.status(i) == STATUS_DONE else None
+                    for i in range(model.experiment_count()))
+    return ReportSnapshot(model.project, results)
+
+
+def _entry_with_calorimetry(experiment, result, material) -> ReportEntry:
+    calorimetry, problem = None, None
+    source = experiment.calorimetry
+    if source is not None:
+        if source.material is None and material is not None:
+            source = dataclasses.replace(source, material=material)
+        try:
+            calorimetry = analyze_source(source)
+        except InputError as error:
+            problem = str(error)
+    return ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override,
+                       calorimetry, problem)
+
+
+def report_iter(snapshot: ReportSnapshot, folder: str):
+    """The same folder as ``spherokin report``: cached analyses are reused, the others run here.
+
+    Runs in the worker thread; touches only the frozen snapshot.
+    """
+    project = snapshot.project
+    missing = tuple(e for e, r in zip(project.experiments, snapshot.results) if r is None)
+    ready = [(e, r) for e, r in zip(project.experiments, snapshot.results) if r is not None]
+    entries, problems = [], []
+    if missing:
+        sub_project = dataclasses.replace(project, experiments=missing)
+        entries, problems = yield from scaled(project_entries_iter(sub_project), 0.0, 0.8)
+    for number, (experiment, result) in enumerate(ready):
+        yield Progress("calorimetry", 0.8 + 0.1 * number / max(1, len(ready)), experiment.name)
+        entry = _entry_with_calorimetry(experiment, result, project.material)
+        if entry.calorimetry_problem:
+            problems.append(f"{experiment.name}: calorimetry skipped ({entry.calorimetry_problem})")
+        entries.append(entry)
+    constants, note = series_constants(project)
+    yield Progress("writing report", 0.9, note)
+    summary = build_report(entries, folder, constants=constants, material=project.material,
+                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
+    yield Progress("writing report", 1.0)
+    return summary
+
+class ReportJob(QtCore.QObject):
+    """Runs one report at a time in a ``GeneratorWorker``: progress bar, Cancel, errors in a dialog."""
+
+    finished = QtCore.Signal(bool, str)  # success, folder or the problem
+
+    def __init__(self, parent: QtWidgets.QWidget):
+        super().__init__(parent)
+        self._parent = parent
+        self.worker = None
+        self._finished_workers: list = []  # kept alive: their pool thread may still be unwinding
+        self.folder = ""
+        self.bar_widget = QtWidgets.QWidget(parent)
+        self.bar = QtWidgets.QProgressBar(self.bar_widget)
+        self.bar.setRange(0, 1000)
+        self.stage = QtWidgets.QLabel("", self.bar_widget)
+        self.cancel_button = QtWidgets.QPushButton("Cancel", self.bar_widget)
+        self.cancel_button.clicked.connect(self.cancel)
+        row = QtWidgets.QHBoxLayout(self.bar_widget)
+        row.setContentsMargins(0, 0, 0, 0)
+        row.addWidget(QtWidgets.QLabel("Report:", self.bar_widget))
+        row.addWidget(self.stage)
+        row.addWidget(self.bar, 1)
+        row.addWidget(self.cancel_button)
+        self.bar_widget.setVisible(False)
+
+    @property
+    def running(self) -> bool:
+        return self.worker is not None
+
+    def start(self, make_generator, folder: str) -> bool:
+        """Start ``make_generator()`` (a generator yielding ``Progress``); False if one runs."""
+        from app.core.worker import GeneratorWorker
+
+        if self.running:
+            return False
+        self.folder = folder
+        self.worker = GeneratorWorker(make_generator)
+        signals = self.worker.signals
+        signals.yielded.connect(self._progressed)
+        signals.returned.connect(lambda summary: self._done(True, _summary_text(summary, folder)))
+        signals.errored.connect(lambda error: self._done(False, str(error)))
+        signals.aborted.connect(lambda: self._done(False, "cancelled"))
+        self.bar.setValue(0)
+        self.stage.setText("starting")
+        self.bar_widget.setVisible(True)
+        self.worker.start()
+        return True
+
+    def cancel(self) -> None:
+        if self.worker is not None:
+            self.worker.abort()
+
+    def _progressed(self, report) -> None:
+        self.bar.setValue(int(1000 * max(0.0, min(1.0, report.fraction))))
+        self.stage.setText(report.stage + (f": {report.message}" if report.message else ""))
+
+    def _done(self, ok: bool, detail: str) -> None:
+        if self.worker is None:
+            return
+        self._finished_workers.append(self.worker)
+        self.worker = None
+        self.bar_widget.setVisible(False)
+        if not ok and detail != "cancelled" and self._parent.isVisible():
+            QtWidgets.QMessageBox.critical(self._parent, "Report not written", detail)
+        self.finished.emit(ok, detail)
+
+
+def _summary_text(summary, folder: str) -> str:
+    text = f"{len(summary.files)} files written to {folder}"
+    if summary.problems:
+        text += ". Not included: " + "; ".join(summary.problems)
+    return text

@@ -1,0 +1,262 @@
+"""Project and stack commands of the main window (a mixin of :class:`MainWindow`).
+
+New / open / save / save as / recent projects, adding stacks by dialog or drag & drop,
+the properties editor and the calibration tool, the unsaved-changes question and the
+crash-recovery offer. Every failure is shown with the file and the problem; the project
+in memory is never lost by a failed open or save.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtWidgets import QFileDialog, QMessageBox
+
+from app.core.autosave import find_recoverable, load_recovered
+from app.microscopy.calibration import CalibrationDialog
+from app.window.properties_dialog import PropertiesDialog, stack_note
+from app.window.stack_import import experiments_from_paths, is_stack_path
+
+PROJECT_FILTER = "spherokin projects (*.spherokin.json);;All files (*)"
+STACK_FILTER = "Stacks and videos (*.tif *.tiff *.avi *.mp4 *.mov *.mkv);;All files (*)"
+MAX_RECENT = 8
+
+
+class WindowFilesMixin:
+    """Needs ``self.model``, ``self.settings``, ``self.autosaver``, ``self.menus``."""
+
+    # ---------------------------------------------------------------- project files
+    def new_project(self) -> None:
+        if self.confirm_discard_or_save():
+            self.autosaver.discard()
+            self.model.new_project()
+
+    def open_project_dialog(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Open project", self._last_folder(), PROJECT_FILTER)
+        if path:
+            self.open_project_path(path)
+
+    def open_project_path(self, path: str, *, ask: bool = True) -> bool:
+        """Open ``path`` (asking about unsaved changes first); False if not opened."""
+        if ask and not self.confirm_discard_or_save():
+            return False
+        try:
+            from analysis.project.file import load_project
+
+            project = load_project(path)
+        except Exception as exc:
+            self.show_problem("Cannot open the project", str(exc))
+            return False
+        self.autosaver.discard()
+        self.model.replace_project(project)
+        self.add_recent(project.path)
+        return True
+
+    def save_project(self) -> bool:
+        if not self.model.path:
+            return self.save_project_as()
+        return self._save_to(self.model.path)
+
+    def save_project_as(self) -> bool:
+        suggested = self.model.path or str(Path(self._last_folder()) / "project.spherokin.json")
+        path, _ = QFileDialog.getSaveFileName(self, "Save project as", suggested, PROJECT_FILTER)
+        if not path:
+            return False
+        if not path.endswith(".spherokin.json"):
+            path = str(Path(path).with_suffix("")) + ".spherokin.json"
+        return self._save_to(path)
+
+    def _save_to(self, path: str) -> bool:
+        old_side = self.autosaver.side_path()
+        try:
+            saved = self.model.save(path)
+        except Exception as exc:  # the project stays in memory, still marked unsaved
+            self.show_problem("Could not save", f"{path}: {exc}")
+            return False
+        old_side.unlink(missing_ok=True)
+        self.add_recent(saved)
+        self.statusBar().showMessage(f"Saved {saved}", 4000)
+        return True
+
+    def confirm_discard_or_save(self) -> bool:
+        """True when it is fine to drop the current project (saved, discarded)."""
+        if not self.model.is_dirty():
+            return True
+        answer = self.ask_unsaved_changes()
+        if answer == "save":
+            return self.save_project()
+        return answer == "discard"
+
+    def ask_unsaved_changes(self) -> str:
+        """'save', 'discard' or 'cancel' (a dialog; tests replace this method)."""
+        box = QMessageBox(QMessageBox.Question, "Unsaved changes",
+                          "The project has unsaved changes. Save them?",
+                          QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel, self)
+        box.setDefaultButton(QMessageBox.Save)
+        choice = box.exec()
+        return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(choice, "cancel")
+
+    # ---------------------------------------------------------------- recent files
+    def recent_projects(self) -> list[str]:
+        value = self.settings.value("recent_projects", [])
+        if isinstance(value, str):
+            value = [value]
+        return [str(v) for v in (value or [])]
+
+    def add_recent(self, path: str | None) -> None:
+        if not path:
+            return
+        recent = [path] + [p for p in self.recent_projects() if p != path]
+        self.settings.setValue("recent_projects", recent[:MAX_RECENT])
+        self.settings.setValue("last_folder", str(Path(path).parent))
+        self.build_recent_menu()
+
+    def build_recent_menu(self) -> None:
+        if not hasattr(self, "_recent_menu"):
+            self._recent_menu = self.menus["File"].addMenu("Open &recent")
+            self.menus["File"].insertMenu(self.actions_by_id["save"], self._recent_menu)
+        self._recent_menu.clear()
+        for path in self.recent_projects():
+            action = self._recent_menu.addAction(path)
+            action.triggered.connect(lambda _c=False, p=path: self.open_project_path(p))
+        self._recent_menu.setEnabled(bool(self.recent_projects()))
+
+    def _last_folder(self) -> str:
+        return str(self.settings.value("last_folder", str(Path.home())))
+
+    # ---------------------------------------------------------------- stacks
+    def add_stacks_dialog(self) -> None:
+        paths, _ = QFileDialog.getOpenFileNames(self, "Add stacks", self._last_folder(), STACK_FILTER)
+        self.add_stack_paths(paths)
+
+    def add_folder_dialog(self) -> None:
+        path = QFileDialog.getExistingDirectory(self, "Add a folder of frames", self._last_folder())
+        if path:
+            self.add_stack_paths([path])
+
+    def add_stack_paths(self, paths) -> int:
+        """Add one experiment per usable path (one undo entry); returns how many."""
+        experiments, problems = experiments_from_paths(paths)
+        if experiments:
+            self.model.add_experiments(experiments, f"Add {len(experiments)} stack(s)")
+            self.model.select(self.model.experiment_count() - 1)
+        if problems:
+            self.show_problem("Some files could not be added", "\n".join(problems))
+        return len(experiments)
+
+    def dragEnterEvent(self, event) -> None:
+        if any(url.isLocalFile() for url in event.mimeData().urls()):
+            event.acceptProposedAction()
+
+    def dropEvent(self, event) -> None:
+        paths = [url.toLocalFile() for url in event.mimeData().urls() if url.isLocalFile()]
+        projects = [p for p in paths if p.endswith(".spherokin.json")]
+        if projects:
+            self.open_project_path(projects[0])
+        else:
+            self.add_stack_paths([p for p in paths if is_stack_path(p)] or paths)
+        event.acceptProposedAction()
+
+    def remove_experiment(self) -> None:
+        if self.model.current_index >= 0:
+            self.model.remove_experiment(self.model.current_index)
+
+    # ---------------------------------------------------------------- properties, calibration
+    def edit_properties(self) -> None:
+        self.edit_properties_of(self.model.current_index)
+
+    def edit_properties_of(self, index: int) -> None:
+        if index < 0:
+            return
+        experiment = self.model.experiment(index)
+        try:
+            note = stack_note(self.model.frame_stack(index))
+        except Exception as exc:
+            note = f"The stack cannot be read: {exc}"
+        dialog = PropertiesDialog(experiment, note, self)
+        if dialog.exec():
+            changes = dialog.changes()
+            if changes:
+                self.model.set_experiment_properties(
+                    index, f"Edit properties of {experiment.name}", **changes)
+
+    def calibrate(self) -> None:
+        """Measure the scale on the current frame or on a stage-micrometer image file."""
+        index = self.model.current_index
+        if index < 0:
+            return
+        source = self.ask_calibration_source()
+        if source is None:
+            return
+        path = ""
+        if source == "file":
+            path, _ = QFileDialog.getOpenFileName(self, "Stage micrometer image",
+                                                  self._last_folder(), STACK_FILTER)
+            if not path:
+                return
+        try:
+            image = self._calibration_image(path, index)
+        except Exception as exc:
+            self.show_problem("Cannot read the image", str(exc))
+            return
+        dialog = CalibrationDialog(image, Path(path).name if path else "current frame",
+                                   self.model.experiment_count() > 1, self)
+        if dialog.exec() and dialog.um_per_px is not None:
+            self.apply_calibration(dialog.um_per_px, dialog.apply_all.isChecked())
+
+    def ask_calibration_source(self) -> str | None:
+        """'file' (a micrometer image), 'frame' (the frame on screen) or None (cancel)."""
+        box = QMessageBox(QMessageBox.Question, "Calibrate the scale",
+                          "Measure on an image of a stage micrometer, or on the frame shown "
+                          "(if it contains a feature of known size)?", QMessageBox.Cancel, self)
+        from_file = box.addButton("Micrometer image…", QMessageBox.AcceptRole)
+        from_frame = box.addButton("Frame shown", QMessageBox.AcceptRole)
+        box.exec()
+        return {from_file: "file", from_frame: "frame"}.get(box.clickedButton())
+
+    def _calibration_image(self, path: str, index: int):
+        if path:
+            from analysis.stack.frames import open_stack
+
+            return open_stack(path)[0]
+        return self.model.frame_stack(index)[self.viewer.frame]
+
+    def apply_calibration(self, um_per_px: float, to_all: bool) -> None:
+        """Set µm/px on the current (or every) experiment as ONE undo entry."""
+        stack = self.model.undo_stack
+        targets = range(self.model.experiment_count()) if to_all else [self.model.current_index]
+        stack.beginMacro(f"Calibrate {um_per_px:.4g} µm/px")
+        for index in targets:
+            self.model.set_experiment_properties(index, um_per_px=um_per_px)
+        stack.endMacro()
+
+    # ---------------------------------------------------------------- crash recovery
+    def offer_recovery(self) -> bool:
+        """After a crash, offer to recover autosaved work; True if something was recovered."""
+        found = find_recoverable(self.autosaver.recovery_dir, self.recent_projects())
+        for item in found:
+            if self.ask_recover(item) and self.recover(item):
+                return True
+            item.autosave_path.unlink(missing_ok=True)
+        return False
+
+    def ask_recover(self, item) -> bool:
+        """Whether to recover ``item`` (a dialog; tests replace this method)."""
+        answer = QMessageBox.question(
+            self, "Recover unsaved work?",
+            f"spherokin did not close normally. Recover the unsaved work in "
+            f"{item.describe()}?\n\n(No deletes the autosave.)",
+            QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
+        return answer == QMessageBox.Yes
+
+    def recover(self, item) -> bool:
+        try:
+            project = load_recovered(item)
+        except Exception as exc:
+            self.show_problem("Cannot recover", str(exc))
+            return False
+        self.model.replace_project(project, recovered=True)
+        self.autosaver.autosave()  # the recovered work is protected again at once
+        if item.autosave_path != self.autosaver.side_path():
+            item.autosave_path.unlink(missing_ok=True)
+        return True
