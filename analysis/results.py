@@ -36,6 +36,7 @@ class Spherulite:
     n_points: int
     status: str
     source: str = "auto"
+    growth_rate_se_um_per_min: float | None = None  # standard error of the cone fit's G
 
     def radius_um_at(self, time_s: float) -> float | None:
         """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
@@ -61,10 +62,15 @@ class RadiusSeries:
 
 @dataclass(frozen=True)
 class PooledGrowthRate:
+    """Pooled G (µm/min) and its 95 % interval: the between-spherulite scatter (random
+    effects) and the recording's shared timing uncertainty ``systematic_rel`` (relative
+    standard uncertainty) combined in quadrature."""
+
     value: float | None
     ci95_low: float | None
     ci95_high: float | None
     n: int
+    systematic_rel: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -80,6 +86,18 @@ class Nucleation:
     # Nuclei of the initial burst per mm^2 (the predetermined part; for "mixed" this is
     # the athermal density, smaller than density_per_mm2 which counts every nucleus).
     burst_density_per_mm2: float | None = None
+    # 95 % intervals (Garwood exact Poisson intervals on the counts, docs/sources.md
+    # "Uncertainty"); None where the value is unknown.
+    density_per_mm2_ci95: tuple[float, float] | None = None
+    density_per_mm3_ci95: tuple[float, float] | None = None
+    rate_per_mm2_per_min_ci95: tuple[float, float] | None = None
+    rate_per_mm3_per_min_ci95: tuple[float, float] | None = None
+    # What the resampling of the prediction needs: the nucleation times (s) of the counted
+    # nuclei, the field area (mm^2) and the melt exposure after the burst (mm^2 s).
+    nucleation_times_s: tuple[float, ...] = ()
+    field_area_mm2: float | None = None
+    late_count: int = 0
+    late_exposure_mm2_s: float | None = None
 
 
 @dataclass(frozen=True)

@@ -171,8 +171,16 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         growth_rate_um_per_min=g,
         growth_rate_ci95_um_per_min=growth.growth_rate_um_per_min(ci, ctx.um_per_px),
         r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
-        n_points=int(fit.n_levels), status=status, source=det.source)
+        n_points=int(fit.n_levels), status=status, source=det.source,
+        growth_rate_se_um_per_min=_growth_se(fit, ctx.um_per_px))
     return sph, series, fit
+
+
+def _growth_se(fit, um_per_px) -> float | None:
+    """Standard error of G from the fit's slope (delta method, G = 1/slope), µm/min."""
+    if not fit.ok or fit.dof < 1 or not np.isfinite(fit.se_slope_s_per_px):
+        return None
+    return growth.growth_rate_um_per_min(fit.se_slope_s_per_px / fit.slope_s_per_px ** 2, um_per_px)
 
 
 # ---------------------------------------------------------------- whole result
@@ -232,7 +240,7 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
         spherulites.append(sph)
         radii.append(series)
         fits.append(fit)
-    pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
+    pooled, pooled_text = _pooled(ctx, spherulites, fits, radii)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
     film = film_avrami(time_s, fraction, nucleation.induction_time_s)
@@ -250,18 +258,25 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
     return result, dict(zip([s.id for s in spherulites], fits)), groups
 
 
-def _pooled(spherulites, fits, um_per_px) -> tuple[PooledGrowthRate, str]:
-    g, se = [], []
-    for s, f in zip(spherulites, fits):
+def _pooled(ctx, spherulites, fits, radii) -> tuple[PooledGrowthRate, str]:
+    g, se, spans = [], [], []
+    for s, f, series in zip(spherulites, fits, radii):
         if s.status == "ok" and f.ok and f.dof >= 1:
             g.append(s.growth_rate_um_per_min)
-            se_slope = f.se_slope_s_per_px / f.slope_s_per_px ** 2
-            se.append(growth.growth_rate_um_per_min(se_slope, um_per_px))
-    pooled = growth.pooled_rate(g, se)
+            se.append(s.growth_rate_se_um_per_min)
+            used = series.time_s[series.used]
+            spans.append(float(np.ptp(used)) if used.size else 0.0)
+    systematic = 0.0
+    if g:
+        g_px_per_s = float(np.median(g)) / 60.0 / ctx.um_per_px
+        systematic = growth.timing_systematic(ctx.times_s, float(np.median(spans)), g_px_per_s,
+                                              ctx.registered_drift_px).total
+    pooled = growth.pooled_rate(g, se, systematic)
     if pooled.value is None:
         return PooledGrowthRate(None, None, None, 0), pooled.description
     return PooledGrowthRate(pooled.value, pooled.value - pooled.ci95_half_width,
-                            pooled.value + pooled.ci95_half_width, pooled.n), pooled.description
+                            pooled.value + pooled.ci95_half_width, pooled.n,
+                            pooled.systematic_rel), pooled.description
 
 
 def _area_fraction(ctx, global_spans):

@@ -330,16 +330,74 @@ class PooledRate:
     n: int
     tau2: float | None
     description: str
+    statistical_half_width: float | None = None  # the random-effects part alone
+    systematic_rel: float = 0.0  # relative standard uncertainty common to all spherulites
 
 
-def pooled_rate(values, standard_errors) -> PooledRate:
+#: Residual error of the sub-frame interpolation of arrival times, as a fraction of one
+#: frame interval, shared by all spherulites of a recording (set from the validation on
+#: simulated recordings, tests/benchmarks/coverage.py; see README "Uncertainty").
+INTERPOLATION_FRACTION = 0.02
+#: Residual error of the drift registration, px (common practice: sub-pixel phase
+#: correlation on textured frames).
+REGISTRATION_PX = 0.02
+
+
+@dataclass(frozen=True)
+class TimingSystematic:
+    """Relative standard uncertainties of G that every spherulite of a recording shares.
+
+    A timing error common to the whole recording moves every cone fit the same way, so
+    it does not show in the between-spherulite scatter and must be added (JCGM 100:2008,
+    GUM 5.1.2: independent components in quadrature).
+    """
+
+    frame_timing: float
+    interpolation: float
+    registration: float
+
+    @property
+    def total(self) -> float:
+        return math.sqrt(self.frame_timing ** 2 + self.interpolation ** 2 + self.registration ** 2)
+
+
+def timing_systematic(times_s, growth_span_s: float, growth_px_per_s: float | None,
+                      registered_drift_px: float) -> TimingSystematic:
+    """The three shared timing components of the relative uncertainty of G.
+
+    ``growth_span_s`` is the typical time over which a spherulite's growth is measured
+    (median over the fitted spherulites); a time error dt that differs between the
+    start and the end of that span changes G by dt / span.
+
+    * frame timing: irregularity of the frame times (standard deviation of the frame
+      intervals; 0 for a regular clock), acting at both ends of the span;
+    * sub-frame interpolation: :data:`INTERPOLATION_FRACTION` of a frame interval;
+    * drift registration: :data:`REGISTRATION_PX` of position error over the span, when
+      the registration found drift at all (more than 0.05 px).
+    """
+    t = np.asarray(times_s, dtype=float)
+    steps = np.diff(t)
+    span = max(float(growth_span_s), float(np.median(steps)) if steps.size else 1.0, 1e-9)
+    interval = float(np.median(steps)) if steps.size else 0.0
+    jitter = float(np.std(steps)) if steps.size > 2 else 0.0
+    frame = math.sqrt(2.0) * jitter / span
+    interp = INTERPOLATION_FRACTION * interval / span
+    reg = 0.0
+    if registered_drift_px > 0.05 and growth_px_per_s and growth_px_per_s > 0:
+        reg = REGISTRATION_PX / (growth_px_per_s * span)
+    return TimingSystematic(frame, interp, reg)
+
+
+def pooled_rate(values, standard_errors, systematic_rel: float = 0.0) -> PooledRate:
     """Inverse-variance weighted mean of per-spherulite rates, random effects if needed.
 
     DerSimonian & Laird 1986 (Controlled Clinical Trials 7, 177): the between-spherulite
     variance tau^2 = max(0, (Q - (k - 1)) / (S1 - S2 / S1)), with Q the weighted sum of
     squared deviations and S1, S2 the sums of the weights and squared weights; weights
     become 1 / (se_i^2 + tau^2). The 95 % interval uses the t-quantile with k - 1 degrees
-    of freedom (wider than the normal one for few spherulites).
+    of freedom (wider than the normal one for few spherulites). ``systematic_rel``, a
+    relative standard uncertainty shared by all spherulites (:func:`timing_systematic`),
+    is added in quadrature as 1.96 * systematic_rel * mean.
     """
     g = np.asarray(values, dtype=float)
     se = np.asarray(standard_errors, dtype=float)
@@ -351,14 +409,20 @@ def pooled_rate(values, standard_errors) -> PooledRate:
     w = 1.0 / se ** 2
     mean = float(np.sum(w * g) / np.sum(w))
     if k == 1:
-        return PooledRate(mean, float(1.96 * se[0]), 1, None, "single spherulite")
-    q = float(np.sum(w * (g - mean) ** 2))
-    tau2 = max(0.0, (q - (k - 1)) / (np.sum(w) - np.sum(w ** 2) / np.sum(w)))
-    w_star = 1.0 / (se ** 2 + tau2)
-    mean = float(np.sum(w_star * g) / np.sum(w_star))
-    half = float(stats.t.ppf(0.975, k - 1) / math.sqrt(np.sum(w_star)))
-    kind = "random-effects (DerSimonian-Laird)" if tau2 > 0 else "fixed-effect"
-    return PooledRate(mean, half, k, tau2, f"{kind} inverse-variance mean of {k}, Q = {q:.3g}")
+        half, tau2, q, kind = float(1.96 * se[0]), None, 0.0, "single spherulite"
+    else:
+        q = float(np.sum(w * (g - mean) ** 2))
+        tau2 = max(0.0, (q - (k - 1)) / (np.sum(w) - np.sum(w ** 2) / np.sum(w)))
+        w_star = 1.0 / (se ** 2 + tau2)
+        mean = float(np.sum(w_star * g) / np.sum(w_star))
+        half = float(stats.t.ppf(0.975, k - 1) / math.sqrt(np.sum(w_star)))
+        kind = "random-effects (DerSimonian-Laird)" if tau2 > 0 else "fixed-effect"
+    systematic = 1.96 * systematic_rel * abs(mean)
+    total = math.sqrt(half ** 2 + systematic ** 2)
+    text = (f"{kind} inverse-variance mean of {k}, Q = {q:.3g}" if k > 1 else kind)
+    if systematic_rel > 0:
+        text += f"; shared timing uncertainty {100 * systematic_rel:.2g} % added in quadrature"
+    return PooledRate(mean, total, k, tau2, text, half, float(systematic_rel))
 
 
 def soft_l1_cost(resid: np.ndarray, f_scale_s: float) -> float:

@@ -7,11 +7,13 @@ mm^2; densities per mm^2 (areal, N_A) and per mm^3 (volumetric, N_V = N_A / h).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 from scipy import stats
 
 from analysis.errors import InputError
+from analysis.intervals import rate_estimate
 from analysis.results import AvramiParameters, Nucleation
 
 
@@ -60,10 +62,22 @@ def _poisson_tail(observed: int, expected: float) -> float:
     return 1.0 if observed <= 0 else float(stats.poisson.sf(observed - 1, max(expected, 0.0)))
 
 
+class ModeTest(NamedTuple):
+    """Outcome of :func:`classify_mode`: the rate is ``rate_count / rate_exposure_mm2_s``."""
+
+    mode: str
+    rate_per_mm2_per_s: float | None
+    n_burst: int
+    text: str
+    rate_count: int = 0
+    rate_exposure_mm2_s: float | None = None
+
+
 def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: float,
-                  end_s: float, alpha: float = 0.001) -> tuple[str, float | None, int, str]:
-    """Nucleation mode from the nucleation times; returns (mode, rate per mm^2 per s,
-    number of nuclei in the initial burst, the criterion and its outcome in words).
+                  end_s: float, alpha: float = 0.001) -> ModeTest:
+    """Nucleation mode from the nucleation times: mode, rate per mm^2 per s (the count of
+    births it rests on over their melt exposure), number of nuclei in the initial burst,
+    the criterion and its outcome in words.
 
     Criterion. The initial burst is the densest group of births within
     ``burst_window_s`` among windows opening at one of the earliest quarter (at least
@@ -90,10 +104,10 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     head = (f"{n} nuclei; {n_burst} up to {burst_window_s:.3g} s after the start of the densest "
             f"burst, {late.size} later")
     if late.size <= allowed:
-        return "athermal", None, n_burst, f"{head} (at most {allowed} allowed): athermal"
+        return ModeTest("athermal", None, n_burst, f"{head} (at most {allowed} allowed): athermal")
     melt_late = exposure.between(burst_end, end_s)
     if melt_late <= 0:
-        return "athermal", None, n_burst, f"{head}; no melt left after the burst: athermal"
+        return ModeTest("athermal", None, n_burst, f"{head}; no melt left after the burst: athermal")
     rate = late.size / melt_late
     expected = rate * exposure.between(float(t[0]), burst_end)
     p_burst = _poisson_tail(n_burst - 1, expected)
@@ -103,9 +117,11 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
     text = (f"{head}; later births give {rate * 60:.4g} per mm^2 per min of melt; the burst "
             f"exceeds that rate with Poisson p = {p_burst:.3g} ({mode} at p < {alpha}); "
             f"constant-rate KS p = {p_ks:.3g}")
+    count, melt = late.size, melt_late
     if mode == "thermal":
-        rate = (n - 1) / max(exposure.between(float(t[0]), end_s), 1e-300)
-    return mode, rate, n_burst, text
+        count, melt = n - 1, max(exposure.between(float(t[0]), end_s), 1e-300)
+        rate = count / melt
+    return ModeTest(mode, rate, n_burst, text, int(count), float(melt))
 
 
 def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float,
@@ -125,21 +141,39 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
     t = t[np.isfinite(t)]
     h_mm = thickness_um * 1e-3 if thickness_um else None
     if t.size == 0:
+        none_seen = rate_estimate(0, field_area_mm2)
+        ci = (none_seen.low, none_seen.high)
         return Nucleation(0, None, 0.0, 0.0 if h_mm else None, None, None, None,
-                          "no nuclei inside the field"), None
+                          "no nuclei inside the field", density_per_mm2_ci95=ci,
+                          density_per_mm3_ci95=(0.0, ci[1] / h_mm) if h_mm else None,
+                          field_area_mm2=float(field_area_mm2)), None
     se = np.asarray(t0_se_s if t0_se_s is not None else [], dtype=float)
     se = se[np.isfinite(se)]
     window = 2.0 * interval_s + (2.0 * float(np.median(se)) if se.size else 0.0)
-    mode, rate_s, n_burst, text = classify_mode(t, exposure, burst_window_s=window, end_s=end_s)
+    test = classify_mode(t, exposure, burst_window_s=window, end_s=end_s)
+    mode, rate_s, n_burst = test.mode, test.rate_per_mm2_per_s, test.n_burst
+    density = rate_estimate(int(t.size), field_area_mm2)
+    rate = (rate_estimate(test.rate_count, test.rate_exposure_mm2_s / 60.0)
+            if rate_s is not None else None)
     n_a = t.size / field_area_mm2
     rate_min = None if rate_s is None else rate_s * 60.0
+
+    def per_volume(pair):
+        return None if pair is None or h_mm is None else (pair[0] / h_mm, pair[1] / h_mm)
+
+    density_ci = (density.low, density.high)
+    rate_ci = None if rate is None else (rate.low, rate.high)
     nucleation = Nucleation(
         count=int(t.size), mode=mode, density_per_mm2=n_a,
         density_per_mm3=None if h_mm is None else n_a / h_mm,
         rate_per_mm2_per_min=rate_min,
         rate_per_mm3_per_min=None if (rate_min is None or h_mm is None) else rate_min / h_mm,
-        induction_time_s=max(0.0, float(t.min())), mode_test=text,
-        burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2)
+        induction_time_s=max(0.0, float(t.min())), mode_test=test.text,
+        burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2,
+        density_per_mm2_ci95=density_ci, density_per_mm3_ci95=per_volume(density_ci),
+        rate_per_mm2_per_min_ci95=rate_ci, rate_per_mm3_per_min_ci95=per_volume(rate_ci),
+        nucleation_times_s=tuple(float(v) for v in t), field_area_mm2=float(field_area_mm2),
+        late_count=test.rate_count, late_exposure_mm2_s=test.rate_exposure_mm2_s)
     return nucleation, nucleation.burst_density_per_mm2
 
 

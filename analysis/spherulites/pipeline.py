@@ -170,7 +170,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    filled=filled,
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
-                   slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start))
+                   slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start),
+                   registered_drift_px=_largest_shift_px(arrival))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
     for _ in range(4):  # further rounds separate clusters of three or four
@@ -184,6 +185,13 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
+
+
+def _largest_shift_px(arrival) -> float:
+    shifts = np.asarray(getattr(arrival, "shifts_px", np.zeros((0, 2))), dtype=float)
+    if shifts.size == 0:
+        return 0.0
+    return float(np.max(np.hypot(*(shifts - shifts[0]).T)))
 
 
 def _automatic_evaluation(ctx: Context, settings):

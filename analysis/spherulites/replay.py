@@ -45,6 +45,7 @@ class Context:
     base_territories: np.ndarray
     auto_lookup_xy: np.ndarray
     slope_s_per_px: float
+    registered_drift_px: float = 0.0  # largest drift the registration removed, px
     cache: dict = field(default_factory=dict, compare=False, repr=False)
 
 
