@@ -52,13 +52,15 @@ from __future__ import annotations
 import csv
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
+from analysis.intervals import DEFAULT_SEED
+from analysis.kinetics.calorimetry_intervals import calorimetry_intervals
 from analysis.kinetics.avrami import (
     AvramiFit,
     FitFailure,
@@ -107,11 +109,25 @@ class CalorimetryResult:
     t_half_measured_min: float | None
     material: str | None = None
     warnings: tuple[str, ...] = field(default=())
+    # calorimetry_intervals.CalorimetryIntervals of the window fit, or None (not computed)
+    intervals: object | None = None
 
     def conversion_table(self) -> tuple[np.ndarray, np.ndarray]:
         """(time_min, X) between the baseline start and end, X clipped to [0, 1]."""
         sel = (self.time_min >= self.baseline_start_min) & (self.time_min <= self.baseline_end_min)
         return self.time_min[sel], np.clip(self.relative_crystallinity[sel], 0.0, 1.0)
+
+    def _interval_keys(self) -> dict:
+        """``<name>_ci95_low`` / ``<name>_ci95_high`` of n, k and t_half (null: unknown)."""
+        ci = self.intervals
+        out = {}
+        for name in ("n", "k_per_min_n", "t_half_min"):
+            part = getattr(ci, name, None)
+            out[f"{name}_ci95_low"] = None if part is None else part.low
+            out[f"{name}_ci95_high"] = None if part is None else part.high
+        if ci is not None:
+            out["interval_seed"] = ci.seed
+        return out
 
     def to_json_dict(self) -> dict:
         """The ``calorimetry.json`` document (docs/design.md)."""
@@ -121,7 +137,8 @@ class CalorimetryResult:
             "enthalpy_j_per_g": self.enthalpy_j_per_g, "crystallinity": self.crystallinity,
             "window": list(self.window),
             "avrami": {"n": fit.n if fit else None, "k_per_min_n": fit.k_per_min_n if fit else None,
-                       "t_half_min": fit.t_half_min if fit else None, "r2": fit.r2 if fit else None},
+                       "t_half_min": fit.t_half_min if fit else None, "r2": fit.r2 if fit else None,
+                       **self._interval_keys()},
             "t_half_measured_min": self.t_half_measured_min,
         }
 
@@ -375,22 +392,33 @@ def parse_window(window, path=None) -> tuple[float, float]:
 
 
 def analyze_calorimetry_file(path, *, time_col=None, heat_flow_col=None, time_unit=None,
-                             heat_flow_unit=None, **options) -> CalorimetryResult:
-    """``read_isotherm`` then ``analyze_isotherm`` (options as there)."""
+                             heat_flow_unit=None, intervals: bool = True, seed: int | None = None,
+                             **options) -> CalorimetryResult:
+    """``read_isotherm`` then ``analyze_isotherm`` (options as there); with ``intervals``
+    also the 95 % intervals of n, k and t_half (``result.intervals``, see
+    :mod:`analysis.kinetics.calorimetry_intervals`; ``seed`` None: the default seed)."""
     iso = read_isotherm(path, time_col=time_col, heat_flow_col=heat_flow_col,
                         time_unit=time_unit, heat_flow_unit=heat_flow_unit)
-    return analyze_isotherm(iso, **options)
+    result = analyze_isotherm(iso, **options)
+    if not intervals:
+        return result
+    seed = DEFAULT_SEED if seed is None else seed
+    found = calorimetry_intervals(iso, result, options, analyze_isotherm=analyze_isotherm,
+                                  noise_sigma=_noise_sigma(np.asarray(iso.heat_flow, dtype=float)),
+                                  seed=seed)
+    return replace(result, intervals=found)
 
 
-def analyze_source(source) -> CalorimetryResult:
-    """Analyse a ``project.CalorimetrySource`` (column mapping, units, window, baseline)."""
+def analyze_source(source, *, seed: int | None = None) -> CalorimetryResult:
+    """Analyse a ``project.CalorimetrySource`` (column mapping, units, window, baseline),
+    with the intervals of n, k and t_half."""
     return analyze_calorimetry_file(
         source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
         time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit,
         exotherm=source.exotherm or "auto", window=source.window or (0.03, 0.20),
         mass_mg=source.mass_mg, material=source.material,
         baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min,
-        lag_s=getattr(source, "lag_s", None) or 0.0)
+        lag_s=getattr(source, "lag_s", None) or 0.0, seed=seed)
 
 
 # ---------------------------------------------------------------- output and CLI

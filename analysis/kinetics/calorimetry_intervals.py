@@ -48,12 +48,12 @@ def _fit_values(result) -> tuple[float, float, float] | None:
     return (fit.n, fit.k_per_min_n, fit.t_half_min) if fit else None
 
 
-def calorimetry_intervals(isotherm, result, options: dict, *, seed: int = DEFAULT_SEED,
+def calorimetry_intervals(isotherm, result, options: dict, *, analyze_isotherm, noise_sigma: float,
+                          seed: int = DEFAULT_SEED,
                           noise_draws: int = NOISE_DRAWS) -> CalorimetryIntervals | None:
     """Intervals for ``result`` = ``analyze_isotherm(isotherm, **options)``; None without
-    a window fit. Variants that cannot be analysed are left out of the envelope."""
-    from analysis.kinetics.calorimetry import _noise_sigma, analyze_isotherm
-
+    a window fit. ``noise_sigma``: the record's white-noise level (heat-flow unit).
+    Variants that cannot be analysed are left out of the envelope."""
     central = _fit_values(result)
     if central is None:
         return None
@@ -68,7 +68,7 @@ def calorimetry_intervals(isotherm, result, options: dict, *, seed: int = DEFAUL
                 continue
     values = np.array([v for v in values if v is not None], dtype=float)
     rng = np.random.default_rng(seed)
-    sigma = _noise_sigma(np.asarray(isotherm.heat_flow, dtype=float))
+    sigma = noise_sigma
     noisy = []
     for _ in range(noise_draws):
         flow = isotherm.heat_flow + sigma * rng.standard_normal(isotherm.heat_flow.size)

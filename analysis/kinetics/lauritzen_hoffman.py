@@ -328,8 +328,26 @@ def fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants
         product, sigma, sigma_e, material, tuple(warnings))
 
 
-def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
-    """``secondary_nucleation.json`` (docs/design.md). Top-level Kg/G0: one line over all points."""
+def _interval_keys(intervals) -> dict:
+    """``<name>_ci95_low``/``_high`` siblings from an ``lh_intervals.LHIntervals`` (or {})."""
+    if intervals is None:
+        return {}
+    out = {}
+    for name, key in (("kg_k2", "kg_k2"), ("g0_um_per_min", "g0_um_per_min"),
+                      ("sigma_sigma_e_j2_per_m4", "sigma_sigma_e_j2_per_m4"),
+                      ("sigma_e_j_m2", "sigma_e_j_m2"), ("break_c", "regime_break_c")):
+        part = getattr(intervals, name)
+        out[f"{key}_ci95_low"], out[f"{key}_ci95_high"] = part.low, part.high
+    out.update({"regime_break_c": intervals.break_c.value,
+                "regime_break_fraction_of_resamples": intervals.break_fraction,
+                "stage_uncertainty_k": intervals.stage_uncertainty_k,
+                "resampling": {"seed": intervals.seed, "resamples": intervals.resamples}})
+    return out
+
+
+def secondary_nucleation_dict(analysis: LHAnalysis, intervals=None) -> dict:
+    """``secondary_nucleation.json`` (docs/design.md). Top-level Kg/G0: one line over all
+    points; with ``intervals`` (``lh_intervals.LHIntervals``) their 95 % intervals."""
     c = analysis.constants
     return {
         "schema": 1, "u_star_j_per_mol": c.u_star_j_per_mol, "t_inf_c": c.t_inf,
@@ -340,6 +358,8 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
                     for r in analysis.regimes],
         "regime_ratio": analysis.regime_ratio,
         "sigma_sigma_e_j2_per_m4": analysis.sigma_sigma_e_j2_per_m4,
+        "sigma_e_j_m2": analysis.sigma_e_j_m2,
+        **_interval_keys(intervals),
     }
 
 
@@ -354,11 +374,11 @@ def _json_safe(value):
     return value
 
 
-def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
+def write_secondary_nucleation(analysis: LHAnalysis, out_dir, intervals=None) -> Path:
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     path = out / "secondary_nucleation.json"
-    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2,
+    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis, intervals)), indent=2,
                                allow_nan=False) + "\n", encoding="utf-8")
     return path
 

@@ -121,7 +121,7 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
         return None
     inputs = _inputs(result, geometry, model.mode)
     if inputs.g.size == 0 or inputs.area_mm2 <= 0:
-        return None
+        return _delta_method(result, model, seed)
     rng = np.random.default_rng(seed)
     draws = np.full((resamples, 3), np.nan)
     for i in range(resamples):
@@ -135,6 +135,25 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
         parts[0] = Estimate(model.n, model.n, model.n)
     return PredictionIntervals(geometry, model.mode, *parts, seed=seed, resamples=resamples,
                                t_half_draws_min=draws[:, 2])
+
+
+def _delta_method(result: ExperimentResult, model, seed: int) -> PredictionIntervals:
+    """Without per-spherulite fits (a result read back from a table): first-order
+    propagation, sigma(ln t_half) = sqrt(1/N + (d u_G)^2) / n with the Poisson count N
+    and the relative standard uncertainty u_G of the pooled G (JCGM 100:2008, 5.1.6)."""
+    g = result.growth_rate
+    rel_g = 0.0
+    if g.value and g.ci95_low is not None and g.ci95_high is not None:
+        rel_g = (g.ci95_high - g.ci95_low) / (2 * 1.96 * g.value)
+    count = max(1, result.nucleation.count)
+    d, n = model.dimension, model.n
+    sigma_t = math.sqrt(1.0 / count + (d * rel_g) ** 2) / n
+    t_half, k = model.t_half_min, model.k_per_min_n
+    spread = math.exp(1.96 * sigma_t)
+    return PredictionIntervals(model.geometry, model.mode, Estimate(n, n, n),
+                               Estimate(k, k / spread ** n, k * spread ** n),
+                               Estimate(t_half, t_half / spread, t_half * spread), seed, 0,
+                               np.zeros(0))
 
 
 def ratio_interval(numerator: Estimate, denominator: Estimate) -> Estimate:

@@ -80,6 +80,42 @@ class Experiment:
     calorimetry: CalorimetrySource | None = None
     geometry: str = "bulk-3d"
     mode_override: str | None = None
+    stage_uncertainty_k: float | None = None  # None: the project's value
+
+
+#: Series key of the stage-temperature uncertainty, K (standard uncertainty of Tc).
+STAGE_UNCERTAINTY_KEY = "stage_uncertainty_k"
+#: Default stage-temperature uncertainty, K (common practice for a calibrated hot stage).
+DEFAULT_STAGE_UNCERTAINTY_K = 0.5
+#: Series key of the seed every resampling of the report uses.
+RESAMPLING_SEED_KEY = "resampling_seed"
+MAX_STAGE_UNCERTAINTY_K = 20.0
+
+
+def check_stage_uncertainty(value, what: str, path=None) -> float:
+    """A stage-temperature uncertainty in K: a number in [0, 20]; InputError otherwise."""
+    number = _number(value, what, path)
+    if number is None or not 0.0 <= number <= MAX_STAGE_UNCERTAINTY_K:
+        raise InputError(f"{what} must be between 0 and {MAX_STAGE_UNCERTAINTY_K:g} K, "
+                         f"got {value!r}", path)
+    return number
+
+
+def stage_uncertainty_k(project: "Project", experiment: Experiment | None = None) -> float:
+    """The stage-temperature uncertainty (K) for an experiment: its own override, else
+    the project's, else :data:`DEFAULT_STAGE_UNCERTAINTY_K`."""
+    if experiment is not None and experiment.stage_uncertainty_k is not None:
+        return float(experiment.stage_uncertainty_k)
+    value = (project.series or {}).get(STAGE_UNCERTAINTY_KEY)
+    return DEFAULT_STAGE_UNCERTAINTY_K if value is None else float(value)
+
+
+def resampling_seed(project: "Project") -> int:
+    """The seed of the report's resampling (stored in the project's series settings)."""
+    from analysis.intervals import DEFAULT_SEED
+
+    value = (project.series or {}).get(RESAMPLING_SEED_KEY)
+    return DEFAULT_SEED if value is None else int(value)
 
 
 @dataclass(frozen=True)
@@ -151,10 +187,20 @@ def project_from_dict(document: Any, path) -> Project:
     base = path.resolve().parent
     try:
         experiments = tuple(_experiment_from_dict(e, base, path) for e in document.get("experiments", []))
+        series = dict(document.get("series") or {})
+        if series.get(STAGE_UNCERTAINTY_KEY) is not None:
+            series[STAGE_UNCERTAINTY_KEY] = check_stage_uncertainty(
+                series[STAGE_UNCERTAINTY_KEY], "series stage_uncertainty_k", path)
+        if series.get(RESAMPLING_SEED_KEY) is not None:
+            seed = _number(series[RESAMPLING_SEED_KEY], "series resampling_seed", path)
+            if seed is None or seed < 0 or seed != int(seed):
+                raise InputError(f"series resampling_seed must be a whole number >= 0, got "
+                                 f"{series[RESAMPLING_SEED_KEY]!r}", path)
+            series[RESAMPLING_SEED_KEY] = int(seed)
         return Project(
             experiments=experiments,
             material=document.get("material"),
-            series=dict(document.get("series") or {}),
+            series=series,
             app_version=str(document.get("app_version", "")),
             created=str(document.get("created", "")),
             modified=str(document.get("modified", "")),
@@ -219,6 +265,8 @@ def _experiment_from_dict(d: dict, base: Path, path) -> Experiment:
         calorimetry=_calorimetry_from_dict(d.get("calorimetry"), base, path),
         geometry=str(d.get("geometry", "bulk-3d")),
         mode_override=d.get("mode_override"),
+        stage_uncertainty_k=None if d.get("stage_uncertainty_k") is None else check_stage_uncertainty(
+            d["stage_uncertainty_k"], f"{name}: stage_uncertainty_k", path),
     )
 
 
@@ -278,6 +326,7 @@ def _experiment_to_dict(e: Experiment, base: Path) -> dict:
         "settings": e.settings,
         "geometry": e.geometry,
         "mode_override": e.mode_override,
+        "stage_uncertainty_k": e.stage_uncertainty_k,
         "calorimetry": calorimetry,
         "edits": [edit_to_dict(edit) for edit in e.edits],
     }

@@ -13,6 +13,8 @@ from typing import Any
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.intervals import DEFAULT_SEED
+from analysis.kinetics.uncertainty import prediction_intervals
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
@@ -81,20 +83,34 @@ def _write_csv(path: str, header, rows) -> None:
         writer.writerows(rows)
 
 
-def _avrami_dict(params, *, with_geometry: bool) -> dict[str, Any]:
+def _ci_keys(name: str, pair) -> dict[str, Any]:
+    low, high = pair if pair is not None else (None, None)
+    return {f"{name}_ci95_low": _number(low), f"{name}_ci95_high": _number(high)}
+
+
+def _avrami_dict(params, *, with_geometry: bool, intervals=None) -> dict[str, Any]:
     out = {"n": None, "k_per_min_n": None, "t_half_min": None}
     if params is not None:
         out = {"n": _number(params.n), "k_per_min_n": _number(params.k_per_min_n),
                "t_half_min": _number(params.t_half_min)}
+    if intervals is not None:
+        for name in ("n", "k_per_min_n", "t_half_min"):
+            part = getattr(intervals, name)
+            out.update(_ci_keys(name, (part.low, part.high)))
     if with_geometry:
         geometry = params.geometry if params is not None else None
         out = {"geometry": geometry, **out}
     return out
 
 
-def summary_dict(result) -> dict[str, Any]:
-    """The summary.json record of a result (schema 1, docs/design.md)."""
+def summary_dict(result, *, seed: int = DEFAULT_SEED) -> dict[str, Any]:
+    """The summary.json record of a result (schema 1, docs/design.md), every estimate
+    with its 95 % interval; ``seed`` of the resampling is stored under ``resampling``."""
     g, nuc = result.growth_rate, result.nucleation
+    predicted = result.avrami_predicted
+    intervals = None
+    if predicted is not None and predicted.geometry:
+        intervals = prediction_intervals(result, predicted.geometry, seed=seed)
     return {
         "schema": 1,
         "stack": result.stack,
@@ -104,17 +120,23 @@ def summary_dict(result) -> dict[str, Any]:
         "temperature_c": _number(result.temperature_c),
         "thickness_um": _number(result.thickness_um),
         "growth_rate_um_per_min": {"value": _number(g.value), "ci95_low": _number(g.ci95_low),
-                                   "ci95_high": _number(g.ci95_high), "n": int(g.n)},
+                                   "ci95_high": _number(g.ci95_high), "n": int(g.n),
+                                   "shared_timing_uncertainty_rel": _number(g.systematic_rel)},
         "nucleation": {"count": int(nuc.count), "mode": nuc.mode,
                        "density_per_mm2": _number(nuc.density_per_mm2),
+                       **_ci_keys("density_per_mm2", nuc.density_per_mm2_ci95),
                        "density_per_mm3": _number(nuc.density_per_mm3),
+                       **_ci_keys("density_per_mm3", nuc.density_per_mm3_ci95),
                        "rate_per_mm2_per_min": _number(nuc.rate_per_mm2_per_min),
+                       **_ci_keys("rate_per_mm2_per_min", nuc.rate_per_mm2_per_min_ci95),
                        "rate_per_mm3_per_min": _number(nuc.rate_per_mm3_per_min),
+                       **_ci_keys("rate_per_mm3_per_min", nuc.rate_per_mm3_per_min_ci95),
                        "induction_time_s": _number(nuc.induction_time_s)},
         "area_fraction": {"time_s": [_number(t) for t in result.area_fraction_time_s],
                           "value": [_number(x) for x in result.area_fraction]},
         "avrami_film": _avrami_dict(result.avrami_film, with_geometry=False),
-        "avrami_predicted": _avrami_dict(result.avrami_predicted, with_geometry=True),
+        "avrami_predicted": _avrami_dict(predicted, with_geometry=True, intervals=intervals),
+        "resampling": {"seed": seed, "resamples": None if intervals is None else intervals.resamples},
     }
 
 

@@ -52,10 +52,12 @@ def _message(ax, text: str) -> None:
 
 
 def growth_rate_figure(entries):
-    """G (log scale) against Tc with 95 % CI error bars."""
+    """G (log scale) against Tc with 95 % CI error bars (stage-temperature part included)."""
+    from analysis.reporting.tables import growth_estimates
+
     fig, ax = _figure()
-    pts = [(e.result.temperature_c, e.result.growth_rate) for e in entries
-           if e.result.temperature_c is not None and e.result.growth_rate.value]
+    pts = [(e.result.temperature_c, est) for e, est in zip(entries, growth_estimates(entries))
+           if e.result.temperature_c is not None and est.value]
     ax.set_xlabel("Crystallization temperature (°C)")
     ax.set_ylabel("Growth rate G (µm/min)")
     if not pts:
@@ -63,8 +65,8 @@ def growth_rate_figure(entries):
         return fig
     tc = np.array([p[0] for p in pts])
     g = np.array([p[1].value for p in pts])
-    low = np.array([p[1].ci95_low if p[1].ci95_low is not None else p[1].value for p in pts])
-    high = np.array([p[1].ci95_high if p[1].ci95_high is not None else p[1].value for p in pts])
+    low = np.array([p[1].low if p[1].low is not None else p[1].value for p in pts])
+    high = np.array([p[1].high if p[1].high is not None else p[1].value for p in pts])
     ax.errorbar(tc, g, yerr=[g - np.maximum(low, g * 1e-3), high - g], fmt="o", ms=3.5,
                 color=_PALETTE[0], ecolor="0.3", elinewidth=0.7, capsize=2)
     ax.set_yscale("log")

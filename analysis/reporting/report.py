@@ -27,9 +27,11 @@ from pathlib import Path
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.intervals import DEFAULT_SEED
+from analysis.kinetics.lh_intervals import fit_with_temperature, lh_intervals
+from analysis.project.file import resampling_seed, stage_uncertainty_k
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
-    fit_lauritzen_hoffman,
     hoffman_weeks,
     write_secondary_nucleation,
 )
@@ -59,31 +61,51 @@ class ReportSummary:
 
 
 def _lh_inputs(entries):
-    rows = [(e.result.temperature_c, e.result.growth_rate) for e in entries
-            if e.result.temperature_c is not None and e.result.growth_rate.value]
-    tc = np.array([r[0] for r in rows], dtype=float)
-    g = np.array([r[1].value for r in rows], dtype=float)
-    cis = [None if r[1].ci95_low is None or r[1].ci95_high is None
-           else (r[1].ci95_high - r[1].ci95_low) / 2 for r in rows]
+    """(Tc, G, G's own 95 % half-width or None, stage uncertainty u_T in K) of the entries
+    that have both a temperature and a growth rate."""
+    rows = [e for e in entries if e.result.temperature_c is not None and e.result.growth_rate.value]
+    tc = np.array([e.result.temperature_c for e in rows], dtype=float)
+    g = np.array([e.result.growth_rate.value for e in rows], dtype=float)
+    cis = [None if e.result.growth_rate.ci95_low is None or e.result.growth_rate.ci95_high is None
+           else (e.result.growth_rate.ci95_high - e.result.growth_rate.ci95_low) / 2 for e in rows]
     ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
-    return tc, g, ci
+    u_t = np.array([e.stage_uncertainty_k for e in rows], dtype=float)
+    return tc, g, ci, u_t
 
 
-def _lauritzen_hoffman(entries, constants, material, problems):
+@dataclass(frozen=True)
+class SeriesFit:
+    """The Lauritzen-Hoffman fit of a series and its bootstrap intervals."""
+
+    fit: object  # lauritzen_hoffman.LHAnalysis
+    intervals: object  # lh_intervals.LHIntervals
+
+
+def lauritzen_hoffman_series(entries, constants, material=None, *, seed: int = DEFAULT_SEED,
+                             problems: list | None = None) -> SeriesFit | None:
+    """The one LH fit of a series (report and GUI): weighted by G's CI with the
+    stage-temperature part, with intervals on Kg, G0, sigma*sigma_e, sigma_e and the
+    break. None (and a line in ``problems``) when it cannot be made."""
+    problems = problems if problems is not None else []
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci = _lh_inputs(entries)
+    tc, g, ci, u_t = _lh_inputs(entries)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None
     try:
-        lh = fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material)
+        lh = fit_with_temperature(tc, g, ci, u_t, constants=constants, material=material)
     except InputError as err:
         problems.append(f"Lauritzen-Hoffman fit skipped: {err}")
         return None
     problems.extend(lh.warnings)
-    return lh
+    return SeriesFit(lh, lh_intervals(lh, ci, u_t, seed=seed))
+
+
+def _lauritzen_hoffman(entries, constants, material, problems):
+    seed = entries[0].seed if entries else DEFAULT_SEED
+    return lauritzen_hoffman_series(entries, constants, material, seed=seed, problems=problems)
 
 
 def _avrami_curves(entries):
@@ -162,9 +184,10 @@ def build_report(entries, out_dir, *, constants: LHConstants | None = None,
              write_csv(comparison, out / "kinetics_comparison.csv"),
              write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
                         out / "growth_vs_temperature.xlsx")]
-    lh = _lauritzen_hoffman(entries, constants, material, problems)
-    if lh is not None:
-        files.append(write_secondary_nucleation(lh, out))
+    series = _lauritzen_hoffman(entries, constants, material, problems)
+    lh = None if series is None else series.fit
+    if series is not None:
+        files.append(write_secondary_nucleation(lh, out, series.intervals))
     files.extend(_write_figures(entries, lh, material, out))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return ReportSummary(str(out), tuple(str(f) for f in files), lh, tuple(problems))
@@ -188,7 +211,7 @@ def series_constants(project) -> tuple[LHConstants | None, str]:
                        series.get("t_inf_c")), note
 
 
-def _calorimetry(experiment, material):
+def _calorimetry(experiment, material, seed):
     from analysis.kinetics.calorimetry import analyze_source
 
     source = experiment.calorimetry
@@ -196,7 +219,7 @@ def _calorimetry(experiment, material):
         from dataclasses import replace
 
         source = replace(source, material=material)
-    return analyze_source(source)
+    return analyze_source(source, seed=seed)
 
 
 def project_entries_iter(project):
@@ -215,12 +238,14 @@ def project_entries_iter(project):
         cal, cal_problem = None, None
         if exp.calorimetry is not None:
             try:
-                cal = _calorimetry(exp, project.material)
+                cal = _calorimetry(exp, project.material, resampling_seed(project))
             except InputError as err:
                 cal_problem = str(err)
                 problems.append(f"{exp.name}: calorimetry skipped ({err})")
         entries.append(ReportEntry(exp.name, analysis.result, exp.geometry, exp.mode_override,
-                                   cal, cal_problem))
+                                   cal, cal_problem,
+                                   stage_uncertainty_k=stage_uncertainty_k(project, exp),
+                                   seed=resampling_seed(project)))
     yield Progress("analysing experiments", 1.0)
     return entries, problems
 

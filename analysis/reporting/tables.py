@@ -25,7 +25,10 @@ from functools import cached_property
 from pathlib import Path
 
 from analysis.errors import InputError
+from analysis.intervals import DEFAULT_SEED, Estimate
 from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
+from analysis.kinetics.lh_intervals import DEFAULT_STAGE_UNCERTAINTY_K, temperature_half_width, with_temperature
+from analysis.kinetics.uncertainty import PredictionIntervals, prediction_intervals, ratio_interval
 from analysis.results import ExperimentResult
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
@@ -48,6 +51,19 @@ class ReportEntry:
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None
+    stage_uncertainty_k: float = DEFAULT_STAGE_UNCERTAINTY_K
+    seed: int = DEFAULT_SEED
+
+    @cached_property
+    def prediction_intervals(self) -> PredictionIntervals | None:
+        """Bootstrap intervals of the prediction in the entry's geometry."""
+        return prediction_intervals(self.result, self.geometry, self.mode_override, seed=self.seed)
+
+    @cached_property
+    def bulk_prediction_intervals(self) -> PredictionIntervals | None:
+        if self.geometry == "bulk-3d":
+            return self.prediction_intervals
+        return prediction_intervals(self.result, "bulk-3d", self.mode_override, seed=self.seed)
 
     @cached_property
     def _predicted(self) -> tuple[AvramiPrediction | None, str | None]:
@@ -81,33 +97,90 @@ def escape_cell(value):
     return value
 
 
+def _ci_names(name: str, unit: str = "") -> list[str]:
+    suffix = f"_{unit}" if unit else ""
+    return [f"{name}{suffix}", f"{name}_ci95_low{suffix}", f"{name}_ci95_high{suffix}"]
+
+
 GROWTH_HEADER = [
-    "experiment", "temperature_c", "growth_rate_um_per_min", "growth_rate_ci95_low_um_per_min",
-    "growth_rate_ci95_high_um_per_min", "n_spherulites", "nucleation_mode",
-    "nucleus_density_per_mm2", "nucleus_density_per_mm3", "nucleation_rate_per_mm2_per_min",
-    "nucleation_rate_per_mm3_per_min", "predicted_geometry", "predicted_avrami_n",
-    "predicted_k_per_min_n", "predicted_t_half_min", "dsc_avrami_n", "dsc_k_per_min_n",
-    "dsc_t_half_min", "dsc_t_half_measured_min", "dsc_induction_time_min", "dsc_r2",
+    "experiment", "temperature_c", "stage_uncertainty_k", *_ci_names("growth_rate", "um_per_min"),
+    "n_spherulites", "nucleation_mode", *_ci_names("nucleus_density_per_mm2"),
+    *_ci_names("nucleus_density_per_mm3"), *_ci_names("nucleation_rate_per_mm2_per_min"),
+    *_ci_names("nucleation_rate_per_mm3_per_min"), "predicted_geometry",
+    *_ci_names("predicted_avrami_n"), *_ci_names("predicted_k_per_min_n"),
+    *_ci_names("predicted_t_half_min"), *_ci_names("dsc_avrami_n"), *_ci_names("dsc_k_per_min_n"),
+    *_ci_names("dsc_t_half_min"), "dsc_t_half_measured_min", "dsc_induction_time_min", "dsc_r2",
+    "resampling_seed",
 ]
+
+
+def _triple(est: Estimate | None) -> list:
+    return [None, None, None] if est is None else [est.value, est.low, est.high]
+
+
+def _with_ci(value, pair) -> list:
+    return [value, *(pair if pair is not None and value is not None else (None, None))]
+
+
+def dsc_estimates(cal) -> tuple[Estimate, Estimate, Estimate] | None:
+    """The calorimetry window fit's n, k and t_half with their intervals (None: no fit)."""
+    if cal is None or not cal.avrami:
+        return None
+    ci, fit = getattr(cal, "intervals", None), cal.avrami
+    if ci is not None:
+        return ci.n, ci.k_per_min_n, ci.t_half_min
+    # intervals not computed: the calorimetry side counts as exact in the ratio
+    return tuple(Estimate(v, v, v) for v in (fit.n, fit.k_per_min_n, fit.t_half_min))
 
 
 def _dsc_columns(cal) -> list:
     if cal is None:
-        return [None] * 6
-    fit = cal.avrami
-    if not fit:
-        return [None, None, None, cal.t_half_measured_min, cal.induction_time_min, None]
-    return [fit.n, fit.k_per_min_n, fit.t_half_min, cal.t_half_measured_min,
-            cal.induction_time_min, fit.r2]
+        return [None] * 12
+    found = dsc_estimates(cal)
+    values = [None] * 9 if found is None else [v for est in found for v in _triple(est)]
+    return [*values, cal.t_half_measured_min, cal.induction_time_min,
+            cal.avrami.r2 if cal.avrami else None]
 
 
-def _growth_row(entry: ReportEntry) -> list:
+def growth_estimate(entry: ReportEntry) -> Estimate:
+    """Pooled G at the stated Tc with its 95 % interval including the stage-temperature
+    part; the slope d ln G/dT comes from the entry's neighbours (set by
+    :func:`growth_estimates`), so call that for a series."""
+    return growth_estimates([entry])[0]
+
+
+def growth_estimates(entries) -> list[Estimate]:
+    """Pooled G of each entry with the interval widened by the stage-temperature
+    uncertainty (the slope d ln G/dT from the series, analysis.kinetics.lh_intervals)."""
+    tc = [e.result.temperature_c for e in entries]
+    g = [e.result.growth_rate for e in entries]
+    usable = [i for i, (t, p) in enumerate(zip(tc, g)) if t is not None and p.value]
+    half = [None] * len(entries)
+    if usable:
+        widths = temperature_half_width([tc[i] for i in usable], [g[i].value for i in usable],
+                                        [entries[i].stage_uncertainty_k for i in usable])
+        for i, h in zip(usable, widths):
+            half[i] = float(h)
+    out = []
+    for p, h in zip(g, half):
+        low, high = with_temperature(p.value, p.ci95_low, p.ci95_high, h)
+        out.append(Estimate(p.value, low, high))
+    return out
+
+
+def _growth_row(entry: ReportEntry, growth: Estimate) -> list:
     r = entry.result
-    g, nuc, pred = r.growth_rate, r.nucleation, entry.prediction
-    predicted = [None, None, None] if pred is None else [pred.n, pred.k_per_min_n, pred.t_half_min]
-    return [entry.name, r.temperature_c, g.value, g.ci95_low, g.ci95_high, g.n, nuc.mode,
-            nuc.density_per_mm2, nuc.density_per_mm3, nuc.rate_per_mm2_per_min,
-            nuc.rate_per_mm3_per_min, entry.geometry, *predicted, *_dsc_columns(entry.calorimetry)]
+    nuc = r.nucleation
+    pi = entry.prediction_intervals
+    predicted = [None] * 9 if pi is None else [
+        *_triple(pi.n), *_triple(pi.k_per_min_n), *_triple(pi.t_half_min)]
+    return [entry.name, r.temperature_c, entry.stage_uncertainty_k, *_triple(growth),
+            r.growth_rate.n, nuc.mode,
+            *_with_ci(nuc.density_per_mm2, nuc.density_per_mm2_ci95),
+            *_with_ci(nuc.density_per_mm3, nuc.density_per_mm3_ci95),
+            *_with_ci(nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95),
+            *_with_ci(nuc.rate_per_mm3_per_min, nuc.rate_per_mm3_per_min_ci95),
+            entry.geometry, *predicted, *_dsc_columns(entry.calorimetry), entry.seed]
 
 
 def _by_temperature(entries):
@@ -116,8 +189,11 @@ def _by_temperature(entries):
 
 
 def growth_vs_temperature_table(entries) -> Table:
-    """One row per experiment, sorted by temperature (units in the column names)."""
-    return Table(list(GROWTH_HEADER), [_growth_row(e) for e in _by_temperature(entries)])
+    """One row per experiment, sorted by temperature (units in the column names); every
+    estimate with its 95 % interval (``<name>_ci95_low``/``_high``)."""
+    ordered = _by_temperature(entries)
+    return Table(list(GROWTH_HEADER), [_growth_row(e, g) for e, g in
+                                       zip(ordered, growth_estimates(ordered))])
 
 
 # ---------------------------------------------------------------- comparison
@@ -137,17 +213,7 @@ class Comparison:
     ratio_uncertainty: float     # 95 % factor: the ratio is consistent with 1 within x/ this
     agree: bool
     note: str
-
-
-def _predicted_log_sigma(entry: ReportEntry, pred: AvramiPrediction) -> float:
-    """sigma of ln t_half from the Poisson count and the G CI (t_half ~ (N G^d)^(-1/n))."""
-    r = entry.result
-    g, count = r.growth_rate, max(1, r.nucleation.count)
-    rel_g = 0.0
-    if g.value and g.ci95_low is not None and g.ci95_high is not None:
-        rel_g = (g.ci95_high - g.ci95_low) / (2 * 1.96 * g.value)
-    d = pred.dimension
-    return math.sqrt(1.0 / count + (d * rel_g) ** 2) / pred.n
+    t_half_ratio_ci95: tuple[float | None, float | None] = (None, None)
 
 
 def _note(agree: bool, ratio: float, measured_n: float, factor: float) -> str:
@@ -173,23 +239,35 @@ def _note(agree: bool, ratio: float, measured_n: float, factor: float) -> str:
 
 
 def compare_kinetics(entry: ReportEntry) -> Comparison | None:
-    """Comparison for one entry, or None without both a 3-D prediction and a DSC fit."""
+    """Comparison for one entry, or None without both a 3-D prediction and a DSC fit.
+
+    The ratio's interval combines the bootstrap interval of the predicted t_half and the
+    calorimetry interval (analysis.kinetics.uncertainty.ratio_interval); the two agree
+    when it contains 1.
+    """
     pred, cal = entry.bulk_prediction(), entry.calorimetry
     if pred is None or cal is None or not cal.avrami:
         return None
     fit = cal.avrami
-    ratio = fit.t_half_min / pred.t_half_min
-    sigma = _predicted_log_sigma(entry, pred)
-    factor = math.exp(1.96 * sigma)
-    agree = abs(math.log(ratio)) <= 1.96 * sigma
+    pi = entry.bulk_prediction_intervals
+    predicted = pi.t_half_min if pi is not None else Estimate(pred.t_half_min)
+    measured = dsc_estimates(cal)[2]
+    ratio = ratio_interval(measured, predicted)
+    value = fit.t_half_min / pred.t_half_min
+    if ratio.low is None:
+        factor, agree = math.inf, True
+    else:
+        factor = math.sqrt(ratio.high / ratio.low)
+        agree = ratio.low <= 1.0 <= ratio.high
     return Comparison(entry.name, entry.result.temperature_c, pred.n, fit.n, pred.k_per_min_n,
-                      fit.k_per_min_n, pred.t_half_min, fit.t_half_min, ratio, factor, agree,
-                      _note(agree, ratio, fit.n, factor))
+                      fit.k_per_min_n, pred.t_half_min, fit.t_half_min, value, factor, agree,
+                      _note(agree, value, fit.n, factor), (ratio.low, ratio.high))
 
 
 COMPARISON_HEADER = [
     "experiment", "temperature_c", "predicted_n", "dsc_n", "predicted_k_per_min_n",
     "dsc_k_per_min_n", "predicted_t_half_min", "dsc_t_half_min", "t_half_ratio_dsc_over_predicted",
+    "t_half_ratio_dsc_over_predicted_ci95_low", "t_half_ratio_dsc_over_predicted_ci95_high",
     "ratio_uncertainty_factor_95", "agreement", "note",
 ]
 
@@ -201,7 +279,8 @@ def comparison_table(entries) -> Table:
         if c is not None:
             rows.append([c.name, c.temperature_c, c.predicted_n, c.measured_n,
                          c.predicted_k_per_min_n, c.measured_k_per_min_n, c.predicted_t_half_min,
-                         c.measured_t_half_min, c.t_half_ratio, c.ratio_uncertainty,
+                         c.measured_t_half_min, c.t_half_ratio, *c.t_half_ratio_ci95,
+                         c.ratio_uncertainty,
                          "agree" if c.agree else "disagree", c.note])
     return Table(list(COMPARISON_HEADER), rows)
 

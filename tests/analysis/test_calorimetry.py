@@ -230,7 +230,10 @@ def test_cli_writes_design_outputs(tmp_path):
     doc = json.loads((tmp_path / "out" / "calorimetry.json").read_text())
     assert set(doc) == {"schema", "file", "induction_time_min", "enthalpy_j_per_g", "crystallinity",
                         "window", "avrami", "t_half_measured_min"}
-    assert set(doc["avrami"]) == {"n", "k_per_min_n", "t_half_min", "r2"}
+    assert set(doc["avrami"]) == {"n", "k_per_min_n", "t_half_min", "r2", "interval_seed",
+                                  *(f"{name}_ci95_{end}" for name in ("n", "k_per_min_n", "t_half_min")
+                                    for end in ("low", "high"))}
+    assert doc["avrami"]["n_ci95_low"] < doc["avrami"]["n"] < doc["avrami"]["n_ci95_high"]
     assert doc["window"] == [0.03, 0.20]
     fit = doc["avrami"]
     assert fit["t_half_min"] == pytest.approx((math.log(2) / fit["k_per_min_n"]) ** (1 / fit["n"]))

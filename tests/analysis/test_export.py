@@ -42,13 +42,23 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
     summary = json.loads((tmp_path / "summary.json").read_text())
     assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
                              "thickness_um", "growth_rate_um_per_min", "nucleation", "area_fraction",
-                             "avrami_film", "avrami_predicted"]
-    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n"]
-    assert list(summary["nucleation"]) == ["count", "mode", "density_per_mm2", "density_per_mm3",
-                                           "rate_per_mm2_per_min", "rate_per_mm3_per_min",
-                                           "induction_time_s"]
+                             "avrami_film", "avrami_predicted", "resampling"]
+    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n",
+                                                       "shared_timing_uncertainty_rel"]
+
+    def with_ci(*names):
+        return [k for n in names for k in (n, f"{n}_ci95_low", f"{n}_ci95_high")]
+
+    assert list(summary["nucleation"]) == ["count", "mode", *with_ci(
+        "density_per_mm2", "density_per_mm3", "rate_per_mm2_per_min", "rate_per_mm3_per_min"),
+        "induction_time_s"]
     assert list(summary["avrami_film"]) == ["n", "k_per_min_n", "t_half_min"]
-    assert list(summary["avrami_predicted"]) == ["geometry", "n", "k_per_min_n", "t_half_min"]
+    predicted = summary["avrami_predicted"]
+    assert list(predicted)[:4] == ["geometry", "n", "k_per_min_n", "t_half_min"]
+    if predicted["k_per_min_n"] is not None:
+        assert predicted["k_per_min_n_ci95_low"] < predicted["k_per_min_n"] < predicted["k_per_min_n_ci95_high"]
+    nuc = summary["nucleation"]
+    assert nuc["density_per_mm2_ci95_low"] < nuc["density_per_mm2"] < nuc["density_per_mm2_ci95_high"]
     assert summary["thickness_um"] is None and summary["nucleation"]["density_per_mm3"] is None
     assert summary["growth_rate_um_per_min"]["value"] == pytest.approx(37.5, rel=0.02)
     assert len(summary["area_fraction"]["time_s"]) == 50

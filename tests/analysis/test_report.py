@@ -64,7 +64,8 @@ def test_build_report_writes_everything(tmp_path, calorimetry):
         root = ET.parse(tmp_path / (stem + ".svg")).getroot()
         assert root.tag.endswith("svg")
     lines = (tmp_path / "growth_vs_temperature.csv").read_text().splitlines()
-    assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,growth_rate_um_per_min")
+    assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,stage_uncertainty_k,growth_rate_um_per_min,"
+                                                        "growth_rate_ci95_low_um_per_min")
     doc = json.loads((tmp_path / "secondary_nucleation.json").read_text())
     # the break of fixture B (137 C) is found within 2 K and the ratio is 2 (docs/sources.md 2.5)
     assert len(doc["regimes"]) == 2 and abs(doc["regimes"][0]["t_high_c"] - 137.0) <= 2.0
@@ -73,7 +74,7 @@ def test_build_report_writes_everything(tmp_path, calorimetry):
     assert book.sheetnames == ["growth_vs_temperature", "kinetics_comparison"]
     comparison = book["kinetics_comparison"]
     assert comparison.max_row == 2 and comparison["A2"].value == "Tc 130"
-    assert comparison["K2"].value in ("agree", "disagree") and comparison["L2"].value
+    assert comparison["M2"].value in ("agree", "disagree") and comparison["L2"].value
 
 
 def test_report_needs_entries_and_skips_lh_without_constants(tmp_path):

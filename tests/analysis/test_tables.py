@@ -79,7 +79,7 @@ def test_comparison_agreement_and_disagreement():
     assert wide.agree
     assert compare_kinetics(ReportEntry("e", result(130.0))) is None
     table = comparison_table([same, ReportEntry("e", result(130.0))])
-    assert len(table.rows) == 1 and table.rows[0][10] == "agree"
+    assert len(table.rows) == 1 and table.rows[0][12] == "agree"
 
 
 def test_film_geometry_still_compared_in_3d():
