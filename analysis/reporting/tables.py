@@ -25,7 +25,8 @@ from functools import cached_property
 from pathlib import Path
 
 from analysis.errors import InputError
-from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
+from analysis.kinetics.avrami import AvramiPrediction
+from analysis.kinetics.prediction import predict_model_from_result
 from analysis.results import ExperimentResult
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
