@@ -99,6 +99,17 @@ def write_text_atomic(path, text: str) -> Path:
     return write_bytes_atomic(path, text.encode("utf-8"))
 
 
+def write_csv_atomic(path, rows) -> Path:
+    """UTF-8 CSV (header first in ``rows``), cells written as given, atomically."""
+    import csv
+
+    def write(temporary: Path) -> None:
+        with open(temporary, "w", newline="", encoding="utf-8") as stream:
+            csv.writer(stream).writerows(rows)
+
+    return write_atomic(path, write)
+
+
 def write_json_atomic(path, doc: Any) -> Path:
     """``doc`` as cleaned JSON (:func:`json_text`), written atomically."""
     return write_text_atomic(path, json_text(doc))

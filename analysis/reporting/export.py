@@ -4,7 +4,6 @@ overlay.png (formats in docs/design.md), and the ``analyze`` command line.
 
 from __future__ import annotations
 
-import csv
 import math
 import os
 from pathlib import Path
@@ -14,7 +13,7 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
-from analysis.units import json_clean, write_atomic, write_json_atomic
+from analysis.units import json_clean, write_atomic, write_csv_atomic, write_json_atomic
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
@@ -66,16 +65,6 @@ def radii_rows(result) -> list[list[str]]:
             rows.append([_number_cell(series.id), _number_cell(float(t)), _number_cell(float(r)),
                          _number_cell(float(f))])
     return rows
-
-
-def _write_csv(path, header, rows) -> None:
-    def write(temporary: Path) -> None:
-        with open(temporary, "w", newline="", encoding="utf-8") as fh:
-            writer = csv.writer(fh)
-            writer.writerow(header)
-            writer.writerows(rows)
-
-    write_atomic(path, write)
 
 
 def _avrami_dict(params) -> dict[str, Any]:
@@ -179,8 +168,8 @@ def write_analysis_outputs(result, out_dir, *, geometry: str, arrival=None,
         raise InputError(f"cannot create the output folder: {exc.strerror}", out_dir) from None
     paths = [os.path.join(out_dir, name) for name in
              ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")]
-    _write_csv(paths[0], SPHERULITE_COLUMNS, spherulite_rows(result))
-    _write_csv(paths[1], RADII_COLUMNS, radii_rows(result))
+    write_csv_atomic(paths[0], [SPHERULITE_COLUMNS, *spherulite_rows(result)])
+    write_csv_atomic(paths[1], [RADII_COLUMNS, *radii_rows(result)])
     write_json_atomic(paths[2], summary_dict(result, geometry))
     background = stack[len(stack) - 1] if stack is not None and len(stack) else None
     shape = None if arrival is None else np.asarray(arrival.arrival_s).shape
