@@ -18,6 +18,7 @@ import numpy as np
 import tifffile
 
 from analysis.errors import InputError
+from analysis.textio import require_regular_file
 from analysis.stack.tiff_metadata import TiffCalibration, read_tiff_calibration
 
 TIFF_SUFFIXES = {".tif", ".tiff"}
@@ -272,6 +273,7 @@ def open_source(path: Path):
         raise InputError("no such file or folder", path)
     if path.is_dir():
         return FolderSource(path)
+    require_regular_file(path, "stack")  # a FIFO or a device would block or never end
     suffix = path.suffix.lower()
     if suffix in TIFF_SUFFIXES:
         return TiffSource(path)
