@@ -23,6 +23,9 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--sensitivity", type=float, default=None, metavar="FRAMES",
                         help="minimum depth of a nucleus below its surroundings, frame intervals "
                              "(default 0.5; lower finds more)")
+    parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
+                        help="refuse stacks whose analysis needs more memory than this "
+                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
     parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
                         help="geometry of the predicted Avrami kinetics")
 
@@ -65,7 +68,7 @@ def run_cli(args) -> int:
         analysis = run_to_completion(analyze_iter(
             stack, settings=settings, isothermal_start_s=args.isothermal_start_s,
             temperature_c=args.temperature_c, thickness_um=args.thickness_um,
-            geometry=args.geometry), bar)
+            geometry=args.geometry, memory_budget_mb=args.memory_budget_mb), bar)
     finally:
         bar.close()
     write_analysis_outputs(analysis.result, args.out, arrival=analysis.arrival, stack=stack)

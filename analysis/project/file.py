@@ -160,7 +160,7 @@ def parse_project_json(text: str, path) -> Any:
     except (ValueError, RecursionError) as exc:
         if "digits" in str(exc):  # Python refuses integers over sys.get_int_max_str_digits()
             raise InputError(f"project file holds an integer with more than "
-                             f"{sys.get_int_max_str_digits()} digits", path) from None
+                             f"{getattr(sys, 'get_int_max_str_digits', lambda: 4300)()} digits", path) from None
         raise InputError(f"project file cannot be parsed ({str(exc)[:80]})", path) from None
     _check_numbers(document, path)
     return document
