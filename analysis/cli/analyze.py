@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
 from analysis.spherulites.pipeline import AnalysisSettings, analyze_iter
@@ -57,6 +58,7 @@ class _ProgressBar:
 
 def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
+    prepare_output_folder(args.out)
     stack = open_stack(args.stack, um_per_px=args.um_per_px, interval_s=args.interval_s)
     stack.require_calibration()
     settings = AnalysisSettings()

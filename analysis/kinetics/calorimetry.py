@@ -59,6 +59,7 @@ import numpy as np
 from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
+from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
     AvramiFit,
     FitFailure,
@@ -403,9 +404,13 @@ def _finite(value):
 
 def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
     """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity)."""
+    with staged_outputs(out_dir) as stage:
+        _write_calorimetry_files(result, stage / "calorimetry.json", stage / "conversion.csv")
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    json_path, csv_path = out / "calorimetry.json", out / "conversion.csv"
+    return out / "calorimetry.json", out / "conversion.csv"
+
+
+def _write_calorimetry_files(result: CalorimetryResult, json_path: Path, csv_path: Path) -> None:
     doc = {k: ({kk: _finite(vv) for kk, vv in v.items()} if isinstance(v, dict) else
                [_finite(x) for x in v] if isinstance(v, list) else _finite(v))
            for k, v in result.to_json_dict().items()}
@@ -415,4 +420,3 @@ def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path,
         writer = csv.writer(fh)
         writer.writerow(["time_min", "relative_crystallinity"])
         writer.writerows((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))
-    return json_path, csv_path

@@ -46,6 +46,7 @@ from scipy import optimize, stats
 
 from analysis.errors import InputError
 from analysis.kinetics.avrami import FitFailure
+from analysis.outputs import staged_outputs
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
@@ -355,12 +356,10 @@ def _json_safe(value):
 
 
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    path = out / "secondary_nucleation.json"
-    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2,
-                               allow_nan=False) + "\n", encoding="utf-8")
-    return path
+    text = json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2, allow_nan=False)
+    with staged_outputs(out_dir) as stage:
+        (stage / "secondary_nucleation.json").write_text(text + "\n", encoding="utf-8")
+    return Path(out_dir) / "secondary_nucleation.json"
 
 
 # ---------------------------------------------------------------- Hoffman-Weeks

@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.outputs import clean_text, staged_outputs
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
@@ -41,7 +42,7 @@ def _cell(value) -> str:
     if isinstance(value, float):
         text = "" if not math.isfinite(value) else repr(round(value, 6))
         return text
-    text = str(value)
+    text = clean_text(str(value))
     if text[:1] in ("=", "+", "-", "@"):
         return "'" + text
     return text
@@ -164,15 +165,15 @@ def write_analysis_outputs(result, out_dir, *, arrival=None, stack=None) -> list
     ``stack`` (a FrameStack) supplies the last frame for the overlay; without it the
     overlay is drawn on black at the arrival map's size. Returns the written paths.
     """
+    names = ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")
+    with staged_outputs(out_dir) as stage:
+        _write_analysis_files(result, [os.path.join(stage, name) for name in names], arrival, stack)
+    return [os.path.join(os.fspath(out_dir), name) for name in names]
+
+
+def _write_analysis_files(result, paths, arrival, stack) -> None:
     import cv2
 
-    out_dir = os.fspath(out_dir)
-    try:
-        os.makedirs(out_dir, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot create the output folder: {exc.strerror}", out_dir) from None
-    paths = [os.path.join(out_dir, name) for name in
-             ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")]
     _write_csv(paths[0], SPHERULITE_COLUMNS, spherulite_rows(result))
     _write_csv(paths[1], RADII_COLUMNS, radii_rows(result))
     with open(paths[2], "w", encoding="utf-8") as fh:
@@ -185,4 +186,3 @@ def write_analysis_outputs(result, out_dir, *, arrival=None, stack=None) -> list
         shape = labels.shape if labels is not None else (256, 256)
     if not cv2.imwrite(paths[3], overlay_image(result, background, shape=shape)):
         raise InputError("could not write overlay.png", paths[3])
-    return paths

@@ -25,6 +25,7 @@ from functools import cached_property
 from pathlib import Path
 
 from analysis.errors import InputError
+from analysis.outputs import clean_text
 from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
 from analysis.results import ExperimentResult
 
@@ -75,9 +76,12 @@ class ReportEntry:
 
 
 def escape_cell(value):
-    """Neutralise spreadsheet formulas: text starting with = + - @ (or tab/CR) gets a "'"."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
+    """Neutralise spreadsheet formulas (text starting with = + - @, tab or CR gets a "'")
+    and replace control characters with spaces."""
+    if isinstance(value, str):
+        value = clean_text(value)  # spreadsheet files cannot hold control characters
+        if value.startswith(_FORMULA_START):
+            return "'" + value
     return value
 
 
