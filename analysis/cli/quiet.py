@@ -73,6 +73,13 @@ def captured_chatter():
         root.removeHandler(collector)
 
 
+def _writes_to_descriptor_2(stream) -> bool:
+    try:
+        return stream.fileno() == 2
+    except (AttributeError, OSError, ValueError):
+        return False
+
+
 @contextmanager
 def _native_stderr_captured(lines: list[str]):
     """Point descriptor 2 at a temporary file (its lines go to ``lines`` at the end);
@@ -85,8 +92,9 @@ def _native_stderr_captured(lines: list[str]):
         return
     sink = tempfile.TemporaryFile(mode="w+b")
     python_stderr = sys.stderr
-    sys.stderr = os.fdopen(os.dup(original), "w", buffering=1, encoding="utf-8",
-                           errors="backslashreplace", closefd=True)
+    if _writes_to_descriptor_2(python_stderr):  # else (a test's capture) it stays as it is
+        sys.stderr = os.fdopen(os.dup(original), "w", buffering=1, encoding="utf-8",
+                               errors="backslashreplace", closefd=True)
     os.dup2(sink.fileno(), 2)
     try:
         yield
@@ -94,8 +102,9 @@ def _native_stderr_captured(lines: list[str]):
         sys.stderr.flush()
         os.dup2(original, 2)
         os.close(original)
-        sys.stderr.close()
-        sys.stderr = python_stderr
+        if sys.stderr is not python_stderr:
+            sys.stderr.close()
+            sys.stderr = python_stderr
         sink.seek(0)
         lines.extend(line for line in sink.read(64 * 1024).decode("utf-8", "replace").splitlines()
                      if line.strip())
