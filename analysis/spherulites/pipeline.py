@@ -42,7 +42,12 @@ from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion, scaled
 from analysis.results import ExperimentResult
 from analysis.spherulites import growth, nuclei
-from analysis.spherulites.evaluation import evaluate, fit_pixels, result_of
+from analysis.spherulites.evaluation import (
+    automatic_fit_keys,
+    evaluate,
+    fit_pixels,
+    result_of,
+)
 from analysis.spherulites.replay import Context, auto_detections, cached, digest, replay
 
 _AUTOMATIC = ("result without edits",)  # cache key
@@ -182,6 +187,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     automatic, _, _ = _automatic_evaluation(ctx, settings)
     for sph in automatic.spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
+    ctx = dataclasses.replace(ctx, auto_fit_keys=automatic_fit_keys(ctx, auto_detections(ctx),
+                                                                    settings))
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
 

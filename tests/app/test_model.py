@@ -89,15 +89,15 @@ def test_remove_and_restore_experiment_keeps_its_analysis(shared):
 
 
 def test_save_is_clean_and_reopens_with_edits(shared, tmp_path):
-    shared.push_edit(0, AddNucleus(10.0, 12.0))
+    shared.push_edit(0, AddNucleus(10.0, 12.0, id=7))
     target = tmp_path / "saved.spherokin.json"
     shared.save(str(target))
     assert not shared.is_dirty()
     record = json.loads(target.read_text())["experiments"][0]["edits"]
-    assert record == [{"kind": "add_nucleus", "x_px": 10.0, "y_px": 12.0}]
+    assert record == [{"kind": "add_nucleus", "x_px": 10.0, "y_px": 12.0, "id": 7}]
     reopened = m.ProjectModel()
     reopened.open_project(str(target))
-    assert reopened.experiment(0).edits == (AddNucleus(10.0, 12.0),)
+    assert reopened.experiment(0).edits == (AddNucleus(10.0, 12.0, id=7),)
 
 
 def test_failed_save_keeps_work_and_dirty_state(shared, tmp_path):
