@@ -119,7 +119,8 @@ class _Targets:
 
     def find(self, handle: int | None, x_px, y_px) -> Detection | None:
         det = self.by_handle.get(handle) if handle is not None else None
-        if det is not None and det.live and self._near(det, x_px, y_px):
+        # A merged territory's centre is only known once fitted: trust its id alone.
+        if det is not None and det.live and (self._near(det, x_px, y_px) or det.absorbed):
             return det
         live = [d for d in self.dets if d.live]
         k = nearest_index(x_px, y_px, [d.centre_xy for d in live], self.tol)
