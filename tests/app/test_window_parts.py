@@ -255,7 +255,7 @@ def test_ignore_frames_targets_the_selected_spherulite_or_the_experiment(window)
         2, 4, target.x_px, target.y_px, id=target.id)
     assert window.tools.ignore_frames_edit(2, 4, whole=True) == IgnoreFrames(2, 4)
     window.model.push_edit(0, IgnoreFrames(2, 4))
-    assert "Ignore frames 2-4 of experiment" in window.details.edits_list.item(0).text()
+    assert "Ignore frames 2-4 of the experiment" in window.details.edits_list.item(0).text()
 
 
 def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch):
