@@ -35,7 +35,8 @@ from analysis.intervals import (
     estimate,
     percentile_interval,
 )
-from analysis.kinetics.avrami import predict_avrami, predict_model_from_result
+from analysis.kinetics.avrami import predict_avrami
+from analysis.kinetics.prediction import predict_model_from_result
 from analysis.results import ExperimentResult
 from analysis.spherulites.growth import pooled_rate
 

@@ -18,7 +18,6 @@ agreement and a plain-language note, for entries that have calorimetry.
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import dataclass
 from functools import cached_property
@@ -26,10 +25,13 @@ from pathlib import Path
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED, Estimate
-from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
+from analysis.kinetics.avrami import AvramiPrediction
 from analysis.kinetics.lh_intervals import DEFAULT_STAGE_UNCERTAINTY_K, temperature_half_width, with_temperature
+from analysis.kinetics.prediction import predict_model_from_result
 from analysis.kinetics.uncertainty import PredictionIntervals, prediction_intervals, ratio_interval
+from analysis.outputs import clean_text
 from analysis.results import ExperimentResult
+from analysis.units import write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
            "escape_cell", "growth_vs_temperature_table", "write_csv", "write_xlsx"]
@@ -91,9 +93,12 @@ class ReportEntry:
 
 
 def escape_cell(value):
-    """Neutralise spreadsheet formulas: text starting with = + - @ (or tab/CR) gets a "'"."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
+    """Neutralise spreadsheet formulas (text starting with = + - @, tab or CR gets a "'")
+    and replace control characters with spaces."""
+    if isinstance(value, str):
+        value = clean_text(value)  # spreadsheet files cannot hold control characters
+        if value.startswith(_FORMULA_START):
+            return "'" + value
     return value
 
 
@@ -103,7 +108,7 @@ def _ci_names(name: str, unit: str = "") -> list[str]:
 
 
 GROWTH_HEADER = [
-    "experiment", "temperature_c", "stage_uncertainty_k", *_ci_names("growth_rate", "um_per_min"),
+    "experiment", "temperature_c", *_ci_names("growth_rate", "um_per_min"), "stage_uncertainty_k",
     "n_spherulites", "nucleation_mode", *_ci_names("nucleus_density_per_mm2"),
     *_ci_names("nucleus_density_per_mm3"), *_ci_names("nucleation_rate_per_mm2_per_min"),
     *_ci_names("nucleation_rate_per_mm3_per_min"), "predicted_geometry",
@@ -174,7 +179,7 @@ def _growth_row(entry: ReportEntry, growth: Estimate) -> list:
     pi = entry.prediction_intervals
     predicted = [None] * 9 if pi is None else [
         *_triple(pi.n), *_triple(pi.k_per_min_n), *_triple(pi.t_half_min)]
-    return [entry.name, r.temperature_c, entry.stage_uncertainty_k, *_triple(growth),
+    return [entry.name, r.temperature_c, *_triple(growth), entry.stage_uncertainty_k,
             r.growth_rate.n, nuc.mode,
             *_with_ci(nuc.density_per_mm2, nuc.density_per_mm2_ci95),
             *_with_ci(nuc.density_per_mm3, nuc.density_per_mm3_ci95),
@@ -295,13 +300,10 @@ def _csv_value(value):
 
 
 def write_csv(table: Table, path) -> Path:
-    """UTF-8 CSV; text cells escaped against formula injection; None -> empty."""
-    path = Path(path)
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh)
-        writer.writerow([_csv_value(h) for h in table.header])
-        writer.writerows([_csv_value(v) for v in row] for row in table.rows)
-    return path
+    """UTF-8 CSV, written atomically; text cells escaped against formula injection;
+    None -> empty."""
+    return write_csv_atomic(path, [[_csv_value(v) for v in row]
+                                   for row in (table.header, *table.rows)])
 
 
 def _xlsx_value(value):
@@ -311,7 +313,8 @@ def _xlsx_value(value):
 
 
 def write_xlsx(sheets: dict, path) -> Path:
-    """One worksheet per table; header row bold and frozen; text cells escaped."""
+    """One worksheet per table; header row bold and frozen; text cells escaped; the file
+    is written atomically."""
     from openpyxl import Workbook
     from openpyxl.styles import Font
 
@@ -325,6 +328,4 @@ def write_xlsx(sheets: dict, path) -> Path:
         for row in table.rows:
             sheet.append([_xlsx_value(v) for v in row])
         sheet.freeze_panes = "A2"
-    path = Path(path)
-    book.save(path)
-    return path
+    return write_atomic(path, lambda temporary: book.save(temporary))

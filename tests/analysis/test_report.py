@@ -38,8 +38,7 @@ def make_result(tc, n_mm3=2e4):
         thickness_um=25.0, spherulites=(), radii=(),
         growth_rate=PooledGrowthRate(g, 0.97 * g, 1.03 * g, 15),
         nucleation=Nucleation(60, "athermal", n_mm3 * 0.025, n_mm3, None, None, 0.0),
-        area_fraction_time_s=t_s, area_fraction=1 - np.exp(-k * (t_s / 60) ** 2),
-        avrami_film=None, avrami_predicted=None)
+        area_fraction_time_s=t_s, area_fraction=1 - np.exp(-k * (t_s / 60) ** 2))
 
 
 @pytest.fixture(scope="module")
@@ -64,7 +63,7 @@ def test_build_report_writes_everything(tmp_path, calorimetry):
         root = ET.parse(tmp_path / (stem + ".svg")).getroot()
         assert root.tag.endswith("svg")
     lines = (tmp_path / "growth_vs_temperature.csv").read_text().splitlines()
-    assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,stage_uncertainty_k,growth_rate_um_per_min,"
+    assert len(lines) == 12 and lines[0].startswith("experiment,temperature_c,growth_rate_um_per_min,"
                                                         "growth_rate_ci95_low_um_per_min")
     doc = json.loads((tmp_path / "secondary_nucleation.json").read_text())
     # the break of fixture B (137 C) is found within 2 K and the ratio is 2 (docs/sources.md 2.5)
