@@ -38,7 +38,7 @@ from analysis.intervals import (
 from analysis.kinetics.avrami import predict_avrami
 from analysis.kinetics.prediction import predict_model_from_result
 from analysis.results import ExperimentResult
-from analysis.spherulites.growth import pooled_rate
+from analysis.spherulites.growth import random_effects_mean
 
 
 @dataclass(frozen=True)
@@ -92,9 +92,7 @@ def _inputs(result: ExperimentResult, geometry: str, mode: str) -> _Inputs:
 def _draw(inputs: _Inputs, geometry: str, rng: np.random.Generator):
     """One bootstrap draw of (n, k, t_half); raises ValueError when it predicts nothing."""
     pick = rng.integers(0, inputs.g.size, inputs.g.size)
-    g = pooled_rate(inputs.g[pick], inputs.se[pick]).value
-    if g is None:
-        raise ValueError("no growth rate")
+    g = random_effects_mean(inputs.g[pick], inputs.se[pick])[0] if pick.size > 1 else inputs.g[0]
     g *= 1.0 + inputs.systematic_rel * rng.standard_normal()
     density = rng.poisson(inputs.burst_count) / inputs.area_mm2 * inputs.per_volume \
         if inputs.burst_count else 0.0

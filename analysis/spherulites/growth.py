@@ -388,6 +388,17 @@ def timing_systematic(times_s, growth_span_s: float, growth_px_per_s: float | No
     return TimingSystematic(frame, interp, reg)
 
 
+def random_effects_mean(g: np.ndarray, se: np.ndarray) -> tuple[float, float, float, np.ndarray]:
+    """DerSimonian-Laird mean of at least two finite values with positive standard
+    errors: (mean, tau^2, Q, the random-effects weights). See :func:`pooled_rate`."""
+    w = 1.0 / se ** 2
+    mean = float(np.sum(w * g) / np.sum(w))
+    q = float(np.sum(w * (g - mean) ** 2))
+    tau2 = max(0.0, (q - (g.size - 1)) / (np.sum(w) - np.sum(w ** 2) / np.sum(w)))
+    w_star = 1.0 / (se ** 2 + tau2)
+    return float(np.sum(w_star * g) / np.sum(w_star)), tau2, q, w_star
+
+
 def pooled_rate(values, standard_errors, systematic_rel: float = 0.0) -> PooledRate:
     """Inverse-variance weighted mean of per-spherulite rates, random effects if needed.
 
@@ -406,15 +417,10 @@ def pooled_rate(values, standard_errors, systematic_rel: float = 0.0) -> PooledR
     k = g.size
     if k == 0:
         return PooledRate(None, None, 0, None, "no spherulite with a usable growth rate")
-    w = 1.0 / se ** 2
-    mean = float(np.sum(w * g) / np.sum(w))
     if k == 1:
-        half, tau2, q, kind = float(1.96 * se[0]), None, 0.0, "single spherulite"
+        mean, half, tau2, q, kind = float(g[0]), float(1.96 * se[0]), None, 0.0, "single spherulite"
     else:
-        q = float(np.sum(w * (g - mean) ** 2))
-        tau2 = max(0.0, (q - (k - 1)) / (np.sum(w) - np.sum(w ** 2) / np.sum(w)))
-        w_star = 1.0 / (se ** 2 + tau2)
-        mean = float(np.sum(w_star * g) / np.sum(w_star))
+        mean, tau2, q, w_star = random_effects_mean(g, se)
         half = float(stats.t.ppf(0.975, k - 1) / math.sqrt(np.sum(w_star)))
         kind = "random-effects (DerSimonian-Laird)" if tau2 > 0 else "fixed-effect"
     systematic = 1.96 * systematic_rel * abs(mean)
