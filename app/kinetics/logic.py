@@ -13,11 +13,17 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import predict_model_from_result
+from analysis.kinetics.uncertainty import prediction_intervals as _prediction_intervals
 
 
 def prediction(result, geometry: str, mode_override: str | None):
     """The Avrami model predicted from the experiment's N and G (InputError if impossible)."""
     return predict_model_from_result(result, geometry, mode_override)
+
+
+def prediction_intervals(result, geometry: str, mode_override: str | None, *, seed: int):
+    """Bootstrap intervals of the prediction (analysis.kinetics.uncertainty), or None."""
+    return _prediction_intervals(result, geometry, mode_override, seed=seed)
 
 
 def safe_prediction(result, experiment):
@@ -80,7 +86,7 @@ def compare(result, experiment, calorimetry, material) -> ComparisonView:
     """Bulk prediction against the calorimetry fit (``analysis.reporting.tables.compare_kinetics``):
     table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve."""
     from analysis.reporting.tables import ReportEntry, compare_kinetics
-    from app.widgets.formatting import DASH, fmt, k_unit
+    from app.widgets.formatting import DASH, fmt, fmt_ci, k_unit
 
     empty = (DASH, DASH, DASH)
     if calorimetry is None:
@@ -102,7 +108,7 @@ def compare(result, experiment, calorimetry, material) -> ComparisonView:
          f"{_ratio(root(c.measured_k_per_min_n, c.measured_n), root(c.predicted_k_per_min_n, c.predicted_n))}"
          " (k^(1/n))"),
         (fmt(c.predicted_t_half_min), fmt(c.measured_t_half_min),
-         f"{c.t_half_ratio:.2f} (×/÷ {c.ratio_uncertainty:.3g})"),
+         fmt_ci(c.t_half_ratio, *c.t_half_ratio_ci95)),
     )
     verdict = "Agree." if c.agree else "Disagree beyond the uncertainty."
     return ComparisonView(rows, f"{verdict} {c.note} {curve_note}", (tau, x))

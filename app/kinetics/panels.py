@@ -9,7 +9,7 @@ from __future__ import annotations
 from PySide6 import QtCore, QtWidgets
 
 from app.core.kinetics_inputs import volumetric_density
-from app.widgets.formatting import DASH, fmt, fmt_pm, k_unit
+from app.widgets.formatting import DASH, fmt, fmt_ci, fmt_estimate, k_unit
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
@@ -55,24 +55,33 @@ class PredictionPanel(FormPanel):
         found = mode_found or "not determined"
         self.form.set("mode", f"{mode_used or DASH} (analysis: {found})")
         self.form.values["mode"].setToolTip(nuc.mode_test or "")
-        self.form.set("density_areal", fmt(nuc.density_per_mm2, "mm⁻²"))
+        self.form.set("density_areal", fmt_ci(nuc.density_per_mm2, *(nuc.density_per_mm2_ci95 or (None, None)), "mm⁻²"))
         volumetric, h = volumetric_density(result, experiment)
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
-        self.form.set("density_volumetric", fmt(volumetric, "mm⁻³"))
-        rates = [fmt(value, unit) for value, unit in ((nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹"),
-                                                      (nuc.rate_per_mm3_per_min, "mm⁻³ min⁻¹"))
-                 if value is not None]
+        pair = nuc.density_per_mm2_ci95
+        scale = None if volumetric is None or not nuc.density_per_mm2 else volumetric / nuc.density_per_mm2
+        vol_ci = (None, None) if pair is None or scale is None else (pair[0] * scale, pair[1] * scale)
+        self.form.set("density_volumetric", fmt_ci(volumetric, *vol_ci, "mm⁻³"))
+        rates = [fmt_ci(value, *(pair or (None, None)), unit) for value, pair, unit in (
+            (nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95, "mm⁻² min⁻¹"),
+            (nuc.rate_per_mm3_per_min, nuc.rate_per_mm3_per_min_ci95, "mm⁻³ min⁻¹")) if value is not None]
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
-        ci = None if g.ci95_high is None or g.value is None else g.ci95_high - g.value
-        self.form.set("growth_rate", f"{fmt_pm(g.value, ci, 'µm/min')}  ({g.n} spherulites)")
+        self.form.set("growth_rate", f"{fmt_ci(g.value, g.ci95_low, g.ci95_high, 'µm/min')}  ({g.n} spherulites)")
 
-    def show_prediction(self, model, geometry: str) -> None:
-        """``model``: analysis.kinetics.avrami.AvramiPrediction, or None with ``problem`` set."""
+    def show_prediction(self, model, geometry: str, intervals=None) -> None:
+        """``model``: analysis.kinetics.avrami.AvramiPrediction, or None with ``problem`` set;
+        ``intervals``: its analysis.kinetics.uncertainty.PredictionIntervals, if known."""
         self.problem.setText("")
-        self.form.set("n", f"{model.n:.3g}")
-        self.form.set("k", fmt(model.k_per_min_n, k_unit(model.n)))
-        self.form.set("t_half", fmt(model.t_half_min, "min"))
+        if intervals is None:
+            self.form.set("n", f"{model.n:.3g}")
+            self.form.set("k", fmt(model.k_per_min_n, k_unit(model.n)))
+            self.form.set("t_half", fmt(model.t_half_min, "min"))
+        else:
+            exact = intervals.n.low == intervals.n.high  # set by the mode, not estimated
+            self.form.set("n", f"{model.n:.3g}" if exact else fmt_estimate(intervals.n))
+            self.form.set("k", fmt_estimate(intervals.k_per_min_n, k_unit(model.n)))
+            self.form.set("t_half", fmt_estimate(intervals.t_half_min, "min"))
         self.formula.setText(f"{FORMULAS[(geometry, model.mode)]}\n{HALF_TIME_FORMULA}")
 
     def show_problem(self, text: str, geometry: str | None = None, mode: str | None = None) -> None:

@@ -17,12 +17,13 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
+from analysis.project.file import resampling_seed
 from app.core.kinetics_inputs import CalorimetryCache, file_stem, material_for
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel
 from app.kinetics.plots import KineticsPlots
-from app.widgets.formatting import DASH, fmt, k_unit
+from app.widgets.formatting import DASH, fmt, fmt_estimate, k_unit
 from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
@@ -189,7 +190,11 @@ class KineticsView(LazyPage):
         except InputError as error:
             self.prediction.show_problem(error.problem, experiment.geometry, mode_used)
             return None
-        self.prediction.show_prediction(model, experiment.geometry)
+        # ~0.1 s of resampling (1000 draws); cached per result by the shared inputs would be
+        # better, but the page redraws only on a change of experiment or option
+        intervals = logic.prediction_intervals(result, experiment.geometry, experiment.mode_override,
+                                               seed=resampling_seed(self.model.project))
+        self.prediction.show_prediction(model, experiment.geometry, intervals)
         return model
 
     # ---------------------------------------------------------------- calorimetry
@@ -236,10 +241,12 @@ class KineticsView(LazyPage):
         form.set("enthalpy", fmt(result.enthalpy_j_per_g, "J/g"))
         form.set("crystallinity", DASH if result.crystallinity is None else f"{result.crystallinity:.1%}")
         form.set("window", f"{result.window[0]:.1%} – {result.window[1]:.1%}")
-        form.set("n", f"{fit.n:.3f}" + ("" if fit.n_ci95 is None else f" ± {fit.n_ci95:.2g}") if fit else DASH)
-        form.set("k", fmt(fit.k_per_min_n, k_unit(fit.n)) if fit else DASH)
-        form.set("t_half", f"{fmt(fit.t_half_min if fit else None, 'min')} / "
-                           f"{fmt(result.t_half_measured_min, 'min')}")
+        ci = result.intervals
+        form.set("n", fmt_estimate(ci.n) if ci else (f"{fit.n:.3f}" if fit else DASH))
+        form.set("k", (fmt_estimate(ci.k_per_min_n, k_unit(fit.n)) if ci else
+                       fmt(fit.k_per_min_n, k_unit(fit.n))) if fit else DASH)
+        t_half = fmt_estimate(ci.t_half_min, "min") if ci else fmt(fit.t_half_min if fit else None, "min")
+        form.set("t_half", f"{t_half} / {fmt(result.t_half_measured_min, 'min')}")
         form.set("r2", f"{fit.r2:.5f}" if fit else DASH)
         self.calorimetry_panel.problem.setText("; ".join(result.warnings))
 
