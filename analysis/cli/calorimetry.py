@@ -34,8 +34,12 @@ def run_cli(args) -> int:
         mass_mg=args.mass_mg, material=args.material, lag_s=args.lag_s)
     json_path, csv_path = write_calorimetry_outputs(result, args.out)
     fit = result.avrami
+    ci = result.intervals
     summary = (f"n = {fit.n:.3f}, k = {fit.k_per_min_n:.4g} min^-n, t1/2 = {fit.t_half_min:.4g} min"
                if fit else f"Avrami fit failed: {fit.reason}")
+    if fit and ci is not None:
+        summary += (f" (95 % CI: n {ci.n.low:.3f}-{ci.n.high:.3f}, t1/2 "
+                    f"{ci.t_half_min.low:.4g}-{ci.t_half_min.high:.4g} min)")
     print(f"{result.path}: induction {result.induction_time_min:.4g} min; {summary}; "
           f"wrote {json_path} and {csv_path}")
     for warning in result.warnings:

@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
+from analysis.intervals import DEFAULT_SEED
+from analysis.kinetics.lauritzen_hoffman import LHConstants, read_growth_table, write_secondary_nucleation
+from analysis.kinetics.lh_intervals import DEFAULT_STAGE_UNCERTAINTY_K, fit_with_temperature, lh_intervals
 from analysis.outputs import prepare_output_folder
-from analysis.kinetics.lauritzen_hoffman import (
-    LHConstants,
-    fit_lauritzen_hoffman,
-    read_growth_table,
-    write_secondary_nucleation,
-)
+from analysis.project.file import check_stage_uncertainty
 
 
 def add_cli_arguments(parser) -> None:
@@ -20,18 +18,25 @@ def add_cli_arguments(parser) -> None:
                         help="transport activation energy U*, J/mol (default 6270)")
     parser.add_argument("--t-inf-c", type=float, help="T_inf, C (default Tg - 30 K)")
     parser.add_argument("--material", help="material for sigma*sigma_e (b0, dH0, rho_c)")
+    parser.add_argument("--stage-uncertainty-k", type=float, default=DEFAULT_STAGE_UNCERTAINTY_K,
+                        help="standard uncertainty of the stage temperature, K (default 0.5)")
+    parser.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                        help=f"seed of the resampling (default {DEFAULT_SEED})")
 
 
 def run_cli(args) -> int:
     prepare_output_folder(args.out)
     table = read_growth_table(args.table)
+    u_t = check_stage_uncertainty(args.stage_uncertainty_k, "--stage-uncertainty-k", table.path)
     constants = LHConstants(args.tm0_c, args.tg_c, args.u_star_j_mol, args.t_inf_c)
-    analysis = fit_lauritzen_hoffman(table.temperature_c, table.growth_rate_um_per_min,
-                                     table.ci95_um_per_min, constants=constants,
-                                     material=args.material, path=table.path)
-    path = write_secondary_nucleation(analysis, args.out)
+    analysis = fit_with_temperature(table.temperature_c, table.growth_rate_um_per_min,
+                                    table.ci95_um_per_min, u_t, constants=constants,
+                                    material=args.material, path=table.path)
+    intervals = lh_intervals(analysis, table.ci95_um_per_min, u_t, seed=args.seed)
+    path = write_secondary_nucleation(analysis, args.out, intervals)
     fit = analysis.overall
-    ci = f" +/- {fit.kg_ci95:.3g}" if fit.kg_ci95 is not None else ""
+    kg = intervals.kg_k2
+    ci = f" (95 % CI {kg.low:.4g}-{kg.high:.4g})" if kg.low is not None else ""
     parts = ", ".join(f"{r.name}: Kg {r.kg_k2:.4g} K^2 ({r.t_low_c:g}-{r.t_high_c:g} C)"
                       for r in analysis.regimes)
     print(f"{table.path}: Kg = {fit.kg_k2:.4g}{ci} K^2; {parts}; wrote {path}")

@@ -213,8 +213,16 @@ def test_cli_writes_design_json(tmp_path):
                               "--tg-c", "-10", "--material", "PP"])
     assert run_cli(args) == 0
     doc = json.loads((tmp_path / "o" / "secondary_nucleation.json").read_text())
+    with_ci = {f"{name}_ci95_{end}" for name in ("kg_k2", "g0_um_per_min", "sigma_sigma_e_j2_per_m4",
+                                                 "sigma_e_j_m2", "regime_break_c")
+               for end in ("low", "high")}
     assert set(doc) == {"schema", "u_star_j_per_mol", "t_inf_c", "tm0_c", "tg_c", "kg_k2", "kg_ci95",
-                        "g0_um_per_min", "regimes", "regime_ratio", "sigma_sigma_e_j2_per_m4", "sigma_e_j_m2"}
+                        "g0_um_per_min", "regimes", "regime_ratio", "sigma_sigma_e_j2_per_m4", "sigma_e_j_m2",
+                        "regime_break_c", "regime_break_fraction_of_resamples", "stage_uncertainty_k",
+                        "resampling", *with_ci}
+    # a two-regime series: the break and its interval (docs/sources.md "Uncertainty")
+    assert doc["regime_break_c_ci95_low"] <= doc["regime_break_c"] <= doc["regime_break_c_ci95_high"]
+    assert doc["kg_k2_ci95_low"] < doc["kg_k2"] < doc["kg_k2_ci95_high"]
     assert [r["name"] for r in doc["regimes"]] == ["III", "II"]
     assert set(doc["regimes"][0]) == {"name", "t_low_c", "t_high_c", "kg_k2", "g0_um_per_min"}
     assert doc["t_inf_c"] == -40.0 and doc["regime_ratio"] == pytest.approx(2.0, rel=1e-4)
