@@ -6,7 +6,7 @@ gives an honest interval. Each bootstrap draw (Efron & Tibshirani 1993, An Intro
 to the Bootstrap, Chapman & Hall, ch. 6 and 13) therefore
 
 * resamples the fitted spherulites with replacement and pools their G again (random
-  effects, :func:`analysis.spherulites.growth.pooled_rate`), times one draw of the shared
+  effects, :func:`analysis.spherulites.growth.random_effects_mean`), times one draw of the shared
   timing error of the recording (its relative standard uncertainty);
 * redraws the counts of nuclei from Poisson distributions with the observed counts as
   means (nuclei of the initial burst, and births after it for the rate), which is the
@@ -36,7 +36,7 @@ from analysis.intervals import (
     percentile_interval,
 )
 from analysis.kinetics.avrami import predict_avrami
-from analysis.kinetics.prediction import predict_model_from_result
+from analysis.kinetics.prediction import predict_model_from_result, prediction_inputs
 from analysis.results import ExperimentResult
 from analysis.spherulites.growth import random_effects_mean
 
@@ -53,7 +53,6 @@ class PredictionIntervals:
     t_half_min: Estimate
     seed: int
     resamples: int
-    t_half_draws_min: np.ndarray  # the bootstrap draws, for ratios with other estimates
 
 
 @dataclass(frozen=True)
@@ -82,8 +81,8 @@ def _inputs(result: ExperimentResult, geometry: str, mode: str) -> _Inputs:
     late = nuc.late_count if mode != "athermal" else 0
     exposure = (nuc.late_exposure_mm2_s or 0.0) / 60.0
     per_volume = 1.0
-    if geometry == "bulk-3d":
-        per_volume = 1.0 / (result.thickness_um * 1e-3)
+    if geometry == "bulk-3d":  # N_V = N_A / h with the thickness the model used
+        per_volume = 1.0 / (prediction_inputs(result, geometry, mode).thickness_um * 1e-3)
     return _Inputs(np.array([s.growth_rate_um_per_min for s in ok]),
                    np.array([s.growth_rate_se_um_per_min for s in ok]),
                    result.growth_rate.systematic_rel, burst, late, exposure, area, per_volume)
@@ -111,7 +110,7 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
     """Bootstrap intervals of the predicted n, k and t_half; None without a prediction.
 
     The point values are the prediction from the result itself
-    (:func:`analysis.kinetics.avrami.predict_model_from_result`); only the intervals
+    (:func:`analysis.kinetics.prediction.predict_model_from_result`); only the intervals
     come from the draws.
     """
     try:
@@ -132,8 +131,7 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
              for j, v in enumerate((model.n, model.k_per_min_n, model.t_half_min))]
     if model.mode != "mixed":  # the exponent is fixed by the model, not estimated
         parts[0] = Estimate(model.n, model.n, model.n)
-    return PredictionIntervals(geometry, model.mode, *parts, seed=seed, resamples=resamples,
-                               t_half_draws_min=draws[:, 2])
+    return PredictionIntervals(geometry, model.mode, *parts, seed=seed, resamples=resamples)
 
 
 def _delta_method(result: ExperimentResult, model, seed: int) -> PredictionIntervals:
@@ -151,8 +149,7 @@ def _delta_method(result: ExperimentResult, model, seed: int) -> PredictionInter
     spread = math.exp(1.96 * sigma_t)
     return PredictionIntervals(model.geometry, model.mode, Estimate(n, n, n),
                                Estimate(k, k / spread ** n, k * spread ** n),
-                               Estimate(t_half, t_half / spread, t_half * spread), seed, 0,
-                               np.zeros(0))
+                               Estimate(t_half, t_half / spread, t_half * spread), seed, 0)
 
 
 def ratio_interval(numerator: Estimate, denominator: Estimate) -> Estimate:
