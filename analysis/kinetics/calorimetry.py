@@ -111,6 +111,7 @@ class CalorimetryResult:
     warnings: tuple[str, ...] = field(default=())
     # calorimetry_intervals.CalorimetryIntervals of the window fit, or None (not computed)
     intervals: object | None = None
+    induction_time_se_min: float | None = None  # standard error of the onset fit's t0
 
     def conversion_table(self) -> tuple[np.ndarray, np.ndarray]:
         """(time_min, X) between the baseline start and end, X clipped to [0, 1]."""
@@ -214,14 +215,15 @@ def _baseline_anchors(t, oriented, i_tr, peak, width, sigma, start_min, end_min)
     return _index_at(t, start_min, start), _index_at(t, end_min, end)
 
 
-def _onset_fit(t, x, start_min) -> float:
+def _onset_fit(t, x, start_min) -> tuple[float, float | None]:
     """Induction time: onset t0 of X = 1 - exp(-ln2 ((t - t0)/th)^n) fitted over 2-80 %.
 
     The range skips the first per cent, where instrument lag distorts the shape most.
+    Returns t0 and its standard error from the fit (None when the fit fails).
     """
     sel = (x >= 0.02) & (x <= 0.8)
     if np.count_nonzero(sel) < 5:
-        return start_min
+        return start_min, None
     t_first = float(t[np.argmax(x >= 0.01)])
     half = float(np.interp(0.5, np.maximum.accumulate(x), t))
 
@@ -231,10 +233,11 @@ def _onset_fit(t, x, start_min) -> float:
     p0 = (3.0, max(half - start_min, 1e-6), min(start_min, 0.999 * t_first))
     bounds = ([0.5, 1e-9, min(0.0, p0[2])], [8.0, np.inf, t_first])
     try:
-        params, _ = optimize.curve_fit(model, t[sel], x[sel], p0=p0, bounds=bounds)
+        params, cov = optimize.curve_fit(model, t[sel], x[sel], p0=p0, bounds=bounds)
     except (RuntimeError, ValueError):
-        return start_min
-    return float(params[2])
+        return start_min, None
+    se = math.sqrt(cov[2, 2]) if np.isfinite(cov[2, 2]) and cov[2, 2] >= 0 else None
+    return float(params[2]), se
 
 
 def _lag_corrected(isotherm: Isotherm, lag_s: float) -> np.ndarray:
@@ -328,9 +331,9 @@ def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=(0.03
     x = np.zeros_like(t)
     x[seg] = cumulative / total
     x[end + 1:] = 1.0
-    t0 = _onset_fit(t[seg], x[seg], float(t[start]))
-    return _finish(isotherm, t, q, line, sign, i_tr, start, end, t0, x, total, window,
-                   mass_mg, material)
+    t0, t0_se = _onset_fit(t[seg], x[seg], float(t[start]))
+    return replace(_finish(isotherm, t, q, line, sign, i_tr, start, end, t0, x, total, window,
+                           mass_mg, material), induction_time_se_min=t0_se)
 
 
 def _measured_half_time(t, x, t0) -> float | None:

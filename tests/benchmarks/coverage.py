@@ -15,10 +15,11 @@ range of recordings, not one:
   4.6e5 K^2), each G with a 0.5-3 % error and each stage reading off by N(0, 0.5 K);
   Kg with the temperature uncertainty propagated.
 
-The constants of the pooled-G timing term were set on seeds 0-39 (``--first 0``); the
-table in the README is from seeds 1000 onwards (``--first 1000``).
+The constants of the pooled-G timing term, the calorimetry choices and the LH interval
+type were set on seeds 0-99 (``--first 0 --seeds 100``); the table in the README is from
+seeds 2000-2099 (``--first 2000 --seeds 100``).
 
-Usage: nice -n 10 python tests/benchmarks/coverage.py [--seeds 40] [--first 1000]
+Usage: nice -n 10 python tests/benchmarks/coverage.py [--seeds 100] [--first 2000]
        [--parts stack,dsc,lh]
 """
 
@@ -118,8 +119,8 @@ PARTS = {"stack": stack_case, "dsc": dsc_case, "lh": lh_case}
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--seeds", type=int, default=40)
-    parser.add_argument("--first", type=int, default=1000)
+    parser.add_argument("--seeds", type=int, default=100)
+    parser.add_argument("--first", type=int, default=2000)
     parser.add_argument("--parts", default="stack,dsc,lh")
     args = parser.parse_args()
     rows: dict[str, list] = {}
