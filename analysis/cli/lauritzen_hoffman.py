@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from analysis.intervals import DEFAULT_SEED
 from analysis.kinetics.lauritzen_hoffman import LHConstants, read_growth_table, write_secondary_nucleation
-from analysis.kinetics.lh_intervals import DEFAULT_STAGE_UNCERTAINTY_K, fit_with_temperature, lh_intervals
+from analysis.kinetics.lh_intervals import fit_with_temperature, lh_intervals
 from analysis.outputs import prepare_output_folder
-from analysis.project.file import check_stage_uncertainty
+from analysis.project.file import DEFAULT_STAGE_UNCERTAINTY_K, check_stage_uncertainty
 
 
 def add_cli_arguments(parser) -> None:

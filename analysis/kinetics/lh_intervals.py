@@ -31,8 +31,6 @@ from analysis.intervals import (
 )
 from analysis.kinetics.lauritzen_hoffman import LHAnalysis, fit_lauritzen_hoffman
 
-#: Default stage-temperature uncertainty, K (common practice for a calibrated hot stage).
-DEFAULT_STAGE_UNCERTAINTY_K = 0.5
 LINE_RESAMPLES = 400
 BREAK_RESAMPLES = 100
 

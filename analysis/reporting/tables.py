@@ -26,7 +26,8 @@ from pathlib import Path
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED, Estimate
 from analysis.kinetics.avrami import AvramiPrediction
-from analysis.kinetics.lh_intervals import DEFAULT_STAGE_UNCERTAINTY_K, temperature_half_width, with_temperature
+from analysis.kinetics.lh_intervals import temperature_half_width, with_temperature
+from analysis.project.file import DEFAULT_STAGE_UNCERTAINTY_K
 from analysis.kinetics.prediction import predict_model_from_result
 from analysis.kinetics.uncertainty import PredictionIntervals, prediction_intervals, ratio_interval
 from analysis.outputs import clean_text

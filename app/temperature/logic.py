@@ -11,10 +11,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.kinetics.lh_intervals import fit_with_temperature
+from analysis.project.file import DEFAULT_STAGE_UNCERTAINTY_K, STAGE_UNCERTAINTY_KEY
 from analysis.kinetics.prediction import predict_from_result
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
-    fit_lauritzen_hoffman,
     hoffman_weeks,
     lh_coordinates,
     lh_growth_rate,
@@ -91,13 +92,17 @@ def constants_from(series: dict) -> LHConstants:
 
 
 def lh_fit(points, series: dict, material: str | None):
-    """``fit_lauritzen_hoffman`` over the experiments with a growth rate."""
+    """The Lauritzen-Hoffman fit over the experiments with a growth rate, weighted as the
+    report weights it (G's CI with the series' stage-temperature uncertainty,
+    ``analysis.kinetics.lh_intervals.fit_with_temperature``)."""
     constants = constants_from(series)
     usable = [p for p in points if p.temperature_c is not None and p.growth_rate is not None]
     tc, g = column(usable, "temperature_c"), column(usable, "growth_rate")
     ci = column(usable, "growth_ci95")
     weights = None if np.isnan(ci).any() else ci
-    return fit_lauritzen_hoffman(tc, g, weights, constants=constants, material=material)
+    u_t = series.get(STAGE_UNCERTAINTY_KEY)
+    u_t = DEFAULT_STAGE_UNCERTAINTY_K if u_t is None else float(u_t)
+    return fit_with_temperature(tc, g, weights, u_t, constants=constants, material=material)
 
 
 def lh_display(fit, points: int = 60):
