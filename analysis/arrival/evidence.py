@@ -35,13 +35,14 @@ import numpy as np
 from scipy import ndimage
 from skimage import measure
 
+from analysis.settings import CHANNEL_MODES  # described once with the other settings
+
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
     "blind_pixels", "sample_step", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
     "estimate_slowness", "complete_wedges",
 ]
 
-CHANNEL_MODES = ("auto", "grey", "colour")
 _NOISE_FLOOR = 0.3          # DN: below this an integer image is limited by quantization
 _BLIND_TRANSMISSION = 0.35  # darker than this fraction of the local melt: no information
 

@@ -15,7 +15,7 @@ Closed forms
     ``avrami_conversion(t_min, n, k, t0_min=0)``, ``half_time(n, k)``, ``k_from_half_time(n,
     t_half)``, ``k_per_second(k_per_min_n, n)``
 Fits (a failed fit is a falsy ``FitFailure(reason)``, never an exception)
-    ``fit_avrami_window(t_min, x, window=(0.03, 0.20)) -> AvramiFit | FitFailure``
+    ``fit_avrami_window(t_min, x, window=DEFAULT_FIT_WINDOW) -> AvramiFit | FitFailure``
     ``fit_avrami_curve(t_min, x, *, x_range=(0.005, 0.995)) -> AvramiFit | FitFailure``
 Crystallinity bases
     ``volume_fraction_from_mass(w, *, density_ratio=None, material=None)`` and
@@ -61,6 +61,7 @@ from scipy import optimize, stats
 
 from analysis.errors import InputError
 from analysis.results import AvramiParameters, ExperimentResult
+from analysis.settings import DEFAULT_FIT_WINDOW, DEFAULT_GEOMETRY
 
 __all__ = [
     "AvramiFit", "AvramiPrediction", "FitFailure", "GEOMETRIES", "avrami_conversion",
@@ -206,7 +207,7 @@ def _result_inputs(result: ExperimentResult, d: int) -> tuple[float | None, floa
     return density, rate
 
 
-def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
+def predict_model_from_result(result: ExperimentResult, geometry: str = DEFAULT_GEOMETRY,
                               mode: str | None = None) -> AvramiPrediction:
     """Model from an experiment's pooled G and nucleation (mode from the result if None;
     if the result states none either, from which of density and rate are known).
@@ -244,7 +245,7 @@ def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d
         raise InputError(err.problem, result.stack) from None
 
 
-def predict_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
+def predict_from_result(result: ExperimentResult, geometry: str = DEFAULT_GEOMETRY,
                         mode: str | None = None) -> AvramiParameters:
     """Predicted n, k (min^-n) and t_half (min) for an experiment; see ``predict_model_from_result``."""
     return predict_model_from_result(result, geometry, mode).to_parameters()
@@ -301,7 +302,7 @@ def _check_window(window) -> tuple[float, float] | FitFailure:
     return lo, hi
 
 
-def fit_avrami_window(t_min, x, window=(0.03, 0.20)) -> AvramiFit | FitFailure:
+def fit_avrami_window(t_min, x, window=DEFAULT_FIT_WINDOW) -> AvramiFit | FitFailure:
     """Linear fit of ln(-ln(1 - X)) against ln t for window[0] <= X <= window[1].
 
     Parameters

@@ -34,6 +34,7 @@ from analysis.kinetics.lauritzen_hoffman import (
     write_secondary_nucleation,
 )
 from analysis.progress import Progress, run_to_completion, scaled
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, HW_PAIRS_KEY
 from analysis.reporting import figures
 from analysis.reporting.tables import (
     ReportEntry,
@@ -42,9 +43,6 @@ from analysis.reporting.tables import (
     write_csv,
     write_xlsx,
 )
-
-#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
-HW_PAIRS_KEY = "hoffman_weeks_pairs"
 
 __all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "project_entries_iter",
            "report_project", "report_project_iter", "series_constants"]
@@ -184,7 +182,7 @@ def series_constants(project) -> tuple[LHConstants | None, str]:
         note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
     if tm0 is None or tg is None:
         return None, "no Tm0/Tg: set them for the series or choose a material"
-    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol") or 6270.0),
+    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol", DEFAULT_U_STAR_J_PER_MOL)),
                        series.get("t_inf_c")), note
 
 

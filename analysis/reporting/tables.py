@@ -27,6 +27,7 @@ from pathlib import Path
 from analysis.errors import InputError
 from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
 from analysis.results import ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
            "escape_cell", "growth_vs_temperature_table", "write_csv", "write_xlsx"]
@@ -44,7 +45,7 @@ class Table:
 class ReportEntry:
     name: str
     result: ExperimentResult
-    geometry: str = "bulk-3d"
+    geometry: str = DEFAULT_GEOMETRY
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None

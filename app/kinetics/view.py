@@ -17,6 +17,7 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
+from analysis.settings import DEFAULT_FIT_WINDOW
 from app.core.kinetics_inputs import CalorimetryCache, file_stem, material_for
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
@@ -27,7 +28,7 @@ from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
 
-DEFAULT_WINDOW = (0.03, 0.20)  # CalorimetrySource's default, the common 3-20 % guideline
+DEFAULT_WINDOW = DEFAULT_FIT_WINDOW  # the common 3-20 % guideline
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))

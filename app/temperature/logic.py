@@ -12,6 +12,7 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.kinetics.avrami import predict_from_result
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,
@@ -86,7 +87,7 @@ def constants_from(series: dict) -> LHConstants:
     if missing:
         raise InputError(f"set {' and '.join(missing)} (or choose a material) for the Lauritzen-Hoffman fit")
     return LHConstants(tm0_c=float(series["tm0_c"]), tg_c=float(series["tg_c"]),
-                       u_star_j_per_mol=float(series.get("u_star_j_per_mol") or 6270.0),
+                       u_star_j_per_mol=float(series.get("u_star_j_per_mol", DEFAULT_U_STAR_J_PER_MOL)),
                        t_inf_c=series.get("t_inf_c"))
 
 

@@ -103,7 +103,10 @@ def test_area_fraction_and_film_avrami_exponent_near_two(field_analysis):
     result = field_analysis[0].result
     assert np.all(np.diff(result.area_fraction) >= 0) and result.area_fraction[-1] > 0.99
     assert result.avrami_film.n == pytest.approx(2.0, abs=0.35)
-    assert result.avrami_predicted.n == pytest.approx(2.0)
+    # The default prediction is the bulk one (what DSC compares with): 3-D athermal, n = 3
+    # (Avrami 1940, J. Chem. Phys. 8, 212).
+    assert result.avrami_predicted.geometry == "bulk-3d"
+    assert result.avrami_predicted.n == pytest.approx(3.0)
 
 
 def test_radii_follow_the_fitted_rate(field_analysis):
@@ -250,7 +253,8 @@ def test_apply_edits_equals_a_fresh_analysis_with_the_same_edits(field_analysis)
 def test_settings_round_trip_and_bad_values():
     settings = pipeline.AnalysisSettings(sensitivity_frames=0.7, arrival={"channel": "auto"})
     assert pipeline.AnalysisSettings.from_dict(settings.to_dict()) == settings
-    assert pipeline.AnalysisSettings.from_dict({"unknown": 1}) == pipeline.AnalysisSettings()
+    with pytest.raises(InputError, match="unknown is not a known setting"):
+        pipeline.AnalysisSettings.from_dict({"unknown": 1})
     with pytest.raises(InputError, match="sensitivity_frames"):
         pipeline.AnalysisSettings.from_dict({"sensitivity_frames": -1}, path="exp.json")
 

@@ -72,15 +72,16 @@ def test_newer_schema_is_refused_with_a_clear_message(tmp_path):
 
 
 def test_migration_chain_runs_step_by_step(monkeypatch):
-    def v1_to_v2(document):
+    def next_step(document):
         """Test-only step: renames a key."""
         document["renamed"] = document.pop("old", None)
         return document
 
-    monkeypatch.setattr("analysis.project.file.SCHEMA_VERSION", 2)
-    monkeypatch.setitem(__import__("analysis.project.file").project.file.MIGRATIONS, 1, v1_to_v2)
+    latest = SCHEMA_VERSION
+    monkeypatch.setattr("analysis.project.file.SCHEMA_VERSION", latest + 1)
+    monkeypatch.setitem(__import__("analysis.project.file").project.file.MIGRATIONS, latest, next_step)
     migrated = migrate({"format": "spherokin-project", "schema_version": 1, "old": 3}, "x")
-    assert migrated == {"format": "spherokin-project", "schema_version": 2, "renamed": 3}
+    assert migrated == {"format": "spherokin-project", "schema_version": latest + 1, "renamed": 3}
 
 
 @pytest.mark.parametrize("text, problem", [
@@ -89,7 +90,7 @@ def test_migration_chain_runs_step_by_step(monkeypatch):
     ('{"format": "spherokin-project", "schema_version": "one"}', "invalid schema_version"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": [{"name": "a"}]}', "no stack"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
-     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "positive"),
+     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "'a': um_per_px must be a number in \\(0.0001"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
      '[{"name": "a", "stack": "s.tif", "edits": [{"kind": "teleport"}]}]}', "unknown edit kind"),
 ])
