@@ -59,6 +59,7 @@ class _ProgressBar:
 def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
     given = {spec.key: value_of(args, spec) for spec in _experiment_specs()}
+    geometry = given["geometry"] or DEFAULT_GEOMETRY
     settings = analysis_settings_from_args(args)
     stack = open_stack(args.stack, um_per_px=given["um_per_px"], interval_s=given["interval_s"])
     stack.require_calibration()
@@ -67,10 +68,11 @@ def run_cli(args) -> int:
         analysis = run_to_completion(analyze_iter(
             stack, settings=settings, isothermal_start_s=given["isothermal_start_s"] or 0.0,
             temperature_c=given["temperature_c"], thickness_um=given["thickness_um"],
-            geometry=given["geometry"] or DEFAULT_GEOMETRY), bar)
+            geometry=geometry), bar)
     finally:
         bar.close()
-    write_analysis_outputs(analysis.result, args.out, arrival=analysis.arrival, stack=stack)
+    write_analysis_outputs(analysis.result, args.out, geometry=geometry,
+                           arrival=analysis.arrival, stack=stack)
     result = analysis.result
     g = result.growth_rate
     g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"

@@ -37,7 +37,6 @@ alpha = 0.1 (from memory).
 from __future__ import annotations
 
 import csv
-import json
 import math
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -46,6 +45,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from analysis.errors import InputError
+from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
 from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, t_inf_default_c
 
@@ -344,24 +344,11 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
     }
 
 
-def _json_safe(value):
-    """NaN and infinities (not valid JSON) become null, recursively."""
-    if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_safe(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     path = out / "secondary_nucleation.json"
-    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2,
-                               allow_nan=False) + "\n", encoding="utf-8")
-    return path
+    return write_json_atomic(path, secondary_nucleation_dict(analysis))
 
 
 # ---------------------------------------------------------------- Hoffman-Weeks

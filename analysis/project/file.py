@@ -16,7 +16,8 @@ File format (``*.spherokin.json``)::
 
 ``settings`` holds :class:`analysis.settings.AnalysisSettings` (``{"arrival": {...}, ...}``);
 every key and value is checked when the file loads (:mod:`analysis.project.reading`), with
-the descriptions of :mod:`analysis.settings`. Older schemas are migrated step by step by :data:`MIGRATIONS`; newer ones are refused.
+the descriptions of :mod:`analysis.settings`. Older schemas are migrated step by step by
+:data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
 over the target, so a crash never leaves a half-written project.
 """
@@ -25,7 +26,6 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
@@ -35,10 +35,11 @@ from analysis.edits import edit_to_dict
 from analysis.errors import InputError
 from analysis.project.model import CalorimetrySource, Experiment, Project, new_project, now_stamp
 from analysis.project.reading import project_from_document
+from analysis.units import write_json_atomic
 
 __all__ = ["FORMAT", "SCHEMA_VERSION", "SUFFIX", "MIGRATIONS", "CalorimetrySource", "Experiment",
            "Project", "new_project", "open_experiment_stack", "load_project", "project_from_dict",
-           "migrate", "project_to_dict", "save_project", "write_text_atomic"]
+           "migrate", "project_to_dict", "save_project"]
 
 FORMAT = "spherokin-project"
 SCHEMA_VERSION = 2
@@ -189,36 +190,5 @@ def save_project(project: Project, path) -> Project:
     path = Path(path)
     stamped = replace(project, modified=now_stamp(), created=project.created or now_stamp(),
                       path=str(path.resolve()))
-    text = json.dumps(project_to_dict(stamped, path), indent=2, ensure_ascii=False)
-    write_text_atomic(path, text + "\n")
+    write_json_atomic(path, project_to_dict(stamped, path))
     return stamped
-
-
-def write_text_atomic(path, text: str) -> None:
-    """Write via a temporary file in the same folder, flush + fsync, then rename."""
-    path = Path(path)
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.chmod(temporary, _file_mode(path))
-        with os.fdopen(handle, "w", encoding="utf-8") as out:
-            out.write(text)
-            out.flush()
-            os.fsync(out.fileno())
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
-
-
-def _file_mode(path: Path) -> int:
-    """Keep an existing file's permissions; new files get the usual umask-based mode.
-
-    mkstemp creates files readable by the owner only, which would silently hide a
-    shared project from colleagues after the first save.
-    """
-    try:
-        return path.stat().st_mode & 0o777
-    except FileNotFoundError:
-        umask = os.umask(0)
-        os.umask(umask)
-        return 0o666 & ~umask

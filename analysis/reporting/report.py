@@ -20,7 +20,6 @@ Public API
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -43,6 +42,7 @@ from analysis.reporting.tables import (
     write_csv,
     write_xlsx,
 )
+from analysis.units import write_json_atomic
 
 __all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "project_entries_iter",
            "report_project", "report_project_iter", "series_constants"]
@@ -136,8 +136,7 @@ def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
     doc = {"schema": 1, "pairs": [[float(a), float(b)] for a, b in zip(tc, tm)],
            "tm0_c": hw.tm0_c, "gamma": hw.gamma, "slope": hw.slope,
            "intercept_c": hw.intercept_c, "r2": hw.r2, "caveat": hw.caveat}
-    path = out / "hoffman_weeks.json"
-    path.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    path = write_json_atomic(out / "hoffman_weeks.json", doc)
     return [path, *figures.save_figure(figures.hoffman_weeks_figure(tc, tm, hw),
                                        out / "hoffman_weeks")]
 

@@ -173,7 +173,7 @@ def test_v1_fixture_setting_reaches_the_analysis(tmp_path):
 
 def test_one_default_geometry_everywhere():
     from analysis.cli.main import build_parser
-    from analysis.kinetics.avrami import predict_model_from_result
+    from analysis.kinetics.prediction import predict_model_from_result, prediction_inputs
     from analysis.project.file import Experiment
     from analysis.reporting.tables import ReportEntry
     from analysis.spherulites.pipeline import analyze_arrival_iter
@@ -181,7 +181,7 @@ def test_one_default_geometry_everywhere():
     assert DEFAULT_GEOMETRY == "bulk-3d"  # summary.json's prediction is the one DSC compares with
     assert Experiment("a", "s.tif").geometry == DEFAULT_GEOMETRY
     assert ReportEntry("a", None).geometry == DEFAULT_GEOMETRY
-    for function in (predict_model_from_result, analyze_arrival_iter):
+    for function in (predict_model_from_result, prediction_inputs, analyze_arrival_iter):
         assert _default(function, "geometry") == DEFAULT_GEOMETRY
     args = build_parser("analyze").parse_args(["analyze", "s.tif", "--out", "o"])
     assert args.setting_geometry is None  # absent flag: the analysis default applies
