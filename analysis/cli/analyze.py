@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import sys
 
-from analysis.cli.setting_flags import add_analysis_settings_arguments, add_spec_arguments, analysis_settings_from_args, value_of
+from analysis.cli.setting_flags import (
+    add_analysis_settings_arguments,
+    add_spec_arguments,
+    analysis_settings_from_args,
+    value_of,
+)
+from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
 from analysis.settings import DEFAULT_GEOMETRY, EXPERIMENT_SPECS
@@ -29,6 +35,9 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder")
     add_spec_arguments(parser, _experiment_specs())
     add_analysis_settings_arguments(parser)
+    parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
+                        help="refuse stacks whose analysis needs more memory than this "
+                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
 
 
 class _ProgressBar:
@@ -58,9 +67,11 @@ class _ProgressBar:
 
 def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
+    # Flags are checked before the output folder is made: a typo leaves nothing behind.
     given = {spec.key: value_of(args, spec) for spec in _experiment_specs()}
     geometry = given["geometry"] or DEFAULT_GEOMETRY
     settings = analysis_settings_from_args(args)
+    prepare_output_folder(args.out)
     stack = open_stack(args.stack, um_per_px=given["um_per_px"], interval_s=given["interval_s"])
     stack.require_calibration()
     bar = _ProgressBar()
@@ -68,7 +79,7 @@ def run_cli(args) -> int:
         analysis = run_to_completion(analyze_iter(
             stack, settings=settings, isothermal_start_s=given["isothermal_start_s"] or 0.0,
             temperature_c=given["temperature_c"], thickness_um=given["thickness_um"],
-            geometry=geometry), bar)
+            geometry=geometry, memory_budget_mb=args.memory_budget_mb), bar)
     finally:
         bar.close()
     write_analysis_outputs(analysis.result, args.out, geometry=geometry,

@@ -26,6 +26,8 @@ from __future__ import annotations
 
 import json
 import os
+import re
+import sys
 from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
@@ -35,11 +37,12 @@ from analysis.edits import edit_to_dict
 from analysis.errors import InputError
 from analysis.project.model import CalorimetrySource, Experiment, Project, new_project, now_stamp
 from analysis.project.reading import project_from_document
+from analysis.textio import read_text
 from analysis.units import write_json_atomic
 
 __all__ = ["FORMAT", "SCHEMA_VERSION", "SUFFIX", "MIGRATIONS", "CalorimetrySource", "Experiment",
            "Project", "new_project", "open_experiment_stack", "load_project", "project_from_dict",
-           "migrate", "project_to_dict", "save_project"]
+           "parse_project_json", "migrate", "project_to_dict", "save_project"]
 
 FORMAT = "spherokin-project"
 SCHEMA_VERSION = 2
@@ -90,20 +93,66 @@ def open_experiment_stack(experiment: Experiment):
 # ---------------------------------------------------------------- loading
 
 
+#: Deepest nesting of a project document; ours is 5 deep (edits inside experiments).
+#: Deeper documents are refused before anything recursive walks them.
+MAX_JSON_DEPTH = 64
+
+
 def load_project(path) -> Project:
     """Read a project file, migrating older schemas; :class:`InputError` when unusable."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("no such project file", path) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"project file cannot be read ({exc})", path) from None
+    text = read_text(path, "project file").lstrip("\ufeff")
+    return project_from_dict(parse_project_json(text, path), path)
+
+
+def parse_project_json(text: str, path) -> Any:
+    """The parsed document, or :class:`InputError` naming the file for bad or hostile JSON.
+
+    Nesting is checked before parsing (the parser recurses) and numbers after it: an
+    integer of more than 4300 digits or beyond the float range is refused here rather
+    than failing deep inside the analysis.
+    """
+    depth = _bracket_depth(text)
+    if depth > MAX_JSON_DEPTH:
+        raise InputError(f"project file is nested {depth} levels deep (at most {MAX_JSON_DEPTH})", path)
     try:
         document = json.loads(text)
     except json.JSONDecodeError as exc:
         raise InputError(f"project file is not valid JSON (line {exc.lineno}: {exc.msg})", path) from None
-    return project_from_dict(document, path)
+    except (ValueError, RecursionError) as exc:
+        if "digits" in str(exc):  # Python refuses integers over sys.get_int_max_str_digits()
+            raise InputError(f"project file holds an integer with more than "
+                             f"{getattr(sys, 'get_int_max_str_digits', lambda: 4300)()} digits", path) from None
+        raise InputError(f"project file cannot be parsed ({str(exc)[:80]})", path) from None
+    _check_numbers(document, path)
+    return document
+
+
+def _bracket_depth(text: str) -> int:
+    """Deepest nesting of [ and { outside strings (a linear scan, no recursion)."""
+    depth = deepest = 0
+    for token in re.finditer(r'"(?:[^"\\]|\\.)*"|[\[\]{}]', text):
+        char = token.group()
+        if char in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        elif char in "]}":
+            depth -= 1
+    return deepest
+
+
+def _check_numbers(document: Any, path) -> None:
+    """Integers that do not fit a float are refused (they would overflow every formula)."""
+    pending = [document]
+    while pending:
+        value = pending.pop()
+        if isinstance(value, dict):
+            pending.extend(value.values())
+        elif isinstance(value, list):
+            pending.extend(value)
+        elif isinstance(value, int) and not isinstance(value, bool) and abs(value) > 2**1023:
+            raise InputError(f"project file holds an integer too large for any setting "
+                             f"({len(str(abs(value)))} digits)", path)
 
 
 def project_from_dict(document: Any, path) -> Project:

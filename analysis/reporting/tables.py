@@ -26,6 +26,7 @@ from pathlib import Path
 from analysis.errors import InputError
 from analysis.kinetics.avrami import AvramiPrediction
 from analysis.kinetics.prediction import predict_model_from_result
+from analysis.outputs import clean_text
 from analysis.results import ExperimentResult
 from analysis.settings import DEFAULT_GEOMETRY
 from analysis.units import write_atomic, write_csv_atomic
@@ -77,9 +78,12 @@ class ReportEntry:
 
 
 def escape_cell(value):
-    """Neutralise spreadsheet formulas: text starting with = + - @ (or tab/CR) gets a "'"."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
+    """Neutralise spreadsheet formulas (text starting with = + - @, tab or CR gets a "'")
+    and replace control characters with spaces."""
+    if isinstance(value, str):
+        value = clean_text(value)  # spreadsheet files cannot hold control characters
+        if value.startswith(_FORMULA_START):
+            return "'" + value
     return value
 
 

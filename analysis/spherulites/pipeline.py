@@ -288,17 +288,21 @@ def _with_edits(arrival, ctx, settings, edits) -> Analysis:
 
 def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
                  isothermal_start_s: float = 0.0, temperature_c: float | None = None,
-                 thickness_um: float | None = None,
-                 geometry: str = DEFAULT_GEOMETRY) -> Generator[Progress, None, Analysis]:
+                 thickness_um: float | None = None, geometry: str = DEFAULT_GEOMETRY,
+                 memory_budget_mb: float | None = None) -> Generator[Progress, None, Analysis]:
     """Analyse a :class:`FrameStack`: arrival map, nuclei, growth fits, nucleation, X(t).
 
     Yields :class:`Progress`; returns an :class:`Analysis`. Times in the result are
     seconds from ``isothermal_start_s`` (on the stack's clock). InputError when the
-    stack lacks its calibration.
+    stack lacks its calibration or its analysis would exceed the memory budget
+    (``memory_budget_mb``, default from :mod:`analysis.stack.budget`), checked before
+    any frame is decoded.
     """
     from analysis.arrival.arrival_map import arrival_map_iter
+    from analysis.stack.budget import check_memory_budget
 
     stack.require_calibration()
+    check_memory_budget(stack, memory_budget_mb)
     arrival = yield from scaled(arrival_map_iter(stack, settings=settings.arrival), 0.0, 0.85)
     analysis = yield from scaled(analyze_arrival_iter(
         arrival, settings=settings, edits=edits, isothermal_start_s=isothermal_start_s,
