@@ -6,13 +6,14 @@ not stored: they are always reproducible from this recipe.
 
 File format (``*.spherokin.json``)::
 
-    {"format": "spherokin-project", "schema_version": 2, "app_version": "...",
+    {"format": "spherokin-project", "schema_version": 3, "app_version": "...",
      "created": ISO-8601, "modified": ISO-8601, "material": "iPP" | null,
      "series": {"tm0_c": ..., "tg_c": ..., ...},
      "experiments": [{"name", "stack" (relative to the project file), "temperature_c",
                       "um_per_px", "interval_s", "times_s", "isothermal_start_s",
                       "thickness_um", "notes", "settings", "geometry", "mode_override",
-                      "calorimetry": {...} | null, "edits": [{"kind": ...}, ...]}]}
+                      "calorimetry": {...} | null,
+                      "edits": [{"kind": ..., "id": detection id, ...}, ...]}]}
 
 ``settings`` holds :class:`analysis.settings.AnalysisSettings` (``{"arrival": {...}, ...}``);
 every key and value is checked when the file loads (:mod:`analysis.project.reading`), with
@@ -45,18 +46,53 @@ __all__ = ["FORMAT", "SCHEMA_VERSION", "SUFFIX", "MIGRATIONS", "CalorimetrySourc
            "parse_project_json", "migrate", "project_to_dict", "save_project"]
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 SUFFIX = ".spherokin.json"
 
+#: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
+_TARGETED_EDITS = ("add_nucleus", "delete_detection", "merge_detections", "move_centre",
+                   "exclude", "include", "ignore_frames")
 
-def _v1_to_v2(document: dict) -> dict:
-    """v2 checks every setting strictly; rename the one setting v1 files stored under another name.
+
+def _v1_edits_name_their_detection(document: dict) -> dict:
+    """Schema 1 -> 2: edits name the detection they act on by its id.
+
+    Schema-1 edits found their target as the detection nearest to a point when replayed,
+    which could land on a neighbour once other edits had moved things. From schema 2
+    each record also stores the detection's ``id`` (``other_id`` for the one merged
+    away); ids did not exist in schema 1, so migrated records get ``null`` and keep
+    being found by their point. A schema-1 ``add_nucleus`` was seeded at the arrival
+    map's minimum near the click; from schema 2 the nucleus sits exactly at the click.
+    The version is bumped so that an older reader refuses a schema-2 file instead of
+    ignoring the ids and misplacing the edits.
+    """
+    experiments = []
+    for experiment in document.get("experiments") or []:
+        if isinstance(experiment, dict) and isinstance(experiment.get("edits"), list):
+            edits = []
+            for record in experiment["edits"]:
+                if isinstance(record, dict) and record.get("kind") in _TARGETED_EDITS:
+                    record = {**record, "id": record.get("id")}
+                    if record["kind"] == "merge_detections":
+                        record["other_id"] = record.get("other_id")
+                edits.append(record)
+            experiment = {**experiment, "edits": edits}
+        experiments.append(experiment)
+    if "experiments" in document:
+        document["experiments"] = experiments
+    return document
+
+
+def _v2_settings_named_as_the_analysis_reads_them(document: dict) -> dict:
+    """Schema 2 -> 3: settings are checked strictly; the one older name is renamed.
 
     The first version wrote the nucleus-depth setting under its command-line name
     ``sensitivity`` (``--sensitivity``, in frame intervals), where the analysis looked for
     ``sensitivity_frames``; the value was silently ignored. It now becomes
-    ``sensitivity_frames`` so it reaches the analysis. A file holding both names is
-    refused rather than having one of them dropped.
+    ``sensitivity_frames`` so it reaches the analysis (schema-1 and schema-2 files may
+    hold it). A file holding both names is refused rather than having one dropped. The
+    version is bumped so that the rename runs exactly once, on files written before it;
+    from schema 3 on every key and value is checked when the file loads.
     """
     for experiment in document.get("experiments") or []:
         settings = experiment.get("settings") if isinstance(experiment, dict) else None
@@ -73,7 +109,10 @@ def _v1_to_v2(document: dict) -> dict:
 
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
 #: Each function carries a docstring saying why the format changed.
-MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_to_v2}
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {
+    1: _v1_edits_name_their_detection,
+    2: _v2_settings_named_as_the_analysis_reads_them,
+}
 
 
 def open_experiment_stack(experiment: Experiment):
