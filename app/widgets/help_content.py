@@ -91,6 +91,18 @@ TOPICS: tuple[HelpTopic, ...] = (
         _AVRAMI_PAPERS[:1],
     ),
     HelpTopic(
+        "density_used", "Nuclei present at the start N₀ (the density in the prediction)",
+        "The density of predetermined nuclei that enters the predicted Avrami kinetics. Athermal: "
+        "every nucleus counted in the field. Mixed: only the initial burst, the nuclei born within a "
+        "few frame intervals of the first; the later ones are described by the nucleation rate Ṅ, "
+        "so counting them in N₀ as well would count them twice. Thermal: none, the rate alone.",
+        "athermal: N₀ = N_A (film) or N_A / h (bulk);  mixed: N₀ = burst count / field area "
+        "(per mm², or per mm³ after / h);  thermal: N₀ = 0",
+        "The burst is the densest group of births at the start of the record; with one or two "
+        "frame intervals between nuclei the split between burst and later births is uncertain.",
+        _AVRAMI_PAPERS[:2],
+    ),
+    HelpTopic(
         "avrami", "Avrami equation, exponent n and rate constant k",
         "The fraction transformed X(t) for nuclei scattered at random that grow until they meet. "
         "n reflects the dimension of growth and the nucleation mode; k collects nucleation and growth. "
