@@ -58,6 +58,7 @@ from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
 from analysis.units import write_csv_atomic, write_json_atomic
+from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
     AvramiFit,
     FitFailure,
@@ -416,12 +417,11 @@ def analyze_source(source) -> CalorimetryResult:
 # ---------------------------------------------------------------- output and CLI
 def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
     """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity),
-    each atomically; NaN is written as null."""
+    all or nothing; NaN is written as null."""
+    with staged_outputs(out_dir) as stage:
+        write_json_atomic(stage / "calorimetry.json", result.to_json_dict())
+        t, x = result.conversion_table()
+        write_csv_atomic(stage / "conversion.csv", [("time_min", "relative_crystallinity"),
+                                                    *((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))])
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    json_path, csv_path = out / "calorimetry.json", out / "conversion.csv"
-    write_json_atomic(json_path, result.to_json_dict())
-    t, x = result.conversion_table()
-    write_csv_atomic(csv_path, [("time_min", "relative_crystallinity"),
-                                *((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))])
-    return json_path, csv_path
+    return out / "calorimetry.json", out / "conversion.csv"

@@ -27,6 +27,7 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.kinetics.lauritzen_hoffman import LHConstants
+from analysis.outputs import clean_text
 from analysis.reporting.tables import ReportEntry
 
 __all__ = ["calorimetry_source", "experiment_calorimetry", "experiment_entry",
@@ -72,10 +73,10 @@ def experiment_calorimetry(experiment, project_material: str | None, analyze=Non
 
 def experiment_entry(experiment, result, calorimetry=None,
                      calorimetry_problem: str | None = None) -> ReportEntry:
-    """The entry of an analysed experiment: its result, the experiment's geometry, mode
-    override, Tc and film thickness (the result's where the experiment sets none), and the
-    given calorimetry result."""
-    return ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override,
+    """The entry of an analysed experiment: its name (control characters removed), result,
+    the experiment's geometry, mode override, Tc and film thickness (the result's where the
+    experiment sets none), and the given calorimetry result."""
+    return ReportEntry(clean_text(experiment.name), result, experiment.geometry, experiment.mode_override,
                        calorimetry, calorimetry_problem, temperature_c=experiment.temperature_c,
                        thickness_um=experiment.thickness_um)
 

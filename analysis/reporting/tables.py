@@ -32,6 +32,7 @@ from analysis.kinetics.prediction import (
     predict_model_from_result,
     prediction_inputs,
 )
+from analysis.outputs import clean_text
 from analysis.results import ExperimentResult
 from analysis.units import per_mm3_from_per_mm2, write_atomic, write_csv_atomic
 
@@ -121,9 +122,12 @@ class ReportEntry:
 
 
 def escape_cell(value):
-    """Neutralise spreadsheet formulas: text starting with = + - @ (or tab/CR) gets a "'"."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
+    """Neutralise spreadsheet formulas (text starting with = + - @, tab or CR gets a "'")
+    and replace control characters with spaces."""
+    if isinstance(value, str):
+        value = clean_text(value)  # spreadsheet files cannot hold control characters
+        if value.startswith(_FORMULA_START):
+            return "'" + value
     return value
 
 
