@@ -33,7 +33,7 @@ from analysis.kinetics.prediction import (
     prediction_inputs,
 )
 from analysis.outputs import clean_text
-from analysis.results import ExperimentResult
+from analysis.results import COUNTS, ExperimentResult
 from analysis.units import per_mm3_from_per_mm2, write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
@@ -133,7 +133,7 @@ def escape_cell(value):
 
 GROWTH_HEADER = [
     "experiment", "temperature_c", "growth_rate_um_per_min", "growth_rate_ci95_low_um_per_min",
-    "growth_rate_ci95_high_um_per_min", "n_spherulites", "nucleation_mode",
+    "growth_rate_ci95_high_um_per_min", *COUNTS, "nucleation_mode",
     "nucleus_density_per_mm2", "nucleus_density_per_mm3", "nucleation_rate_per_mm2_per_min",
     "nucleation_rate_per_mm3_per_min", "predicted_geometry", "predicted_avrami_n",
     "predicted_k_per_min_n", "predicted_t_half_min", "dsc_avrami_n", "dsc_k_per_min_n",
@@ -155,7 +155,9 @@ def _growth_row(entry: ReportEntry) -> list:
     r = entry.result
     g, nuc, pred = r.growth_rate, r.nucleation, entry.prediction
     predicted = [None, None, None] if pred is None else [pred.n, pred.k_per_min_n, pred.t_half_min]
-    return [entry.name, entry.temperature_c, g.value, g.ci95_low, g.ci95_high, g.n, nuc.mode,
+    counts = r.counts()
+    return [entry.name, entry.temperature_c, g.value, g.ci95_low, g.ci95_high,
+            *(counts[key] for key in COUNTS), nuc.mode,
             nuc.density_per_mm2, entry.density_per_mm3, nuc.rate_per_mm2_per_min,
             entry.rate_per_mm3_per_min, entry.geometry, *predicted, *_dsc_columns(entry.calorimetry)]
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from PySide6 import QtCore, QtWidgets
 
+from analysis.results import COUNTS
 from app.widgets.formatting import DASH, fmt, fmt_pm, k_unit
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
@@ -30,12 +31,14 @@ class PredictionPanel(FormPanel):
     TITLE = "Microscopy → Avrami prediction"
     ROWS = [
         ("mode", "Nucleation mode", "nucleation_mode"),
+        ("nuclei_counted", COUNTS["nuclei_counted"][0], "nuclei_counted"),
         ("density_areal", "N_A (areal)", "density_areal"),
         ("thickness", "film thickness h", "density_volumetric"),
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
         ("density_used", "N in the prediction", "density_used"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
         ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("spherulites_in_pooled_g", COUNTS["spherulites_in_pooled_g"][0], "spherulites_in_pooled_g"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),
         ("t_half", "predicted t½", "half_time"),
@@ -72,7 +75,10 @@ class PredictionPanel(FormPanel):
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
         ci = None if g.ci95_high is None or g.value is None else g.ci95_high - g.value
-        self.form.set("growth_rate", f"{fmt_pm(g.value, ci, 'µm/min')}  ({g.n} spherulites)")
+        self.form.set("growth_rate", fmt_pm(g.value, ci, 'µm/min'))
+        for key, value in result.counts().items():
+            if key in self.form.values:
+                self.form.set(key, str(value))
 
     def show_prediction(self, model, geometry: str) -> None:
         """``model``: analysis.kinetics.avrami.AvramiPrediction, or None with ``problem`` set."""
