@@ -114,6 +114,27 @@ class CalorimetryResult:
         sel = (self.time_min >= self.baseline_start_min) & (self.time_min <= self.baseline_end_min)
         return self.time_min[sel], np.clip(self.relative_crystallinity[sel], 0.0, 1.0)
 
+    def volume_conversion(self) -> tuple[np.ndarray, np.ndarray, str]:
+        """(t_min from the induction time, X, basis in words) for comparison with microscopy.
+
+        X is converted from the calorimeter's mass basis to a volume basis with the
+        material's crystal/amorphous density ratio (docs/sources.md §4.1); without a
+        material, or without densities for it, X stays on a mass basis and the basis
+        says why. Points at or before the induction time are left out.
+        """
+        from analysis.kinetics.avrami import volume_fraction_from_mass
+
+        t, x = self.conversion_table()
+        tau = t - self.induction_time_min
+        keep = tau > 0
+        tau, x = tau[keep], x[keep]
+        if self.material is None:
+            return tau, x, "mass basis (choose a material for the density ratio)"
+        try:
+            return tau, volume_fraction_from_mass(x, material=self.material), "volume basis"
+        except InputError as error:
+            return tau, x, f"mass basis ({error.problem})"
+
     def to_json_dict(self) -> dict:
         """The ``calorimetry.json`` document (docs/design.md)."""
         fit = self.avrami

@@ -32,6 +32,7 @@ from PySide6.QtWidgets import (
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
+from analysis.results import COUNTS
 from app.core import model as m
 from app.microscopy.overlays import STATUS_WORDS, status_colour
 
@@ -97,9 +98,11 @@ def _predicted(result: Any, experiment: Any):
 def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     g, nuc = result.growth_rate, result.nucleation
     ci = "" if g.ci95_low is None else f" (95 % CI {g.ci95_low:.3g} – {g.ci95_high:.3g})"
+    counts = result.counts()
     rows = [("Frames", str(result.frames)),
-            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci + f", n = {g.n}"),
-            ("Nuclei", f"{nuc.count}, mode {nuc.mode or '—'}"),
+            *((COUNTS[key][0], str(value)) for key, value in counts.items()),
+            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci),
+            ("Nucleation mode", nuc.mode or "—"),
             ("Density", _num(nuc.density_per_mm2, ".3g", " mm⁻²") + " | "
              + _num(nuc.density_per_mm3, ".3g", " mm⁻³")),
             ("Nucleation rate", _num(nuc.rate_per_mm2_per_min, ".3g", " mm⁻² min⁻¹")),
