@@ -109,8 +109,6 @@ class ExperimentResult:
     nucleation: Nucleation
     area_fraction_time_s: np.ndarray
     area_fraction: np.ndarray
-    avrami_film: AvramiParameters | None
-    avrami_predicted: AvramiParameters | None
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)

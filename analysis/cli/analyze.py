@@ -73,7 +73,8 @@ def run_cli(args) -> int:
             geometry=args.geometry, memory_budget_mb=args.memory_budget_mb), bar)
     finally:
         bar.close()
-    write_analysis_outputs(analysis.result, args.out, arrival=analysis.arrival, stack=stack)
+    write_analysis_outputs(analysis.result, args.out, geometry=args.geometry,
+                           arrival=analysis.arrival, stack=stack)
     result = analysis.result
     g = result.growth_rate
     g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"

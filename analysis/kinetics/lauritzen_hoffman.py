@@ -36,7 +36,6 @@ alpha = 0.1 (from memory).
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -45,8 +44,8 @@ import numpy as np
 from scipy import optimize, stats
 
 from analysis.errors import InputError
+from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
-from analysis.outputs import staged_outputs
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
@@ -344,22 +343,11 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
     }
 
 
-def _json_safe(value):
-    """NaN and infinities (not valid JSON) become null, recursively."""
-    if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_safe(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
-    text = json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2, allow_nan=False)
-    with staged_outputs(out_dir) as stage:
-        (stage / "secondary_nucleation.json").write_text(text + "\n", encoding="utf-8")
-    return Path(out_dir) / "secondary_nucleation.json"
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    path = out / "secondary_nucleation.json"
+    return write_json_atomic(path, secondary_nucleation_dict(analysis))
 
 
 # ---------------------------------------------------------------- Hoffman-Weeks

@@ -26,7 +26,6 @@ import math
 import os
 import re
 import sys
-import tempfile
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
@@ -36,6 +35,7 @@ from analysis import __version__
 from analysis.edits import Edit, edit_from_dict, edit_to_dict
 from analysis.errors import InputError
 from analysis.textio import read_text
+from analysis.units import write_json_atomic
 
 FORMAT = "spherokin-project"
 SCHEMA_VERSION = 1
@@ -337,36 +337,5 @@ def save_project(project: Project, path) -> Project:
     path = Path(path)
     stamped = replace(project, modified=_now(), created=project.created or _now(),
                       path=str(path.resolve()))
-    text = json.dumps(project_to_dict(stamped, path), indent=2, ensure_ascii=False)
-    write_text_atomic(path, text + "\n")
+    write_json_atomic(path, project_to_dict(stamped, path))
     return stamped
-
-
-def write_text_atomic(path, text: str) -> None:
-    """Write via a temporary file in the same folder, flush + fsync, then rename."""
-    path = Path(path)
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.chmod(temporary, _file_mode(path))
-        with os.fdopen(handle, "w", encoding="utf-8") as out:
-            out.write(text)
-            out.flush()
-            os.fsync(out.fileno())
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
-
-
-def _file_mode(path: Path) -> int:
-    """Keep an existing file's permissions; new files get the usual umask-based mode.
-
-    mkstemp creates files readable by the owner only, which would silently hide a
-    shared project from colleagues after the first save.
-    """
-    try:
-        return path.stat().st_mode & 0o777
-    except FileNotFoundError:
-        umask = os.umask(0)
-        os.umask(umask)
-        return 0o666 & ~umask

@@ -20,7 +20,6 @@ Public API
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -44,6 +43,7 @@ from analysis.reporting.tables import (
     write_csv,
     write_xlsx,
 )
+from analysis.units import write_json_atomic
 
 #: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
 HW_PAIRS_KEY = "hoffman_weeks_pairs"
@@ -141,8 +141,7 @@ def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
     doc = {"schema": 1, "pairs": [[float(a), float(b)] for a, b in zip(tc, tm)],
            "tm0_c": hw.tm0_c, "gamma": hw.gamma, "slope": hw.slope,
            "intercept_c": hw.intercept_c, "r2": hw.r2, "caveat": hw.caveat}
-    path = out / "hoffman_weeks.json"
-    path.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    path = write_json_atomic(out / "hoffman_weeks.json", doc)
     return [path, *figures.save_figure(figures.hoffman_weeks_figure(tc, tm, hw),
                                        out / "hoffman_weeks")]
 

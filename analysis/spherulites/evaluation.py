@@ -24,9 +24,7 @@ from analysis.spherulites.nucleation import (
     MeltExposure,
     area_fraction,
     field_area_mm2,
-    film_avrami,
     nucleation_statistics,
-    predicted_avrami,
 )
 from analysis.spherulites.replay import cached, digest, edited_territories
 
@@ -234,16 +232,13 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
         fits.append(fit)
     pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
     time_s, fraction = _area_fraction(ctx, global_spans)
-    nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
-    film = film_avrami(time_s, fraction, nucleation.induction_time_s)
-    predicted = predicted_avrami(ctx.geometry, ctx.thickness_um, pooled.value, nucleation,
-                                 burst_density)
+    nucleation = _nucleation(ctx, spherulites, fits, time_s, fraction)
     result = ExperimentResult(
         stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
         temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
         spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
         nucleation=nucleation, area_fraction_time_s=time_s, area_fraction=fraction,
-        avrami_film=film, avrami_predicted=predicted, unapplied_edits=tuple(unapplied),
+        unapplied_edits=tuple(unapplied),
         warnings=tuple(_warnings(ctx, spherulites, fits)),
         extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
                "geometry": ctx.geometry})

@@ -29,9 +29,7 @@ ANALYSIS_LEAVES = {"errors", "progress", "results", "edits", "units", "settings"
 APP_LAYERS = [{"core"}, {"widgets"}, {"microscopy", "kinetics", "temperature"}, {"window"}]
 
 #: known crossings still to be removed; every entry needs a reason and shrinks to nothing.
-ALLOWED: dict[tuple[str, str], str] = {
-    ("spherulites", "kinetics"): "the film Avrami fit and the prediction still run inside the pipeline",
-}
+ALLOWED: dict[tuple[str, str], str] = {}
 
 
 def _imports(path: Path) -> set[str]:

@@ -57,8 +57,8 @@ def test_save_is_atomic_and_leaves_no_temporary_files(tmp_path, monkeypatch):
     def explode(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr("analysis.project.file.os.replace", explode)
-    with pytest.raises(OSError):
+    monkeypatch.setattr("analysis.units.os.replace", explode)
+    with pytest.raises(InputError, match="p.spherokin.json: could not write the file .disk full"):
         save_project(replace(project, material="PET"), target)
     assert target.read_text() == before  # the old file survives a failed save
     assert [p.name for p in tmp_path.iterdir()] == ["p.spherokin.json"]
