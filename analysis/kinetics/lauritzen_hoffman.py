@@ -46,6 +46,7 @@ from scipy import optimize, stats
 from analysis.errors import InputError
 from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
+from analysis.kinetics.regime_break import best_break, best_free_split
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
@@ -182,35 +183,20 @@ def _hinge_rss(tb_c, tc, x, y, w, constants, absolute=False):
     return rss, coef, cov, xb
 
 
-def _gaps(tc):
-    """(low, high) temperature gaps with at least 3 points on each side."""
-    temps = np.unique(tc)
-    return [(lo, hi) for lo, hi in zip(temps[:-1], temps[1:])
-            if np.count_nonzero(tc <= lo) >= 3 and np.count_nonzero(tc >= hi) >= 3]
-
-
 def _best_break(tc, x, y, w, constants):
     """Continuous two-segment fit: (rss, break temperature), searched within every gap."""
-    best = None
-    for lo, hi in _gaps(tc):
-        res = optimize.minimize_scalar(lambda tb: _hinge_rss(tb, tc, x, y, w, constants)[0],
-                                       bounds=(lo, hi), method="bounded",
-                                       options={"xatol": 1e-6})
-        if best is None or res.fun < best[0]:
-            best = (float(res.fun), float(res.x))
-    return best
+    return best_break(tc, x, y, w, lambda t: lh_coordinates(t, np.ones_like(t), constants)[0],
+                      lambda tb: _hinge_rss(tb, tc, x, y, w, constants)[0])
 
 
 def _best_free_split(tc, x, y, w):
     """Two independent lines: (rss, break temperature = middle of the best gap)."""
-    best = None
-    for lo, hi in _gaps(tc):
-        below = tc <= lo
-        rss = sum(_wls(np.column_stack([np.ones(m.sum()), x[m]]), y[m], w[m], False)[2]
-                  for m in (below, ~below))
-        if best is None or rss < best[0]:
-            best = (float(rss), float((lo + hi) / 2))
-    return best
+    def split_rss(low_c):
+        below = tc <= low_c
+        return sum(_wls(np.column_stack([np.ones(m.sum()), x[m]]), y[m], w[m], False)[2]
+                   for m in (below, ~below))
+
+    return best_free_split(tc, x, y, w, split_rss)
 
 
 def _regime_names(kg_low_t: float, kg_high_t: float) -> tuple[str, str]:
