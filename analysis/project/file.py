@@ -16,7 +16,8 @@ File format (``*.spherokin.json``)::
 
 Older schemas are migrated step by step by :data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
-over the target, so a crash never leaves a half-written project.
+over the target, so a crash never leaves a half-written project; temporaries of earlier
+saves that were killed are removed by the next save.
 """
 
 from __future__ import annotations
@@ -34,6 +35,7 @@ from typing import Any, Callable
 from analysis import __version__
 from analysis.edits import Edit, edit_from_dict, edit_to_dict
 from analysis.errors import InputError
+from analysis.outputs import remove_stale_temporaries
 from analysis.textio import read_text
 from analysis.units import write_json_atomic
 
@@ -338,4 +340,5 @@ def save_project(project: Project, path) -> Project:
     stamped = replace(project, modified=_now(), created=project.created or _now(),
                       path=str(path.resolve()))
     write_json_atomic(path, project_to_dict(stamped, path))
+    remove_stale_temporaries(path.parent, path.name)  # left by saves that were killed
     return stamped
