@@ -87,6 +87,10 @@ def _checked_kelvin(tc_c, constants: LHConstants, path=None) -> np.ndarray:
     if not np.all(np.isfinite(t)):
         raise InputError("crystallization temperatures must be finite", path)
     bad = t[(t <= t_inf_k) | (t >= constants.tm0_k)]
+    if bad.size == t.size and np.all(t <= t_inf_k):
+        origin = f" (Tg - 30 K, Tg = {constants.tg_c:g} C)" if constants.t_inf_c is None else ""
+        raise InputError(f"T_inf = {constants.t_inf:g} C{origin} is above every Tc; check Tg and "
+                         "T_inf", path)
     if bad.size:
         raise InputError(f"Tc = {bad[0] - 273.15:g} C is outside (T_inf, Tm0) = "
                          f"({constants.t_inf:g}, {constants.tm0_c:g}) C", path)
@@ -244,12 +248,12 @@ def thomas_stavely_sigma(delta_hf_j_per_m3: float, a0_m: float, b0_m: float,
     return alpha * delta_hf_j_per_m3 * math.sqrt(a0_m * b0_m)
 
 
-def _surface_energies(regimes, material, constants, warnings):
+def _surface_energies(regimes, material, constants, warnings, path=None):
     if material is None:
         return None, None, None
     from analysis.kinetics.materials import get_material
 
-    mat = get_material(material)
+    mat = get_material(material, path=path)
     dhf, b0, a0 = mat.delta_hf_j_per_m3, mat.b0_m, mat.a0_m
     if dhf is None or b0 is None:
         warnings.append(f"material {mat.name} lacks dH0, rho_c or b0: no sigma*sigma_e")
@@ -308,7 +312,7 @@ def fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants
             ratio, break_c = kgs[1] / kgs[0], best[1]
     warnings = [f"Kg = {r.kg_k2:.3g} K^2 is outside the usual 1e4-2e6 K^2 ({r.name})"
                 for r in regimes if not 1e4 <= r.kg_k2 <= 2e6]
-    product, sigma, sigma_e = _surface_energies(regimes, material, constants, warnings)
+    product, sigma, sigma_e = _surface_energies(regimes, material, constants, warnings, path)
     return LHAnalysis(constants, tc, g, None if ci95_um_per_min is None else np.asarray(
         ci95_um_per_min, dtype=float), overall, regimes, ratio, break_c, aicc1, aicc2,
         product, sigma, sigma_e, material, tuple(warnings))

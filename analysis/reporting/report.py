@@ -185,7 +185,7 @@ def series_constants(project) -> tuple[LHConstants | None, str]:
     if (tm0 is None or tg is None) and project.material:
         from analysis.kinetics.materials import get_material
 
-        mat = get_material(project.material)
+        mat = get_material(project.material, path=project.path)
         tm0 = mat.tm0_c if tm0 is None else tm0
         tg = mat.tg_c if tg is None else tg
         note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
@@ -255,12 +255,12 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    constants, note = series_constants(project)  # an unknown material stops here, not later
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,
