@@ -26,7 +26,8 @@ def add_cli_arguments(parser) -> None:
                              "(default 0.5; lower finds more)")
     parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
                         help="refuse stacks whose analysis needs more memory than this "
-                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
+                             "(default: $SPHEROKIN_MEMORY_BUDGET_MB, else 3/4 of the "
+                             "computer's memory)")
     parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
                         help="geometry of the predicted Avrami kinetics")
 

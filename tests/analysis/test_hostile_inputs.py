@@ -255,3 +255,22 @@ def test_stale_temporaries_of_killed_saves_are_removed_on_the_next_save(tmp_path
     save_project(new_project(), target)
     assert not any(p.exists() for p in stale)
     assert young.exists() and other.exists()  # a save in progress; another project's
+
+
+def test_memory_budget_from_option_or_environment(tmp_path, monkeypatch):
+    from analysis.stack.budget import MEMORY_BUDGET_ENV, check_memory_budget
+    from analysis.stack.frames import open_stack
+
+    path = tmp_path / "small.tif"
+    tifffile.imwrite(path, np.zeros((4, 64, 64), np.uint8), metadata={"axes": "TYX"})
+    stack = open_stack(path, um_per_px=1.0, interval_s=1.0)
+    check_memory_budget(stack, 1000)  # ~200 MB needed
+    with pytest.raises(InputError, match="--memory-budget-mb") as info:
+        check_memory_budget(stack, 100)
+    assert str(path) in str(info.value)
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "100")
+    with pytest.raises(InputError, match="budget"):
+        check_memory_budget(stack)
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "plenty")
+    with pytest.raises(InputError, match="not a number"):
+        check_memory_budget(stack)
