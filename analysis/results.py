@@ -118,3 +118,9 @@ class ExperimentResult:
             if s.id == spherulite_id:
                 return s
         raise KeyError(spherulite_id)
+
+    def next_detection_id(self) -> int:
+        """The id a nucleus added now takes: above every id used so far, including those
+        of deleted and merged detections (an id is never given twice)."""
+        used = max((s.id for s in self.spherulites), default=0) + 1
+        return max(int(self.extra.get("next_detection_id", used)), used)

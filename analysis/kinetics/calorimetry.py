@@ -57,8 +57,8 @@ import numpy as np
 from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
-from analysis.outputs import staged_outputs
 from analysis.units import write_csv_atomic, write_json_atomic
+from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
     AvramiFit,
     FitFailure,
@@ -395,8 +395,8 @@ def analyze_source(source) -> CalorimetryResult:
 
 # ---------------------------------------------------------------- output and CLI
 def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
-    """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity);
-    NaN is written as null. Both are staged and moved into place only when both are written."""
+    """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity),
+    all or nothing; NaN is written as null."""
     with staged_outputs(out_dir) as stage:
         write_json_atomic(stage / "calorimetry.json", result.to_json_dict())
         t, x = result.conversion_table()

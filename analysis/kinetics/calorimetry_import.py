@@ -14,7 +14,6 @@ import math
 import os
 import re
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 

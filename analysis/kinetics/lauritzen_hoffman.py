@@ -334,10 +334,9 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
 
 
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    path = out / "secondary_nucleation.json"
-    return write_json_atomic(path, secondary_nucleation_dict(analysis))
+    with staged_outputs(out_dir) as stage:
+        write_json_atomic(stage / "secondary_nucleation.json", secondary_nucleation_dict(analysis))
+    return Path(out_dir) / "secondary_nucleation.json"
 
 
 # ---------------------------------------------------------------- Hoffman-Weeks

@@ -6,13 +6,14 @@ not stored: they are always reproducible from this recipe.
 
 File format (``*.spherokin.json``)::
 
-    {"format": "spherokin-project", "schema_version": 1, "app_version": "...",
+    {"format": "spherokin-project", "schema_version": 2, "app_version": "...",
      "created": ISO-8601, "modified": ISO-8601, "material": "iPP" | null,
      "series": {"tm0_c": ..., "tg_c": ..., ...},
      "experiments": [{"name", "stack" (relative to the project file), "temperature_c",
                       "um_per_px", "interval_s", "times_s", "isothermal_start_s",
                       "thickness_um", "notes", "settings", "geometry", "mode_override",
-                      "calorimetry": {...} | null, "edits": [{"kind": ...}, ...]}]}
+                      "calorimetry": {...} | null,
+                      "edits": [{"kind": ..., "id": detection id, ...}, ...]}]}
 
 Older schemas are migrated step by step by :data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
@@ -40,13 +41,46 @@ from analysis.textio import read_text
 from analysis.units import write_json_atomic
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 SUFFIX = ".spherokin.json"
 
+#: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
+_TARGETED_EDITS = ("add_nucleus", "delete_detection", "merge_detections", "move_centre",
+                   "exclude", "include", "ignore_frames")
+
+
+def _v1_edits_name_their_detection(document: dict) -> dict:
+    """Schema 1 -> 2: edits name the detection they act on by its id.
+
+    Schema-1 edits found their target as the detection nearest to a point when replayed,
+    which could land on a neighbour once other edits had moved things. From schema 2
+    each record also stores the detection's ``id`` (``other_id`` for the one merged
+    away); ids did not exist in schema 1, so migrated records get ``null`` and keep
+    being found by their point. A schema-1 ``add_nucleus`` was seeded at the arrival
+    map's minimum near the click; from schema 2 the nucleus sits exactly at the click.
+    The version is bumped so that an older reader refuses a schema-2 file instead of
+    ignoring the ids and misplacing the edits.
+    """
+    experiments = []
+    for experiment in document.get("experiments") or []:
+        if isinstance(experiment, dict) and isinstance(experiment.get("edits"), list):
+            edits = []
+            for record in experiment["edits"]:
+                if isinstance(record, dict) and record.get("kind") in _TARGETED_EDITS:
+                    record = {**record, "id": record.get("id")}
+                    if record["kind"] == "merge_detections":
+                        record["other_id"] = record.get("other_id")
+                edits.append(record)
+            experiment = {**experiment, "edits": edits}
+        experiments.append(experiment)
+    if "experiments" in document:
+        document["experiments"] = experiments
+    return document
+
+
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
-#: Each function carries a docstring saying why the format changed. v1 is the first
-#: released schema, so the chain is empty for now.
-MIGRATIONS: dict[int, Callable[[dict], dict]] = {}
+#: Each function carries a docstring saying why the format changed.
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_edits_name_their_detection}
 
 
 @dataclass(frozen=True)

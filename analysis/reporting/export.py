@@ -6,15 +6,14 @@ from __future__ import annotations
 
 import math
 import os
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
+from analysis.units import json_clean, write_csv_atomic, write_json_atomic
 from analysis.outputs import clean_text, staged_outputs
-from analysis.units import json_clean, write_atomic, write_csv_atomic, write_json_atomic
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
@@ -155,16 +154,14 @@ def overlay_image(result, background: np.ndarray | None, *, shape=None) -> np.nd
 def write_analysis_outputs(result, out_dir, *, geometry: str, arrival=None,
                            stack=None) -> list[str]:
     """Write spherulites.csv, radii.csv, summary.json and overlay.png into ``out_dir``,
-    all or none (staged, then moved into place); ``geometry`` ("film-2d" or "bulk-3d") of
-    the predicted kinetics.
+    all or nothing; ``geometry`` ("film-2d" or "bulk-3d") of the predicted kinetics.
 
     ``stack`` (a FrameStack) supplies the last frame for the overlay; without it the
     overlay is drawn on black at the arrival map's size. Returns the written paths.
     """
     names = ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")
     with staged_outputs(out_dir) as stage:
-        _write_analysis_files(result, [os.path.join(stage, name) for name in names], geometry,
-                              arrival, stack)
+        _write_analysis_files(result, [os.path.join(stage, name) for name in names], geometry, arrival, stack)
     return [os.path.join(os.fspath(out_dir), name) for name in names]
 
 
@@ -179,10 +176,5 @@ def _write_analysis_files(result, paths, geometry, arrival, stack) -> None:
     if background is None and shape is None:
         labels = result.extra.get("territories")
         shape = labels.shape if labels is not None else (256, 256)
-    image = overlay_image(result, background, shape=shape)
-
-    def write_png(temporary: Path) -> None:
-        if not cv2.imwrite(str(temporary), image):
-            raise OSError("the image encoder failed")
-
-    write_atomic(paths[3], write_png)
+    if not cv2.imwrite(paths[3], overlay_image(result, background, shape=shape)):
+        raise InputError("could not write overlay.png", paths[3])
