@@ -38,7 +38,8 @@ def add_cli_arguments(parser) -> None:
     add_analysis_settings_arguments(parser)
     parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
                         help="refuse stacks whose analysis needs more memory than this "
-                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
+                             "(default: $SPHEROKIN_MEMORY_BUDGET_MB, else 3/4 of the "
+                             "computer's memory)")
 
 
 class _ProgressBar:

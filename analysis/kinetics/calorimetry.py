@@ -357,7 +357,7 @@ def _finish(iso, t, q, line, sign, i_tr, start, end, t0, x, total, window, mass_
     if material is not None and enthalpy is not None:
         from analysis.kinetics.materials import get_material
 
-        dh0 = get_material(material).dh0_j_per_g
+        dh0 = get_material(material, path=iso.path).dh0_j_per_g
         crystallinity = None if dh0 is None else enthalpy / dh0
     seg = slice(start, end + 1)
     fit = fit_avrami_window(t[seg] - t0, x[seg], window)

@@ -199,12 +199,13 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    # an unknown material stops here, before the long analysis
+    constants, note = series_constants(project.series, project.material, project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project.series, project.material)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,
