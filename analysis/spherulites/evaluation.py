@@ -14,6 +14,7 @@ import dataclasses
 
 import numpy as np
 
+from analysis import heuristics
 from analysis.results import (
     ExperimentResult,
     PooledGrowthRate,
@@ -140,7 +141,7 @@ def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
     ok = np.isfinite(samples.radius_px)
     frame_ids = np.flatnonzero(ok)
     used = (samples.free_fraction[ok] >= settings.min_free_fraction) & \
-        (samples.radius_px[ok] >= 3.0) & ~ignored_mask(frame_ids, spans)  # < 3 px: pixel-limited
+        (samples.radius_px[ok] >= heuristics.current().min_radius_px) & ~ignored_mask(frame_ids, spans)
     return RadiusSeries(det_id, ctx.times_s[ok] - ctx.isothermal_start_s,
                         samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
 
@@ -304,11 +305,12 @@ def _counted(spherulites, fits, shape) -> list:
     """(spherulite, fit) pairs that count as nuclei inside the field.
 
     Nuclei count by their centre (REFERENCES §1.6); edge spherulites never count. A
-    ``few-points`` detection counts only when its cone fit grows within 30 % of the
+    ``few-points`` detection counts only when its cone fit grows within ``few_points_g_tolerance`` (30 %) of the
     field's median G (common practice): with fewer frames a real late nucleus still
     grows like its neighbours, whereas dust or a segmentation artefact does not.
     """
     h, w = shape
+    tolerance = heuristics.current().few_points_g_tolerance
     g_ok = [s.growth_rate_um_per_min for s in spherulites if s.status == "ok"]
     g_med = float(np.median(g_ok)) if g_ok else None
     out = []
@@ -316,7 +318,7 @@ def _counted(spherulites, fits, shape) -> list:
         if s.status == "edge" or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
             continue
         if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
-                                         abs(s.growth_rate_um_per_min / g_med - 1) > 0.30):
+                                         abs(s.growth_rate_um_per_min / g_med - 1) > tolerance):
             continue
         out.append((s, f))
     return out

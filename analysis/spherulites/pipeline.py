@@ -42,6 +42,7 @@ import cv2
 import numpy as np
 from scipy import ndimage as ndi
 
+from analysis import heuristics
 from analysis.edits import Edit
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion, scaled
@@ -265,10 +266,12 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
         data[sph.id] = (x, y, t, fit, sph.status)
     if not scales:
         return {}
+    rules = heuristics.current()
     typical = float(np.median(list(scales.values())))
-    odd_slope = {k for k, v in data.items() if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > 0.25}
+    odd_slope = {k for k, v in data.items()
+                 if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance}
     return {k: v for k, v in data.items()
-            if scales[k] > 1.5 * typical or v[4] == "nonlinear" or k in odd_slope}
+            if scales[k] > rules.split_residual_ratio * typical or v[4] == "nonlinear" or k in odd_slope}
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
