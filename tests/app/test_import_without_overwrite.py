@@ -61,3 +61,21 @@ def test_a_matching_file_is_imported_without_a_question(qtbot, experiment_124):
     assert dialog.mismatch_note.isHidden()
     dialog.accept()
     assert dialog.source() is not None
+
+
+def test_calibration_shows_the_current_scale_and_the_change(qtbot):
+    import numpy as np
+
+    from app.microscopy.calibration import CalibrationDialog
+
+    dialog = CalibrationDialog(np.zeros((320, 320), np.uint8), current_um_per_px=0.8)
+    qtbot.addWidget(dialog)
+    assert "0.8 µm per pixel" in dialog.current_label.text()
+    assert dialog.um_per_px == pytest.approx(0.8)  # untouched, OK keeps the current scale
+    assert dialog.change_text().startswith("none")
+    dialog.known_um.setValue(100.0)  # the old preset: 100 µm over the 160 px line
+    assert dialog.um_per_px == pytest.approx(0.625)
+    assert dialog.change_label.text() == "0.8 → 0.625 µm/px (-21.9%)"
+    fresh = CalibrationDialog(np.zeros((320, 320), np.uint8))
+    qtbot.addWidget(fresh)
+    assert fresh.current_label.text() == "not set" and "none yet" in fresh.change_text()
