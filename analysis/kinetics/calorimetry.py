@@ -67,13 +67,14 @@ from analysis.kinetics.avrami import (
 )
 from analysis.kinetics.calorimetry_import import (  # re-exported: reading lives in its own module
     CalorimetryPreview,
+    header_mismatches,
     Isotherm,
     read_isotherm,
     sniff_calorimetry_file,
 )
 from analysis.settings import DEFAULT_FIT_WINDOW
 
-__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm",
+__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "header_mismatches",
            "analyze_calorimetry_file", "analyze_isotherm", "analyze_source", "parse_window",
            "read_isotherm", "sniff_calorimetry_file", "write_calorimetry_outputs"]
 

@@ -342,11 +342,12 @@ class KineticsView(LazyPage):
         """The mapping dialog for ``path`` (None, after an error dialog, if unreadable)."""
         experiment = self.experiment()
         try:
-            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self)
+            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self,
+                                              experiment=experiment)
         except InputError as error:
             QtWidgets.QMessageBox.critical(self, "Cannot read the calorimetry file", str(error))
             return None
-        if experiment.calorimetry is None or experiment.calorimetry.file != dialog.path:
+        if experiment.calorimetry is None:  # else the stored material is kept
             dialog.set_material(self.model.project.material)
         return dialog
 
