@@ -15,10 +15,29 @@ import numpy as np
 
 from analysis.edits import Edit
 
-#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate.
-STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded")
+#: Spherulite statuses are defined, with their thresholds and reasons, in
+#: ``analysis.spherulites.statuses``. Only ``ok`` spherulites enter the pooled growth rate.
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
+
+#: The three counts a result reports: key -> (label, what it counts). The keys name the
+#: JSON fields, CSV columns and help topics; the labels head every panel and table, so a
+#: count reads the same wherever it appears.
+COUNTS: dict[str, tuple[str, str]] = {
+    "spherulites_detected": (
+        "Spherulites detected",
+        "every spherulite the analysis reports, found automatically or added by hand "
+        "(deleted and merged detections not), whatever its status"),
+    "nuclei_counted": (
+        "Nuclei counted",
+        "nuclei whose centre lies inside the field, with a nucleation time, not cut by the "
+        "border and growing like their neighbours: the count behind the nucleation density "
+        "N_A, the nucleation rate and the mode"),
+    "spherulites_in_pooled_g": (
+        "Spherulites in pooled G",
+        "spherulites with status ok and a usable growth fit: the ones pooled into the "
+        "experiment's growth rate G"),
+}
 
 
 @dataclass(frozen=True)
@@ -33,9 +52,11 @@ class Spherulite:
     growth_rate_um_per_min: float | None
     growth_rate_ci95_um_per_min: float | None
     r2: float | None
-    n_points: int
+    n_points: int  # distinct frames among the pixels of the cone fit
     status: str
     source: str = "auto"
+    reason: str = ""  # why this status, with the numbers that decided it; notes such as
+    #                   nucleation before the isothermal start
     growth_rate_se_um_per_min: float | None = None  # standard error of the cone fit's G
 
     def radius_um_at(self, time_s: float) -> float | None:
@@ -58,6 +79,10 @@ class RadiusSeries:
     radius_um: np.ndarray
     free_fraction: np.ndarray
     used: np.ndarray  # bool: the sample entered the fit (not ignored, front free enough)
+
+    def n_used(self) -> int:
+        """Radii measured while the front grew freely: the count the few-points rule uses."""
+        return int(np.count_nonzero(self.used))
 
 
 @dataclass(frozen=True)
@@ -86,15 +111,16 @@ class Nucleation:
     # Nuclei of the initial burst per mm^2 (the predetermined part; for "mixed" this is
     # the athermal density, smaller than density_per_mm2 which counts every nucleus).
     burst_density_per_mm2: float | None = None
+    # Nucleation times (s from the isothermal start) of the counted nuclei, ascending.
+    times_s: tuple[float, ...] = ()
     # 95 % intervals (Garwood exact Poisson intervals on the counts, docs/sources.md
     # "Uncertainty"); None where the value is unknown.
     density_per_mm2_ci95: tuple[float, float] | None = None
     density_per_mm3_ci95: tuple[float, float] | None = None
     rate_per_mm2_per_min_ci95: tuple[float, float] | None = None
     rate_per_mm3_per_min_ci95: tuple[float, float] | None = None
-    # What the resampling of the prediction needs: the nucleation times (s) of the counted
-    # nuclei, the field area (mm^2) and the melt exposure after the burst (mm^2 s).
-    nucleation_times_s: tuple[float, ...] = ()
+    # What the resampling of the prediction needs: the field area (mm^2), and the births
+    # the rate rests on with their melt exposure (mm^2 s).
     field_area_mm2: float | None = None
     late_count: int = 0
     late_exposure_mm2_s: float | None = None
@@ -130,6 +156,12 @@ class ExperimentResult:
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+
+    def counts(self) -> dict[str, int]:
+        """The :data:`COUNTS` of this result, by key."""
+        return {"spherulites_detected": len(self.spherulites),
+                "nuclei_counted": int(self.nucleation.count),
+                "spherulites_in_pooled_g": int(self.growth_rate.n)}
 
     def spherulite(self, spherulite_id: int) -> Spherulite:
         for s in self.spherulites:

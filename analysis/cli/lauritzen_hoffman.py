@@ -6,7 +6,14 @@ from analysis.intervals import DEFAULT_SEED
 from analysis.kinetics.lauritzen_hoffman import LHConstants, read_growth_table, write_secondary_nucleation
 from analysis.kinetics.lh_intervals import fit_with_temperature, lh_intervals
 from analysis.outputs import prepare_output_folder
-from analysis.project.file import DEFAULT_STAGE_UNCERTAINTY_K, check_stage_uncertainty
+from analysis.settings import (
+    DEFAULT_STAGE_UNCERTAINTY_K,
+    DEFAULT_U_STAR_J_PER_MOL,
+    SERIES_SPECS,
+    STAGE_UNCERTAINTY_KEY,
+    Place,
+    parse_value,
+)
 
 
 def add_cli_arguments(parser) -> None:
@@ -14,8 +21,8 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--out", required=True, help="output directory")
     parser.add_argument("--tm0-c", type=float, required=True, help="equilibrium melting point, C")
     parser.add_argument("--tg-c", type=float, required=True, help="glass transition, C")
-    parser.add_argument("--u-star-j-mol", type=float, default=6270.0,
-                        help="transport activation energy U*, J/mol (default 6270)")
+    parser.add_argument("--u-star-j-mol", type=float, default=DEFAULT_U_STAR_J_PER_MOL,
+                        help="transport activation energy U*, J/mol (default %(default)g)")
     parser.add_argument("--t-inf-c", type=float, help="T_inf, C (default Tg - 30 K)")
     parser.add_argument("--material", help="material for sigma*sigma_e (b0, dH0, rho_c)")
     parser.add_argument("--stage-uncertainty-k", type=float, default=DEFAULT_STAGE_UNCERTAINTY_K,
@@ -27,7 +34,8 @@ def add_cli_arguments(parser) -> None:
 def run_cli(args) -> int:
     prepare_output_folder(args.out)
     table = read_growth_table(args.table)
-    u_t = check_stage_uncertainty(args.stage_uncertainty_k, "--stage-uncertainty-k", table.path)
+    spec = next(s for s in SERIES_SPECS if s.key == STAGE_UNCERTAINTY_KEY)
+    u_t = parse_value(spec, args.stage_uncertainty_k, Place(table.path))
     constants = LHConstants(args.tm0_c, args.tg_c, args.u_star_j_mol, args.t_inf_c)
     analysis = fit_with_temperature(table.temperature_c, table.growth_rate_um_per_min,
                                     table.ci95_um_per_min, u_t, constants=constants,

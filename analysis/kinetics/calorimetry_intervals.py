@@ -35,8 +35,9 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED, Z95, Estimate
+from analysis.settings import DEFAULT_FIT_WINDOW
 
-WINDOWS = ((0.03, 0.20), (0.02, 0.15), (0.05, 0.30), (0.10, 0.50))
+WINDOWS = (DEFAULT_FIT_WINDOW, (0.02, 0.15), (0.05, 0.30), (0.10, 0.50))
 BASELINES = ("linear",)
 NOISE_DRAWS = 8
 #: Instrument lag time constants tried when the user gave none, s (0: as recorded).

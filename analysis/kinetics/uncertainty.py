@@ -67,7 +67,7 @@ class _Inputs:
     per_volume: float  # 1 / h in 1/mm for bulk-3d, 1 for film-2d
 
 
-def _inputs(result: ExperimentResult, geometry: str, mode: str) -> _Inputs:
+def _inputs(result: ExperimentResult, geometry: str, mode: str, thickness_um) -> _Inputs:
     ok = [s for s in result.spherulites if s.status == "ok" and s.growth_rate_um_per_min
           and s.growth_rate_se_um_per_min]
     nuc = result.nucleation
@@ -82,7 +82,8 @@ def _inputs(result: ExperimentResult, geometry: str, mode: str) -> _Inputs:
     exposure = (nuc.late_exposure_mm2_s or 0.0) / 60.0
     per_volume = 1.0
     if geometry == "bulk-3d":  # N_V = N_A / h with the thickness the model used
-        per_volume = 1.0 / (prediction_inputs(result, geometry, mode).thickness_um * 1e-3)
+        used = prediction_inputs(result, geometry, mode, thickness_um=thickness_um).thickness_um
+        per_volume = 1.0 / (used * 1e-3)
     return _Inputs(np.array([s.growth_rate_um_per_min for s in ok]),
                    np.array([s.growth_rate_se_um_per_min for s in ok]),
                    result.growth_rate.systematic_rel, burst, late, exposure, area, per_volume)
@@ -106,7 +107,8 @@ def _draw(inputs: _Inputs, geometry: str, rng: np.random.Generator):
 
 def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
                          mode: str | None = None, *, seed: int = DEFAULT_SEED,
-                         resamples: int = DEFAULT_RESAMPLES) -> PredictionIntervals | None:
+                         resamples: int = DEFAULT_RESAMPLES,
+                         thickness_um: float | None = None) -> PredictionIntervals | None:
     """Bootstrap intervals of the predicted n, k and t_half; None without a prediction.
 
     The point values are the prediction from the result itself
@@ -114,10 +116,10 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
     come from the draws.
     """
     try:
-        model = predict_model_from_result(result, geometry, mode)
+        model = predict_model_from_result(result, geometry, mode, thickness_um=thickness_um)
     except InputError:
         return None
-    inputs = _inputs(result, geometry, model.mode)
+    inputs = _inputs(result, geometry, model.mode, thickness_um)
     if inputs.g.size == 0 or inputs.area_mm2 <= 0:
         return _delta_method(result, model, seed)
     rng = np.random.default_rng(seed)

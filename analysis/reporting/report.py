@@ -13,8 +13,8 @@ Public API
 ``project_entries_iter(project) -> Generator[Progress, None, (entries, problems)]``
     Analyses every experiment (``pipeline.analyze_experiment_iter``) and its calorimetry.
 ``report_project_iter(project, out_dir)`` / ``report_project(project, out_dir)``
-``series_constants(project) -> (LHConstants | None, note)``: Tm0/Tg from
-    ``project.series`` (tm0_c, tg_c, u_star_j_per_mol, t_inf_c), else from the material table.
+Entries, their calorimetry, the Lauritzen-Hoffman inputs and the series constants come
+from ``analysis.reporting.entries``, which the application's pages use too.
 ``add_cli_arguments(parser)`` / ``run_cli(args)``.
 """
 
@@ -28,18 +28,19 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED
-from analysis.kinetics.lh_intervals import fit_with_temperature, lh_intervals
-from analysis.outputs import clean_text, prepare_output_folder, staged_outputs
-from analysis.project.file import resampling_seed, stage_uncertainty_k
+from analysis.outputs import prepare_output_folder, staged_outputs
+from analysis.project.model import resampling_seed, stage_uncertainty_k
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     hoffman_weeks,
     write_secondary_nucleation,
 )
 from analysis.progress import Progress, run_to_completion, scaled
+from analysis.settings import HW_PAIRS_KEY
 from analysis.reporting import figures
+from analysis.kinetics.prediction import film_avrami_fit, film_conversion
+from analysis.reporting.entries import lauritzen_hoffman_series, report_entry, series_constants
 from analysis.reporting.tables import (
-    ReportEntry,
     comparison_table,
     growth_vs_temperature_table,
     write_csv,
@@ -47,12 +48,8 @@ from analysis.reporting.tables import (
 )
 from analysis.units import write_json_atomic
 
-#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
-HW_PAIRS_KEY = "hoffman_weeks_pairs"
-
 __all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
-           "project_entries_iter",
-           "report_project", "report_project_iter", "series_constants"]
+           "project_entries_iter", "report_project", "report_project_iter"]
 
 
 @dataclass(frozen=True)
@@ -63,49 +60,6 @@ class ReportSummary:
     problems: tuple[str, ...] = field(default=())
 
 
-def _lh_inputs(entries):
-    """(Tc, G, G's own 95 % half-width or None, stage uncertainty u_T in K) of the entries
-    that have both a temperature and a growth rate."""
-    rows = [e for e in entries if e.result.temperature_c is not None and e.result.growth_rate.value]
-    tc = np.array([e.result.temperature_c for e in rows], dtype=float)
-    g = np.array([e.result.growth_rate.value for e in rows], dtype=float)
-    cis = [None if e.result.growth_rate.ci95_low is None or e.result.growth_rate.ci95_high is None
-           else (e.result.growth_rate.ci95_high - e.result.growth_rate.ci95_low) / 2 for e in rows]
-    ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
-    u_t = np.array([e.stage_uncertainty_k for e in rows], dtype=float)
-    return tc, g, ci, u_t
-
-
-@dataclass(frozen=True)
-class SeriesFit:
-    """The Lauritzen-Hoffman fit of a series and its bootstrap intervals."""
-
-    fit: object  # lauritzen_hoffman.LHAnalysis
-    intervals: object  # lh_intervals.LHIntervals
-
-
-def lauritzen_hoffman_series(entries, constants, material=None, *, seed: int = DEFAULT_SEED,
-                             problems: list | None = None) -> SeriesFit | None:
-    """The one LH fit of a series (report and GUI): weighted by G's CI with the
-    stage-temperature part, with intervals on Kg, G0, sigma*sigma_e, sigma_e and the
-    break. None (and a line in ``problems``) when it cannot be made."""
-    problems = problems if problems is not None else []
-    if constants is None:
-        problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
-        return None
-    tc, g, ci, u_t = _lh_inputs(entries)
-    if np.unique(tc).size < 3:
-        problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
-        return None
-    try:
-        lh = fit_with_temperature(tc, g, ci, u_t, constants=constants, material=material)
-    except InputError as err:
-        problems.append(f"Lauritzen-Hoffman fit skipped: {err}")
-        return None
-    problems.extend(lh.warnings)
-    return SeriesFit(lh, lh_intervals(lh, ci, u_t, seed=seed))
-
-
 def _lauritzen_hoffman(entries, constants, material, problems):
     seed = entries[0].seed if entries else DEFAULT_SEED
     return lauritzen_hoffman_series(entries, constants, material, seed=seed, problems=problems)
@@ -114,12 +68,10 @@ def _lauritzen_hoffman(entries, constants, material, problems):
 def _avrami_curves(entries):
     micro, dsc = [], []
     for e in entries:
-        label = f"{e.result.temperature_c:g} °C" if e.result.temperature_c is not None else e.name
-        r = e.result
-        if r.area_fraction.size:
-            start = (r.nucleation.induction_time_s or 0.0) / 60.0
-            micro.append(figures.AvramiCurve(label, r.area_fraction_time_s / 60.0 - start,
-                                             r.area_fraction))
+        label = f"{e.temperature_c:g} °C" if e.temperature_c is not None else e.name
+        if e.result.area_fraction.size:
+            micro.append(figures.AvramiCurve(label, *film_conversion(e.result),
+                                             film_avrami_fit(e.result)))
         if e.calorimetry is not None:
             t, x = e.calorimetry.conversion_table()
             dsc.append(figures.AvramiCurve(label, t - e.calorimetry.induction_time_min, x,
@@ -127,20 +79,13 @@ def _avrami_curves(entries):
     return micro, dsc
 
 
-def _with_film_fits(curves):
-    from analysis.kinetics.avrami import fit_avrami_window
-
-    return [figures.AvramiCurve(c.label, c.t_min, c.x, fit_avrami_window(c.t_min, c.x))
-            for c in curves]
-
-
-def _write_figures(entries, lh, material, out: Path) -> list[Path]:
+def _write_figures(entries, lh, out: Path) -> list[Path]:
     micro, dsc = _avrami_curves(entries)
     made = [
         ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
-        ("avrami_microscopy", figures.avrami_figure(_with_film_fits(micro), "Microscopy (area fraction)")),
+        ("avrami_microscopy", figures.avrami_figure(micro, "Microscopy (area fraction)")),
         ("avrami_calorimetry", figures.avrami_figure(dsc, "Calorimetry")),
-        ("conversion_comparison", figures.conversion_comparison_figure(entries, material)),
+        ("conversion_comparison", figures.conversion_comparison_figure(entries)),
     ]
     if lh is not None:
         made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh)))
@@ -195,38 +140,9 @@ def _write_report_files(entries, out: Path, constants, material, problems, hoffm
     lh = None if series is None else series.fit
     if series is not None:
         files.append(write_secondary_nucleation(lh, out, series.intervals))
-    files.extend(_write_figures(entries, lh, material, out))
+    files.extend(_write_figures(entries, lh, out))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return files, lh, problems
-
-
-def series_constants(project) -> tuple[LHConstants | None, str]:
-    """LH constants from the project's series settings, completed from the material table."""
-    series = dict(project.series or {})
-    tm0, tg = series.get("tm0_c"), series.get("tg_c")
-    note = "Tm0 and Tg from the project"
-    if (tm0 is None or tg is None) and project.material:
-        from analysis.kinetics.materials import get_material
-
-        mat = get_material(project.material)
-        tm0 = mat.tm0_c if tm0 is None else tm0
-        tg = mat.tg_c if tg is None else tg
-        note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
-    if tm0 is None or tg is None:
-        return None, "no Tm0/Tg: set them for the series or choose a material"
-    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol") or 6270.0),
-                       series.get("t_inf_c")), note
-
-
-def _calorimetry(experiment, material, seed):
-    from analysis.kinetics.calorimetry import analyze_source
-
-    source = experiment.calorimetry
-    if source.material is None and material is not None:
-        from dataclasses import replace
-
-        source = replace(source, material=material)
-    return analyze_source(source, seed=seed)
 
 
 def project_entries_iter(project):
@@ -242,17 +158,12 @@ def project_entries_iter(project):
         except InputError as err:
             problems.append(f"{exp.name}: skipped ({err})")
             continue
-        cal, cal_problem = None, None
-        if exp.calorimetry is not None:
-            try:
-                cal = _calorimetry(exp, project.material, resampling_seed(project))
-            except InputError as err:
-                cal_problem = str(err)
-                problems.append(f"{exp.name}: calorimetry skipped ({err})")
-        entries.append(ReportEntry(clean_text(exp.name), analysis.result, exp.geometry,
-                                   exp.mode_override, cal, cal_problem,
-                                   stage_uncertainty_k=stage_uncertainty_k(project, exp),
-                                   seed=resampling_seed(project)))
+        entry = report_entry(exp, analysis.result, project.material,
+                             stage_uncertainty_k=stage_uncertainty_k(project, exp),
+                             seed=resampling_seed(project))
+        if entry.calorimetry_problem:
+            problems.append(f"{exp.name}: calorimetry skipped ({entry.calorimetry_problem})")
+        entries.append(entry)
     yield Progress("analysing experiments", 1.0)
     return entries, problems
 
@@ -280,12 +191,13 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    # an unknown material stops here, before the long analysis
+    constants, note = series_constants(project.series, project.material, project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,

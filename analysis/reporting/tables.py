@@ -3,9 +3,11 @@
 Public API (shared by the report and the GUI)
 ---------------------------------------------
 ``ReportEntry(name, result, geometry="bulk-3d", mode_override=None, calorimetry=None,
-calorimetry_problem=None)``: one experiment, its ``ExperimentResult`` and optional
-``calorimetry.CalorimetryResult``; ``.prediction`` (an ``AvramiPrediction`` or None) and
-``.prediction_problem``.
+calorimetry_problem=None, temperature_c=None, thickness_um=None)``: one experiment, its
+``ExperimentResult`` and optional ``calorimetry.CalorimetryResult``; Tc and h are the
+result's unless given; ``.prediction`` (an ``AvramiPrediction`` or None) and
+``.prediction_problem``, ``.density_per_mm3`` and ``.rate_per_mm3_per_min`` (N_A / h).
+Build entries with ``analysis.reporting.entries.report_entry``.
 ``Table(header, rows)``: ``header`` list of column names with units, ``rows`` list of lists
 (numbers stay numbers, None for unknown).
 ``growth_vs_temperature_table(entries) -> Table`` (sorted by temperature)
@@ -27,12 +29,17 @@ from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED, Estimate
 from analysis.kinetics.avrami import AvramiPrediction
 from analysis.kinetics.lh_intervals import temperature_half_width, with_temperature
-from analysis.project.file import DEFAULT_STAGE_UNCERTAINTY_K
-from analysis.kinetics.prediction import predict_model_from_result
+from analysis.kinetics.prediction import (
+    PredictionInputs,
+    predict_model_from_result,
+    prediction_inputs,
+)
 from analysis.kinetics.uncertainty import PredictionIntervals, prediction_intervals, ratio_interval
+from analysis.settings import DEFAULT_STAGE_UNCERTAINTY_K
 from analysis.outputs import clean_text
-from analysis.results import ExperimentResult
-from analysis.units import write_atomic, write_csv_atomic
+from analysis.results import COUNTS, ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY
+from analysis.units import per_mm3_from_per_mm2, write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
            "escape_cell", "growth_vs_temperature_table", "write_csv", "write_xlsx"]
@@ -48,30 +55,73 @@ class Table:
 
 @dataclass(frozen=True)
 class ReportEntry:
+    """One analysed experiment as every table, figure and page shows it.
+
+    ``temperature_c`` and ``thickness_um`` are the experiment's (°C, µm); None at
+    construction means the result's.
+    """
+
     name: str
     result: ExperimentResult
-    geometry: str = "bulk-3d"
+    geometry: str = DEFAULT_GEOMETRY
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None
-    stage_uncertainty_k: float = DEFAULT_STAGE_UNCERTAINTY_K
-    seed: int = DEFAULT_SEED
+    temperature_c: float | None = None
+    thickness_um: float | None = None
+    stage_uncertainty_k: float = DEFAULT_STAGE_UNCERTAINTY_K  # K, standard uncertainty of Tc
+    seed: int = DEFAULT_SEED  # of the resampling
+
+    def __post_init__(self):
+        if self.result is None:  # an entry without a result yet (defaults only)
+            return
+        if self.temperature_c is None:
+            object.__setattr__(self, "temperature_c", self.result.temperature_c)
+        if not self.thickness_um:
+            object.__setattr__(self, "thickness_um", self.result.thickness_um)
+
+    @property
+    def density_per_mm3(self) -> float | None:
+        """N_V = N_A / h, mm^-3, with this entry's film thickness."""
+        return per_mm3_from_per_mm2(self.result.nucleation.density_per_mm2, self.thickness_um)
+
+    @property
+    def rate_per_mm3_per_min(self) -> float | None:
+        """Ndot_V = Ndot_A / h, mm^-3 min^-1."""
+        return per_mm3_from_per_mm2(self.result.nucleation.rate_per_mm2_per_min, self.thickness_um)
+
+    @property
+    def growth_rate_ci95_half_width(self) -> float | None:
+        """Half the width of the pooled G's 95 % interval, µm/min (None if unknown)."""
+        g = self.result.growth_rate
+        return None if g.ci95_low is None or g.ci95_high is None else (g.ci95_high - g.ci95_low) / 2.0
+
+    def prediction_inputs(self, geometry: str | None = None) -> PredictionInputs:
+        """What enters this entry's prediction (``geometry`` defaults to the entry's)."""
+        return prediction_inputs(self.result, geometry or self.geometry, self.mode_override,
+                                 thickness_um=self.thickness_um)
+
+    def _predict(self, geometry: str) -> AvramiPrediction:
+        return predict_model_from_result(self.result, geometry, self.mode_override,
+                                         thickness_um=self.thickness_um)
 
     @cached_property
     def prediction_intervals(self) -> PredictionIntervals | None:
         """Bootstrap intervals of the prediction in the entry's geometry."""
-        return prediction_intervals(self.result, self.geometry, self.mode_override, seed=self.seed)
+        return prediction_intervals(self.result, self.geometry, self.mode_override, seed=self.seed,
+                                    thickness_um=self.thickness_um)
 
     @cached_property
     def bulk_prediction_intervals(self) -> PredictionIntervals | None:
         if self.geometry == "bulk-3d":
             return self.prediction_intervals
-        return prediction_intervals(self.result, "bulk-3d", self.mode_override, seed=self.seed)
+        return prediction_intervals(self.result, "bulk-3d", self.mode_override, seed=self.seed,
+                                    thickness_um=self.thickness_um)
 
     @cached_property
     def _predicted(self) -> tuple[AvramiPrediction | None, str | None]:
         try:
-            return predict_model_from_result(self.result, self.geometry, self.mode_override), None
+            return self._predict(self.geometry), None
         except InputError as err:
             return None, err.problem
 
@@ -88,7 +138,7 @@ class ReportEntry:
         if self.geometry == "bulk-3d":
             return self.prediction
         try:
-            return predict_model_from_result(self.result, "bulk-3d", self.mode_override)
+            return self._predict("bulk-3d")
         except InputError:
             return None
 
@@ -110,7 +160,7 @@ def _ci_names(name: str, unit: str = "") -> list[str]:
 
 GROWTH_HEADER = [
     "experiment", "temperature_c", *_ci_names("growth_rate", "um_per_min"), "stage_uncertainty_k",
-    "n_spherulites", "nucleation_mode", *_ci_names("nucleus_density_per_mm2"),
+    *COUNTS, "nucleation_mode", *_ci_names("nucleus_density_per_mm2"),
     *_ci_names("nucleus_density_per_mm3"), *_ci_names("nucleation_rate_per_mm2_per_min"),
     *_ci_names("nucleation_rate_per_mm3_per_min"), "predicted_geometry",
     *_ci_names("predicted_avrami_n"), *_ci_names("predicted_k_per_min_n"),
@@ -122,6 +172,13 @@ GROWTH_HEADER = [
 
 def _triple(est: Estimate | None) -> list:
     return [None, None, None] if est is None else [est.value, est.low, est.high]
+
+
+def _per_volume(entry: ReportEntry, pair):
+    """An areal (low, high) pair per mm^3 with the entry's film thickness (None without)."""
+    if pair is None or not entry.thickness_um:
+        return None
+    return tuple(per_mm3_from_per_mm2(v, entry.thickness_um) for v in pair)
 
 
 def _with_ci(value, pair) -> list:
@@ -158,7 +215,7 @@ def growth_estimate(entry: ReportEntry) -> Estimate:
 def growth_estimates(entries) -> list[Estimate]:
     """Pooled G of each entry with the interval widened by the stage-temperature
     uncertainty (the slope d ln G/dT from the series, analysis.kinetics.lh_intervals)."""
-    tc = [e.result.temperature_c for e in entries]
+    tc = [e.temperature_c for e in entries]
     g = [e.result.growth_rate for e in entries]
     usable = [i for i, (t, p) in enumerate(zip(tc, g)) if t is not None and p.value]
     half = [None] * len(entries)
@@ -180,18 +237,18 @@ def _growth_row(entry: ReportEntry, growth: Estimate) -> list:
     pi = entry.prediction_intervals
     predicted = [None] * 9 if pi is None else [
         *_triple(pi.n), *_triple(pi.k_per_min_n), *_triple(pi.t_half_min)]
-    return [entry.name, r.temperature_c, *_triple(growth), entry.stage_uncertainty_k,
-            r.growth_rate.n, nuc.mode,
+    counts = r.counts()
+    return [entry.name, entry.temperature_c, *_triple(growth), entry.stage_uncertainty_k,
+            *(counts[key] for key in COUNTS), nuc.mode,
             *_with_ci(nuc.density_per_mm2, nuc.density_per_mm2_ci95),
-            *_with_ci(nuc.density_per_mm3, nuc.density_per_mm3_ci95),
+            *_with_ci(entry.density_per_mm3, _per_volume(entry, nuc.density_per_mm2_ci95)),
             *_with_ci(nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95),
-            *_with_ci(nuc.rate_per_mm3_per_min, nuc.rate_per_mm3_per_min_ci95),
+            *_with_ci(entry.rate_per_mm3_per_min, _per_volume(entry, nuc.rate_per_mm2_per_min_ci95)),
             entry.geometry, *predicted, *_dsc_columns(entry.calorimetry), entry.seed]
 
 
 def _by_temperature(entries):
-    return sorted(entries, key=lambda e: (e.result.temperature_c is None,
-                                          e.result.temperature_c or 0.0, e.name))
+    return sorted(entries, key=lambda e: (e.temperature_c is None, e.temperature_c or 0.0, e.name))
 
 
 def growth_vs_temperature_table(entries) -> Table:
@@ -265,7 +322,7 @@ def compare_kinetics(entry: ReportEntry) -> Comparison | None:
     else:
         factor = math.sqrt(ratio.high / ratio.low)
         agree = ratio.low <= 1.0 <= ratio.high
-    return Comparison(entry.name, entry.result.temperature_c, pred.n, fit.n, pred.k_per_min_n,
+    return Comparison(entry.name, entry.temperature_c, pred.n, fit.n, pred.k_per_min_n,
                       fit.k_per_min_n, pred.t_half_min, fit.t_half_min, value, factor, agree,
                       _note(agree, value, fit.n, factor), (ratio.low, ratio.high))
 

@@ -166,9 +166,10 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
         rate_per_mm3_per_min=per_mm3_from_per_mm2(rate_min, thickness_um),
         induction_time_s=max(0.0, float(t.min())), mode_test=test.text,
         burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2,
+        times_s=tuple(float(v) for v in np.sort(t)),
         density_per_mm2_ci95=density_ci, density_per_mm3_ci95=_per_volume(density_ci, thickness_um),
         rate_per_mm2_per_min_ci95=rate_ci, rate_per_mm3_per_min_ci95=_per_volume(rate_ci, thickness_um),
-        nucleation_times_s=tuple(float(v) for v in t), field_area_mm2=float(field_area_mm2),
+        field_area_mm2=float(field_area_mm2),
         late_count=test.rate_count, late_exposure_mm2_s=test.rate_exposure_mm2_s)
     return nucleation
 

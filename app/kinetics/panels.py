@@ -8,7 +8,8 @@ from __future__ import annotations
 
 from PySide6 import QtCore, QtWidgets
 
-from app.core.kinetics_inputs import volumetric_density
+from analysis.results import COUNTS
+from analysis.units import per_mm3_from_per_mm2
 from app.widgets.formatting import DASH, fmt, fmt_ci, fmt_estimate, k_unit
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
@@ -17,12 +18,19 @@ from app.widgets.help_panel import help_button
 FORMULAS = {
     ("bulk-3d", "athermal"): "k = (4π/3) · N_V · G³,   n = 3",
     ("bulk-3d", "thermal"): "k = (π/3) · Ṅ_V · G³,   n = 4",
-    ("bulk-3d", "mixed"): "X = 1 − exp(−[(4π/3)·N_V·G³·t³ + (π/3)·Ṅ_V·G³·t⁴])",
+    ("bulk-3d", "mixed"): "X = 1 − exp(−[(4π/3)·N₀·G³·t³ + (π/3)·Ṅ_V·G³·t⁴]),  N₀ = initial burst per mm³",
     ("film-2d", "athermal"): "k = π · N_A · G²,   n = 2",
     ("film-2d", "thermal"): "k = (π/3) · Ṅ_A · G²,   n = 3",
-    ("film-2d", "mixed"): "X = 1 − exp(−[π·N_A·G²·t² + (π/3)·Ṅ_A·G²·t³])",
+    ("film-2d", "mixed"): "X = 1 − exp(−[π·N₀·G²·t² + (π/3)·Ṅ_A·G²·t³]),  N₀ = initial burst per mm²",
 }
 HALF_TIME_FORMULA = "t½ = (ln 2 / k)^(1/n)"
+
+
+def _per_mm3(pair, thickness_um) -> tuple:
+    """An areal (low, high) pair per mm^3 through N_V = N_A / h; (None, None) without."""
+    if pair is None or not thickness_um:
+        return None, None
+    return tuple(per_mm3_from_per_mm2(v, thickness_um) for v in pair)
 
 
 class PredictionPanel(FormPanel):
@@ -31,11 +39,14 @@ class PredictionPanel(FormPanel):
     TITLE = "Microscopy → Avrami prediction"
     ROWS = [
         ("mode", "Nucleation mode", "nucleation_mode"),
+        ("nuclei_counted", COUNTS["nuclei_counted"][0], "nuclei_counted"),
         ("density_areal", "N_A (areal)", "density_areal"),
         ("thickness", "film thickness h", "density_volumetric"),
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
+        ("density_used", "N in the prediction", "density_used"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
         ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("spherulites_in_pooled_g", COUNTS["spherulites_in_pooled_g"][0], "spherulites_in_pooled_g"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),
         ("t_half", "predicted t½", "half_time"),
@@ -50,24 +61,34 @@ class PredictionPanel(FormPanel):
         self.add_full_row(self.formula)
         self.add_full_row(self.problem)
 
-    def show_inputs(self, result, experiment, mode_used: str | None, mode_found: str | None) -> None:
+    def show_inputs(self, entry) -> None:
+        """The inputs of ``entry``'s prediction (``analysis.reporting.tables.ReportEntry``)."""
+        result, inputs = entry.result, entry.prediction_inputs()
         nuc = result.nucleation
-        found = mode_found or "not determined"
-        self.form.set("mode", f"{mode_used or DASH} (analysis: {found})")
+        found = nuc.mode or "not determined"
+        self.form.set("mode", f"{inputs.mode} (analysis: {found})")
         self.form.values["mode"].setToolTip(nuc.mode_test or "")
-        self.form.set("density_areal", fmt_ci(nuc.density_per_mm2, *(nuc.density_per_mm2_ci95 or (None, None)), "mm⁻²"))
-        volumetric, h = volumetric_density(result, experiment)
+        self.form.set("density_areal", fmt_ci(nuc.density_per_mm2, *(nuc.density_per_mm2_ci95 or (None, None)),
+                                              "mm⁻²"))
+        h = entry.thickness_um
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
-        pair = nuc.density_per_mm2_ci95
-        scale = None if volumetric is None or not nuc.density_per_mm2 else volumetric / nuc.density_per_mm2
-        vol_ci = (None, None) if pair is None or scale is None else (pair[0] * scale, pair[1] * scale)
-        self.form.set("density_volumetric", fmt_ci(volumetric, *vol_ci, "mm⁻³"))
-        rates = [fmt_ci(value, *(pair or (None, None)), unit) for value, pair, unit in (
-            (nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95, "mm⁻² min⁻¹"),
-            (nuc.rate_per_mm3_per_min, nuc.rate_per_mm3_per_min_ci95, "mm⁻³ min⁻¹")) if value is not None]
+        self.form.set("density_volumetric", fmt_ci(entry.density_per_mm3,
+                                                   *_per_mm3(nuc.density_per_mm2_ci95, h), "mm⁻³"))
+        per = "mm⁻³" if inputs.geometry == "bulk-3d" else "mm⁻²"
+        used = {"athermal": "every nucleus", "mixed": "initial burst",
+                "thermal": "none: rate only"}[inputs.mode]
+        self.form.set("density_used", f"{fmt(inputs.density_per_mm_d, per)} ({used})"
+                      if inputs.mode != "thermal" else used)
+        rates = [fmt_ci(value, *pair, unit) for value, pair, unit in (
+            (nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95 or (None, None), "mm⁻² min⁻¹"),
+            (entry.rate_per_mm3_per_min, _per_mm3(nuc.rate_per_mm2_per_min_ci95, h), "mm⁻³ min⁻¹"))
+            if value is not None]
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
-        self.form.set("growth_rate", f"{fmt_ci(g.value, g.ci95_low, g.ci95_high, 'µm/min')}  ({g.n} spherulites)")
+        self.form.set("growth_rate", fmt_ci(g.value, g.ci95_low, g.ci95_high, "µm/min"))
+        for key, value in result.counts().items():
+            if key in self.form.values:
+                self.form.set(key, str(value))
 
     def show_prediction(self, model, geometry: str, intervals=None) -> None:
         """``model``: analysis.kinetics.avrami.AvramiPrediction, or None with ``problem`` set;

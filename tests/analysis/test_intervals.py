@@ -27,13 +27,9 @@ from analysis.kinetics.lh_intervals import (
     with_temperature,
 )
 from analysis.kinetics.uncertainty import prediction_intervals, ratio_interval
-from analysis.project.file import (
-    DEFAULT_STAGE_UNCERTAINTY_K,
-    Experiment,
-    Project,
-    check_stage_uncertainty,
-    stage_uncertainty_k,
-)
+from analysis.project.file import FORMAT, SCHEMA_VERSION, project_from_dict
+from analysis.project.model import Experiment, Project, stage_uncertainty_k
+from analysis.settings import DEFAULT_STAGE_UNCERTAINTY_K
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate, Spherulite
 from analysis.spherulites.growth import pooled_rate, timing_systematic
 from analysis.synthetic.dsc import simulate_dsc_isotherm
@@ -184,9 +180,20 @@ def test_stage_uncertainty_setting_defaults_overrides_and_validates():
     assert stage_uncertainty_k(project, exp) == 1.0
     own = Experiment("b", "b.tif", stage_uncertainty_k=0.2)
     assert stage_uncertainty_k(project, own) == 0.2
+
+    def load(series, experiment):
+        doc = {"format": FORMAT, "schema_version": SCHEMA_VERSION, "series": series,
+               "experiments": [{"name": "a", "stack": "a.tif", **experiment}]}
+        return project_from_dict(doc, "/tmp/p.spherokin.json")
+
+    loaded = load({"stage_uncertainty_k": 1.5, "resampling_seed": 7}, {"stage_uncertainty_k": 0.3})
+    assert stage_uncertainty_k(loaded, loaded.experiments[0]) == 0.3
+    assert loaded.series["resampling_seed"] == 7
     for bad in (-0.1, 25.0, "warm"):
-        with pytest.raises(InputError):
-            check_stage_uncertainty(bad, "stage_uncertainty_k", "p.spherokin.json")
+        with pytest.raises(InputError, match="stage_uncertainty_k"):
+            load({"stage_uncertainty_k": bad}, {})
+        with pytest.raises(InputError, match="stage_uncertainty_k"):
+            load({}, {"stage_uncertainty_k": bad})
 
 
 # ---------------------------------------------------------------- calorimetry
