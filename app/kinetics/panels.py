@@ -35,7 +35,7 @@ class PredictionPanel(FormPanel):
         ("thickness", "film thickness h", "density_volumetric"),
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
-        ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("growth_rate", "Growth rate G", "growth_rate"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),
         ("t_half", "predicted t½", "half_time"),

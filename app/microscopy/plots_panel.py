@@ -59,7 +59,7 @@ def _plot(title: str, y_label: str) -> pg.PlotWidget:
     item = widget.getPlotItem()
     item.setTitle(title, color=FOREGROUND, size="10pt")
     item.setLabel("left", y_label, color=FOREGROUND)
-    item.setLabel("bottom", "time from reaching Tc (s)", color=FOREGROUND)
+    item.setLabel("bottom", "t from reaching Tc (s)", color=FOREGROUND)
     item.showGrid(x=True, y=True, alpha=0.15)
     item.setMenuEnabled(False)
     return widget
@@ -72,9 +72,10 @@ class PlotsPanel(QWidget):
         super().__init__(parent)
         self._model = model
         self.splitter = QSplitter(Qt.Vertical)
-        self.radius_plot = _plot("Radius of each spherulite", "radius (µm)")
-        self.count_plot = _plot("Nuclei", "count")
-        self.fraction_plot = _plot("Crystallized area fraction X(t)", "X")
+        # Short titles: they must fit the panel's width on a 1280-pixel screen.
+        self.radius_plot = _plot("Radii r(t)", "radius (µm)")
+        self.count_plot = _plot("Nuclei N(t)", "count")
+        self.fraction_plot = _plot("Area fraction X(t)", "X")
         for plot in (self.radius_plot, self.count_plot, self.fraction_plot):
             self.splitter.addWidget(plot)
         self.splitter.setSizes([500, 250, 250])

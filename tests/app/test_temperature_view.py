@@ -41,7 +41,7 @@ def test_table_sorts_and_copies_tsv(view):
     table = view.table
     assert table.proxy.rowCount() == len(FIXTURE_A)
     header = table.header()
-    assert "Tc (°C)" in header and "G (µm/min)" in header and "G 95 % low (µm/min)" in header
+    assert "Tc (°C)" in header and "G (µm/min)" in header and "G 95 % CI low (µm/min)" in header
     tc_col, g_col = header.index("Tc (°C)"), header.index("G (µm/min)")
     table.view.sortByColumn(g_col, QtCore.Qt.SortOrder.AscendingOrder)
     rows = table.shown_rows()
