@@ -20,6 +20,25 @@ from analysis.edits import Edit
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
 
+#: The three counts a result reports: key -> (label, what it counts). The keys name the
+#: JSON fields, CSV columns and help topics; the labels head every panel and table, so a
+#: count reads the same wherever it appears.
+COUNTS: dict[str, tuple[str, str]] = {
+    "spherulites_detected": (
+        "Spherulites detected",
+        "every spherulite the analysis reports, found automatically or added by hand "
+        "(deleted and merged detections not), whatever its status"),
+    "nuclei_counted": (
+        "Nuclei counted",
+        "nuclei whose centre lies inside the field, with a nucleation time, not cut by the "
+        "border and growing like their neighbours: the count behind the nucleation density "
+        "N_A, the nucleation rate and the mode"),
+    "spherulites_in_pooled_g": (
+        "Spherulites in pooled G",
+        "spherulites with status ok and a usable growth fit: the ones pooled into the "
+        "experiment's growth rate G"),
+}
+
 
 @dataclass(frozen=True)
 class Spherulite:
@@ -86,6 +105,8 @@ class Nucleation:
     # Nuclei of the initial burst per mm^2 (the predetermined part; for "mixed" this is
     # the athermal density, smaller than density_per_mm2 which counts every nucleus).
     burst_density_per_mm2: float | None = None
+    # Nucleation times (s from the isothermal start) of the counted nuclei, ascending.
+    times_s: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -118,6 +139,12 @@ class ExperimentResult:
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+
+    def counts(self) -> dict[str, int]:
+        """The :data:`COUNTS` of this result, by key."""
+        return {"spherulites_detected": len(self.spherulites),
+                "nuclei_counted": int(self.nucleation.count),
+                "spherulites_in_pooled_g": int(self.growth_rate.n)}
 
     def spherulite(self, spherulite_id: int) -> Spherulite:
         for s in self.spherulites:

@@ -304,7 +304,7 @@ def _area_fraction(ctx, global_spans):
 def _counted(spherulites, fits, shape) -> list:
     """(spherulite, fit) pairs that count as nuclei inside the field.
 
-    Nuclei count by their centre (REFERENCES §1.6); edge spherulites never count. A
+    Nuclei count by their centre (docs/sources.md §1.6); edge spherulites never count. A
     ``few-points`` detection counts only when its cone fit grows within ``few_points_g_tolerance`` (30 %) of the
     field's median G (common practice): with fewer frames a real late nucleus still
     grows like its neighbours, whereas dust or a segmentation artefact does not.

@@ -32,6 +32,7 @@ from PySide6.QtWidgets import (
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
+from analysis.results import COUNTS
 from app.core import model as m
 from app.microscopy.overlays import STATUS_WORDS
 from app.microscopy.spherulite_table import SpherulitesTable
@@ -90,9 +91,11 @@ def _predicted(result: Any, experiment: Any):
 
 def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     g, nuc = result.growth_rate, result.nucleation
+    counts = result.counts()
     rows = [("Frames", str(result.frames)),
-            ("Pooled G", fmt_interval(g.value, g.ci95_low, g.ci95_high, "µm/min") + f", n = {g.n}"),
-            ("Nuclei", f"{nuc.count}, mode {nuc.mode or '—'}"),
+            *((COUNTS[key][0], str(value)) for key, value in counts.items()),
+            ("Pooled G", fmt_interval(g.value, g.ci95_low, g.ci95_high, "µm/min")),
+            ("Nucleation mode", nuc.mode or "—"),
             ("Density", fmt(nuc.density_per_mm2, "mm⁻²") + " | " + fmt(nuc.density_per_mm3, "mm⁻³")),
             ("Nucleation rate", fmt(nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹")),
             ("Induction time", _num(nuc.induction_time_s, ".1f", " s"))]

@@ -435,6 +435,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.runner.wait(10.0)
         self.save_layout()
         self.autosaver.discard()
+        self.hold_project_lock(None)
         event.accept()
 
 

@@ -206,7 +206,7 @@ def test_crash_recovery_offer_restores_the_autosaved_edits(window, qtbot, tmp_pa
     fresh.ask_unsaved_changes = lambda: "discard"
     qtbot.addWidget(fresh)
     offered = []
-    fresh.ask_recover = lambda item: offered.append(item.project_path) or True
+    fresh.ask_recover = lambda item, comparison=None: offered.append(item.project_path) or True
     assert fresh.offer_recovery()
     assert offered == [window.model.path]
     assert fresh.model.experiment(0).edits == (AddNucleus(4.0, 4.0),)
