@@ -62,7 +62,7 @@ def test_lh_fit_needs_constants_and_undo_restores(view):
     assert model.undo_stack.count() == 2
     assert model.project.series["tm0_c"] == 185.0
     kg_text = view.lh_results.form.text("kg")
-    assert kg_text.startswith("5.5 × 10^5"), kg_text  # exact data: Kg recovered
+    assert kg_text.startswith("(5.5 ± "), kg_text  # exact data: Kg recovered
     x, y = view.plots.lh_points.getData()
     assert len(x) == len(FIXTURE_A)
     _set_spin(view.constants.tm0, 190.0)
