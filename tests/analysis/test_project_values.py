@@ -5,6 +5,7 @@ point checked here is that nothing absurd or unknown gets through, and nothing i
 """
 
 import copy
+import dataclasses
 import json
 import shutil
 from pathlib import Path
@@ -182,7 +183,8 @@ def test_one_default_geometry_everywhere():
 
     assert DEFAULT_GEOMETRY == "bulk-3d"  # summary.json's prediction is the one DSC compares with
     assert Experiment("a", "s.tif").geometry == DEFAULT_GEOMETRY
-    assert ReportEntry("a", None).geometry == DEFAULT_GEOMETRY
+    entry_default = next(f.default for f in dataclasses.fields(ReportEntry) if f.name == "geometry")
+    assert entry_default == DEFAULT_GEOMETRY
     for function in (predict_model_from_result, prediction_inputs, analyze_arrival_iter):
         assert _default(function, "geometry") == DEFAULT_GEOMETRY
     args = build_parser("analyze").parse_args(["analyze", "s.tif", "--out", "o"])
