@@ -41,12 +41,13 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import stats
 
 from analysis.errors import InputError
 from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
 from analysis.kinetics.regime_break import best_break, best_free_split
+from analysis.outputs import staged_outputs
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
