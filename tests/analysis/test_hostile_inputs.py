@@ -88,7 +88,7 @@ def inputs(tmp_path_factory) -> Path:
     tifffile.imwrite(d / "two_channels.tif", np.zeros((4, 2, 32, 32), np.uint8), imagej=True,
                      metadata={"axes": "TCYX"})
     tifffile.imwrite(d / "odd_axes.tif", np.zeros((4, 32, 32, 5), np.uint8),
-                     metadata={"axes": "TYXQ"})
+                     photometric="minisblack", metadata={"axes": "TYXQ"})
     (d / "noise.avi").write_bytes(np.random.default_rng(0).bytes(200_000))
     (d / "deep.spherokin.json").write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
     (d / "bigint.spherokin.json").write_text(
@@ -262,7 +262,8 @@ def test_memory_budget_from_option_or_environment(tmp_path, monkeypatch):
     from analysis.stack.frames import open_stack
 
     path = tmp_path / "small.tif"
-    tifffile.imwrite(path, np.zeros((4, 64, 64), np.uint8), metadata={"axes": "TYX"})
+    tifffile.imwrite(path, np.zeros((4, 64, 64), np.uint8), photometric="minisblack",
+                     metadata={"axes": "TYX"})
     stack = open_stack(path, um_per_px=1.0, interval_s=1.0)
     check_memory_budget(stack, 1000)  # ~200 MB needed
     with pytest.raises(InputError, match="--memory-budget-mb") as info:
