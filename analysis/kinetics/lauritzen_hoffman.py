@@ -2,7 +2,7 @@
 
 Public API (stable; the GUI codes against it)
 ---------------------------------------------
-``LHConstants(tm0_c, tg_c, u_star_j_per_mol=6270.0, t_inf_c=None)``: ``t_inf_c`` defaults
+``LHConstants(tm0_c, tg_c, u_star_j_per_mol=DEFAULT_U_STAR_J_PER_MOL, t_inf_c=None)``: ``t_inf_c`` defaults
 to Tg - 30 K; ``.t_inf``/``.tm0_k`` properties.
 ``lh_coordinates(tc_c, g_um_per_min, constants) -> (x, y)``: x = 1/(T dT f) (K^-2),
 y = ln G + U*/(R (T - T_inf)).
@@ -46,9 +46,11 @@ from scipy import stats
 from analysis.errors import InputError
 from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
+from analysis.outputs import staged_outputs
 from analysis.kinetics.regime_break import best_break, best_free_split
 from analysis.outputs import staged_outputs
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, t_inf_default_c
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
            "fit_lauritzen_hoffman", "hoffman_weeks", "lh_coordinates",
@@ -69,13 +71,13 @@ HW_CAVEAT = ("Linear Hoffman-Weeks extrapolation tends to underestimate Tm0: the
 class LHConstants:
     tm0_c: float
     tg_c: float
-    u_star_j_per_mol: float = 6270.0
+    u_star_j_per_mol: float = DEFAULT_U_STAR_J_PER_MOL
     t_inf_c: float | None = None
 
     @property
     def t_inf(self) -> float:
         """T_inf in deg C (Tg - 30 K unless given)."""
-        return self.tg_c - 30.0 if self.t_inf_c is None else self.t_inf_c
+        return t_inf_default_c(self.tg_c) if self.t_inf_c is None else self.t_inf_c
 
     @property
     def tm0_k(self) -> float:

@@ -243,7 +243,8 @@ class WindowFilesMixin:
             self.show_problem("Cannot read the image", str(exc))
             return
         dialog = CalibrationDialog(image, Path(path).name if path else "current frame",
-                                   self.model.experiment_count() > 1, self)
+                                   self.model.experiment_count() > 1, self,
+                                   current_um_per_px=self.model.experiment(index).um_per_px)
         if dialog.exec() and dialog.um_per_px is not None:
             self.apply_calibration(dialog.um_per_px, dialog.apply_all.isChecked())
 
