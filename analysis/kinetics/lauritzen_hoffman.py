@@ -48,7 +48,6 @@ from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
 from analysis.outputs import staged_outputs
 from analysis.kinetics.regime_break import best_break, best_free_split
-from analysis.outputs import staged_outputs
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, t_inf_default_c
 

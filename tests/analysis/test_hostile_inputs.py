@@ -89,6 +89,12 @@ def inputs(tmp_path_factory) -> Path:
                      metadata={"axes": "TCYX"})
     tifffile.imwrite(d / "odd_axes.tif", np.zeros((4, 32, 32, 5), np.uint8),
                      photometric="minisblack", metadata={"axes": "TYXQ"})
+    import cv2
+
+    (d / "png_bombs").mkdir()
+    ok, png = cv2.imencode(".png", np.zeros((9000, 9000), np.uint8), [cv2.IMWRITE_PNG_COMPRESSION, 9])
+    for name in ("f1.png", "f2.png"):  # 80 kB each, 81 Mpx declared
+        (d / "png_bombs" / name).write_bytes(png.tobytes())
     (d / "noise.avi").write_bytes(np.random.default_rng(0).bytes(200_000))
     (d / "deep.spherokin.json").write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
     (d / "bigint.spherokin.json").write_text(
@@ -113,6 +119,7 @@ CASES = {
     "tiff bomb analyze": (["analyze", "bomb.tif", "--out", "o", "--um-per-px", "1",
                            "--interval-s", "1"], {}, 2, "--memory-budget-mb"),
     "tiff bomb info": (["info", "bomb.tif"], {}, 0, None),
+    "png bombs in a folder": (["analyze", "png_bombs", "--out", "o"], {}, 2, "Mpx limit"),
     "deep json": (["report", "deep.spherokin.json", "--out", "o"], {}, 2, "nested"),
     "huge integer": (["report", "bigint.spherokin.json", "--out", "o"], {}, 2, "4300 digits"),
     "decimal comma row": (["lauritzen-hoffman", "comma.csv", "--out", "o", *LH], {}, 2,
