@@ -145,7 +145,7 @@ CASES = {
     "unknown project material": (["report", "material.spherokin.json", "--out", "o"], {}, 2,
                                  "unknown material"),
     "malformed Hoffman-Weeks pair": (["report", "hw.spherokin.json", "--out", "o"], {}, 2,
-                                     "hoffman_weeks_pairs entry 2"),
+                                     "hoffman_weeks_pairs"),
     "two channels": (["info", "two_channels.tif"], {}, 2, "2 channels"),
     "odd axes": (["info", "odd_axes.tif"], {}, 2, "TYXQ"),
     "garbage video": (["info", "noise.avi"], {}, 2, "noise.avi"),
