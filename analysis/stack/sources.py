@@ -190,10 +190,10 @@ def _declared_pixels(file: Path) -> tuple[int, int] | None:
     if suffix in TIFF_SUFFIXES:
         try:
             with tifffile.TiffFile(file) as tif:
-                shape = tif.pages[0].shape
+                page = tif.pages[0]
+                return int(page.imagewidth), int(page.imagelength)
         except Exception:  # unreadable: the decoder's own error names it
             return None
-        return (int(shape[1]), int(shape[0])) if len(shape) >= 2 else None
     return None
 
 
