@@ -15,8 +15,8 @@ import numpy as np
 
 from analysis.edits import Edit
 
-#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate.
-STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded")
+#: Spherulite statuses are defined, with their thresholds and reasons, in
+#: ``analysis.spherulites.statuses``. Only ``ok`` spherulites enter the pooled growth rate.
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
 
@@ -52,9 +52,11 @@ class Spherulite:
     growth_rate_um_per_min: float | None
     growth_rate_ci95_um_per_min: float | None
     r2: float | None
-    n_points: int
+    n_points: int  # distinct frames among the pixels of the cone fit
     status: str
     source: str = "auto"
+    reason: str = ""  # why this status, with the numbers that decided it; notes such as
+    #                   nucleation before the isothermal start
 
     def radius_um_at(self, time_s: float) -> float | None:
         """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
@@ -76,6 +78,10 @@ class RadiusSeries:
     radius_um: np.ndarray
     free_fraction: np.ndarray
     used: np.ndarray  # bool: the sample entered the fit (not ignored, front free enough)
+
+    def n_used(self) -> int:
+        """Radii measured while the front grew freely: the count the few-points rule uses."""
+        return int(np.count_nonzero(self.used))
 
 
 @dataclass(frozen=True)

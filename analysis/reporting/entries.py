@@ -88,11 +88,12 @@ def report_entry(experiment, result, project_material: str | None, analyze=None)
     return experiment_entry(experiment, result, calorimetry, problem)
 
 
-def series_constants(series: dict | None, material: str | None) -> tuple[LHConstants | None, str]:
+def series_constants(series: dict | None, material: str | None, path=None) -> tuple[LHConstants | None, str]:
     """Lauritzen-Hoffman constants from the project's series settings (``tm0_c``, ``tg_c``,
     ``u_star_j_per_mol``, ``t_inf_c``), Tm0 and Tg completed from the material table.
 
-    Returns (None, the reason) when Tm0 or Tg stays unknown. U* and the T∞ rule default to
+    Returns (None, the reason) when Tm0 or Tg stays unknown; an unknown material is an
+    :class:`InputError` naming ``path`` (the project file). U* and the T∞ rule default to
     :class:`~analysis.kinetics.lauritzen_hoffman.LHConstants`'s.
     """
     series = dict(series or {})
@@ -101,7 +102,7 @@ def series_constants(series: dict | None, material: str | None) -> tuple[LHConst
     if (tm0 is None or tg is None) and material:
         from analysis.kinetics.materials import get_material
 
-        entry = get_material(material)
+        entry = get_material(material, path=path)
         tm0 = entry.tm0_c if tm0 is None else tm0
         tg = entry.tg_c if tg is None else tg
         if tm0 is not None and tg is not None:

@@ -17,7 +17,7 @@ from analysis.outputs import clean_text, staged_outputs
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                      "status", "source")
+                      "status", "source", "reason")
 RADII_COLUMNS = ("id", "time_s", "radius_um", "free_fraction")
 
 # Overlay colours (BGR): our own palette, chosen to read on grey and on colour images.
@@ -54,7 +54,8 @@ def spherulite_rows(result) -> list[list[str]]:
         numbers = [s.id, s.x_px, s.y_px, s.x_px * um, s.y_px * um, s.nucleation_time_s,
                    s.first_seen_s, s.growth_rate_um_per_min, s.growth_rate_ci95_um_per_min,
                    s.r2, s.n_points]
-        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source)])
+        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source),
+                                                         _cell(s.reason)])
     return rows
 
 

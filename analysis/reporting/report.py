@@ -35,6 +35,7 @@ from analysis.kinetics.lauritzen_hoffman import (
     write_secondary_nucleation,
 )
 from analysis.progress import Progress, run_to_completion, scaled
+from analysis.settings import HW_PAIRS_KEY
 from analysis.reporting import figures
 from analysis.kinetics.prediction import film_avrami_fit, film_conversion
 from analysis.reporting.entries import lauritzen_hoffman_inputs, report_entry, series_constants
@@ -45,9 +46,6 @@ from analysis.reporting.tables import (
     write_xlsx,
 )
 from analysis.units import write_json_atomic
-
-#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
-HW_PAIRS_KEY = "hoffman_weeks_pairs"
 
 __all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
            "project_entries_iter", "report_project", "report_project_iter"]
@@ -201,12 +199,13 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    # an unknown material stops here, before the long analysis
+    constants, note = series_constants(project.series, project.material, project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project.series, project.material)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,

@@ -34,6 +34,7 @@ from analysis.kinetics.prediction import (
 )
 from analysis.outputs import clean_text
 from analysis.results import COUNTS, ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY
 from analysis.units import per_mm3_from_per_mm2, write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
@@ -58,7 +59,7 @@ class ReportEntry:
 
     name: str
     result: ExperimentResult
-    geometry: str = "bulk-3d"
+    geometry: str = DEFAULT_GEOMETRY
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None

@@ -18,6 +18,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
 from analysis.reporting.entries import calorimetry_source
+from analysis.settings import DEFAULT_FIT_WINDOW
 from app.core.kinetics_inputs import CalorimetryCache, file_stem
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
@@ -28,7 +29,7 @@ from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
 
-DEFAULT_WINDOW = (0.03, 0.20)  # CalorimetrySource's default, the common 3-20 % guideline
+DEFAULT_WINDOW = DEFAULT_FIT_WINDOW  # the common 3-20 % guideline
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))
@@ -341,11 +342,12 @@ class KineticsView(LazyPage):
         """The mapping dialog for ``path`` (None, after an error dialog, if unreadable)."""
         experiment = self.experiment()
         try:
-            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self)
+            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self,
+                                              experiment=experiment)
         except InputError as error:
             QtWidgets.QMessageBox.critical(self, "Cannot read the calorimetry file", str(error))
             return None
-        if experiment.calorimetry is None or experiment.calorimetry.file != dialog.path:
+        if experiment.calorimetry is None:  # else the stored material is kept
             dialog.set_material(self.model.project.material)
         return dialog
 

@@ -33,7 +33,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
         rows = list(csv.reader(fh))
     assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                        "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                       "status", "source"]
+                       "status", "source", "reason"]
     assert len(rows) == 1 + len(result.spherulites)
     assert float(rows[1][3]) == pytest.approx(float(rows[1][1]) * 1.25)
     with open(tmp_path / "radii.csv", newline="") as fh:
@@ -58,12 +58,12 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
 
 
 def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
-    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x")
+    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1+2")
     export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path,
                                   geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
-    assert row[-2:] == ["'=cmd()", "'@x"]
+    assert row[-3:] == ["'=cmd()", "'@x", "'-1+2"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):
