@@ -28,7 +28,12 @@ from analysis.spherulites import pipeline
 
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "sample_images" / "demo.spherokin.json"
-_NUMBER = re.compile(r"(-?\d+(?:\.\d+)?)(?: × 10\^(-?\d+)|e([+-]?\d+))?")
+_SUPERSCRIPT = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺", "0123456789-+")
+# "4.6", "4.6 × 10⁵", "4.6 × 10^5", "4.6e+05", "32.1 ± 0.51", "(4.60 ± 0.03) × 10⁵"
+_NUMBER = re.compile(r"(?P<open>\()?(?P<value>-?\d+(?:\.\d+)?)"
+                     r"(?:\s*±\s*(?P<half>\d+(?:\.\d+)?)(?(open)\)))?"
+                     r"(?:\s*×\s*10(?P<sup>[⁻⁺]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+)|\s*×\s*10\^(?P<caret>-?\d+)"
+                     r"|e(?P<e>[+-]?\d+))?")
 
 
 @pytest.fixture(scope="module")
@@ -86,14 +91,24 @@ def _truth(demo):
     return out
 
 
-def shows(text: str, value, unit: str = "") -> None:
-    """``text`` shows ``value`` (rounded to the digits it shows) followed by ``unit``."""
+def _same_digits(mantissa: str, scale: float, value) -> None:
+    shown = float(mantissa) * scale
+    digits = len(mantissa.lstrip("-").replace(".", "").lstrip("0")) or 1
+    expected = float(f"{value / scale:.{digits}g}") * scale
+    assert shown == pytest.approx(expected, rel=1e-12, abs=0.0), (mantissa, scale, value)
+
+
+def shows(text: str, value, unit: str = "", half_width=None) -> None:
+    """``text`` shows ``value`` (rounded to the digits it shows), then ``± half_width`` when
+    given, followed by ``unit``."""
     match = _NUMBER.search(str(text))
     assert match, f"no number in {text!r}"
-    mantissa, exponent = match.group(1), match.group(2) or match.group(3)
-    shown = float(mantissa) * (10.0 ** int(exponent) if exponent else 1.0)
-    digits = len(mantissa.lstrip("-").replace(".", "").lstrip("0")) or 1
-    assert shown == pytest.approx(float(f"{value:.{digits}g}"), rel=1e-12, abs=0.0), (text, value)
+    exponent = match["sup"].translate(_SUPERSCRIPT) if match["sup"] else match["caret"] or match["e"]
+    scale = 10.0 ** int(exponent) if exponent else 1.0
+    _same_digits(match["value"], scale, value)
+    if half_width is not None:
+        assert match["half"], f"no ± half-width in {text!r}"
+        _same_digits(match["half"], scale, half_width)
     if unit:
         assert str(text)[match.end():].lstrip().startswith(unit), (text, unit)
 
@@ -195,8 +210,7 @@ def test_microscopy_page_shows_the_same_numbers(qtbot, demo, model):
         name, tc, detected, growth, _status = row_values(model, i)
         shows(tc, t["temperature_c"])
         assert int(detected) == t["spherulites_detected"]
-        shows(growth, t["g"])
-        shows(growth.split("±")[1], t["g_half"])
+        shows(growth, t["g"], half_width=t["g_half"])
         rows = _html_rows(experiment_html(experiment, model.result(i), model.status(i), ""))
         for key in COUNTS:
             assert int(rows[COUNTS[key][0]]) == t[key], key
@@ -230,10 +244,9 @@ def test_kinetics_page_shows_the_same_numbers(qtbot, demo, model):
             assert int(form.text(key)) == t[key], key
         shows(form.text("density_areal"), t["n_a"], "mm⁻²")
         shows(form.text("density_volumetric"), t["n_v"], "mm⁻³")
-        shows(form.text("growth_rate"), t["g"])
-        assert form.text("growth_rate").endswith("µm/min")
+        shows(form.text("growth_rate"), t["g"], "µm/min", half_width=t["g_half"])
         shows(form.text("n"), t["pred_n"])
-        shows(form.text("k"), t["pred_k"], "min^-")
+        shows(form.text("k"), t["pred_k"], "min⁻ⁿ")
         shows(form.text("t_half"), t["pred_t_half"], "min")
         calorimetry = view.calorimetry_panel.form
         shows(calorimetry.text("n"), t["dsc_n"])
