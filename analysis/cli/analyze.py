@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+from analysis.cli.ramp_options import add_ramp_arguments, constants_from_args, programme_from_args
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
 from analysis.spherulites.pipeline import AnalysisSettings, analyze_iter
@@ -25,6 +26,7 @@ def add_cli_arguments(parser) -> None:
                              "(default 0.5; lower finds more)")
     parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
                         help="geometry of the predicted Avrami kinetics")
+    add_ramp_arguments(parser)
 
 
 class _ProgressBar:
@@ -56,6 +58,9 @@ def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
     stack = open_stack(args.stack, um_per_px=args.um_per_px, interval_s=args.interval_s)
     stack.require_calibration()
+    programme, constants = programme_from_args(args), constants_from_args(args)
+    if programme is not None:
+        programme.require_coverage(float(stack.times_s[0]), float(stack.times_s[-1]))
     settings = AnalysisSettings()
     if args.sensitivity is not None:
         settings = AnalysisSettings.from_dict({**settings.to_dict(), "sensitivity_frames": args.sensitivity},
@@ -72,6 +77,31 @@ def run_cli(args) -> int:
     result = analysis.result
     g = result.growth_rate
     g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"
+    if programme is not None:
+        return _ramp_outputs(analysis, programme, constants, args)
     print(f"{len(result.spherulites)} spherulites; G = {g_text}; nucleation "
           f"{result.nucleation.mode or 'n/a'}; outputs in {args.out}")
+    return 0
+
+
+def _ramp_outputs(analysis, programme, constants, args) -> int:
+    """G(T) and N(T) of a ramp run, written beside the per-spherulite outputs."""
+    from analysis.kinetics.ramp import analyze_ramp
+    from analysis.reporting.ramp_outputs import write_ramp_outputs
+
+    ramp = analyze_ramp(analysis, programme, constants=constants,
+                        time_offset_s=args.isothermal_start_s)
+    write_ramp_outputs(ramp, args.out)
+    growth = ramp.growth
+    if not growth:
+        print(f"{len(analysis.result.spherulites)} spherulites; no G(T): {growth.reason}; "
+              f"outputs in {args.out}")
+        return 0
+    lh = growth.lauritzen_hoffman
+    kg = f"; Kg = {lh.kg_k2:.4g} ± {lh.kg_ci95:.2g} K²" if lh else ""
+    print(f"{len(growth.tracks)} spherulites in G(T) over {growth.temperature_c.min():.1f}-"
+          f"{growth.temperature_c.max():.1f} °C (G {growth.growth_rate_um_per_min.min():.3g}-"
+          f"{growth.growth_rate_um_per_min.max():.3g} µm/min){kg}; outputs in {args.out}")
+    for warning in growth.warnings:
+        print(f"warning: {warning}", file=sys.stderr)
     return 0

@@ -85,20 +85,21 @@ class TemperatureProgramme:
                 f"span {first_s:.1f}..{last_s:.1f} s (check the clock offset)", self.path)
 
     def rate_k_per_min(self, time_s) -> np.ndarray:
-        """dT/dt of the sample, K/min (central differences of the piecewise-linear curve)."""
+        """dT/dt of the sample, K/min (central differences over ±5 log samples, which
+        averages the log's rounding and noise)."""
         t = np.asarray(time_s, dtype=float)
-        h = 0.5 * max(float(np.median(np.diff(self.time_s))), 1e-3)
+        h = 5.0 * max(float(np.median(np.diff(self.time_s))), 1e-3)
         return (self.temperature_at(t + h) - self.temperature_at(t - h)) / (2 * h) * 60.0
 
 
 # ---------------------------------------------------------------- the lag
-def apply_sensor_lag(time_s, block_c, lag_s: float) -> np.ndarray:
+def apply_sensor_lag(time_s, block_c, lag_s: float, *, start: str = "steady") -> np.ndarray:
     """Sample temperature (°C) from the block temperature through a first-order lag.
 
     Exact for a block temperature linear between samples: over a step h with slope s,
-    y(t+h) = u(t+h) − τ s + (y(t) − u(t) + τ s) e^(−h/τ). The start is taken as the
+    y(t+h) = u(t+h) − τ s + (y(t) − u(t) + τ s) e^(−h/τ). ``start``: "steady" takes the
     steady state of the first slope (y = u − τ s), so a log that begins mid-ramp has no
-    artificial transient.
+    artificial transient; "rest" starts at the block temperature (a hold before).
     """
     t, u = np.asarray(time_s, float), np.asarray(block_c, float)
     if lag_s <= 0 or t.size < 2:
@@ -107,7 +108,7 @@ def apply_sensor_lag(time_s, block_c, lag_s: float) -> np.ndarray:
     slope = np.diff(u) / h
     head = min(slope.size, max(3, int(math.ceil(3 * lag_s / float(np.median(h))))))
     y = np.empty_like(u)
-    y[0] = u[0] - lag_s * float(np.median(slope[:head]))
+    y[0] = u[0] - (lag_s * float(np.median(slope[:head])) if start == "steady" else 0.0)
     decay = np.exp(-h / lag_s)
     for i in range(h.size):  # a short recursion: one step per log sample
         y[i + 1] = u[i + 1] - lag_s * slope[i] + (y[i] - u[i] + lag_s * slope[i]) * decay[i]
@@ -157,7 +158,7 @@ def programme_from_segments(start_c: float, segments, *, start_s: float = 0.0, l
     times.append(last)
     temps.append(temps[-1])
     t, block = _dense(np.array(times), np.array(temps), lag_s)
-    return TemperatureProgramme(t, apply_sensor_lag(t, block, lag_s), "typed", None, float(lag_s),
+    return TemperatureProgramme(t, apply_sensor_lag(t, block, lag_s, start="rest"), "typed", None, float(lag_s),
                                 float(start_s))
 
 
