@@ -397,14 +397,35 @@ def _spline_stage(programme, data: _Data, time_step_s):
     return _SplineStage(model, fit, lam, jac, sigma2, lo, hi, n_segments, rate)
 
 
+def _clustered_meat(jac, residual, track_of, n_tracks) -> np.ndarray:
+    """Σᵢ JᵢᵀrᵢrᵢᵀJᵢ over spherulites i, with the small-sample factor m/(m − 1)."""
+    per_track = np.zeros((n_tracks, jac.shape[1]))
+    np.add.at(per_track, track_of, jac * residual[:, None])
+    return per_track.T @ per_track * n_tracks / max(n_tracks - 1, 1)
+
+
 def _band(stage, basis_report):
-    """ln G (µm/s) and its standard error at the report temperatures (Bayesian band)."""
+    """ln G (µm/s) and its standard error at the report temperatures.
+
+    Bayesian band of a penalised spline, H⁻¹(σ²JᵀJ + σ²λPᵀP)H⁻¹ = σ²H⁻¹ with
+    H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by its
+    spherulite-clustered form Σᵢ JᵢᵀrᵢrᵢᵀJᵢ (Liang & Zeger 1986, Biometrika 73, 13): the
+    radii of one spherulite share its centre error and pixel pattern, so they are not
+    independent; the penalty part keeps the allowance for the smoothing bias.
+    """
     model = stage.model
-    cov = stage.sigma2 * np.linalg.pinv(model.penalised_hessian(stage.jac, stage.lam))
+    meat = _clustered_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.n_tracks)
+    prior = np.zeros_like(meat)
+    if model.penalty is not None:
+        prior[:model.n_beta, :model.n_beta] = stage.sigma2 * stage.lam * (model.penalty.T @ model.penalty)
+    bread = np.linalg.pinv(model.penalised_hessian(stage.jac, stage.lam))
+    cov = bread @ (meat + prior) @ bread
+    naive = stage.sigma2 * bread  # never claim more than the independent-error band
     beta = model.split(stage.fit.x)[0]
-    cov_beta = cov[:model.n_beta, :model.n_beta]
-    sd = np.sqrt(np.maximum(np.einsum("ij,jk,ik->i", basis_report, cov_beta, basis_report), 0.0))
-    return basis_report @ beta, sd
+    nb = model.n_beta
+    var = np.maximum(np.einsum("ij,jk,ik->i", basis_report, cov[:nb, :nb], basis_report),
+                     np.einsum("ij,jk,ik->i", basis_report, naive[:nb, :nb], basis_report))
+    return basis_report @ beta, np.sqrt(np.maximum(var, 0.0))
 
 
 def _outliers(residual: np.ndarray, track_of: np.ndarray) -> np.ndarray:
@@ -473,8 +494,12 @@ def _lh_fit(grid, constants, data: _Data, start_rate):
     fit = model.fit(start, 0.0)
     dof = max(data.value.size - fit.x.size, 1)
     jac = model.data_jacobian(fit.x)
-    cov = np.linalg.pinv(jac.T @ jac) * float(np.sum(fit.fun ** 2)) / dof
-    kg_ci = float(stats.t.ppf(0.975, dof) * math.sqrt(max(cov[1, 1], 0.0)))
+    bread = np.linalg.pinv(jac.T @ jac)
+    naive = bread * float(np.sum(fit.fun ** 2)) / dof
+    clustered = bread @ _clustered_meat(jac, fit.fun, data.track_of, model.n_tracks) @ bread
+    # spherulites are the independent units: t quantile on their number, clustered variance
+    kg_ci = float(stats.t.ppf(0.975, max(model.n_tracks - 1, 1)) *
+                  math.sqrt(max(clustered[1, 1], naive[1, 1], 0.0)))
     return RampLHFit(float(fit.x[1]), kg_ci, float(math.exp(fit.x[0])), constants,
                      float(math.sqrt(np.mean(fit.fun ** 2))))
 
