@@ -50,6 +50,7 @@ from analysis.arrival.registration import (
     warp_onto_reference,
 )
 from analysis.arrival.tracking import DONE, MELT, PassState, retire_all, step_frame
+from analysis import heuristics
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion
 
@@ -57,10 +58,6 @@ __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
 
 _STAGE = "arrival times"
 _NEVER, _UNUSABLE = -1, -2
-_SETTLE_FRAMES = 6  # frames after detection before a pixel's content is steady enough to register on
-# Plateau (in thresholds) above which a pixel's half-plateau crossing lies after its
-# pre-detection frame, so its time is not limited by the threshold.
-_RELIABLE_CONTRAST = 2.5
 
 
 @dataclass(frozen=True)
@@ -355,13 +352,14 @@ def _settled_in_camera(state, at_start, k, shift):
     detected = state.detected.reshape(state.shape)
     dy, dx = (int(round(v)) for v in shift)
     height, width = state.shape
+    settle = heuristics.current().settle_frames
 
     def window(rows: slice, cols: slice) -> np.ndarray:
         out = np.zeros((rows.stop - rows.start, cols.stop - cols.start), bool)
         r0, r1 = max(rows.start - dy, 0), min(rows.stop - dy, height)
         c0, c1 = max(cols.start - dx, 0), min(cols.stop - dx, width)
         if r1 > r0 and c1 > c0:
-            part = (detected[r0:r1, c0:c1] <= k - _SETTLE_FRAMES) & ~at_start[r0:r1, c0:c1]
+            part = (detected[r0:r1, c0:c1] <= k - settle) & ~at_start[r0:r1, c0:c1]
             out[r0 + dy - rows.start:r1 + dy - rows.start, c0 + dx - cols.start:c1 + dx - cols.start] = part
         return out
 
@@ -425,7 +423,7 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
     arrival = _drop_specks(arrival, state.settings.min_size_px)
     unusable = _unusable(model.blind, state.shifts)
     filled = np.zeros(shape, bool)
-    reliable = np.isfinite(arrival) & ~at_start & (contrast >= _RELIABLE_CONTRAST * threshold)
+    reliable = np.isfinite(arrival) & ~at_start & (contrast >= heuristics.current().reliable_contrast_thresholds * threshold)
     slowness = segment.estimate_slowness(arrival, reliable)
     before_start = _extrapolated_before_start(arrival, reliable, at_start, slowness)
     if state.settings.fill_wedges:

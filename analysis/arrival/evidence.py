@@ -35,6 +35,8 @@ import numpy as np
 from scipy import ndimage
 from skimage import measure
 
+from analysis import heuristics
+
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
     "blind_pixels", "sample_step", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
@@ -42,8 +44,6 @@ __all__ = [
 ]
 
 CHANNEL_MODES = ("auto", "grey", "colour")
-_NOISE_FLOOR = 0.3          # DN: below this an integer image is limited by quantization
-_BLIND_TRANSMISSION = 0.35  # darker than this fraction of the local melt: no information
 
 
 @dataclass
@@ -110,7 +110,7 @@ def temporal_noise(first: np.ndarray, second: np.ndarray, *, integer_data: bool 
     first = np.asarray(first, np.float32)
     diff = (np.asarray(second, np.float32) - first).reshape(-1, 1 if first.ndim == 2 else first.shape[2])
     mad = np.median(np.abs(diff - np.median(diff, axis=0)), axis=0)
-    floor = _NOISE_FLOOR if integer_data else max(1e-6 * float(np.ptp(first)), 1e-12)
+    floor = heuristics.current().noise_floor_dn if integer_data else max(1e-6 * float(np.ptp(first)), 1e-12)
     return np.maximum(1.4826 * mad / np.sqrt(2.0), floor).astype(np.float32)
 
 
@@ -127,7 +127,7 @@ def blind_pixels(level: np.ndarray, noise: np.ndarray, exclude: np.ndarray | Non
     if melt.size == 0 or np.median(melt) < 20.0 * float(np.sum(noise)):
         return np.zeros(total.shape, bool)
     background = _coarse_background(total.astype(np.float32))
-    blind = total < _BLIND_TRANSMISSION * background
+    blind = total < heuristics.current().blind_transmission * background
     if exclude is not None:
         blind &= ~exclude
     return cv2.dilate(blind.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
@@ -242,8 +242,8 @@ def evidence(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np.ndarra
 def evidence_threshold(melt_evidence: np.ndarray, sensitivity: float = 1.0) -> float:
     """Detection threshold from the evidence of pixels known to be melt.
 
-    median + (10 / sensitivity) × robust spread: about ten noise widths above the melt
-    for the default sensitivity 1 (rare enough that, with the persistence rule, noise
+    median + (w / sensitivity) × robust spread, w = ``threshold_noise_widths`` of
+    :mod:`analysis.heuristics` (ten: rare enough that, with the persistence rule, noise
     and flicker do not crystallise pixels); larger sensitivity detects fainter crystals.
     """
     if sensitivity <= 0:
@@ -254,7 +254,9 @@ def evidence_threshold(melt_evidence: np.ndarray, sensitivity: float = 1.0) -> f
         raise ValueError("no melt pixels to set the threshold from")
     centre = np.median(values)
     spread = 1.4826 * np.median(np.abs(values - centre))
-    return float(centre + max(10.0 / sensitivity * spread, 1.0 / sensitivity))
+    rules = heuristics.current()
+    return float(centre + max(rules.threshold_noise_widths / sensitivity * spread,
+                              rules.threshold_floor_noise_units / sensitivity))
 
 
 def initial_crystalline(image: np.ndarray, model: MeltModel, threshold: float, *, min_size_px: int = 12,
@@ -270,12 +272,13 @@ def initial_crystalline(image: np.ndarray, model: MeltModel, threshold: float, *
     the strongest evidence within 3 px. Found objects smaller than ``min_size_px`` are
     dropped; the extinction wedges of compact objects are filled with their convex hull.
     """
+    rules = heuristics.current()
     frame_evidence = _spatial_evidence(image, model, mode)
     # Half of the local maximum marks the front (as for arrival times); the smoothing
     # would otherwise grow every bright object by a pixel or two.
     local_peak = cv2.dilate(frame_evidence, np.ones((7, 7), np.uint8))
-    loose = (frame_evidence >= 2.0 * threshold) & ~model.blind
-    core = loose & (frame_evidence >= 0.5 * local_peak)
+    loose = (frame_evidence >= rules.frame0_threshold_factor * threshold) & ~model.blind
+    core = loose & (frame_evidence >= rules.frame0_front_fraction * local_peak)
     # Join the four quadrants of a spherulite across its extinction wedges near the centre.
     loose = cv2.morphologyEx(loose.astype(np.uint8), cv2.MORPH_CLOSE,
                              cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5))).astype(bool)

@@ -32,6 +32,7 @@ from pathlib import Path
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["TemperatureProgramme", "ProgrammeSegment", "parse_programme", "programme_from_segments",
            "read_temperature_log", "apply_sensor_lag", "MAX_GAP_FACTOR"]
@@ -40,7 +41,6 @@ __all__ = ["TemperatureProgramme", "ProgrammeSegment", "parse_programme", "progr
 #: the log lost samples and T(t) across the gap would be a guess (common practice).
 MAX_GAP_FACTOR = 10.0
 _MIN_GAP_S = 10.0
-_MAX_LOG_BYTES = 200 * 1024 * 1024
 _DELIMITERS = ("\t", ";", ",", " ")
 _TIME_FACTORS_S = {"s": 1.0, "sec": 1.0, "second": 1.0, "seconds": 1.0, "ms": 1e-3,
                    "min": 60.0, "minute": 60.0, "minutes": 60.0, "h": 3600.0, "hr": 3600.0}
@@ -202,25 +202,8 @@ def parse_programme(text: str) -> tuple[float, tuple[ProgrammeSegment, ...]]:
 
 
 # ---------------------------------------------------------------- the log
-def _read_text(path: Path) -> str:
-    try:
-        if not path.is_file():
-            raise InputError("temperature log is not a regular file", path)
-        if path.stat().st_size > _MAX_LOG_BYTES:
-            raise InputError(f"temperature log is larger than {_MAX_LOG_BYTES // 2**20} MB", path)
-        raw = path.read_bytes()
-    except OSError as err:
-        raise InputError(f"cannot read the temperature log ({err.strerror or err})", path) from None
-    for encoding in ("utf-8-sig", "cp1252"):
-        try:
-            return raw.decode(encoding)
-        except UnicodeDecodeError:
-            continue
-    raise InputError("temperature log is neither UTF-8 nor Windows-1252 text", path)
-
-
-def _split(line: str, delimiter: str) -> list[str]:
-    return line.split() if delimiter == " " else [f.strip().strip('"') for f in line.split(delimiter)]
+def _split(line: str, delimiter: str, line_no: int | None = None, path=None) -> list[str]:
+    return [f.strip().strip('"') for f in split_fields(line, delimiter, line_no=line_no, path=path)]
 
 
 def _is_number(text: str) -> bool:
@@ -313,7 +296,7 @@ def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit
     path = Path(path)
     if not (math.isfinite(clock_offset_s) and math.isfinite(lag_s) and lag_s >= 0):
         raise InputError("clock offset must be finite and the sensor lag non-negative", path)
-    lines = [(no, text) for no, text in enumerate(_read_text(path).splitlines(), start=1)
+    lines = [(no, text) for no, text in enumerate(read_text(path, "temperature log").splitlines(), start=1)
              if text.strip() and not text.lstrip().startswith("#")]
     if not lines:
         raise InputError("temperature log is empty", path)
@@ -338,14 +321,14 @@ def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit
 def _values(body, delimiter, width, t_index, c_index, path):
     times, temps = np.empty(len(body)), np.empty(len(body))
     for k, (line_no, text) in enumerate(body):
-        fields = _split(text, delimiter)
-        if len(fields) != width:
-            raise InputError(f"line {line_no}: {len(fields)} fields where the log has {width}", path)
+        fields = _split(text, delimiter, line_no, path)
+        check_field_count(fields, width, line_no=line_no, line=text, path=path, delimiter=delimiter)
         for role, index, out in (("time", t_index, times), ("temperature", c_index, temps)):
             try:
                 value = float(fields[index])
             except ValueError:
-                raise InputError(f"line {line_no}: {role} {fields[index]!r} is not a number", path) from None
+                raise InputError(f"line {line_no}: {role} {excerpt(fields[index])} is not a number",
+                                 path) from None
             if not math.isfinite(value):
                 raise InputError(f"line {line_no}: {role} is NaN or infinite", path)
             out[k] = value

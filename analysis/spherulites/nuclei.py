@@ -21,6 +21,7 @@ from scipy import ndimage as ndi
 from skimage.morphology import h_minima
 from skimage.segmentation import watershed
 
+from analysis import heuristics
 from analysis.arrival import evidence as segment
 
 
@@ -234,10 +235,11 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
         fit_cone,  # local: growth does not need nuclei
     )
 
+    rules = heuristics.current()
     usable = measured & np.isfinite(model_s) & np.isfinite(arrival_s)
     deficit = np.zeros(arrival_s.shape)
     np.subtract(model_s, arrival_s, out=deficit, where=usable)
-    mask = (deficit > 1.5 * interval_s).astype(np.uint8)
+    mask = (deficit > rules.missed_deficit_intervals * interval_s).astype(np.uint8)
     count, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
     seeds = []
     for k in range(1, count):
@@ -247,12 +249,12 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
         start = int(np.argmin(arrival_s[yy, xx]))
         fit = fit_cone(xx, yy, arrival_s[yy, xx], frames[yy, xx], start_xy=(xx[start], yy[start]),
                        f_scale_s=0.5 * interval_s, field_shape=arrival_s.shape)
-        if not fit.ok or abs(fit.slope_s_per_px / slope_s_per_px - 1) > 0.25:
+        if not fit.ok or abs(fit.slope_s_per_px / slope_s_per_px - 1) > rules.missed_slope_tolerance:
             continue
         gap = np.hypot(xx - fit.x_px, yy - fit.y_px)
         near = int(np.argmin(gap))
         known = np.hypot(*(np.asarray(existing_xy, float).reshape(-1, 2) - [fit.x_px, fit.y_px]).T)
-        if gap[near] <= 3.0 and (known.size == 0 or known.min() > 3.0):
+        if gap[near] <= rules.missed_apex_px and (known.size == 0 or known.min() > rules.missed_apex_px):
             seeds.append((int(yy[near]), int(xx[near])))
     return seeds
 
@@ -281,6 +283,7 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     """
     from analysis.spherulites.growth import cone_residuals, fit_two_cones, soft_l1_cost
 
+    rules = heuristics.current()
     x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
     early = t <= np.percentile(t, 15)
     if np.count_nonzero(early) < 5:
@@ -295,9 +298,11 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
         (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
     share = float(np.mean(nearer_a))
-    balanced = 0.15 <= share <= 0.85 if cost2 >= 0.25 * cost1 else 0.05 <= share <= 0.95
-    if (cost2 < 0.5 * cost1 and np.hypot(*(a - b)) >= 3.0 and balanced
-            and abs(params[6] / slope_s_per_px - 1) <= 0.25):
+    least = rules.split_min_share if cost2 >= rules.split_lopsided_cost_ratio * cost1 \
+        else rules.split_min_share_lopsided
+    balanced = least <= share <= 1.0 - least
+    if (cost2 < rules.split_cost_ratio * cost1 and np.hypot(*(a - b)) >= rules.split_min_separation_px
+            and balanced and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
         return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
     return None
 

@@ -51,7 +51,7 @@ def test_columns_by_name_and_index(tmp_path):
     ("0,140\n1,139.9\n1,139.8\n3,139.7\n", "line 4: time 1 s does not increase"),
     ("0,140\n1,139.9\n2,nan\n3,139.7\n", "line 4: temperature is NaN"),
     ("0,140\n1,139.9\n2,abc\n3,139.7\n", "line 4: temperature 'abc' is not a number"),
-    ("0,140\n1,139.9,7\n2,139.8\n3,139.7\n", "line 3: 3 fields where the log has 2"),
+    ("0,140\n1,139.9,7\n2,139.8\n3,139.7\n", "line 3 has 3 fields but the header has 2"),
     ("".join(f"{t},{140 - t / 100}\n" for t in range(20)) + "500,135\n501,134.9\n", "line 22: a gap of 481.0 s"),
 ])
 def test_bad_logs_name_the_file_and_the_line(tmp_path, body, problem):
@@ -69,7 +69,7 @@ def test_log_that_does_not_cover_the_recording(tmp_path):
 
 
 def test_not_a_log(tmp_path):
-    with pytest.raises(InputError, match="not a regular file"):
+    with pytest.raises(InputError, match="folder"):
         read_temperature_log(tmp_path)
     with pytest.raises(InputError, match="no rows of numbers"):
         read_temperature_log(write(tmp_path / "words.txt", "hello\nworld\n"))
