@@ -39,7 +39,7 @@ from analysis.units import write_json_atomic
 from analysis.textio import read_text
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 SUFFIX = ".spherokin.json"
 
 #: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
@@ -76,9 +76,28 @@ def _v1_edits_name_their_detection(document: dict) -> dict:
     return document
 
 
+def _v2_experiments_have_a_kind(document: dict) -> dict:
+    """Schema 2 -> 3: an experiment is of kind "isothermal" (one Tc) or "ramp" (a
+    temperature programme, with a stage log or typed programme in ``temperature_source``).
+
+    Every schema-2 experiment was isothermal. The version is bumped so that an older
+    reader refuses a ramp experiment instead of analysing it as if it had one Tc.
+    """
+    experiments = []
+    for experiment in document.get("experiments") or []:
+        if isinstance(experiment, dict):
+            experiment = {**experiment, "kind": "isothermal", "temperature_source": None}
+        experiments.append(experiment)
+    if "experiments" in document:
+        document["experiments"] = experiments
+    return document
+
+
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
 #: Each function carries a docstring saying why the format changed.
-MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_edits_name_their_detection}
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_edits_name_their_detection,
+                                                 2: _v2_experiments_have_a_kind}
+EXPERIMENT_KINDS = ("isothermal", "ramp")
 
 
 @dataclass(frozen=True)
@@ -100,8 +119,45 @@ class CalorimetrySource:
 
 
 @dataclass(frozen=True)
+class TemperatureSource:
+    """The temperature of a ramp experiment: a stage log, or a typed block programme.
+
+    Times of the log (or the programme's start) plus ``clock_offset_s`` are on the
+    recording clock; ``lag_s`` is the film's first-order lag behind the stage sensor.
+    """
+
+    log_file: str | None = None  # absolute in memory; stored relative to the project file
+    programme: str | None = None  # "START, RATE:END, hold:SECONDS, ..."
+    time_col: str | int | None = None
+    temperature_col: str | int | None = None
+    time_unit: str | None = None
+    temperature_unit: str | None = None
+    clock_offset_s: float = 0.0
+    lag_s: float = 0.0
+
+    def load(self):
+        """The :class:`TemperatureProgramme` (sample temperature, recording clock)."""
+        from analysis.kinetics.temperature_programme import (
+            parse_programme,
+            programme_from_segments,
+            read_temperature_log,
+        )
+
+        if self.log_file:
+            return read_temperature_log(self.log_file, time_col=self.time_col,
+                                        temperature_col=self.temperature_col, time_unit=self.time_unit,
+                                        temperature_unit=self.temperature_unit,
+                                        clock_offset_s=self.clock_offset_s, lag_s=self.lag_s)
+        if self.programme:
+            start, segments = parse_programme(self.programme)
+            return programme_from_segments(start, segments, start_s=self.clock_offset_s, lag_s=self.lag_s)
+        raise InputError("a ramp experiment needs a temperature log or a typed programme")
+
+
+@dataclass(frozen=True)
 class Experiment:
-    """One isothermal crystallization: a stack at one Tc and how to analyse it."""
+    """One crystallization run: a stack at one Tc (kind "isothermal") or along a
+    temperature programme (kind "ramp"), and how to analyse it."""
 
     name: str
     stack_path: str  # absolute in memory; stored relative to the project file
@@ -117,6 +173,8 @@ class Experiment:
     calorimetry: CalorimetrySource | None = None
     geometry: str = "bulk-3d"
     mode_override: str | None = None
+    kind: str = "isothermal"
+    temperature_source: TemperatureSource | None = None
 
 
 @dataclass(frozen=True)
@@ -302,7 +360,27 @@ def _experiment_from_dict(d: dict, base: Path, path) -> Experiment:
         calorimetry=_calorimetry_from_dict(d.get("calorimetry"), base, path),
         geometry=str(d.get("geometry", "bulk-3d")),
         mode_override=d.get("mode_override"),
+        kind=_kind(d.get("kind", "isothermal"), name, path),
+        temperature_source=_temperature_source_from_dict(d.get("temperature_source"), base, path),
     )
+
+
+def _kind(value, name: str, path) -> str:
+    if value not in EXPERIMENT_KINDS:
+        raise InputError(f"{name}: kind must be one of {', '.join(EXPERIMENT_KINDS)}, got {value!r}", path)
+    return value
+
+
+def _temperature_source_from_dict(d: dict | None, base: Path, path) -> TemperatureSource | None:
+    if d is None:
+        return None
+    values = dict(d)
+    if values.get("log_file"):
+        values["log_file"] = _resolve(str(values["log_file"]), base)
+    for key in ("clock_offset_s", "lag_s"):
+        values[key] = _number(values.get(key, 0.0), f"temperature source {key}", path) or 0.0
+    known = TemperatureSource.__dataclass_fields__
+    return TemperatureSource(**{k: v for k, v in values.items() if k in known})
 
 
 def _calorimetry_from_dict(d: dict | None, base: Path, path) -> CalorimetrySource | None:
@@ -362,8 +440,19 @@ def _experiment_to_dict(e: Experiment, base: Path) -> dict:
         "geometry": e.geometry,
         "mode_override": e.mode_override,
         "calorimetry": calorimetry,
+        "kind": e.kind,
+        "temperature_source": _temperature_source_to_dict(e.temperature_source, base),
         "edits": [edit_to_dict(edit) for edit in e.edits],
     }
+
+
+def _temperature_source_to_dict(source: TemperatureSource | None, base: Path) -> dict | None:
+    if source is None:
+        return None
+    out = dict(source.__dict__)
+    if source.log_file:
+        out["log_file"] = _relative(source.log_file, base)
+    return out
 
 
 def save_project(project: Project, path) -> Project:
