@@ -110,8 +110,8 @@ def _finite(value):
     return value
 
 
-def write_ramp_outputs(ramp, out_dir) -> list[str]:
-    """Write every ramp file into ``out_dir``; returns their names."""
+def write_ramp_outputs(ramp, out_dir, *, prefix: str = "") -> list[str]:
+    """Write every ramp file into ``out_dir`` (names start with ``prefix``); returns their names."""
     out = Path(out_dir)
     try:
         out.mkdir(parents=True, exist_ok=True)
@@ -120,14 +120,14 @@ def write_ramp_outputs(ramp, out_dir) -> list[str]:
         if ramp.growth:
             tables = {"growth_vs_temperature": growth_table(ramp.growth), **tables}
         for name, table in tables.items():
-            written.append(write_csv(table, out / f"{name}.csv").name)
-        written.append(write_xlsx(tables, out / "growth_vs_temperature.xlsx").name)
-        (out / "ramp.json").write_text(json.dumps(_finite(ramp_summary(ramp)), indent=2, allow_nan=False) + "\n",
+            written.append(write_csv(table, out / f"{prefix}{name}.csv").name)
+        written.append(write_xlsx(tables, out / f"{prefix}growth_vs_temperature.xlsx").name)
+        (out / f"{prefix}ramp.json").write_text(json.dumps(_finite(ramp_summary(ramp)), indent=2, allow_nan=False) + "\n",
                                        encoding="utf-8")
-        written.append("ramp.json")
+        written.append(f"{prefix}ramp.json")
         for stem, fig in (("growth_radii", radii_figure(ramp.growth, ramp.programme)),
                           ("growth_vs_temperature", growth_figure(ramp.growth))):
-            written += [p.name for p in save_figure(fig, out / stem)]
+            written += [p.name for p in save_figure(fig, out / f"{prefix}{stem}")]
     except OSError as exc:
         raise InputError(f"cannot write the ramp outputs: {exc.strerror or exc}", out) from exc
     return written

@@ -38,6 +38,7 @@ from analysis.progress import Progress, run_to_completion, scaled
 from analysis.reporting import figures
 from analysis.reporting.tables import (
     ReportEntry,
+    Table,
     comparison_table,
     growth_vs_temperature_table,
     write_csv,
@@ -47,8 +48,13 @@ from analysis.units import write_json_atomic
 
 #: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
 HW_PAIRS_KEY = "hoffman_weeks_pairs"
+#: key of the series flag that adds the ramps' G(T) to the Lauritzen-Hoffman fit
+RAMPS_IN_LH_KEY = "lh_include_ramps"
+#: spacing of the ramp points given to the Tc-series fit, K
+RAMP_POINT_STEP_K = 2.0
 
-__all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
+__all__ = ["HW_PAIRS_KEY", "RAMPS_IN_LH_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
+           "lh_inputs", "ramp_of_experiment",
            "project_entries_iter",
            "report_project", "report_project_iter", "series_constants"]
 
@@ -61,22 +67,36 @@ class ReportSummary:
     problems: tuple[str, ...] = field(default=())
 
 
-def _lh_inputs(entries):
-    rows = [(e.result.temperature_c, e.result.growth_rate) for e in entries
-            if e.result.temperature_c is not None and e.result.growth_rate.value]
+def lh_inputs(entries, *, include_ramps: bool = False):
+    """(Tc, G, CI95 half-width or None, source per point) for the Tc-series fit.
+
+    Isothermal experiments give one point each (source "isothermal"); with
+    ``include_ramps`` every ramp's smooth G(T) adds a point every RAMP_POINT_STEP_K
+    kelvin (source "ramp: <name>").
+    """
+    from analysis.kinetics.ramp import ramp_points
+
+    rows = [(e.result.temperature_c, e.result.growth_rate.value,
+             None if e.result.growth_rate.ci95_low is None or e.result.growth_rate.ci95_high is None
+             else (e.result.growth_rate.ci95_high - e.result.growth_rate.ci95_low) / 2, "isothermal")
+            for e in entries if e.ramp is None and e.result.temperature_c is not None
+            and e.result.growth_rate.value]
+    for e in entries:
+        if include_ramps and e.ramp is not None and e.ramp.growth:
+            rows += [(float(t), float(g), float(h), f"ramp: {e.name}")
+                     for t, g, h in zip(*ramp_points(e.ramp.growth, step_k=RAMP_POINT_STEP_K))]
     tc = np.array([r[0] for r in rows], dtype=float)
-    g = np.array([r[1].value for r in rows], dtype=float)
-    cis = [None if r[1].ci95_low is None or r[1].ci95_high is None
-           else (r[1].ci95_high - r[1].ci95_low) / 2 for r in rows]
+    g = np.array([r[1] for r in rows], dtype=float)
+    cis = [r[2] for r in rows]
     ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
-    return tc, g, ci
+    return tc, g, ci, [r[3] for r in rows]
 
 
-def _lauritzen_hoffman(entries, constants, material, problems):
+def _lauritzen_hoffman(entries, constants, material, problems, include_ramps=False):
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci = _lh_inputs(entries)
+    tc, g, ci, _ = lh_inputs(entries, include_ramps=include_ramps)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None
@@ -112,7 +132,7 @@ def _with_film_fits(curves):
             for c in curves]
 
 
-def _write_figures(entries, lh, material, out: Path) -> list[Path]:
+def _write_figures(entries, lh, material, out: Path, sources=None) -> list[Path]:
     micro, dsc = _avrami_curves(entries)
     made = [
         ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
@@ -121,7 +141,7 @@ def _write_figures(entries, lh, material, out: Path) -> list[Path]:
         ("conversion_comparison", figures.conversion_comparison_figure(entries, material)),
     ]
     if lh is not None:
-        made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh)))
+        made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh, sources)))
     paths = []
     for stem, fig in made:
         paths.extend(figures.save_figure(fig, out / stem))
@@ -148,33 +168,66 @@ def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
 
 def build_report(entries, out_dir, *, constants: LHConstants | None = None,
                  material: str | None = None, problems=(),
-                 hoffman_weeks_pairs=None) -> ReportSummary:
+                 hoffman_weeks_pairs=None, include_ramps: bool = False) -> ReportSummary:
     """Write every table, fit and figure for ready entries (see module doc).
 
     ``hoffman_weeks_pairs``: optional [(Tc, Tm), ...] in deg C for ``hoffman_weeks.json``.
+    Entries of ramp experiments write their own files, prefixed ``ramp_<name>_``; with
+    ``include_ramps`` their G(T) also enters the Lauritzen-Hoffman fit (see :func:`lh_inputs`).
     """
     entries = list(entries)
     if not entries:
         raise InputError("the project has no analysable experiment; nothing to report")
     with staged_outputs(out_dir) as stage:
         files, lh, problems = _write_report_files(entries, stage, constants, material,
-                                                  list(problems), hoffman_weeks_pairs)
+                                                  list(problems), hoffman_weeks_pairs, include_ramps)
     out = Path(out_dir)
     return ReportSummary(str(out), tuple(str(out / Path(f).name) for f in files), lh, tuple(problems))
 
 
-def _write_report_files(entries, out: Path, constants, material, problems, hoffman_weeks_pairs):
+def _write_report_files(entries, out: Path, constants, material, problems, hoffman_weeks_pairs,
+                        include_ramps=False):
+    files = _write_ramps(entries, out)
+    lh = _lauritzen_hoffman(entries, constants, material, problems, include_ramps)
+    sources = lh_inputs(entries, include_ramps=include_ramps)[3]
+    entries = [e for e in entries if e.ramp is None]
     growth, comparison = growth_vs_temperature_table(entries), comparison_table(entries)
-    files = [write_csv(growth, out / "growth_vs_temperature.csv"),
-             write_csv(comparison, out / "kinetics_comparison.csv"),
-             write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
-                        out / "growth_vs_temperature.xlsx")]
-    lh = _lauritzen_hoffman(entries, constants, material, problems)
+    files += [write_csv(growth, out / "growth_vs_temperature.csv"),
+              write_csv(comparison, out / "kinetics_comparison.csv"),
+              write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
+                         out / "growth_vs_temperature.xlsx")]
     if lh is not None:
         files.append(write_secondary_nucleation(lh, out))
-    files.extend(_write_figures(entries, lh, material, out))
+        if include_ramps:
+            files.append(write_csv(_lh_points_table(lh, sources), out / "lauritzen_hoffman_points.csv"))
+    files.extend(_write_figures(entries, lh, material, out, sources))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return files, lh, problems
+
+
+def _lh_points_table(lh, sources) -> Table:
+    """The points of the Tc-series fit with their source (isothermal or which ramp)."""
+    ci = lh.ci95_um_per_min if lh.ci95_um_per_min is not None else [None] * len(lh.tc_c)
+    rows = [[float(t), float(g), None if c is None else float(c), src]
+            for t, g, c, src in zip(lh.tc_c, lh.g_um_per_min, ci, sources)]
+    return Table(["temperature_c", "growth_rate_um_per_min", "ci95_um_per_min", "source"], rows)
+
+
+def _write_ramps(entries, out: Path) -> list[Path]:
+    """Each ramp experiment's G(T), N(T), ramp.json and figures, prefixed by its name."""
+    from analysis.reporting.ramp_outputs import write_ramp_outputs
+
+    files = []
+    for e in entries:
+        if e.ramp is not None:
+            prefix = f"ramp_{_file_stem(e.name)}_"
+            files += [out / name for name in write_ramp_outputs(e.ramp, out, prefix=prefix)]
+    return files
+
+
+def _file_stem(name: str) -> str:
+    stem = "".join(c if c.isalnum() or c in "-_" else "_" for c in name).strip("_")
+    return stem[:60] or "experiment"
 
 
 def series_constants(project) -> tuple[LHConstants | None, str]:
@@ -226,10 +279,29 @@ def project_entries_iter(project):
             except InputError as err:
                 cal_problem = str(err)
                 problems.append(f"{exp.name}: calorimetry skipped ({err})")
+        ramp = None
+        if exp.kind == "ramp":
+            try:
+                ramp = ramp_of_experiment(exp, analysis, project)
+            except InputError as err:
+                problems.append(f"{exp.name}: skipped ({err})")
+                continue
         entries.append(ReportEntry(clean_text(exp.name), analysis.result, exp.geometry, exp.mode_override,
-                                   cal, cal_problem))
+                                   cal, cal_problem, ramp))
     yield Progress("analysing experiments", 1.0)
     return entries, problems
+
+
+def ramp_of_experiment(experiment, analysis, project):
+    """The ramp analysis of an experiment of kind "ramp" (InputError without a usable
+    temperature source); the series' LH constants give the direct Kg fit."""
+    from analysis.kinetics.ramp import analyze_ramp
+
+    if experiment.temperature_source is None:
+        raise InputError("a ramp experiment needs a temperature log or a typed programme")
+    constants, _ = series_constants(project)
+    return analyze_ramp(analysis, experiment.temperature_source.load(), constants=constants,
+                        time_offset_s=experiment.isothermal_start_s or 0.0)
 
 
 def checked_hoffman_weeks_pairs(pairs, path=None) -> list[tuple[float, float]]:
@@ -264,7 +336,8 @@ def report_project_iter(project, out_dir):
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,
-                           hoffman_weeks_pairs=pairs)
+                           hoffman_weeks_pairs=pairs,
+                           include_ramps=bool((project.series or {}).get(RAMPS_IN_LH_KEY, False)))
     yield Progress("writing report", 1.0)
     return summary
 

@@ -50,6 +50,7 @@ class ReportEntry:
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None
+    ramp: object | None = None  # kinetics.ramp.RampAnalysis for an experiment of kind "ramp"
 
     @cached_property
     def _predicted(self) -> tuple[AvramiPrediction | None, str | None]:
