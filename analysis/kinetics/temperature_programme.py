@@ -35,6 +35,7 @@ from analysis.errors import InputError
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["TemperatureProgramme", "ProgrammeSegment", "parse_programme", "programme_from_segments",
+           "programme_of_source",
            "read_temperature_log", "apply_sensor_lag", "MAX_GAP_FACTOR"]
 
 #: A gap longer than this many median sampling intervals (and longer than 10 s) is refused:
@@ -350,3 +351,17 @@ def _check_times(times: np.ndarray, line_numbers: list[int], path) -> None:
         i = int(gaps[0]) + 1
         raise InputError(f"line {line_numbers[i]}: a gap of {steps[i - 1]:.1f} s in the log "
                          f"(usual sampling {np.median(steps):.2f} s)", path)
+
+
+def programme_of_source(source) -> TemperatureProgramme:
+    """The programme a project's ``TemperatureSource`` describes: its log (columns, units,
+    clock offset and lag as stored) or its typed programme."""
+    if source.log_file:
+        return read_temperature_log(source.log_file, time_col=source.time_col,
+                                    temperature_col=source.temperature_col, time_unit=source.time_unit,
+                                    temperature_unit=source.temperature_unit,
+                                    clock_offset_s=source.clock_offset_s, lag_s=source.lag_s)
+    if source.programme:
+        start, segments = parse_programme(source.programme)
+        return programme_from_segments(start, segments, start_s=source.clock_offset_s, lag_s=source.lag_s)
+    raise InputError("a ramp experiment needs a temperature log or a typed programme")

@@ -124,6 +124,7 @@ class TemperatureSource:
 
     Times of the log (or the programme's start) plus ``clock_offset_s`` are on the
     recording clock; ``lag_s`` is the film's first-order lag behind the stage sensor.
+    Read it with ``analysis.kinetics.temperature_programme.programme_of_source``.
     """
 
     log_file: str | None = None  # absolute in memory; stored relative to the project file
@@ -134,24 +135,6 @@ class TemperatureSource:
     temperature_unit: str | None = None
     clock_offset_s: float = 0.0
     lag_s: float = 0.0
-
-    def load(self):
-        """The :class:`TemperatureProgramme` (sample temperature, recording clock)."""
-        from analysis.kinetics.temperature_programme import (
-            parse_programme,
-            programme_from_segments,
-            read_temperature_log,
-        )
-
-        if self.log_file:
-            return read_temperature_log(self.log_file, time_col=self.time_col,
-                                        temperature_col=self.temperature_col, time_unit=self.time_unit,
-                                        temperature_unit=self.temperature_unit,
-                                        clock_offset_s=self.clock_offset_s, lag_s=self.lag_s)
-        if self.programme:
-            start, segments = parse_programme(self.programme)
-            return programme_from_segments(start, segments, start_s=self.clock_offset_s, lag_s=self.lag_s)
-        raise InputError("a ramp experiment needs a temperature log or a typed programme")
 
 
 @dataclass(frozen=True)

@@ -296,11 +296,12 @@ def ramp_of_experiment(experiment, analysis, project):
     """The ramp analysis of an experiment of kind "ramp" (InputError without a usable
     temperature source); the series' LH constants give the direct Kg fit."""
     from analysis.kinetics.ramp import analyze_ramp
+    from analysis.kinetics.temperature_programme import programme_of_source
 
     if experiment.temperature_source is None:
         raise InputError("a ramp experiment needs a temperature log or a typed programme")
     constants, _ = series_constants(project)
-    return analyze_ramp(analysis, experiment.temperature_source.load(), constants=constants,
+    return analyze_ramp(analysis, programme_of_source(experiment.temperature_source), constants=constants,
                         time_offset_s=experiment.isothermal_start_s or 0.0)
 
 

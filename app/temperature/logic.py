@@ -20,6 +20,7 @@ from analysis.kinetics.lauritzen_hoffman import (
     lh_growth_rate,
 )
 from app.core.kinetics_inputs import volumetric_density
+from app.core.ramp_inputs import RAMPS
 from app.temperature.lauritzen_hoffman import HW_KEY
 
 
@@ -65,8 +66,8 @@ def collect(model, cache) -> list[SeriesPoint]:
     points = []
     for i, experiment in enumerate(model.experiments()):
         result = model.result(i)
-        if result is None:
-            continue
+        if result is None or getattr(experiment, "kind", "isothermal") == "ramp":
+            continue  # a ramp has no single Tc: it is drawn as a G(T) curve (collect_ramps)
         nuc, growth = result.nucleation, result.growth_rate
         volumetric, _h = volumetric_density(result, experiment)
         temperature = experiment.temperature_c if experiment.temperature_c is not None else result.temperature_c
@@ -74,6 +75,50 @@ def collect(model, cache) -> list[SeriesPoint]:
                                   nuc.density_per_mm2, volumetric, _predicted_half_time(result, experiment),
                                   _measured_half_time(experiment, cache)))
     return points
+
+
+#: Series flag: the ramps' G(T) enters the Lauritzen-Hoffman fit (as in the report).
+RAMPS_IN_LH_KEY = "lh_include_ramps"
+
+
+@dataclass(frozen=True)
+class RampCurve:
+    """One ramp experiment's G(T) (µm/min) with its band, or why there is none."""
+
+    name: str
+    growth: object | None  # analysis.kinetics.nonisothermal.RampGrowth
+    problem: str | None
+
+
+def collect_ramps(model, series: dict) -> list[RampCurve]:
+    """G(T) of every analysed ramp experiment (fitted by analysis.kinetics.ramp)."""
+    try:
+        constants = constants_from(series)
+    except InputError:
+        constants = None
+    curves = []
+    for i, experiment in enumerate(model.experiments()):
+        if getattr(experiment, "kind", "isothermal") != "ramp" or model.analysis(i) is None:
+            continue
+        ramp, problem = RAMPS.ramp(experiment, model.analysis(i), constants)
+        growth = getattr(ramp, "growth", None)
+        if ramp is not None and not growth:
+            growth, problem = None, growth.reason
+        curves.append(RampCurve(experiment.name, growth, problem))
+    return curves
+
+
+def ramp_lh_points(curves):
+    """(Tc, G, CI95 half-width, label) of the ramps' points for the Tc-series fit."""
+    from analysis.kinetics.ramp import ramp_points
+    from analysis.reporting.report import RAMP_POINT_STEP_K
+
+    rows = []
+    for curve in curves:
+        if curve.growth is not None:
+            rows += [(t, g, h, f"ramp: {curve.name}")
+                     for t, g, h in zip(*ramp_points(curve.growth, step_k=RAMP_POINT_STEP_K))]
+    return rows
 
 
 def column(points, name: str) -> np.ndarray:
@@ -90,18 +135,27 @@ def constants_from(series: dict) -> LHConstants:
                        t_inf_c=series.get("t_inf_c"))
 
 
-def lh_fit(points, series: dict, material: str | None):
-    """``fit_lauritzen_hoffman`` over the experiments with a growth rate."""
+def lh_fit(points, series: dict, material: str | None, ramps=()):
+    """``fit_lauritzen_hoffman`` over the experiments with a growth rate, plus the ramps'
+    G(T) points when the series says so. Returns (fit, one source label per point)."""
     constants = constants_from(series)
     usable = [p for p in points if p.temperature_c is not None and p.growth_rate is not None]
     tc, g = column(usable, "temperature_c"), column(usable, "growth_rate")
     ci = column(usable, "growth_ci95")
+    sources = ["isothermal"] * len(usable)
+    if series.get(RAMPS_IN_LH_KEY):
+        extra = ramp_lh_points(ramps)
+        tc = np.concatenate([tc, [r[0] for r in extra]])
+        g = np.concatenate([g, [r[1] for r in extra]])
+        ci = np.concatenate([ci, [r[2] for r in extra]])
+        sources += [r[3] for r in extra]
     weights = None if np.isnan(ci).any() else ci
-    return fit_lauritzen_hoffman(tc, g, weights, constants=constants, material=material)
+    return fit_lauritzen_hoffman(tc, g, weights, constants=constants, material=material), sources
 
 
 def lh_display(fit, points: int = 60):
-    """Points, one fitted line per regime and the regimes' ranges, all on the LH plot's axes."""
+    """Points, one fitted line per regime and the regimes' ranges, all on the LH plot's axes
+    (the caller marks which points come from ramps)."""
     c = fit.constants
     x, y = lh_coordinates(fit.tc_c, fit.g_um_per_min, c)
     lines, bands = [], []

@@ -39,6 +39,7 @@ class TemperatureView(LazyPage):
         self.model = model
         self.calorimetry = CalorimetryCache()
         self.points: list = []
+        self.ramps: list = []
         self.fit = None
         self.report_job = temperature_export.ReportJob(self)
         self._build()
@@ -60,6 +61,10 @@ class TemperatureView(LazyPage):
         self.constants.series_edited.connect(self._series_edited)
         self.constants.material_chosen.connect(self._material_chosen)
         self.lh_results = LHResults(self)
+        self.include_ramps = QtWidgets.QCheckBox("Include ramp experiments' G(T) in the fit")
+        self.include_ramps.setToolTip("Adds a point every 2 K of each ramp's smooth G(T) (open diamonds "
+                                      "on the Lauritzen-Hoffman plot) beside the isothermal points")
+        self.include_ramps.toggled.connect(self._include_ramps_toggled)
         self.hw = HoffmanWeeksHelper(self)
         self.hw.pairs_edited.connect(self._pairs_edited)
         self.hw.tm0_adopted.connect(self._tm0_adopted)
@@ -83,7 +88,7 @@ class TemperatureView(LazyPage):
         left.addWidget(table_box)
         left.addWidget(self.plots)
         left.setSizes([260, 700])
-        scroll = scroll_column((self.constants, self.lh_results, self.hw))
+        scroll = scroll_column((self.constants, self.include_ramps, self.lh_results, self.hw))
         self.split = split = QtWidgets.QSplitter()
         split.addWidget(left)
         split.addWidget(scroll)
@@ -134,6 +139,11 @@ class TemperatureView(LazyPage):
         self.hw.fill(logic.hw_pairs(project.series))
         self._show_hw()
         self.points = logic.collect(self.model, self.calorimetry)
+        self.ramps = logic.collect_ramps(self.model, project.series)
+        self.include_ramps.blockSignals(True)
+        self.include_ramps.setChecked(bool(project.series.get(logic.RAMPS_IN_LH_KEY)))
+        self.include_ramps.setEnabled(bool(self.ramps))
+        self.include_ramps.blockSignals(False)
         header, rows = temperature_export.table_rows(self.model, self.calorimetry)
         self.table.set_rows(header, rows)
         missing = self.model.experiment_count() - len(rows)
@@ -142,6 +152,7 @@ class TemperatureView(LazyPage):
                                 "microscopy result yet: run their analysis to include them.")
         tc = logic.column(self.points, "temperature_c")
         self.plots.show_growth(tc, logic.column(self.points, "growth_rate"), logic.column(self.points, "growth_ci95"))
+        self.plots.show_ramps(self.ramps)
         self.plots.show_density(tc, logic.column(self.points, "density_areal"),
                                 logic.column(self.points, "density_volumetric"))
         self.plots.show_half_times(tc, logic.column(self.points, "predicted_t_half_min"),
@@ -151,7 +162,7 @@ class TemperatureView(LazyPage):
     def _show_lh(self) -> None:
         project = self.model.project
         try:
-            self.fit = logic.lh_fit(self.points, project.series, project.material)
+            self.fit, sources = logic.lh_fit(self.points, project.series, project.material, self.ramps)
         except InputError as error:
             self.fit = None
             self.lh_results.clear(f"No Lauritzen-Hoffman fit: {error.problem}")
@@ -159,7 +170,7 @@ class TemperatureView(LazyPage):
             self.plots.show_growth_fit(None, None)
             return
         self.lh_results.show_fit(self.fit)
-        self.plots.show_lh(*logic.lh_display(self.fit))
+        self.plots.show_lh(*logic.lh_display(self.fit), [s.startswith("ramp") for s in sources])
         self.plots.show_growth_fit(*logic.growth_curve(self.fit))
 
     def _show_hw(self) -> None:
@@ -182,6 +193,11 @@ class TemperatureView(LazyPage):
     # ---------------------------------------------------------------- edits (one undo entry each)
     def _series_edited(self, series: dict, text: str) -> None:
         self.model.set_project_fields(text=text, series=series)
+
+    def _include_ramps_toggled(self, on: bool) -> None:
+        series = {**self.model.project.series, logic.RAMPS_IN_LH_KEY: bool(on)}
+        self.model.set_project_fields(text=("Include" if on else "Leave out") + " ramps in the fit",
+                                      series=series)
 
     def _material_chosen(self, name) -> None:
         series = dict(self.model.project.series)
