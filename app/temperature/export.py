@@ -18,6 +18,7 @@ from analysis.kinetics.calorimetry import analyze_source
 from analysis.progress import Progress, scaled
 from analysis.reporting.report import (
     HW_PAIRS_KEY,
+    RAMPS_IN_LH_KEY,
     build_report,
     project_entries_iter,
     series_constants,
@@ -47,11 +48,12 @@ DISPLAY_NAMES = {
 
 
 def report_entries(model, cache) -> list:
-    """One ``analysis.reporting.tables.ReportEntry`` per analysed experiment."""
+    """One ``analysis.reporting.tables.ReportEntry`` per analysed isothermal experiment
+    (a ramp has no single Tc: the page draws its G(T) instead)."""
     entries = []
     for i, experiment in enumerate(model.experiments()):
         result = model.result(i)
-        if result is None:
+        if result is None or getattr(experiment, "kind", "isothermal") == "ramp":
             continue
         calorimetry, problem = None, None
         if experiment.calorimetry is not None:
@@ -118,8 +120,11 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
     Runs in the worker thread; touches only the frozen snapshot.
     """
     project = snapshot.project
-    missing = tuple(e for e, r in zip(project.experiments, snapshot.results) if r is None)
-    ready = [(e, r) for e, r in zip(project.experiments, snapshot.results) if r is not None]
+    # ramps are analysed here again: their G(T) needs the arrival map, which results lack
+    redo = [r is None or getattr(e, "kind", "isothermal") == "ramp"
+            for e, r in zip(project.experiments, snapshot.results)]
+    missing = tuple(e for e, again in zip(project.experiments, redo) if again)
+    ready = [(e, r) for e, r, again in zip(project.experiments, snapshot.results, redo) if not again]
     entries, problems = [], []
     if missing:
         sub_project = dataclasses.replace(project, experiments=missing)
@@ -133,7 +138,8 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
     constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, folder, constants=constants, material=project.material,
-                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
+                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY),
+                           include_ramps=bool((project.series or {}).get(RAMPS_IN_LH_KEY, False)))
     yield Progress("writing report", 1.0)
     return summary
 
