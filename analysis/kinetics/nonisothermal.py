@@ -15,8 +15,8 @@ Two forms of ln G(T) are fitted jointly to all measured radii by non-linear leas
 (no numerical differentiation of the radii):
 
 * a penalised cubic B-spline of ln G in T (second-difference penalty; Eilers & Marx 1996,
-  Statistical Science 11, 89), the smoothing weight chosen by generalised cross-validation
-  (Craven & Wahba 1979, Numerische Mathematik 31, 377); its 95 % band is the Bayesian
+  Statistical Science 11, 89), the smoothing weight chosen by cross-validation with whole
+  spherulites left out (Rice & Silverman 1991, J. R. Stat. Soc. B 53, 233); its 95 % band is the Bayesian
   posterior band σ²(JᵀJ + λP)⁻¹ (Wahba 1983, J. R. Stat. Soc. B 45, 133), which also
   covers the smoothing bias on average. See docs/sources.md, section "Temperature
   programmes and non-isothermal growth".
@@ -51,6 +51,7 @@ _MIN_TRACK_POINTS = 3
 MIN_RADIUS_PX = 4.0
 _GRID_STEP_K = 0.5  # spacing of the reported temperatures
 _LAMBDAS = 10.0 ** np.arange(-3.0, 5.0, 1.0)
+_CV_FOLDS = 5
 _OUTLIER_ROUNDS = 4
 _OUTLIER_SIGMAS = 5.0  # a radius this many robust SDs off the joint fit is an outlier
 _TRACK_RMS_FACTOR = 3.0  # a spherulite this many times the typical RMS off does not follow G(T)
@@ -58,22 +59,11 @@ _TRACK_RMS_FACTOR = 3.0  # a spherulite this many times the typical RMS off does
 
 @dataclass(frozen=True)
 class RadiusTrack:
-    """Growth data of one spherulite on the recording clock (s), distances in µm.
-
-    Without ``start_time_s`` each value is the radius at ``time_s``. With it, each value
-    is the mean distance from the centre of the pixels the front swept between
-    ``start_time_s`` and ``time_s`` (a ring): unlike the farthest pixel of a frame, that
-    mean carries no pixel-count bias at small radii.
-    """
+    """Free-growth radii of one spherulite: recording-clock times (s) and radii (µm)."""
 
     id: int
     time_s: np.ndarray
     radius_um: np.ndarray
-    start_time_s: np.ndarray | None = None
-
-    @property
-    def starts(self) -> np.ndarray:
-        return self.time_s if self.start_time_s is None else self.start_time_s
 
 
 @dataclass(frozen=True)
@@ -166,21 +156,8 @@ def growth_integral(time_s, programme: TemperatureProgramme, growth_um_per_min) 
     return np.interp(t, grid, s)
 
 
-def ring_mean_radius(inner, outer):
-    """Mean distance from the centre of the points of an annulus (inner, outer radius),
-    and its derivatives: (2/3)(a² + ab + b²)/(a + b); equals a when a = b (a radius)."""
-    a, b = np.maximum(inner, 0.0), np.maximum(outer, 0.0)
-    total = np.maximum(a + b, 1e-12)
-    mean = (2.0 / 3.0) * (a * a + a * b + b * b) / total
-    d_inner = np.where(inner > 0, (2.0 / 3.0) * (a * a + 2 * a * b) / total ** 2, 0.0)
-    d_outer = np.where(outer > 0, (2.0 / 3.0) * (b * b + 2 * a * b) / total ** 2, 0.0)
-    return mean, d_inner, d_outer
-
-
 class _Model:
-    """Data: the mean distance of the pixels a front swept between two times (a radius
-    when both times are equal). Model: ring_mean_radius(S(t_start) − c, S(t_end) − c)
-    with ln G(T) (µm/s) = basis(T) · β + offset(T)."""
+    """Radius R = S(t) − c_track, with ln G(T) (µm/s) = basis(T) · β + offset(T)."""
 
     def __init__(self, grid: _Grid, basis: np.ndarray, offset: np.ndarray, data: "_Data",
                  penalty: np.ndarray | None):
@@ -189,24 +166,26 @@ class _Model:
         self.n_tracks = int(data.track_of.max()) + 1
         self.n_beta = basis.shape[1]
         self.penalty = penalty  # (rows, n_beta) difference matrix, or None
-        self.where_start = grid.locate(data.start_s)
-        self.where_end = grid.locate(data.end_s)
+        self.where = grid.locate(data.time_s)
 
     def split(self, params):
         return params[:self.n_beta], params[self.n_beta:]
 
-    def _pieces(self, params):
-        beta, c = self.split(params)
+    def growth_coordinate(self, beta):
+        """S at the data times (µm) and its derivatives with respect to β."""
         g = np.exp(self.basis @ beta + self.offset)
         s = _cumulative(g, self.grid.time_s)
         ds = _cumulative(g[:, None] * self.basis, self.grid.time_s)
-        inner = _at(s, self.where_start) - c[self.track_of]
-        outer = _at(s, self.where_end) - c[self.track_of]
-        return inner, outer, _at(ds, self.where_start), _at(ds, self.where_end)
+        return _at(s, self.where), _at(ds, self.where)
 
     def predict(self, params):
-        inner, outer, _, _ = self._pieces(params)
-        return ring_mean_radius(inner, outer)[0]
+        beta, c = self.split(params)
+        return self.growth_coordinate(beta)[0] - c[self.track_of]
+
+    def offsets(self, beta) -> np.ndarray:
+        """The least-squares offset of every track for given β (R is linear in c)."""
+        s, _ = self.growth_coordinate(beta)
+        return np.bincount(self.track_of, s - self.radius) / np.bincount(self.track_of)
 
     def residuals(self, params, lam):
         r = self.predict(params) - self.radius
@@ -215,12 +194,10 @@ class _Model:
         return np.concatenate([r, math.sqrt(lam) * (self.penalty @ self.split(params)[0])])
 
     def data_jacobian(self, params):
-        inner, outer, ds_in, ds_out = self._pieces(params)
-        _, d_in, d_out = ring_mean_radius(inner, outer)
-        dbeta = d_in[:, None] * ds_in + d_out[:, None] * ds_out
-        dc = np.zeros((inner.size, self.n_tracks))
-        dc[np.arange(inner.size), self.track_of] = -(d_in + d_out)
-        return np.hstack([dbeta, dc])
+        _, ds = self.growth_coordinate(self.split(params)[0])
+        dc = np.zeros((ds.shape[0], self.n_tracks))
+        dc[np.arange(ds.shape[0]), self.track_of] = -1.0
+        return np.hstack([ds, dc])
 
     def jacobian(self, params, lam):
         jac = self.data_jacobian(params)
@@ -234,11 +211,7 @@ class _Model:
         """β for a constant G (least squares through the basis), offsets from it."""
         target = math.log(max(g0_um_per_s, 1e-9)) - self.offset
         beta, *_ = np.linalg.lstsq(self.basis, target, rcond=None)
-        s = _cumulative(np.exp(self.basis @ beta + self.offset), self.grid.time_s)
-        s_end = _at(s, self.where_end)
-        c = np.array([np.mean(s_end[self.track_of == k] - self.radius[self.track_of == k])
-                      for k in range(self.n_tracks)])
-        return np.concatenate([beta, c])
+        return np.concatenate([beta, self.offsets(beta)])
 
     def fit(self, start, lam):
         return optimize.least_squares(self.residuals, start, jac=self.jacobian, args=(lam,),
@@ -255,21 +228,19 @@ class _Model:
 class _Data:
     """All tracks' points, flattened."""
 
-    start_s: np.ndarray
-    end_s: np.ndarray
+    time_s: np.ndarray
     value: np.ndarray
     track_of: np.ndarray
 
     @classmethod
     def of(cls, tracks) -> "_Data":
-        return cls(np.concatenate([t.starts for t in tracks]), np.concatenate([t.time_s for t in tracks]),
-                   np.concatenate([t.radius_um for t in tracks]),
+        return cls(np.concatenate([t.time_s for t in tracks]), np.concatenate([t.radius_um for t in tracks]),
                    np.concatenate([np.full(t.time_s.size, k) for k, t in enumerate(tracks)]))
 
     def subset(self, keep: np.ndarray) -> "_Data":
         """The kept points, tracks renumbered from 0."""
         _, local = np.unique(self.track_of[keep], return_inverse=True)
-        return _Data(self.start_s[keep], self.end_s[keep], self.value[keep], local.ravel())
+        return _Data(self.time_s[keep], self.value[keep], local.ravel())
 
 
 # ---------------------------------------------------------------- data
@@ -279,7 +250,7 @@ def tracks_from_result(result, *, time_offset_s: float = 0.0, statuses=RAMP_STAT
 
     ``time_offset_s`` turns the result's times into recording-clock times (the
     experiment's isothermal start; 0 for a ramp experiment). Radii below
-    ``min_radius_px`` are left out. Prefer :func:`ring_tracks`, which has no small-radius bias.
+    ``min_radius_px`` are left out. Prefer :func:`area_tracks`, which has no small-radius bias.
     """
     status = {s.id: s.status for s in result.spherulites}
     tracks = []
@@ -349,20 +320,41 @@ def _edf(model, jac_data, lam) -> float:
     return float(np.trace(np.linalg.solve(h, jac_data.T @ jac_data)))
 
 
+def _folds(n_tracks: int) -> list[np.ndarray]:
+    """Spherulites dealt round-robin into at most _CV_FOLDS groups (deterministic)."""
+    k = min(_CV_FOLDS, n_tracks)
+    return [np.arange(i, n_tracks, k) for i in range(k)]
+
+
+def _held_out_error(model, start, lam, held) -> float:
+    """Squared error on the spherulites ``held`` of a fit made without them; their own
+    offsets (unknown birth) are fitted to the held-out radii with G(T) fixed."""
+    train = ~np.isin(model.track_of, held)
+    sub = _Model(model.grid, model.basis, model.offset, model.data.subset(train), model.penalty)
+    keep_tracks = np.setdiff1d(np.arange(model.n_tracks), held)
+    fit = sub.fit(np.concatenate([start[:model.n_beta], start[model.n_beta:][keep_tracks]]), lam)
+    test = _Model(model.grid, model.basis, model.offset, model.data.subset(~train), None)
+    beta = fit.x[:model.n_beta]
+    return float(np.sum((test.predict(np.concatenate([beta, test.offsets(beta)])) - test.radius) ** 2))
+
+
 def _spline_fit(model, start):
-    """The smoothing weight with the lowest GCV score: (fit, lam, data Jacobian, σ²)."""
+    """The smoothing weight with the lowest cross-validated error, spherulites left out a
+    fold at a time (radii of one spherulite are correlated, so leaving out single radii,
+    as generalised cross-validation does, would under-smooth); (fit, lam, Jacobian, σ²)."""
+    folds = _folds(model.n_tracks)
     best, guess = None, start
     n = model.radius.size
     for lam in _LAMBDAS:
         fit = model.fit(guess, lam)
         guess = fit.x
-        jac = model.data_jacobian(fit.x)
-        rss = float(np.sum(fit.fun[:n] ** 2))
-        edf = _edf(model, jac, lam)
-        gcv = n * rss / max(n - edf, 1.0) ** 2
-        if best is None or gcv < best[0]:
-            best = (gcv, fit, lam, jac, rss / max(n - edf, 1.0))
-    return best[1:]
+        score = sum(_held_out_error(model, fit.x, lam, held) for held in folds) if len(folds) > 1 else 0.0
+        if best is None or score < best[0]:
+            best = (score, fit, lam)
+    _, fit, lam = best
+    jac = model.data_jacobian(fit.x)
+    rss = float(np.sum(fit.fun[:n] ** 2))
+    return fit, lam, jac, rss / max(n - _edf(model, jac, lam), 1.0)
 
 
 @dataclass(frozen=True)
@@ -380,7 +372,7 @@ class _SplineStage:
 
 def _spline_stage(programme, data: _Data, time_step_s):
     """One penalised-spline fit of the given points."""
-    grid = _grid(programme, float(data.start_s.min()), float(data.end_s.max()), time_step_s)
+    grid = _grid(programme, float(data.time_s.min()), float(data.time_s.max()), time_step_s)
     lo, hi = float(grid.temperature_c.min()), float(grid.temperature_c.max())
     if hi - lo < 1.0:
         return FitFailure(f"the run spans only {hi - lo:.2f} K while spherulites grow: no G(T)")
@@ -390,18 +382,29 @@ def _spline_stage(programme, data: _Data, time_step_s):
     slopes = []
     for k in range(model.n_tracks):
         mine = data.track_of == k
-        span = np.ptp(data.end_s[mine])
+        span = np.ptp(data.time_s[mine])
         slopes.append(np.ptp(data.value[mine]) / span if span > 0 else 0.0)
     rate = float(np.median(np.clip(slopes, 1e-6, None)))
     fit, lam, jac, sigma2 = _spline_fit(model, model.start(rate))
     return _SplineStage(model, fit, lam, jac, sigma2, lo, hi, n_segments, rate)
 
 
-def _clustered_meat(jac, residual, track_of, n_tracks) -> np.ndarray:
-    """Σᵢ JᵢᵀrᵢrᵢᵀJᵢ over spherulites i, with the small-sample factor m/(m − 1)."""
-    per_track = np.zeros((n_tracks, jac.shape[1]))
-    np.add.at(per_track, track_of, jac * residual[:, None])
-    return per_track.T @ per_track * n_tracks / max(n_tracks - 1, 1)
+def _clustered_meat(jac, residual, groups) -> np.ndarray:
+    """Σ_g J_gᵀ r_g r_gᵀ J_g over the groups g (labels 0..m−1), times m/(m − 1)."""
+    m = int(groups.max()) + 1
+    per_group = np.zeros((m, jac.shape[1]))
+    np.add.at(per_group, groups, jac * residual[:, None])
+    return per_group.T @ per_group * m / max(m - 1, 1)
+
+
+def _two_way_meat(jac, residual, track_of, time_s) -> np.ndarray:
+    """Clustered by spherulite and by frame at once (Cameron, Gelbach & Miller 2011,
+    J. Bus. Econ. Stat. 29, 238): M_spherulite + M_frame − M_point. A spherulite's radii
+    share its centre error; one frame's radii share that frame's exposure and flicker."""
+    _, frame_of = np.unique(np.round(time_s, 6), return_inverse=True)
+    points = np.arange(residual.size)
+    return (_clustered_meat(jac, residual, track_of) + _clustered_meat(jac, residual, frame_of.ravel())
+            - _clustered_meat(jac, residual, points))
 
 
 def _band(stage, basis_report):
@@ -409,12 +412,12 @@ def _band(stage, basis_report):
 
     Bayesian band of a penalised spline, H⁻¹(σ²JᵀJ + σ²λPᵀP)H⁻¹ = σ²H⁻¹ with
     H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by its
-    spherulite-clustered form Σᵢ JᵢᵀrᵢrᵢᵀJᵢ (Liang & Zeger 1986, Biometrika 73, 13): the
-    radii of one spherulite share its centre error and pixel pattern, so they are not
-    independent; the penalty part keeps the allowance for the smoothing bias.
+    clustered form (Liang & Zeger 1986, Biometrika 73, 13), by spherulite and by frame
+    (:func:`_two_way_meat`): radii are not independent; the penalty part keeps the
+    allowance for the smoothing bias. Never narrower than the independent-error band.
     """
     model = stage.model
-    meat = _clustered_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.n_tracks)
+    meat = _two_way_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.data.time_s)
     prior = np.zeros_like(meat)
     if model.penalty is not None:
         prior[:model.n_beta, :model.n_beta] = stage.sigma2 * stage.lam * (model.penalty.T @ model.penalty)
@@ -441,7 +444,7 @@ def _coverage(tracks, programme, temps):
     """Per reported temperature, how many spherulites grew through it."""
     counts = np.zeros(temps.size, int)
     for track in tracks:
-        t = np.linspace(track.starts.min(), track.time_s.max(), 200)
+        t = np.linspace(track.time_s.min(), track.time_s.max(), 200)
         seen = programme.temperature_at(t)
         counts += (temps >= seen.min() - _GRID_STEP_K / 2) & (temps <= seen.max() + _GRID_STEP_K / 2)
     return counts
@@ -496,7 +499,7 @@ def _lh_fit(grid, constants, data: _Data, start_rate):
     jac = model.data_jacobian(fit.x)
     bread = np.linalg.pinv(jac.T @ jac)
     naive = bread * float(np.sum(fit.fun ** 2)) / dof
-    clustered = bread @ _clustered_meat(jac, fit.fun, data.track_of, model.n_tracks) @ bread
+    clustered = bread @ _two_way_meat(jac, fit.fun, data.track_of, data.time_s) @ bread
     # spherulites are the independent units: t quantile on their number, clustered variance
     kg_ci = float(stats.t.ppf(0.975, max(model.n_tracks - 1, 1)) *
                   math.sqrt(max(clustered[1, 1], naive[1, 1], 0.0)))
@@ -512,7 +515,7 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
     Parameters
     ----------
     tracks : sequence of RadiusTrack
-        Radii or rings (µm) at recording-clock times (s), at least 3 per spherulite.
+        Radii (µm) at recording-clock times (s), at least 3 per spherulite.
     programme : TemperatureProgramme
         Sample temperature on the recording clock; must cover the data.
     constants : LHConstants, optional
@@ -529,7 +532,7 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
         return FitFailure(f"{len(tracks)} spherulite(s) with {_MIN_TRACK_POINTS}+ free-growth radii; "
                           "need at least 2")
     data = _Data.of(tracks)
-    programme.require_coverage(float(data.start_s.min()), float(data.end_s.max()))
+    programme.require_coverage(float(data.time_s.min()), float(data.time_s.max()))
     keep = np.ones(data.value.size, bool)
     for _ in range(_OUTLIER_ROUNDS):
         counts = np.bincount(data.track_of[keep], minlength=len(tracks))

@@ -146,10 +146,14 @@ class TemperatureView(LazyPage):
         self.include_ramps.blockSignals(False)
         header, rows = temperature_export.table_rows(self.model, self.calorimetry)
         self.table.set_rows(header, rows)
-        missing = self.model.experiment_count() - len(rows)
-        self.empty_note.setVisible(missing > 0)
-        self.empty_note.setText(f"{missing} of {self.model.experiment_count()} experiments have no "
-                                "microscopy result yet: run their analysis to include them.")
+        isothermal = sum(getattr(e, "kind", "isothermal") != "ramp" for e in self.model.experiments())
+        missing = isothermal - len(rows)
+        unfitted = [c for c in self.ramps if c.growth is None]
+        self.empty_note.setVisible(missing > 0 or bool(unfitted))
+        self.empty_note.setText(" ".join(
+            ([f"{missing} of {isothermal} isothermal experiments have no microscopy result yet: run "
+              "their analysis to include them."] if missing > 0 else []) +
+            [f"{c.name}: no G(T) ({c.problem})." for c in unfitted]))
         tc = logic.column(self.points, "temperature_c")
         self.plots.show_growth(tc, logic.column(self.points, "growth_rate"), logic.column(self.points, "growth_ci95"))
         self.plots.show_ramps(self.ramps)

@@ -11,8 +11,6 @@ Scientific checks
 * G(T) from the Lauritzen-Hoffman equation G0 exp(−U*/(R(T−T∞))) exp(−Kg/(T ΔT f))
   (Hoffman 1983, Polymer 24, 3 `# from memory`; docs/sources.md §2.1) is recovered from
   radii generated along a cooling ramp.
-* The mean distance of the points of an annulus a ≤ r ≤ b from its centre is
-  ∫ r·2πr dr / ∫ 2πr dr = (2/3)(b³ − a³)/(b² − a²) (derived here).
 * The area of a circular sector of angle Δθ and radius R is Δθ R²/2 (Euclid; elementary).
 """
 
@@ -25,7 +23,6 @@ from analysis.kinetics.nonisothermal import (
     RadiusTrack,
     fit_ramp_growth,
     growth_integral,
-    ring_mean_radius,
 )
 from analysis.kinetics.temperature_programme import TemperatureProgramme
 from analysis.spherulites.fronts import area_radii, front_radii, blocked_distance
@@ -47,12 +44,6 @@ def test_growth_integral_of_a_linear_ramp_matches_the_closed_form():
     t = np.array([0.0, 10.0, 77.7, 300.0, 600.0])
     closed_um = (a * t + b * (t0_c * t - q * t ** 2 / 2.0)) / 60.0
     assert growth_integral(t, prog, lambda temp: a + b * temp) == pytest.approx(closed_um, rel=1e-9, abs=1e-9)
-
-
-def test_ring_mean_radius():
-    """(2/3)(b³ − a³)/(b² − a²), and the radius itself when the ring is a circle."""
-    mean, _, _ = ring_mean_radius(np.array([3.0, 0.0, 5.0]), np.array([7.0, 4.0, 5.0]))
-    assert mean == pytest.approx([(2 / 3) * (7 ** 3 - 3 ** 3) / (7 ** 2 - 3 ** 2), 8 / 3, 5.0])
 
 
 def lh_tracks(rng, *, n=12, noise_um=0.1, q=5.0 / 60.0):
