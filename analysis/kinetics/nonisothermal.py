@@ -390,7 +390,8 @@ def _spline_stage(programme, data: _Data, time_step_s):
 
 
 def _clustered_meat(jac, residual, groups) -> np.ndarray:
-    """Σ_g J_gᵀ r_g r_gᵀ J_g over the groups g (labels 0..m−1), times m/(m − 1)."""
+    """Σ_g J_gᵀ r_g r_gᵀ J_g over the groups g (labels 0..m−1), times m/(m − 1)
+    (Liang & Zeger 1986, Biometrika 73, 13)."""
     m = int(groups.max()) + 1
     per_group = np.zeros((m, jac.shape[1]))
     np.add.at(per_group, groups, jac * residual[:, None])
@@ -398,23 +399,36 @@ def _clustered_meat(jac, residual, groups) -> np.ndarray:
 
 
 def _two_way_meat(jac, residual, track_of, time_s) -> np.ndarray:
-    """Clustered by spherulite and by frame at once (Cameron, Gelbach & Miller 2011,
-    J. Bus. Econ. Stat. 29, 238): M_spherulite + M_frame − M_point. A spherulite's radii
-    share its centre error; one frame's radii share that frame's exposure and flicker."""
+    """Clustered by spherulite (Liang & Zeger 1986) plus a frame random effect.
+
+    A spherulite's radii share its centre error; all radii of one frame share that frame's
+    exposure (flicker, noise in the threshold crossing), an error common to every
+    spherulite at that moment that no amount of spherulites averages away. Its variance
+    σ_f² is the part of the per-frame mean residual's variance beyond what independent
+    errors give (a method-of-moments variance component, Searle, Casella & McCulloch 1992,
+    Variance Components, ch. 3 `# from memory`); the frame term is σ_f² Σ_f s_f s_fᵀ with
+    s_f the summed Jacobian rows of frame f.
+    """
     _, frame_of = np.unique(np.round(time_s, 6), return_inverse=True)
-    points = np.arange(residual.size)
-    return (_clustered_meat(jac, residual, track_of) + _clustered_meat(jac, residual, frame_of.ravel())
-            - _clustered_meat(jac, residual, points))
+    frame_of = frame_of.ravel()
+    n_frames = int(frame_of.max()) + 1
+    counts = np.bincount(frame_of, minlength=n_frames)
+    frame_mean = np.bincount(frame_of, residual, minlength=n_frames) / np.maximum(counts, 1)
+    within = float(np.sum((residual - frame_mean[frame_of]) ** 2)) / max(residual.size - n_frames, 1)
+    sigma_f2 = max(float(np.mean(frame_mean ** 2 - within / np.maximum(counts, 1))), 0.0)
+    summed = np.zeros((n_frames, jac.shape[1]))
+    np.add.at(summed, frame_of, jac)
+    return _clustered_meat(jac, residual, track_of) + sigma_f2 * (summed.T @ summed)
 
 
 def _band(stage, basis_report):
     """ln G (µm/s) and its standard error at the report temperatures.
 
     Bayesian band of a penalised spline, H⁻¹(σ²JᵀJ + σ²λPᵀP)H⁻¹ = σ²H⁻¹ with
-    H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by its
-    clustered form (Liang & Zeger 1986, Biometrika 73, 13), by spherulite and by frame
-    (:func:`_two_way_meat`): radii are not independent; the penalty part keeps the
-    allowance for the smoothing bias. Never narrower than the independent-error band.
+    H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by one that
+    lets radii of a spherulite, and radii of a frame, err together (:func:`_two_way_meat`);
+    the penalty part keeps the allowance for the smoothing bias. Never narrower than the
+    independent-error band.
     """
     model = stage.model
     meat = _two_way_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.data.time_s)

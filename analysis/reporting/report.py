@@ -13,21 +13,21 @@ Public API
 ``project_entries_iter(project) -> Generator[Progress, None, (entries, problems)]``
     Analyses every experiment (``pipeline.analyze_experiment_iter``) and its calorimetry.
 ``report_project_iter(project, out_dir)`` / ``report_project(project, out_dir)``
-``series_constants(project) -> (LHConstants | None, note)``: Tm0/Tg from
-    ``project.series`` (tm0_c, tg_c, u_star_j_per_mol, t_inf_c), else from the material table.
+Entries, their calorimetry, the Lauritzen-Hoffman inputs and the series constants come
+from ``analysis.reporting.entries``, which the application's pages use too.
 ``add_cli_arguments(parser)`` / ``run_cli(args)``.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.outputs import clean_text, prepare_output_folder, staged_outputs
+from analysis.outputs import prepare_output_folder, staged_outputs
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,
@@ -35,9 +35,19 @@ from analysis.kinetics.lauritzen_hoffman import (
     write_secondary_nucleation,
 )
 from analysis.progress import Progress, run_to_completion, scaled
+from analysis.settings import HW_PAIRS_KEY
+
+#: Series flag that adds the ramps' G(T) to the Lauritzen-Hoffman fit.
+RAMPS_IN_LH_KEY = "lh_include_ramps"
 from analysis.reporting import figures
+from analysis.kinetics.prediction import film_avrami_fit, film_conversion
+from analysis.reporting.entries import (
+    lauritzen_hoffman_inputs,
+    lauritzen_hoffman_sources,
+    report_entry,
+    series_constants,
+)
 from analysis.reporting.tables import (
-    ReportEntry,
     Table,
     comparison_table,
     growth_vs_temperature_table,
@@ -46,17 +56,8 @@ from analysis.reporting.tables import (
 )
 from analysis.units import write_json_atomic
 
-#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
-HW_PAIRS_KEY = "hoffman_weeks_pairs"
-#: key of the series flag that adds the ramps' G(T) to the Lauritzen-Hoffman fit
-RAMPS_IN_LH_KEY = "lh_include_ramps"
-#: spacing of the ramp points given to the Tc-series fit, K
-RAMP_POINT_STEP_K = 2.0
-
-__all__ = ["HW_PAIRS_KEY", "RAMPS_IN_LH_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
-           "lh_inputs", "ramp_of_experiment",
-           "project_entries_iter",
-           "report_project", "report_project_iter", "series_constants"]
+__all__ = ["HW_PAIRS_KEY", "RAMPS_IN_LH_KEY", "ramp_of_experiment", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
+           "project_entries_iter", "report_project", "report_project_iter"]
 
 
 @dataclass(frozen=True)
@@ -67,36 +68,11 @@ class ReportSummary:
     problems: tuple[str, ...] = field(default=())
 
 
-def lh_inputs(entries, *, include_ramps: bool = False):
-    """(Tc, G, CI95 half-width or None, source per point) for the Tc-series fit.
-
-    Isothermal experiments give one point each (source "isothermal"); with
-    ``include_ramps`` every ramp's smooth G(T) adds a point every RAMP_POINT_STEP_K
-    kelvin (source "ramp: <name>").
-    """
-    from analysis.kinetics.ramp import ramp_points
-
-    rows = [(e.result.temperature_c, e.result.growth_rate.value,
-             None if e.result.growth_rate.ci95_low is None or e.result.growth_rate.ci95_high is None
-             else (e.result.growth_rate.ci95_high - e.result.growth_rate.ci95_low) / 2, "isothermal")
-            for e in entries if e.ramp is None and e.result.temperature_c is not None
-            and e.result.growth_rate.value]
-    for e in entries:
-        if include_ramps and e.ramp is not None and e.ramp.growth:
-            rows += [(float(t), float(g), float(h), f"ramp: {e.name}")
-                     for t, g, h in zip(*ramp_points(e.ramp.growth, step_k=RAMP_POINT_STEP_K))]
-    tc = np.array([r[0] for r in rows], dtype=float)
-    g = np.array([r[1] for r in rows], dtype=float)
-    cis = [r[2] for r in rows]
-    ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
-    return tc, g, ci, [r[3] for r in rows]
-
-
 def _lauritzen_hoffman(entries, constants, material, problems, include_ramps=False):
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci, _ = lh_inputs(entries, include_ramps=include_ramps)
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include_ramps)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None
@@ -112,12 +88,10 @@ def _lauritzen_hoffman(entries, constants, material, problems, include_ramps=Fal
 def _avrami_curves(entries):
     micro, dsc = [], []
     for e in entries:
-        label = f"{e.result.temperature_c:g} °C" if e.result.temperature_c is not None else e.name
-        r = e.result
-        if r.area_fraction.size:
-            start = (r.nucleation.induction_time_s or 0.0) / 60.0
-            micro.append(figures.AvramiCurve(label, r.area_fraction_time_s / 60.0 - start,
-                                             r.area_fraction))
+        label = f"{e.temperature_c:g} °C" if e.temperature_c is not None else e.name
+        if e.result.area_fraction.size:
+            micro.append(figures.AvramiCurve(label, *film_conversion(e.result),
+                                             film_avrami_fit(e.result)))
         if e.calorimetry is not None:
             t, x = e.calorimetry.conversion_table()
             dsc.append(figures.AvramiCurve(label, t - e.calorimetry.induction_time_min, x,
@@ -125,20 +99,13 @@ def _avrami_curves(entries):
     return micro, dsc
 
 
-def _with_film_fits(curves):
-    from analysis.kinetics.avrami import fit_avrami_window
-
-    return [figures.AvramiCurve(c.label, c.t_min, c.x, fit_avrami_window(c.t_min, c.x))
-            for c in curves]
-
-
-def _write_figures(entries, lh, material, out: Path, sources=None) -> list[Path]:
+def _write_figures(entries, lh, out: Path, sources=None) -> list[Path]:
     micro, dsc = _avrami_curves(entries)
     made = [
         ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
-        ("avrami_microscopy", figures.avrami_figure(_with_film_fits(micro), "Microscopy (area fraction)")),
+        ("avrami_microscopy", figures.avrami_figure(micro, "Microscopy (area fraction)")),
         ("avrami_calorimetry", figures.avrami_figure(dsc, "Calorimetry")),
-        ("conversion_comparison", figures.conversion_comparison_figure(entries, material)),
+        ("conversion_comparison", figures.conversion_comparison_figure(entries)),
     ]
     if lh is not None:
         made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh, sources)))
@@ -173,7 +140,8 @@ def build_report(entries, out_dir, *, constants: LHConstants | None = None,
 
     ``hoffman_weeks_pairs``: optional [(Tc, Tm), ...] in deg C for ``hoffman_weeks.json``.
     Entries of ramp experiments write their own files, prefixed ``ramp_<name>_``; with
-    ``include_ramps`` their G(T) also enters the Lauritzen-Hoffman fit (see :func:`lh_inputs`).
+    ``include_ramps`` their G(T) also enters the Lauritzen-Hoffman fit (points listed with
+    their source in ``lauritzen_hoffman_points.csv``).
     """
     entries = list(entries)
     if not entries:
@@ -189,8 +157,8 @@ def _write_report_files(entries, out: Path, constants, material, problems, hoffm
                         include_ramps=False):
     files = _write_ramps(entries, out)
     lh = _lauritzen_hoffman(entries, constants, material, problems, include_ramps)
-    sources = lh_inputs(entries, include_ramps=include_ramps)[3]
-    entries = [e for e in entries if e.ramp is None]
+    sources = lauritzen_hoffman_sources(entries, include_ramps=include_ramps)
+    entries = [e for e in entries if e.ramp is None]  # a ramp has no single Tc for these tables
     growth, comparison = growth_vs_temperature_table(entries), comparison_table(entries)
     files += [write_csv(growth, out / "growth_vs_temperature.csv"),
               write_csv(comparison, out / "kinetics_comparison.csv"),
@@ -200,7 +168,7 @@ def _write_report_files(entries, out: Path, constants, material, problems, hoffm
         files.append(write_secondary_nucleation(lh, out))
         if include_ramps:
             files.append(write_csv(_lh_points_table(lh, sources), out / "lauritzen_hoffman_points.csv"))
-    files.extend(_write_figures(entries, lh, material, out, sources))
+    files.extend(_write_figures(entries, lh, out, sources))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return files, lh, problems
 
@@ -230,33 +198,17 @@ def _file_stem(name: str) -> str:
     return stem[:60] or "experiment"
 
 
-def series_constants(project) -> tuple[LHConstants | None, str]:
-    """LH constants from the project's series settings, completed from the material table."""
-    series = dict(project.series or {})
-    tm0, tg = series.get("tm0_c"), series.get("tg_c")
-    note = "Tm0 and Tg from the project"
-    if (tm0 is None or tg is None) and project.material:
-        from analysis.kinetics.materials import get_material
+def ramp_of_experiment(experiment, analysis, project):
+    """The ramp analysis of an experiment of kind "ramp" (InputError without a usable
+    temperature source); the series' LH constants give the direct Kg fit."""
+    from analysis.kinetics.ramp import analyze_ramp
+    from analysis.kinetics.temperature_programme import programme_of_source
 
-        mat = get_material(project.material)
-        tm0 = mat.tm0_c if tm0 is None else tm0
-        tg = mat.tg_c if tg is None else tg
-        note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
-    if tm0 is None or tg is None:
-        return None, "no Tm0/Tg: set them for the series or choose a material"
-    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol") or 6270.0),
-                       series.get("t_inf_c")), note
-
-
-def _calorimetry(experiment, material):
-    from analysis.kinetics.calorimetry import analyze_source
-
-    source = experiment.calorimetry
-    if source.material is None and material is not None:
-        from dataclasses import replace
-
-        source = replace(source, material=material)
-    return analyze_source(source)
+    if experiment.temperature_source is None:
+        raise InputError("a ramp experiment needs a temperature log or a typed programme")
+    constants, _ = series_constants(project.series, project.material, project.path)
+    return analyze_ramp(analysis, programme_of_source(experiment.temperature_source), constants=constants,
+                        time_offset_s=experiment.isothermal_start_s or 0.0)
 
 
 def project_entries_iter(project):
@@ -272,37 +224,18 @@ def project_entries_iter(project):
         except InputError as err:
             problems.append(f"{exp.name}: skipped ({err})")
             continue
-        cal, cal_problem = None, None
-        if exp.calorimetry is not None:
-            try:
-                cal = _calorimetry(exp, project.material)
-            except InputError as err:
-                cal_problem = str(err)
-                problems.append(f"{exp.name}: calorimetry skipped ({err})")
-        ramp = None
+        entry = report_entry(exp, analysis.result, project.material)
         if exp.kind == "ramp":
             try:
-                ramp = ramp_of_experiment(exp, analysis, project)
+                entry = replace(entry, ramp=ramp_of_experiment(exp, analysis, project))
             except InputError as err:
                 problems.append(f"{exp.name}: skipped ({err})")
                 continue
-        entries.append(ReportEntry(clean_text(exp.name), analysis.result, exp.geometry, exp.mode_override,
-                                   cal, cal_problem, ramp))
+        if entry.calorimetry_problem:
+            problems.append(f"{exp.name}: calorimetry skipped ({entry.calorimetry_problem})")
+        entries.append(entry)
     yield Progress("analysing experiments", 1.0)
     return entries, problems
-
-
-def ramp_of_experiment(experiment, analysis, project):
-    """The ramp analysis of an experiment of kind "ramp" (InputError without a usable
-    temperature source); the series' LH constants give the direct Kg fit."""
-    from analysis.kinetics.ramp import analyze_ramp
-    from analysis.kinetics.temperature_programme import programme_of_source
-
-    if experiment.temperature_source is None:
-        raise InputError("a ramp experiment needs a temperature log or a typed programme")
-    constants, _ = series_constants(project)
-    return analyze_ramp(analysis, programme_of_source(experiment.temperature_source), constants=constants,
-                        time_offset_s=experiment.isothermal_start_s or 0.0)
 
 
 def checked_hoffman_weeks_pairs(pairs, path=None) -> list[tuple[float, float]]:
@@ -328,12 +261,13 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    # an unknown material stops here, before the long analysis
+    constants, note = series_constants(project.series, project.material, project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,

@@ -11,16 +11,18 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.kinetics.prediction import predict_from_result
 from analysis.kinetics.lauritzen_hoffman import (
-    LHConstants,
     fit_lauritzen_hoffman,
     hoffman_weeks,
     lh_coordinates,
     lh_growth_rate,
 )
-from app.core.kinetics_inputs import volumetric_density
-from app.core.ramp_inputs import RAMPS
+from analysis.reporting.entries import (
+    lauritzen_hoffman_inputs,
+    lauritzen_hoffman_sources,
+    series_constants,
+)
+from analysis.reporting.report import RAMPS_IN_LH_KEY
 from app.temperature.lauritzen_hoffman import HW_KEY
 
 
@@ -38,124 +40,44 @@ class SeriesPoint:
     measured_t_half_min: float | None
 
 
-def _half_width(growth) -> float | None:
-    if growth.ci95_low is None or growth.ci95_high is None:
-        return None
-    return (growth.ci95_high - growth.ci95_low) / 2.0
-
-
-def _predicted_half_time(result, experiment) -> float | None:
-    try:
-        return predict_from_result(result, "bulk-3d", experiment.mode_override).t_half_min
-    except InputError:
-        return None
-
-
-def _measured_half_time(experiment, cache) -> float | None:
-    if experiment.calorimetry is None:
-        return None
-    try:
-        fit = cache.analyze(experiment.calorimetry).avrami
-    except InputError:
-        return None
+def _measured_half_time(entry) -> float | None:
+    fit = entry.calorimetry.avrami if entry.calorimetry is not None else None
     return fit.t_half_min if fit else None
 
 
-def collect(model, cache) -> list[SeriesPoint]:
-    """One point per experiment with an analysis result, in project order."""
-    points = []
-    for i, experiment in enumerate(model.experiments()):
-        result = model.result(i)
-        if result is None or getattr(experiment, "kind", "isothermal") == "ramp":
-            continue  # a ramp has no single Tc: it is drawn as a G(T) curve (collect_ramps)
-        nuc, growth = result.nucleation, result.growth_rate
-        volumetric, _h = volumetric_density(result, experiment)
-        temperature = experiment.temperature_c if experiment.temperature_c is not None else result.temperature_c
-        points.append(SeriesPoint(experiment.name, temperature, growth.value, _half_width(growth),
-                                  nuc.density_per_mm2, volumetric, _predicted_half_time(result, experiment),
-                                  _measured_half_time(experiment, cache)))
-    return points
+def _predicted_half_time(entry) -> float | None:
+    prediction = entry.bulk_prediction()
+    return None if prediction is None else prediction.t_half_min
 
 
-#: Series flag: the ramps' G(T) enters the Lauritzen-Hoffman fit (as in the report).
-RAMPS_IN_LH_KEY = "lh_include_ramps"
-
-
-@dataclass(frozen=True)
-class RampCurve:
-    """One ramp experiment's G(T) (µm/min) with its band, or why there is none."""
-
-    name: str
-    growth: object | None  # analysis.kinetics.nonisothermal.RampGrowth
-    problem: str | None
-
-
-def collect_ramps(model, series: dict) -> list[RampCurve]:
-    """G(T) of every analysed ramp experiment (fitted by analysis.kinetics.ramp)."""
-    try:
-        constants = constants_from(series)
-    except InputError:
-        constants = None
-    curves = []
-    for i, experiment in enumerate(model.experiments()):
-        if getattr(experiment, "kind", "isothermal") != "ramp" or model.analysis(i) is None:
-            continue
-        ramp, problem = RAMPS.ramp(experiment, model.analysis(i), constants)
-        growth = getattr(ramp, "growth", None)
-        if ramp is not None and not growth:
-            growth, problem = None, growth.reason
-        curves.append(RampCurve(experiment.name, growth, problem))
-    return curves
-
-
-def ramp_lh_points(curves):
-    """(Tc, G, CI95 half-width, label) of the ramps' points for the Tc-series fit."""
-    from analysis.kinetics.ramp import ramp_points
-    from analysis.reporting.report import RAMP_POINT_STEP_K
-
-    rows = []
-    for curve in curves:
-        if curve.growth is not None:
-            rows += [(t, g, h, f"ramp: {curve.name}")
-                     for t, g, h in zip(*ramp_points(curve.growth, step_k=RAMP_POINT_STEP_K))]
-    return rows
+def points_from(entries) -> list[SeriesPoint]:
+    """One point per report entry (``analysis.reporting.entries.report_entry``), in order."""
+    return [SeriesPoint(e.name, e.temperature_c, e.result.growth_rate.value,
+                        e.growth_rate_ci95_half_width, e.result.nucleation.density_per_mm2,
+                        e.density_per_mm3, _predicted_half_time(e), _measured_half_time(e))
+            for e in entries]
 
 
 def column(points, name: str) -> np.ndarray:
     return np.array([np.nan if getattr(p, name) is None else getattr(p, name) for p in points], float)
 
 
-def constants_from(series: dict) -> LHConstants:
-    """LH constants from the project's series settings (InputError naming what is missing)."""
-    missing = [label for key, label in (("tm0_c", "Tm0"), ("tg_c", "Tg")) if series.get(key) is None]
-    if missing:
-        raise InputError(f"set {' and '.join(missing)} (or choose a material) for the Lauritzen-Hoffman fit")
-    return LHConstants(tm0_c=float(series["tm0_c"]), tg_c=float(series["tg_c"]),
-                       u_star_j_per_mol=float(series.get("u_star_j_per_mol") or 6270.0),
-                       t_inf_c=series.get("t_inf_c"))
-
-
-def lh_fit(points, series: dict, material: str | None, ramps=()):
-    """``fit_lauritzen_hoffman`` over the experiments with a growth rate, plus the ramps'
-    G(T) points when the series says so. Returns (fit, one source label per point)."""
-    constants = constants_from(series)
-    usable = [p for p in points if p.temperature_c is not None and p.growth_rate is not None]
-    tc, g = column(usable, "temperature_c"), column(usable, "growth_rate")
-    ci = column(usable, "growth_ci95")
-    sources = ["isothermal"] * len(usable)
-    if series.get(RAMPS_IN_LH_KEY):
-        extra = ramp_lh_points(ramps)
-        tc = np.concatenate([tc, [r[0] for r in extra]])
-        g = np.concatenate([g, [r[1] for r in extra]])
-        ci = np.concatenate([ci, [r[2] for r in extra]])
-        sources += [r[3] for r in extra]
-    weights = None if np.isnan(ci).any() else ci
-    return fit_lauritzen_hoffman(tc, g, weights, constants=constants, material=material), sources
+def lh_fit(entries, series: dict, material: str | None):
+    """(``fit_lauritzen_hoffman`` over the entries with a Tc and a growth rate, where the
+    constants came from, the source of each point) with the constants and inputs the report
+    uses (``analysis.reporting.entries``; ramp entries add their G(T) when the series flag
+    ``lh_include_ramps`` is set); InputError when Tm0 or Tg is unknown."""
+    constants, note = series_constants(series, material)
+    if constants is None:
+        raise InputError(note)
+    include = bool(series.get(RAMPS_IN_LH_KEY, False))
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include)
+    sources = lauritzen_hoffman_sources(entries, include_ramps=include)
+    return fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material), note, sources
 
 
 def lh_display(fit, points: int = 60):
-    """Points, one fitted line per regime and the regimes' ranges, all on the LH plot's axes
-    (the caller marks which points come from ramps)."""
+    """Points, one fitted line per regime and the regimes' ranges, all on the LH plot's axes."""
     c = fit.constants
     x, y = lh_coordinates(fit.tc_c, fit.g_um_per_min, c)
     lines, bands = [], []

@@ -76,13 +76,12 @@ class TemperaturePlots(QtWidgets.QWidget):
         self.growth_errors.setData(x=tc, y=np.log10(g), top=high, bottom=low)
 
     def show_ramps(self, curves) -> None:
-        """Each ramp's G(T) as a line with its 95 % band (``RampCurve`` list)."""
+        """Each ramp's G(T) as a line with its 95 % band; ``curves``: (name, RampGrowth) pairs."""
         item = self.growth.getPlotItem()
         for old in self._ramp_items:
             item.removeItem(old)
         self._ramp_items = []
-        for k, curve in enumerate(c for c in curves if c.growth is not None):
-            g = curve.growth
+        for k, (name, g) in enumerate(curves):
             colour = ("#b03a2e", "#7d3c98", "#117a65", "#a04000")[k % 4]
             low = item.plot(g.temperature_c, g.ci95_low, pen=pg.mkPen(colour, width=0.5))
             high = item.plot(g.temperature_c, g.ci95_high, pen=pg.mkPen(colour, width=0.5))
@@ -91,7 +90,7 @@ class TemperaturePlots(QtWidgets.QWidget):
                                                                    pg.mkColor(colour).blue(), 50))
             item.addItem(band)
             line = item.plot(g.temperature_c, g.growth_rate_um_per_min, pen=pg.mkPen(colour, width=2),
-                             name=f"{curve.name} (ramp, 95 % band)")
+                             name=f"{name} (ramp, 95 % band)")
             self._ramp_items += [low, high, band, line]
 
     def show_growth_fit(self, tc_grid, g_fit) -> None:

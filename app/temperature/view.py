@@ -39,7 +39,8 @@ class TemperatureView(LazyPage):
         self.model = model
         self.calorimetry = CalorimetryCache()
         self.points: list = []
-        self.ramps: list = []
+        self.entries: list = []  # analysis.reporting.tables.ReportEntry, project order
+        self.ramps: list = []  # entries of ramp experiments with their G(T)
         self.fit = None
         self.report_job = temperature_export.ReportJob(self)
         self._build()
@@ -138,25 +139,24 @@ class TemperatureView(LazyPage):
         self.constants.fill(project.material, project.series)
         self.hw.fill(logic.hw_pairs(project.series))
         self._show_hw()
-        self.points = logic.collect(self.model, self.calorimetry)
-        self.ramps = logic.collect_ramps(self.model, project.series)
+        self.entries = temperature_export.report_entries(self.model, self.calorimetry)
+        self.ramps, ramp_problems = temperature_export.ramp_entries(self.model)
+        self.points = logic.points_from(self.entries)
+        header, rows = temperature_export.table_rows(self.entries)
+        self.table.set_rows(header, rows)
         self.include_ramps.blockSignals(True)
         self.include_ramps.setChecked(bool(project.series.get(logic.RAMPS_IN_LH_KEY)))
         self.include_ramps.setEnabled(bool(self.ramps))
         self.include_ramps.blockSignals(False)
-        header, rows = temperature_export.table_rows(self.model, self.calorimetry)
-        self.table.set_rows(header, rows)
-        isothermal = sum(getattr(e, "kind", "isothermal") != "ramp" for e in self.model.experiments())
+        isothermal = sum(e.kind != "ramp" for e in self.model.experiments())
         missing = isothermal - len(rows)
-        unfitted = [c for c in self.ramps if c.growth is None]
-        self.empty_note.setVisible(missing > 0 or bool(unfitted))
-        self.empty_note.setText(" ".join(
-            ([f"{missing} of {isothermal} isothermal experiments have no microscopy result yet: run "
-              "their analysis to include them."] if missing > 0 else []) +
-            [f"{c.name}: no G(T) ({c.problem})." for c in unfitted]))
+        notes = ([f"{missing} of {isothermal} isothermal experiments have no microscopy result yet: "
+                  "run their analysis to include them."] if missing > 0 else []) + ramp_problems
+        self.empty_note.setVisible(bool(notes))
+        self.empty_note.setText(" ".join(notes))
         tc = logic.column(self.points, "temperature_c")
         self.plots.show_growth(tc, logic.column(self.points, "growth_rate"), logic.column(self.points, "growth_ci95"))
-        self.plots.show_ramps(self.ramps)
+        self.plots.show_ramps([(e.name, e.ramp.growth) for e in self.ramps])
         self.plots.show_density(tc, logic.column(self.points, "density_areal"),
                                 logic.column(self.points, "density_volumetric"))
         self.plots.show_half_times(tc, logic.column(self.points, "predicted_t_half_min"),
@@ -166,7 +166,7 @@ class TemperatureView(LazyPage):
     def _show_lh(self) -> None:
         project = self.model.project
         try:
-            self.fit, sources = logic.lh_fit(self.points, project.series, project.material, self.ramps)
+            self.fit, note, sources = logic.lh_fit(self.entries + self.ramps, project.series, project.material)
         except InputError as error:
             self.fit = None
             self.lh_results.clear(f"No Lauritzen-Hoffman fit: {error.problem}")
@@ -174,6 +174,8 @@ class TemperatureView(LazyPage):
             self.plots.show_growth_fit(None, None)
             return
         self.lh_results.show_fit(self.fit)
+        if "material table" in note:  # say where constants not set by the user came from
+            self.lh_results.message.setText("; ".join([note, *self.fit.warnings]))
         self.plots.show_lh(*logic.lh_display(self.fit), [s.startswith("ramp") for s in sources])
         self.plots.show_growth_fit(*logic.growth_curve(self.fit))
 

@@ -41,6 +41,7 @@ from app.microscopy.frame_range_dialog import FrameRangeDialog
 from app.microscopy.plots_panel import PlotsPanel
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
+from app.widgets.help_guide import register_shortcuts
 from app.window import actions as act
 from app.window.files import WindowFilesMixin
 from app.window.views import build_optional_views
@@ -92,6 +93,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_docks()
         self.tools = ToolController(self.model, self.viewer, self)
         self.actions_by_id = act.build_actions(self)
+        register_shortcuts(act.shortcut_rows(self.actions_by_id))  # listed in Help
         self.menus = act.populate_menus(self, self.actions_by_id)
         self.toolbars = act.populate_toolbars(self, self.actions_by_id)
         self._build_status_bar()
@@ -412,6 +414,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.runner.wait(10.0)
         self.save_layout()
         self.autosaver.discard()
+        self.hold_project_lock(None)
         event.accept()
 
 

@@ -100,7 +100,7 @@ def test_v1_edits_migrate_to_records_that_name_no_detection_yet(tmp_path):
     ('{"format": "spherokin-project", "schema_version": "one"}', "invalid schema_version"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": [{"name": "a"}]}', "no stack"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
-     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "positive"),
+     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "'a': um_per_px must be a number in \\(0.0001"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
      '[{"name": "a", "stack": "s.tif", "edits": [{"kind": "teleport"}]}]}', "unknown edit kind"),
 ])
@@ -138,11 +138,11 @@ def test_saved_file_keeps_normal_permissions(tmp_path):
     assert stat.S_IMODE(target.stat().st_mode) == 0o640
 
 
-FIXTURE_V2 = Path(__file__).parent / "fixtures" / "project_v2.spherokin.json"
+FIXTURE_V3 = Path(__file__).parent / "fixtures" / "project_v3.spherokin.json"
 
 
-def test_frozen_v2_fixture_loads_as_isothermal_experiments(tmp_path):
-    shutil.copy(FIXTURE_V2, tmp_path / "p.spherokin.json")
+def test_frozen_v3_fixture_loads_as_isothermal_experiments(tmp_path):
+    shutil.copy(FIXTURE_V3, tmp_path / "p.spherokin.json")
     project = load_project(tmp_path / "p.spherokin.json")
     (experiment,) = project.experiments
     assert experiment.kind == "isothermal" and experiment.temperature_source is None
