@@ -114,3 +114,26 @@ def test_area_radius_has_no_small_radius_bias():
     farthest = front_radii(x, y, frames, blocked_distance(labels, 1, c, c, n_sectors=36, reach_px=60),
                            c, c, radius.size).radius_px
     assert np.mean((farthest - radius)[radius < 8]) < -0.35  # the bias the area radius avoids
+
+
+def test_ramp_points_join_the_series_fit_only_when_asked():
+    """The Tc-series inputs: isothermal entries always, a ramp's G(T) every 2 K on request."""
+    from types import SimpleNamespace
+
+    from analysis.reporting.entries import lauritzen_hoffman_inputs, lauritzen_hoffman_sources
+
+    prog, tracks = lh_tracks(np.random.default_rng(5))
+    growth = fit_ramp_growth(tracks, prog, constants=CONSTANTS)
+    iso = [SimpleNamespace(name=f"iso {t}", ramp=None, temperature_c=t, growth_rate_ci95_half_width=0.1,
+                           result=SimpleNamespace(growth_rate=SimpleNamespace(value=g)))
+           for t, g in ((124.0, 32.0), (130.0, 6.8))]
+    ramp = SimpleNamespace(name="cooling", ramp=SimpleNamespace(growth=growth), temperature_c=None,
+                           growth_rate_ci95_half_width=None,
+                           result=SimpleNamespace(growth_rate=SimpleNamespace(value=9.9)))
+    tc, g, ci = lauritzen_hoffman_inputs(iso + [ramp])
+    assert list(tc) == [124.0, 130.0] and ci is not None
+    tc, g, ci = lauritzen_hoffman_inputs(iso + [ramp], include_ramps=True)
+    sources = lauritzen_hoffman_sources(iso + [ramp], include_ramps=True)
+    assert len(tc) > 4 and sources[:2] == ["isothermal", "isothermal"]
+    assert set(sources[2:]) == {"ramp: cooling"} and np.all(np.diff(tc[2:]) >= 1.99)
+    assert np.all(ci > 0) and np.allclose(g[2:], growth.growth_at(tc[2:]), rtol=1e-9)
