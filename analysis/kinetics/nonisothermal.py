@@ -548,7 +548,7 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
     data = _Data.of(tracks)
     programme.require_coverage(float(data.time_s.min()), float(data.time_s.max()))
     keep = np.ones(data.value.size, bool)
-    for _ in range(_OUTLIER_ROUNDS):
+    for round_number in range(_OUTLIER_ROUNDS):
         counts = np.bincount(data.track_of[keep], minlength=len(tracks))
         keep &= counts[data.track_of] >= _MIN_TRACK_POINTS
         if np.count_nonzero(counts >= _MIN_TRACK_POINTS) < 2:
@@ -558,7 +558,7 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
         if isinstance(stage, FitFailure):
             return stage
         bad = _outliers(stage.fit.fun[:kept.value.size], kept.track_of)
-        if not bad.any():
+        if not bad.any() or round_number == _OUTLIER_ROUNDS - 1:  # keep matches the last fit
             break
         keep[np.flatnonzero(keep)[bad]] = False
     return _ramp_growth(tracks, programme, constants, data, keep, stage)
@@ -567,7 +567,10 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
 def _ramp_growth(tracks, programme, constants, data, keep, stage):
     temps = np.arange(math.ceil(stage.lo / _GRID_STEP_K) * _GRID_STEP_K, stage.hi + 1e-9, _GRID_STEP_K)
     log_g, sd = _band(stage, _spline_basis(temps, stage.lo, stage.hi, stage.n_segments))
-    z, to_min = stats.norm.ppf(0.975), math.log(60.0)
+    # spherulites are the independent units of a clustered variance: t quantile on their
+    # number less one (Bell & McCaffrey 2002, Survey Methodology 28, 169, `# from memory`)
+    z = stats.t.ppf(0.975, max(stage.model.n_tracks - 1, 1))
+    to_min = math.log(60.0)
     used = [k for k in range(len(tracks)) if np.any(keep & (data.track_of == k))]
     fitted = np.full(data.value.size, np.nan)
     fitted[keep] = stage.model.predict(stage.fit.x)
