@@ -4,6 +4,7 @@ programme, its clock offset and sensor lag, and the Lauritzen-Hoffman constants.
 from __future__ import annotations
 
 from analysis.errors import InputError
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL
 
 
 def add_ramp_arguments(parser) -> None:
@@ -29,7 +30,8 @@ def add_ramp_arguments(parser) -> None:
                        help="first-order lag of the film behind the stage sensor, s (default 0)")
     group.add_argument("--tm0-c", type=float, help="Tm0 for the Lauritzen-Hoffman fit of the ramp, °C")
     group.add_argument("--tg-c", type=float, help="Tg for the Lauritzen-Hoffman fit of the ramp, °C")
-    group.add_argument("--u-star-j-mol", type=float, default=6270.0, help="U*, J/mol (default 6270)")
+    group.add_argument("--u-star-j-mol", type=float, default=DEFAULT_U_STAR_J_PER_MOL,
+                       help=f"U*, J/mol (default {DEFAULT_U_STAR_J_PER_MOL:g})")
     group.add_argument("--t-inf-c", type=float, help="T_inf, °C (default Tg - 30 K)")
 
 

@@ -40,15 +40,9 @@ from analysis.kinetics.avrami import FitFailure
 from analysis.kinetics.lauritzen_hoffman import R_J_PER_MOL_K, LHConstants, lh_coordinates
 from analysis.kinetics.temperature_programme import TemperatureProgramme
 
-__all__ = ["RadiusTrack", "RampGrowth", "RampLHFit", "TrackFit", "fit_ramp_growth",
-           "tracks_from_result", "RAMP_STATUSES"]
+__all__ = ["RadiusTrack", "RampGrowth", "RampLHFit", "TrackFit", "fit_ramp_growth", "growth_integral"]
 
-#: Spherulite statuses whose free-growth radii enter the ramp fit. "nonlinear" is what a
-#: straight-cone test says of every spherulite on a ramp, so it is expected here.
-RAMP_STATUSES = ("ok", "nonlinear")
 _MIN_TRACK_POINTS = 3
-#: Radii below this many pixels are not used (see tracks_from_result); common practice.
-MIN_RADIUS_PX = 4.0
 _GRID_STEP_K = 0.5  # spacing of the reported temperatures
 _LAMBDAS = 10.0 ** np.arange(-3.0, 5.0, 1.0)
 _CV_FOLDS = 5
@@ -241,66 +235,6 @@ class _Data:
         """The kept points, tracks renumbered from 0."""
         _, local = np.unique(self.track_of[keep], return_inverse=True)
         return _Data(self.time_s[keep], self.value[keep], local.ravel())
-
-
-# ---------------------------------------------------------------- data
-def tracks_from_result(result, *, time_offset_s: float = 0.0, statuses=RAMP_STATUSES,
-                       min_radius_px: float = MIN_RADIUS_PX) -> list[RadiusTrack]:
-    """Free-growth radii (farthest front per frame) of the usable spherulites of a result.
-
-    ``time_offset_s`` turns the result's times into recording-clock times (the
-    experiment's isothermal start; 0 for a ramp experiment). Radii below
-    ``min_radius_px`` are left out. Prefer :func:`area_tracks`, which has no small-radius bias.
-    """
-    status = {s.id: s.status for s in result.spherulites}
-    tracks = []
-    for series in result.radii:
-        if status.get(series.id) not in statuses:
-            continue
-        radius = np.asarray(series.radius_um, float)
-        used = np.asarray(series.used, bool) & np.isfinite(radius) & \
-            (radius >= min_radius_px * result.um_per_px)
-        if np.count_nonzero(used) >= _MIN_TRACK_POINTS:
-            tracks.append(RadiusTrack(series.id, np.asarray(series.time_s)[used] + time_offset_s,
-                                      radius[used]))
-    return tracks
-
-
-def area_tracks(result, frame_index: np.ndarray, times_s, *, time_offset_s: float = 0.0,
-                statuses=RAMP_STATUSES, n_sectors: int = 36,
-                min_radius_px: float = MIN_RADIUS_PX) -> list[RadiusTrack]:
-    """Free-growth radii of the usable spherulites from the crystallised area per sector
-    (:func:`analysis.spherulites.fronts.area_radii`, no small-radius bias).
-
-    Parameters
-    ----------
-    result : ExperimentResult
-        Needs ``extra["territories"]`` (label = spherulite id) and the radius series
-        (their ``used`` flags carry ignored frames and the free-fraction test).
-    frame_index : ndarray (H, W)
-        First crystalline frame of each pixel (-1: never), as in the arrival map.
-    times_s : array
-        Frame times, recording clock, s.
-    """
-    from analysis.spherulites.fronts import area_radii
-
-    labels = result.extra["territories"]
-    times = np.asarray(times_s, float)
-    spherulites = {s.id: s for s in result.spherulites}
-    tracks = []
-    for series in result.radii:
-        sph = spherulites.get(series.id)
-        if sph is None or sph.status not in statuses:
-            continue
-        rows, cols = np.nonzero(labels == series.id)
-        radius_px = area_radii(cols, rows, np.asarray(frame_index)[rows, cols], labels, series.id,
-                               sph.x_px, sph.y_px, times.size, n_sectors=n_sectors)
-        used_times = np.round(np.asarray(series.time_s)[np.asarray(series.used, bool)] + time_offset_s, 6)
-        ok = np.isfinite(radius_px) & np.isin(np.round(times, 6), used_times)
-        ok &= np.nan_to_num(radius_px) >= min_radius_px
-        if np.count_nonzero(ok) >= _MIN_TRACK_POINTS:
-            tracks.append(RadiusTrack(series.id, times[ok], radius_px[ok] * result.um_per_px))
-    return tracks
 
 
 def _spline_basis(temperature_c, lo, hi, n_segments):

@@ -13,7 +13,8 @@ import numpy as np
 
 from analysis.kinetics.avrami import FitFailure
 from analysis.kinetics.lauritzen_hoffman import LHConstants
-from analysis.kinetics.nonisothermal import RampGrowth, area_tracks, fit_ramp_growth
+from analysis.kinetics.nonisothermal import RampGrowth, fit_ramp_growth
+from analysis.kinetics.ramp_tracks import area_tracks
 from analysis.kinetics.ramp_nucleation import RampNucleation, nucleation_vs_temperature
 from analysis.kinetics.temperature_programme import TemperatureProgramme
 

@@ -30,7 +30,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from analysis.kinetics.lauritzen_hoffman import LHConstants  # noqa: E402
-from analysis.kinetics.nonisothermal import area_tracks, fit_ramp_growth  # noqa: E402
+from analysis.kinetics.nonisothermal import fit_ramp_growth  # noqa: E402
+from analysis.kinetics.ramp_tracks import area_tracks  # noqa: E402
 from analysis.kinetics.temperature_programme import read_temperature_log  # noqa: E402
 from analysis.spherulites.pipeline import analyze  # noqa: E402
 from analysis.stack.frames import open_stack  # noqa: E402
