@@ -12,7 +12,9 @@ from pathlib import Path
 
 from PySide6.QtWidgets import QFileDialog, QMessageBox
 
+from analysis.errors import InputError
 from app.core.autosave import find_recoverable, load_recovered
+from app.core.errors import one_line
 from app.microscopy.calibration import CalibrationDialog
 from app.window.properties_dialog import PropertiesDialog, stack_note
 from app.window.stack_import import experiments_from_paths, is_stack_path
@@ -44,8 +46,8 @@ class WindowFilesMixin:
             from analysis.project.file import load_project
 
             project = load_project(path)
-        except Exception as exc:
-            self.show_problem("Cannot open the project", str(exc))
+        except Exception as exc:  # bad file: one line; a bug: the internal-error dialog
+            self.show_error("Cannot open the project", exc)
             return False
         self.autosaver.discard()
         self.model.replace_project(project)
@@ -71,7 +73,7 @@ class WindowFilesMixin:
         try:
             saved = self.model.save(path)
         except Exception as exc:  # the project stays in memory, still marked unsaved
-            self.show_problem("Could not save", f"{path}: {exc}")
+            self.show_error("Could not save", exc)
             return False
         old_side.unlink(missing_ok=True)
         self.add_recent(saved)
@@ -171,8 +173,8 @@ class WindowFilesMixin:
         experiment = self.model.experiment(index)
         try:
             note = stack_note(self.model.frame_stack(index))
-        except Exception as exc:
-            note = f"The stack cannot be read: {exc}"
+        except InputError as exc:
+            note = f"The stack cannot be read: {one_line(exc)}"
         dialog = PropertiesDialog(experiment, note, self)
         if dialog.exec():
             changes = dialog.changes()
@@ -197,7 +199,7 @@ class WindowFilesMixin:
         try:
             image = self._calibration_image(path, index)
         except Exception as exc:
-            self.show_problem("Cannot read the image", str(exc))
+            self.show_error("Cannot read the image", exc)
             return
         dialog = CalibrationDialog(image, Path(path).name if path else "current frame",
                                    self.model.experiment_count() > 1, self)
@@ -253,7 +255,7 @@ class WindowFilesMixin:
         try:
             project = load_recovered(item)
         except Exception as exc:
-            self.show_problem("Cannot recover", str(exc))
+            self.show_error("Cannot recover", exc)
             return False
         self.model.replace_project(project, recovered=True)
         self.autosaver.autosave()  # the recovered work is protected again at once
