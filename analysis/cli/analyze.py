@@ -13,6 +13,7 @@ from analysis.cli.setting_flags import (
 from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
+from analysis.results import COUNTS
 from analysis.settings import DEFAULT_GEOMETRY, EXPERIMENT_SPECS
 from analysis.spherulites.pipeline import analyze_iter
 from analysis.stack.frames import open_stack
@@ -37,7 +38,8 @@ def add_cli_arguments(parser) -> None:
     add_analysis_settings_arguments(parser)
     parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
                         help="refuse stacks whose analysis needs more memory than this "
-                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
+                             "(default: $SPHEROKIN_MEMORY_BUDGET_MB, else 3/4 of the "
+                             "computer's memory)")
 
 
 class _ProgressBar:
@@ -86,7 +88,8 @@ def run_cli(args) -> int:
                            arrival=analysis.arrival, stack=stack)
     result = analysis.result
     g = result.growth_rate
-    g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"
-    print(f"{len(result.spherulites)} spherulites; G = {g_text}; nucleation "
-          f"{result.nucleation.mode or 'n/a'}; outputs in {args.out}")
+    g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g})"
+    counts = "; ".join(f"{COUNTS[key][0]} {value}" for key, value in result.counts().items())
+    print(f"{counts}; G = {g_text}; nucleation {result.nucleation.mode or 'n/a'}; "
+          f"outputs in {args.out}")
     return 0

@@ -11,7 +11,7 @@ from analysis.settings import DEFAULT_FIT_WINDOW
 
 
 def add_cli_arguments(parser) -> None:
-    """Options of ``spherokin calorimetry`` (DESIGN.md)."""
+    """Options of ``spherokin calorimetry`` (docs/design.md)."""
     parser.add_argument("file", help="delimited text export of an isothermal DSC run")
     parser.add_argument("--out", required=True, help="output directory")
     parser.add_argument("--time-col", help="time column: name or 0-based index")

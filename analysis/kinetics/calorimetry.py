@@ -67,13 +67,14 @@ from analysis.kinetics.avrami import (
 )
 from analysis.kinetics.calorimetry_import import (  # re-exported: reading lives in its own module
     CalorimetryPreview,
+    header_mismatches,
     Isotherm,
     read_isotherm,
     sniff_calorimetry_file,
 )
 from analysis.settings import DEFAULT_FIT_WINDOW
 
-__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm",
+__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "header_mismatches",
            "analyze_calorimetry_file", "analyze_isotherm", "analyze_source", "parse_window",
            "read_isotherm", "sniff_calorimetry_file", "write_calorimetry_outputs"]
 
@@ -113,6 +114,27 @@ class CalorimetryResult:
         """(time_min, X) between the baseline start and end, X clipped to [0, 1]."""
         sel = (self.time_min >= self.baseline_start_min) & (self.time_min <= self.baseline_end_min)
         return self.time_min[sel], np.clip(self.relative_crystallinity[sel], 0.0, 1.0)
+
+    def volume_conversion(self) -> tuple[np.ndarray, np.ndarray, str]:
+        """(t_min from the induction time, X, basis in words) for comparison with microscopy.
+
+        X is converted from the calorimeter's mass basis to a volume basis with the
+        material's crystal/amorphous density ratio (docs/sources.md §4.1); without a
+        material, or without densities for it, X stays on a mass basis and the basis
+        says why. Points at or before the induction time are left out.
+        """
+        from analysis.kinetics.avrami import volume_fraction_from_mass
+
+        t, x = self.conversion_table()
+        tau = t - self.induction_time_min
+        keep = tau > 0
+        tau, x = tau[keep], x[keep]
+        if self.material is None:
+            return tau, x, "mass basis (choose a material for the density ratio)"
+        try:
+            return tau, volume_fraction_from_mass(x, material=self.material), "volume basis"
+        except InputError as error:
+            return tau, x, f"mass basis ({error.problem})"
 
     def to_json_dict(self) -> dict:
         """The ``calorimetry.json`` document (docs/design.md)."""
@@ -336,7 +358,7 @@ def _finish(iso, t, q, line, sign, i_tr, start, end, t0, x, total, window, mass_
     if material is not None and enthalpy is not None:
         from analysis.kinetics.materials import get_material
 
-        dh0 = get_material(material).dh0_j_per_g
+        dh0 = get_material(material, path=iso.path).dh0_j_per_g
         crystallinity = None if dh0 is None else enthalpy / dh0
     seg = slice(start, end + 1)
     fit = fit_avrami_window(t[seg] - t0, x[seg], window)

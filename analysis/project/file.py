@@ -20,7 +20,8 @@ every key and value is checked when the file loads (:mod:`analysis.project.readi
 the descriptions of :mod:`analysis.settings`. Older schemas are migrated step by step by
 :data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
-over the target, so a crash never leaves a half-written project.
+over the target, so a crash never leaves a half-written project; temporaries of earlier
+saves that were killed are removed by the next save.
 """
 
 from __future__ import annotations
@@ -36,6 +37,7 @@ from typing import Any, Callable
 from analysis import __version__
 from analysis.edits import edit_to_dict
 from analysis.errors import InputError
+from analysis.outputs import remove_stale_temporaries
 from analysis.project.model import CalorimetrySource, Experiment, Project, new_project, now_stamp
 from analysis.project.reading import project_from_document
 from analysis.textio import read_text
@@ -279,4 +281,5 @@ def save_project(project: Project, path) -> Project:
     stamped = replace(project, modified=now_stamp(), created=project.created or now_stamp(),
                       path=str(path.resolve()))
     write_json_atomic(path, project_to_dict(stamped, path))
+    remove_stale_temporaries(path.parent, path.name)  # left by saves that were killed
     return stamped

@@ -17,7 +17,7 @@ from analysis.outputs import clean_text, staged_outputs
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                      "status", "source")
+                      "status", "source", "reason")
 RADII_COLUMNS = ("id", "time_s", "radius_um", "free_fraction")
 
 # Overlay colours (BGR): our own palette, chosen to read on grey and on colour images.
@@ -54,7 +54,8 @@ def spherulite_rows(result) -> list[list[str]]:
         numbers = [s.id, s.x_px, s.y_px, s.x_px * um, s.y_px * um, s.nucleation_time_s,
                    s.first_seen_s, s.growth_rate_um_per_min, s.growth_rate_ci95_um_per_min,
                    s.r2, s.n_points]
-        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source)])
+        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source),
+                                                         _cell(s.reason)])
     return rows
 
 
@@ -81,24 +82,28 @@ def _predicted(result, geometry: str):
 
 
 def summary_dict(result, geometry: str) -> dict[str, Any]:
-    """The summary.json record of a result (schema 1, docs/design.md); NaN becomes null.
+    """The summary.json record of a result (schema 2, docs/design.md); NaN becomes null.
+
+    Counts carry the keys of :data:`analysis.results.COUNTS`.
 
     ``avrami_predicted`` is the ``geometry`` prediction of
     :func:`analysis.kinetics.prediction.predict_from_result` (null values when an input is
     missing), ``avrami_film`` the whole-curve fit of the image's X(t).
     """
-    g, nuc = result.growth_rate, result.nucleation
+    g, nuc, counts = result.growth_rate, result.nucleation, result.counts()
     return json_clean({
-        "schema": 1,
+        "schema": 2,
         "stack": result.stack,
         "frames": int(result.frames),
         "um_per_px": result.um_per_px,
         "interval_s": result.interval_s,
         "temperature_c": result.temperature_c,
         "thickness_um": result.thickness_um,
+        "spherulites_detected": counts["spherulites_detected"],
         "growth_rate_um_per_min": {"value": g.value, "ci95_low": g.ci95_low,
-                                   "ci95_high": g.ci95_high, "n": int(g.n)},
-        "nucleation": {"count": int(nuc.count), "mode": nuc.mode,
+                                   "ci95_high": g.ci95_high,
+                                   "spherulites_in_pooled_g": counts["spherulites_in_pooled_g"]},
+        "nucleation": {"nuclei_counted": counts["nuclei_counted"], "mode": nuc.mode,
                        "density_per_mm2": nuc.density_per_mm2,
                        "density_per_mm3": nuc.density_per_mm3,
                        "rate_per_mm2_per_min": nuc.rate_per_mm2_per_min,

@@ -53,6 +53,9 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis"),
     ActionSpec("run_all", "Analyse &all experiments", "run_all", "Analysis", "Shift+F5", "analysis"),
     ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis"),
+    ActionSpec("analysis_settings", "Analysis &settings…", "edit_analysis_settings", "Analysis",
+               "Ctrl+Shift+A", tip="Detection and fit settings of this experiment; applying them "
+                                   "analyses it again (one undo step)"),
     _tool("select", "&Select", "S", "Click a spherulite to select it"),
     _tool("add", "&Add nucleus", "N", "Click where a nucleus was missed"),
     _tool("delete", "&Delete detection", "D", "Click a false detection (dust, bubble) to remove it"),
@@ -98,6 +101,16 @@ def build_actions(window: Any) -> dict[str, QAction]:
             action.triggered.connect(lambda _checked=False, h=handler, a=arguments: h(*a))
         actions[spec.id] = action
     return actions
+
+
+def shortcut_rows(actions: dict[str, QAction]) -> list[tuple[str, str]]:
+    """(key sequence as shown on this platform, what it does) for every action with a key."""
+    rows = []
+    for spec in ACTIONS:
+        keys = actions[spec.id].shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+        if keys:
+            rows.append((keys, spec.tip or spec.text.replace("&", "").rstrip("…")))
+    return rows
 
 
 def populate_menus(window: Any, actions: dict[str, QAction]) -> dict[str, Any]:

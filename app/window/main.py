@@ -94,7 +94,7 @@ def _render(app: Any, window: Any, project: str | None, out: str, view: str | No
     if len(window.optional_views) != len(PAGE_VIEWS):  # already logged with its traceback
         print(f"spherokin gui: internal error: {window.problems_shown[-1]}", file=sys.stderr)
         return 1
-    if project and not window.open_project_path(project, ask=False):
+    if project and not window.open_project_path(project, ask=False, read_only=True):
         print(window.problems_shown[-1], file=sys.stderr)
         return 2
     if view and not window.show_view(view):

@@ -41,6 +41,7 @@ from app.microscopy.frame_range_dialog import FrameRangeDialog
 from app.microscopy.plots_panel import PlotsPanel
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
+from app.widgets.help_guide import register_shortcuts
 from app.window import actions as act
 from app.window.files import WindowFilesMixin
 from app.window.views import build_views
@@ -92,12 +93,13 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_docks()
         self.tools = ToolController(self.model, self.viewer, self)
         self.actions_by_id = act.build_actions(self)
+        register_shortcuts(act.shortcut_rows(self.actions_by_id))  # listed in Help
         self.menus = act.populate_menus(self, self.actions_by_id)
         self.toolbars = act.populate_toolbars(self, self.actions_by_id)
         self._build_status_bar()
         self._add_view_menus()
         self.experiments_panel.setContextMenuPolicy(Qt.ActionsContextMenu)
-        for key in ("run", "properties", "calibrate", "remove_experiment"):
+        for key in ("run", "properties", "analysis_settings", "calibrate", "remove_experiment"):
             self.experiments_panel.addAction(self.actions_by_id[key])
         self.build_recent_menu()
         self._connect()
@@ -285,7 +287,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _refresh_actions(self) -> None:
         has_experiment = self.model.current_index >= 0
-        for key in ("properties", "calibrate", "remove_experiment", "run", "ignore_frames"):
+        for key in ("properties", "analysis_settings", "calibrate", "remove_experiment", "run",
+                    "ignore_frames"):
             self.actions_by_id[key].setEnabled(has_experiment)
         self.actions_by_id["run_all"].setEnabled(self.model.experiment_count() > 0)
         self.actions_by_id["cancel"].setEnabled(self.runner.is_busy())
@@ -412,6 +415,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.runner.wait(10.0)
         self.save_layout()
         self.autosaver.discard()
+        self.hold_project_lock(None)
         event.accept()
 
 

@@ -33,7 +33,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
         rows = list(csv.reader(fh))
     assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                        "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                       "status", "source"]
+                       "status", "source", "reason"]
     assert len(rows) == 1 + len(result.spherulites)
     assert float(rows[1][3]) == pytest.approx(float(rows[1][1]) * 1.25)
     with open(tmp_path / "radii.csv", newline="") as fh:
@@ -41,10 +41,13 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
     assert radii[0] == ["id", "time_s", "radius_um", "free_fraction"] and len(radii) > 10
     summary = json.loads((tmp_path / "summary.json").read_text())
     assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
-                             "thickness_um", "growth_rate_um_per_min", "nucleation", "area_fraction",
-                             "avrami_film", "avrami_predicted"]
-    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n"]
-    assert list(summary["nucleation"]) == ["count", "mode", "density_per_mm2", "density_per_mm3",
+                             "thickness_um", "spherulites_detected", "growth_rate_um_per_min",
+                             "nucleation", "area_fraction", "avrami_film", "avrami_predicted"]
+    assert summary["schema"] == 2
+    assert summary["spherulites_detected"] == len(result.spherulites)
+    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high",
+                                                       "spherulites_in_pooled_g"]
+    assert list(summary["nucleation"]) == ["nuclei_counted", "mode", "density_per_mm2", "density_per_mm3",
                                            "rate_per_mm2_per_min", "rate_per_mm3_per_min",
                                            "induction_time_s"]
     assert list(summary["avrami_film"]) == ["n", "k_per_min_n", "t_half_min"]
@@ -55,12 +58,12 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
 
 
 def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
-    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x")
+    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1+2")
     export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path,
                                   geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
-    assert row[-2:] == ["'=cmd()", "'@x"]
+    assert row[-3:] == ["'=cmd()", "'@x", "'-1+2"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):

@@ -7,6 +7,7 @@ import json
 import pytest
 from fake_pipeline import FakeEngine
 
+from analysis.errors import InputError
 from analysis.edits import (
     AddNucleus,
     DeleteDetection,
@@ -15,7 +16,6 @@ from analysis.edits import (
     MergeDetections,
     MoveCentre,
 )
-from analysis.errors import InputError
 from analysis.progress import run_to_completion
 from app.core import model as m
 
@@ -108,7 +108,7 @@ def test_save_is_clean_and_reopens_with_edits(shared, tmp_path):
 
 def test_failed_save_keeps_work_and_dirty_state(shared, tmp_path):
     shared.push_edit(0, AddNucleus(10.0, 12.0))
-    with pytest.raises(InputError, match="folder does not exist"):
+    with pytest.raises(InputError, match="p.spherokin.json: the folder does not exist"):
         shared.save(str(tmp_path / "no such folder" / "p.spherokin.json"))
     assert shared.is_dirty()
     assert shared.experiment(0).edits == (AddNucleus(10.0, 12.0),)
