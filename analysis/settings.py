@@ -426,11 +426,12 @@ def check_hoffman_weeks_pairs(value: Any, place: Place) -> list[list[float]]:
     if not isinstance(value, list) or len(value) > 10_000:
         raise place.error(HW_PAIRS_KEY, f"must be a list of [Tc, Tm] pairs, got {_shown(value)}")
     pairs = []
-    for pair in value:
+    for number, pair in enumerate(value, start=1):
+        entry = f"{HW_PAIRS_KEY} entry {number}"
         if not isinstance(pair, (list, tuple)) or len(pair) != 2:
-            raise place.error(HW_PAIRS_KEY, f"must hold [Tc, Tm] pairs, got {_shown(pair)}")
-        tc, tm = (parse_value(HW_TEMPERATURE_SPEC, v, place) for v in pair)
-        pairs.append([tc, tm])
+            raise place.error(entry, f"must be a [Tc, Tm] pair, got {_shown(pair)}")
+        spec = dataclasses.replace(HW_TEMPERATURE_SPEC, key=entry)
+        pairs.append([parse_value(spec, v, place) for v in pair])
     return pairs
 
 

@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QLabel,
     QMenu,
+    QPushButton,
     QSizePolicy,
     QSlider,
     QToolButton,
@@ -62,6 +63,7 @@ class StackViewer(QWidget):
 
     frame_changed = Signal(int)
     image_clicked = Signal(float, float)  # x_px (column), y_px (row) on frame 0's grid
+    locate_requested = Signal()  # the stack file is missing: the user wants to point to it
 
     def __init__(self, model: "m.ProjectModel", parent: QWidget | None = None):
         super().__init__(parent)
@@ -93,10 +95,18 @@ class StackViewer(QWidget):
         self._banner.setWordWrap(True)
         self._banner.setStyleSheet("background:#5a4300; color:#ffe9a8; padding:4px;")
         self._banner.hide()
+        self.locate_button = QPushButton("Locate file…")
+        self.locate_button.setObjectName("locate_stack")
+        self.locate_button.setToolTip("Point to the stack file where it is now (one undo step)")
+        self.locate_button.clicked.connect(self.locate_requested)
+        self.locate_button.hide()
+        banner = QHBoxLayout()
+        banner.addWidget(self._banner, 1)
+        banner.addWidget(self.locate_button)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.setSpacing(2)
-        layout.addWidget(self._banner)
+        layout.addLayout(banner)
         layout.addLayout(self._build_display_row())
         layout.addWidget(status_legend())
         layout.addWidget(self._graphics, 1)
@@ -181,6 +191,7 @@ class StackViewer(QWidget):
         self._index, self._cache, self._times_s, self._um_per_px = index, None, None, None
         self.image_item.clear()
         problems = []
+        self.locate_button.hide()
         if index >= 0:
             problems = self._open_stack(index)
         self._show_problems(problems)
@@ -252,6 +263,7 @@ class StackViewer(QWidget):
         try:
             stack = self._model.frame_stack(index)
         except Exception as exc:  # listed on the page; a bug is logged as one
+            self.locate_button.show()
             return [f"Cannot read the stack of {experiment.name}: {failure_line(exc, 'reading frames')}"]
         self._cache = FrameCache(stack)
         self._cache.set_grey(self.grey_box.isChecked())

@@ -27,8 +27,9 @@ from analysis.results import COUNTS
 #: Display names for the table's columns (the files keep the snake_case names).
 DISPLAY_NAMES = {
     "experiment": "experiment", "temperature_c": "Tc (°C)", "growth_rate_um_per_min": "G (µm/min)",
-    "growth_rate_ci95_low_um_per_min": "G 95 % low (µm/min)",
-    "growth_rate_ci95_high_um_per_min": "G 95 % high (µm/min)", **{key: label for key, (label, _what) in COUNTS.items()},
+    "growth_rate_ci95_low_um_per_min": "G 95 % CI low (µm/min)",
+    "growth_rate_ci95_high_um_per_min": "G 95 % CI high (µm/min)",
+    **{key: label for key, (label, _what) in COUNTS.items()},
     "nucleation_mode": "mode", "nucleus_density_per_mm2": "N_A (mm⁻²)",
     "nucleus_density_per_mm3": "N_V (mm⁻³)", "nucleation_rate_per_mm2_per_min": "Ṅ_A (mm⁻² min⁻¹)",
     "nucleation_rate_per_mm3_per_min": "Ṅ_V (mm⁻³ min⁻¹)", "predicted_geometry": "geometry",

@@ -59,8 +59,8 @@ class TemperaturePlots(QtWidgets.QWidget):
         grid.addWidget(titled_plot(self, "Growth rate against Tc", self.growth, "growth_vs_tc"), 0, 0)
         grid.addWidget(titled_plot(self, "Nucleation density against Tc", self.density, "density_vs_tc"), 0, 1)
         grid.addWidget(titled_plot(self, "Half-time against Tc", self.half_time, "half_time_vs_tc"), 1, 0)
-        grid.addWidget(titled_plot(self, "Lauritzen-Hoffman plot (regimes shaded)", self.lh,
-                               "lauritzen_hoffman"), 1, 1)
+        grid.addWidget(titled_plot(self, "Lauritzen-Hoffman plot", self.lh, "lauritzen_hoffman",
+                                   "Lauritzen-Hoffman plot (regimes shaded)"), 1, 1)
 
     def show_growth(self, tc, g, ci95) -> None:
         tc, g, ci = _finite(tc, g, np.where(np.isfinite(np.asarray(ci95, float)), ci95, 0.0))

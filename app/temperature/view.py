@@ -102,17 +102,23 @@ class TemperatureView(LazyPage):
             lambda ok, detail: self.report_status.setText(("Report: " if ok else "Report not written: ") + detail))
 
     def _make_actions(self) -> list:
-        table = [
-            ("Copy table", self.table.copy_to_clipboard, "Copy the table as tab-separated text"),
-            ("Export CSV…", lambda: self.export_table("csv"), "Save the table as CSV (units in headers)"),
-            ("Export XLSX…", lambda: self.export_table("xlsx"), "Save the table as an Excel workbook"),
-            ("Write report…", self.write_report, "Tables, fits and figures for every experiment"),
-            ("Export all figures…", self.export_figures, "Every plot of this page as PNG and SVG"),
-            ("Help and safety", lambda: show_help("lauritzen_hoffman"), "What each number means"),
+        table = [  # menu text, toolbar label (short enough for a 1280-pixel window), handler, tip
+            ("Copy table", "Copy", self.table.copy_to_clipboard, "Copy the table as tab-separated text"),
+            ("Export CSV…", "CSV…", lambda: self.export_table("csv"),
+             "Save the table as CSV (units in headers)"),
+            ("Export XLSX…", "XLSX…", lambda: self.export_table("xlsx"),
+             "Save the table as an Excel workbook"),
+            ("Write report…", "Report…", self.write_report,
+             "Tables, fits and figures for every experiment"),
+            ("Export all figures…", "Figures…", self.export_figures,
+             "Every plot of this page as PNG and SVG"),
+            ("Help and safety", "Help", lambda: show_help("lauritzen_hoffman"),
+             "What each number means"),
         ]
         actions = []
-        for text, handler, tip in table:
+        for text, short, handler, tip in table:
             action = QtGui.QAction(text, self)
+            action.setIconText(short)
             action.setToolTip(tip)
             action.triggered.connect(lambda _checked=False, h=handler: h())
             actions.append(action)

@@ -294,6 +294,25 @@ class WindowFilesMixin:
         box.exec()
         return {from_file: "file", from_frame: "frame"}.get(box.clickedButton())
 
+    def locate_stack(self) -> None:
+        """Point the current experiment to its stack where it is now (one undo step)."""
+        index = self.model.current_index
+        if index < 0:
+            return
+        experiment = self.model.experiment(index)
+        missing = Path(experiment.stack_path)
+        start = str(missing.parent if missing.parent.is_dir() else self._last_folder())
+        if missing.suffix:
+            path, _ = QFileDialog.getOpenFileName(self, f"Where is {missing.name} now?", start,
+                                                  STACK_FILTER)
+        else:  # a folder of frames
+            path = QFileDialog.getExistingDirectory(self, f"Where is the folder {missing.name} now?",
+                                                    start)
+        if path:
+            self.model.set_experiment_properties(
+                index, text=f"Locate the stack of {experiment.name}",
+                stack_path=str(Path(path).resolve()))
+
     def _calibration_image(self, path: str, index: int):
         if path:
             from analysis.stack.frames import open_stack

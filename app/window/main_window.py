@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
     QScrollArea,
     QSplitter,
     QStackedWidget,
+    QTabWidget,
     QUndoView,
     QWidget,
 )
@@ -42,7 +43,9 @@ from app.microscopy.plots_panel import PlotsPanel
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
 from app.widgets.help_guide import register_shortcuts
+from app.microscopy.spherulite_table import SpherulitesTable
 from app.window import actions as act
+from app.window import layout
 from app.window.files import WindowFilesMixin
 from app.window.views import build_views
 
@@ -105,7 +108,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._connect()
         self.actions_by_id["tool_select"].setChecked(True)
         self.setAcceptDrops(True)
-        self.resize(1600, 1000)
+        layout.fit_to_screen(self)
         if remember_layout:
             self._restore_layout()
         self._refresh_title()
@@ -120,13 +123,19 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.viewer_splitter.addWidget(self.viewer)
         self.viewer_splitter.addWidget(self.plots)
         self.viewer_splitter.setSizes([1000, 520])
+        self.wide_table = SpherulitesTable(self.model, follow_model=True)
+        self.microscopy_tabs = QTabWidget()
+        self.microscopy_tabs.setObjectName("microscopyTabs")
+        self.microscopy_tabs.setDocumentMode(True)
+        self.microscopy_tabs.addTab(self.viewer_splitter, "Image")
+        self.microscopy_tabs.addTab(self.wide_table, "Spherulites table")
         self.rail = QListWidget()
         self.rail.setObjectName("viewRail")
         self.rail.setStyleSheet(RAIL_STYLE)
         self.rail.setFixedWidth(104)
         self.pages = QStackedWidget()
         self.view_names: list[str] = []
-        self._add_page("viewer", "Microscopy", self.viewer_splitter,
+        self._add_page("viewer", "Microscopy", self.microscopy_tabs,
                        "Frames of the current experiment with the detections")
         self.optional_views = build_views(self.model, self.show_error)
         for spec, widget in self.optional_views:
@@ -174,8 +183,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         first_show = not self._docks_sized
         self._docks_sized = True
         if first_show and not (self.remember_layout and self.settings.value("window/state")):
-            self.resizeDocks([self.docks["experiments"], self.docks["details"]], [400, 330],
-                             Qt.Horizontal)
+            self.resizeDocks([self.docks["experiments"], self.docks["details"]],
+                             layout.dock_widths(self), Qt.Horizontal)
         if not first_show:
             return
         splitter = self.settings.value("window/viewer_splitter") if self.remember_layout else None
@@ -183,7 +192,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
             self.viewer_splitter.restoreState(splitter)
         else:
             total = max(600, self.viewer_splitter.width())
-            self.viewer_splitter.setSizes([int(total * 0.6), int(total * 0.4)])
+            share = layout.IMAGE_SHARE
+            self.viewer_splitter.setSizes([int(total * share), int(total * (1 - share))])
 
     def _build_status_bar(self) -> None:
         bar = self.statusBar()
@@ -230,6 +240,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.experiments_panel.properties_requested.connect(self.edit_properties_of)
         self.viewer.frame_changed.connect(lambda _f: self.plots.set_time(self.viewer.time_from_start_s()))
         self.tools.hint_changed.connect(self.hint_label.setText)
+        self.viewer.locate_requested.connect(self.locate_stack)
         self.runner.progressed.connect(self._on_progress)
         self.runner.busy_changed.connect(self._on_busy_changed)
         self.runner.experiment_errored.connect(
@@ -255,6 +266,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _on_rail_changed(self, row: int) -> None:
         self._show_microscopy_docks(row == 0)
+        if hasattr(self, "toolbars"):
+            layout.show_page_tools(self, row == 0)
         self.pages.setCurrentIndex(row)
         page = self.pages.widget(row)
         page = page.widget() if isinstance(page, QScrollArea) else page
@@ -391,6 +404,14 @@ class MainWindow(WindowFilesMixin, QMainWindow):
                           f"<p><b>Caution.</b> {CAUTION}</p>")
 
     # ---------------------------------------------------------------- layout and closing
+    def reset_layout(self) -> None:
+        layout.reset_layout(self)
+
+    def show_spherulite_table(self) -> None:
+        """The spherulites table as a wide tab beside the image."""
+        self.show_view(self.view_names[0])
+        self.microscopy_tabs.setCurrentWidget(self.wide_table)
+
     def _restore_layout(self) -> None:
         geometry = self.settings.value("window/geometry")
         state = self.settings.value("window/state")

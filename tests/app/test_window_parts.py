@@ -29,7 +29,7 @@ from app.window.stack_import import experiments_from_paths, temperature_from_nam
 
 
 @pytest.fixture
-def window(qtbot, tmp_path, monkeypatch, small_project):
+def window(qtbot, tmp_path, small_project):
     settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
     win = MainWindow(m.ProjectModel(engine=FakeEngine()), settings=settings,
                      recovery_dir=str(tmp_path / "recovery"))
