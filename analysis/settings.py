@@ -44,12 +44,12 @@ CHANNEL_MODES = ("auto", "grey", "colour")
 REGISTRATION_MODES = ("auto", "on", "off")
 EXOTHERM_DIRECTIONS = ("auto", "up", "down")
 #: Conversion window of an Avrami fit, fractions of the final conversion: the early,
-#: impingement-light part of the isotherm (Lorenzo et al. 2007, Polymer Testing 26, 222;
-#: docs/sources.md §4.2).
+#: impingement-light part of the isotherm (Lorenzo, Arnal, Albuquerque & Müller 2007,
+#: Polymer Testing 26, 222 — from memory; docs/sources.md §4.2).
 DEFAULT_FIT_WINDOW = (0.03, 0.20)
 #: Transport activation energy of the "universal" constant set: 1500 cal/mol, usually
-#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970, Polymer J. 1, 82;
-#: Hoffman, Davis & Lauritzen 1976; docs/sources.md §2.2).
+#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970; Hoffman, Davis &
+#: Lauritzen 1976 — from memory; docs/sources.md §2.2).
 DEFAULT_U_STAR_J_PER_MOL = 6270.0
 T_INF_BELOW_TG_K = 30.0
 
