@@ -111,7 +111,9 @@ def test_a_bad_value_is_one_line_naming_file_experiment_and_key(tmp_path, change
     (lambda d: d["series"].update(u_star_j_per_mol=1e300), "series.u_star_j_per_mol", "1e+300"),
     (lambda d: d["series"].update(tg_c=200.0), "series.tg_c", "below tm0_c"),
     (lambda d: d["series"].update(t_inf_c=0.0), "series.t_inf_c", "below tg_c"),
-    (lambda d: d["series"].update(hoffman_weeks_pairs=[[124.0]]), "series.hoffman_weeks_pairs", "[124.0]"),
+    (lambda d: d["series"].update(hoffman_weeks_pairs=[[124.0, 160.0], [124.0]]),
+     "series.hoffman_weeks_pairs entry 2", "[124.0]"),
+    (lambda d: d["series"].update(hoffman_weeks_pairs=[["x", 160.0]]), "series.hoffman_weeks_pairs entry 1", "'x'"),
     (lambda d: d.update(material=3), "material", "int"),
 ])
 def test_a_bad_series_value_names_file_and_key(tmp_path, change, key, shown):
