@@ -33,9 +33,10 @@ from analysis.outputs import clean_text
 from analysis.reporting.tables import ReportEntry
 from analysis.settings import DEFAULT_STAGE_UNCERTAINTY_K
 
-__all__ = ["SeriesFit", "calorimetry_source", "experiment_calorimetry", "experiment_entry",
-           "lauritzen_hoffman_inputs", "lauritzen_hoffman_series", "material_for", "report_entry",
-           "series_constants", "stage_uncertainties"]
+__all__ = ["RAMP_POINT_STEP_K", "SeriesFit", "calorimetry_source", "experiment_calorimetry",
+           "experiment_entry", "lauritzen_hoffman_inputs", "lauritzen_hoffman_series",
+           "lauritzen_hoffman_sources", "material_for", "report_entry", "series_constants",
+           "stage_uncertainties"]
 
 
 def _analyze_source(source, seed: int = DEFAULT_SEED):
@@ -76,7 +77,7 @@ def experiment_calorimetry(experiment, project_material: str | None, analyze=Non
 
 
 def experiment_entry(experiment, result, calorimetry=None,
-                     calorimetry_problem: str | None = None, *,
+                     calorimetry_problem: str | None = None, ramp=None, *,
                      stage_uncertainty_k: float | None = None,
                      seed: int = DEFAULT_SEED) -> ReportEntry:
     """The entry of an analysed experiment: its name (control characters removed), result,
@@ -89,7 +90,7 @@ def experiment_entry(experiment, result, calorimetry=None,
                                is not None else DEFAULT_STAGE_UNCERTAINTY_K)
     return ReportEntry(clean_text(experiment.name), result, experiment.geometry, experiment.mode_override,
                        calorimetry, calorimetry_problem, temperature_c=experiment.temperature_c,
-                       thickness_um=experiment.thickness_um,
+                       thickness_um=experiment.thickness_um, ramp=ramp,
                        stage_uncertainty_k=float(stage_uncertainty_k), seed=seed)
 
 
@@ -130,23 +131,50 @@ def series_constants(series: dict | None, material: str | None, path=None) -> tu
     return LHConstants(float(tm0), float(tg), **optional), note
 
 
-def lauritzen_hoffman_inputs(entries) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
-    """Tc (°C), pooled G (µm/min) and its 95 % half-width of the entries that have both a
-    temperature and a positive G; the half-widths are None unless every one is known and
-    positive (the fit is then weighted by them)."""
-    usable = [e for e in entries if e.temperature_c is not None and e.result.growth_rate.value]
-    tc = np.array([e.temperature_c for e in usable], dtype=float)
-    g = np.array([e.result.growth_rate.value for e in usable], dtype=float)
-    half = [e.growth_rate_ci95_half_width for e in usable]
+#: Spacing of the points a ramp's smooth G(T) gives the Tc-series fit, K.
+RAMP_POINT_STEP_K = 2.0
+
+
+def _lh_rows(entries, include_ramps: bool) -> list[tuple]:
+    """(Tc, G, half-width or None, source, u_T in K) of every point the Tc-series fit takes."""
+    from analysis.kinetics.ramp import ramp_points
+
+    rows = [(e.temperature_c, e.result.growth_rate.value, e.growth_rate_ci95_half_width, "isothermal",
+             getattr(e, "stage_uncertainty_k", DEFAULT_STAGE_UNCERTAINTY_K))
+            for e in entries if e.ramp is None and e.temperature_c is not None and e.result.growth_rate.value]
+    for e in entries:
+        if include_ramps and e.ramp is not None and e.ramp.growth:
+            rows += [(float(t), float(g), float(h), f"ramp: {e.name}",
+                      getattr(e, "stage_uncertainty_k", DEFAULT_STAGE_UNCERTAINTY_K))
+                     for t, g, h in zip(*ramp_points(e.ramp.growth, step_k=RAMP_POINT_STEP_K))]
+    return rows
+
+
+def lauritzen_hoffman_inputs(entries, *, include_ramps: bool = False
+                             ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """Tc (°C), pooled G (µm/min) and its 95 % half-width of the isothermal entries that have
+    both a temperature and a positive G; the half-widths are None unless every one is known
+    and positive (the fit is then weighted by them). With ``include_ramps`` every ramp
+    entry's smooth G(T) adds a point every RAMP_POINT_STEP_K kelvin (its band's half-width);
+    those points are not independent of each other (one smooth curve)."""
+    rows = _lh_rows(entries, include_ramps)
+    tc = np.array([r[0] for r in rows], dtype=float)
+    g = np.array([r[1] for r in rows], dtype=float)
+    half = [r[2] for r in rows]
     ci = None if any(h is None or h <= 0 for h in half) else np.array(half, dtype=float)
     return tc, g, ci
 
 
-def stage_uncertainties(entries) -> np.ndarray:
-    """Stage-temperature uncertainty u_T (K) of the entries :func:`lauritzen_hoffman_inputs`
-    keeps, in the same order."""
-    usable = [e for e in entries if e.temperature_c is not None and e.result.growth_rate.value]
-    return np.array([e.stage_uncertainty_k for e in usable], dtype=float)
+def lauritzen_hoffman_sources(entries, *, include_ramps: bool = False) -> list[str]:
+    """Where each point of :func:`lauritzen_hoffman_inputs` comes from ("isothermal" or
+    "ramp: <experiment>"), in the same order."""
+    return [r[3] for r in _lh_rows(entries, include_ramps)]
+
+
+def stage_uncertainties(entries, *, include_ramps: bool = False) -> np.ndarray:
+    """Stage-temperature uncertainty u_T (K) of each point of :func:`lauritzen_hoffman_inputs`,
+    in the same order (a ramp's points take their experiment's)."""
+    return np.array([r[4] for r in _lh_rows(entries, include_ramps)], dtype=float)
 
 
 @dataclass(frozen=True)
@@ -158,6 +186,7 @@ class SeriesFit:
 
 
 def lauritzen_hoffman_series(entries, constants, material=None, *, seed: int = DEFAULT_SEED,
+                             include_ramps: bool = False,
                              problems: list | None = None) -> SeriesFit | None:
     """The LH fit of a series with its intervals: weighted by G's CI with the
     stage-temperature part (lh_intervals.fit_with_temperature), intervals on Kg, G0,
@@ -167,8 +196,8 @@ def lauritzen_hoffman_series(entries, constants, material=None, *, seed: int = D
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci = lauritzen_hoffman_inputs(entries)
-    u_t = stage_uncertainties(entries)
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include_ramps)
+    u_t = stage_uncertainties(entries, include_ramps=include_ramps)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None

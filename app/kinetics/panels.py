@@ -45,7 +45,7 @@ class PredictionPanel(FormPanel):
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
         ("density_used", "N in the prediction", "density_used"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
-        ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("growth_rate", "Growth rate G", "growth_rate"),
         ("spherulites_in_pooled_g", COUNTS["spherulites_in_pooled_g"][0], "spherulites_in_pooled_g"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),

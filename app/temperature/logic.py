@@ -17,7 +17,13 @@ from analysis.kinetics.lauritzen_hoffman import (
     lh_coordinates,
     lh_growth_rate,
 )
-from analysis.reporting.entries import lauritzen_hoffman_inputs, series_constants, stage_uncertainties
+from analysis.reporting.entries import (
+    lauritzen_hoffman_inputs,
+    lauritzen_hoffman_sources,
+    series_constants,
+    stage_uncertainties,
+)
+from analysis.reporting.report import RAMPS_IN_LH_KEY
 from app.temperature.lauritzen_hoffman import HW_KEY
 
 
@@ -59,16 +65,19 @@ def column(points, name: str) -> np.ndarray:
 
 def lh_fit(entries, series: dict, material: str | None):
     """(the Lauritzen-Hoffman fit over the entries with a Tc and a growth rate, where the
-    constants came from) with the constants, inputs and weights the report uses
-    (``analysis.reporting.entries``: G's CI with the stage-temperature part);
+    constants came from, the source of each point) with the constants, inputs and weights
+    the report uses (``analysis.reporting.entries``: G's CI with the stage-temperature part;
+    ramp entries add their G(T) when the series flag ``lh_include_ramps`` is set);
     InputError when Tm0 or Tg is unknown."""
     constants, note = series_constants(series, material)
     if constants is None:
         raise InputError(note)
-    tc, g, ci = lauritzen_hoffman_inputs(entries)
-    fit = fit_with_temperature(tc, g, ci, stage_uncertainties(entries), constants=constants,
-                               material=material)
-    return fit, note
+    include = bool(series.get(RAMPS_IN_LH_KEY, False))
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include)
+    sources = lauritzen_hoffman_sources(entries, include_ramps=include)
+    fit = fit_with_temperature(tc, g, ci, stage_uncertainties(entries, include_ramps=include),
+                               constants=constants, material=material)
+    return fit, note, sources
 
 
 def lh_display(fit, points: int = 60):
