@@ -22,3 +22,11 @@ def test_uncertainty_is_the_95_ci_half_width_and_shares_the_power_of_ten():
 def test_avrami_k_states_its_n():
     assert fmt(4.6e-5, k_unit(3.0)) == "4.6 × 10⁻⁵ min⁻ⁿ, n = 3.00"
     assert k_unit(None) == DASH
+
+
+def test_logarithmic_axes_use_the_same_rule(qapp):
+    from app.widgets.plotting import DecadeAxis
+
+    axis = DecadeAxis("left")
+    assert axis.logTickStrings([0.0, 1.30103, 1.5, 4.69897, -3.69897], 1.0, 1.0) == [
+        "1", "20", "", "5 × 10⁴", "2 × 10⁻⁴"]
