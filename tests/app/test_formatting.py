@@ -9,6 +9,7 @@ def test_numbers_and_powers_of_ten():
     assert fmt(32.14, "µm/min") == "32.1 µm/min"
     assert fmt(4.6e5, "mm⁻²") == "4.6 × 10⁵ mm⁻²"
     assert fmt(4.6e-5) == "4.6 × 10⁻⁵"
+    assert fmt(5000.0, digits=2) == "5000" and fmt(0.00215) == "0.00215"
     assert fmt(None, "s") == DASH and fmt(float("nan")) == DASH
 
 
@@ -28,5 +29,5 @@ def test_logarithmic_axes_use_the_same_rule(qapp):
     from app.widgets.plotting import DecadeAxis
 
     axis = DecadeAxis("left")
-    assert axis.logTickStrings([0.0, 1.30103, 1.5, 4.69897, -3.69897], 1.0, 1.0) == [
-        "1", "20", "", "5 × 10⁴", "2 × 10⁻⁴"]
+    assert axis.logTickStrings([0.0, 1.30103, 1.5, 3.69897, 4.69897, -3.69897], 1.0, 1.0) == [
+        "1", "20", "", "5000", "5 × 10⁴", "2 × 10⁻⁴"]
