@@ -56,8 +56,6 @@ def fmt(value, unit: str = "", digits: int = 3) -> str:
         text = f"{value / 10 ** exponent:.{digits}g} × {power_of_ten(exponent)}"
     else:
         text = f"{value:.{digits}g}"
-        if "e" in text:  # e.g. 5000 at two digits: the rounded number, written plainly
-            text = f"{float(text):.0f}"
     return f"{text} {unit}".strip()
 
 

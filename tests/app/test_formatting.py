@@ -9,7 +9,7 @@ def test_numbers_and_powers_of_ten():
     assert fmt(32.14, "µm/min") == "32.1 µm/min"
     assert fmt(4.6e5, "mm⁻²") == "4.6 × 10⁵ mm⁻²"
     assert fmt(4.6e-5) == "4.6 × 10⁻⁵"
-    assert fmt(5000.0, digits=2) == "5000" and fmt(0.00215) == "0.00215"
+    assert fmt(5000.0, digits=2) == "5 × 10³" and fmt(0.00215) == "0.00215"
     assert fmt(None, "s") == DASH and fmt(float("nan")) == DASH
     # below 10⁴ but more digits than three figures can show plainly: never "4.58e+03"
     assert fmt(4580.0, "mm⁻³") == "4.58 × 10³ mm⁻³" and fmt(999.4) == "999"
@@ -32,4 +32,4 @@ def test_logarithmic_axes_use_the_same_rule(qapp):
 
     axis = DecadeAxis("left")
     assert axis.logTickStrings([0.0, 1.30103, 1.5, 3.69897, 4.69897, -3.69897], 1.0, 1.0) == [
-        "1", "20", "", "5000", "5 × 10⁴", "2 × 10⁻⁴"]
+        "1", "20", "", "5 × 10³", "5 × 10⁴", "2 × 10⁻⁴"]
