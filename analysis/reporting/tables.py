@@ -67,6 +67,8 @@ class ReportEntry:
     thickness_um: float | None = None
 
     def __post_init__(self):
+        if self.result is None:  # an entry not analysed yet: nothing to take from a result
+            return
         if self.temperature_c is None:
             object.__setattr__(self, "temperature_c", self.result.temperature_c)
         if not self.thickness_um:
