@@ -65,6 +65,7 @@ class ReportEntry:
     calorimetry_problem: str | None = None
     temperature_c: float | None = None
     thickness_um: float | None = None
+    ramp: object | None = None  # kinetics.ramp.RampAnalysis for an experiment of kind "ramp"
 
     def __post_init__(self):
         if self.result is None:  # an entry not analysed yet: nothing to take from a result
