@@ -46,12 +46,12 @@ CHANNEL_MODES = ("auto", "grey", "colour")
 REGISTRATION_MODES = ("auto", "on", "off")
 EXOTHERM_DIRECTIONS = ("auto", "up", "down")
 #: Conversion window of an Avrami fit, fractions of the final conversion: the early,
-#: impingement-light part of the isotherm (Lorenzo et al. 2007, Polymer Testing 26, 222;
-#: docs/sources.md §4.2).
+#: impingement-light part of the isotherm (Lorenzo, Arnal, Albuquerque & Müller 2007,
+#: Polymer Testing 26, 222 — from memory; docs/sources.md §4.2).
 DEFAULT_FIT_WINDOW = (0.03, 0.20)
 #: Transport activation energy of the "universal" constant set: 1500 cal/mol, usually
-#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970, Polymer J. 1, 82;
-#: Hoffman, Davis & Lauritzen 1976; docs/sources.md §2.2).
+#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970; Hoffman, Davis &
+#: Lauritzen 1976 — from memory; docs/sources.md §2.2).
 DEFAULT_U_STAR_J_PER_MOL = 6270.0
 T_INF_BELOW_TG_K = 30.0
 
@@ -446,11 +446,12 @@ def check_hoffman_weeks_pairs(value: Any, place: Place) -> list[list[float]]:
     if not isinstance(value, list) or len(value) > 10_000:
         raise place.error(HW_PAIRS_KEY, f"must be a list of [Tc, Tm] pairs, got {_shown(value)}")
     pairs = []
-    for pair in value:
+    for number, pair in enumerate(value, start=1):
+        entry = f"{HW_PAIRS_KEY} entry {number}"
         if not isinstance(pair, (list, tuple)) or len(pair) != 2:
-            raise place.error(HW_PAIRS_KEY, f"must hold [Tc, Tm] pairs, got {_shown(pair)}")
-        tc, tm = (parse_value(HW_TEMPERATURE_SPEC, v, place) for v in pair)
-        pairs.append([tc, tm])
+            raise place.error(entry, f"must be a [Tc, Tm] pair, got {_shown(pair)}")
+        spec = dataclasses.replace(HW_TEMPERATURE_SPEC, key=entry)
+        pairs.append([parse_value(spec, v, place) for v in pair])
     return pairs
 
 

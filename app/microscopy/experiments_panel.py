@@ -43,10 +43,7 @@ def format_growth_rate(result: Any) -> str:
     """'12.4 ± 0.8 (95 % CI)' or '—' when there is no pooled G (the column names the unit)."""
     if result is None or result.growth_rate.value is None:
         return DASH
-    rate = result.growth_rate
-    half = None if rate.ci95_low is None or rate.ci95_high is None else \
-        (rate.ci95_high - rate.ci95_low) / 2.0
-    return fmt_pm(rate.value, half)
+    return fmt_pm(result.growth_rate.value, result.growth_rate.ci95_half_width)
 
 
 def row_values(model: "m.ProjectModel", index: int) -> tuple[str, ...]:

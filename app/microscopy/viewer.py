@@ -29,7 +29,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from analysis.errors import InputError
 from app.core import model as m
+from app.core.errors import failure_line
 from app.core.ramp_inputs import RAMPS
 from app.microscopy.annotations import ViewAnnotations, format_clock
 from app.microscopy.frame_cache import FrameCache, auto_levels
@@ -284,9 +286,9 @@ class StackViewer(QWidget):
         experiment = self._model.experiment(index)
         try:
             stack = self._model.frame_stack(index)
-        except Exception as exc:
+        except Exception as exc:  # listed on the page; a bug is logged as one
             self.locate_button.show()
-            return [f"Cannot read the stack of {experiment.name}: {exc}"]
+            return [f"Cannot read the stack of {experiment.name}: {failure_line(exc, 'reading frames')}"]
         self._cache = FrameCache(stack)
         self._cache.set_grey(self.grey_box.isChecked())
         self._times_s = None if stack.times_s is None else np.asarray(stack.times_s, float)
@@ -411,7 +413,7 @@ class StackViewer(QWidget):
             return
         try:
             same_stack = self._cache is not None and self._model.frame_stack(index) is self._cache.stack
-        except Exception:
+        except InputError:  # an unreadable stack is reported when the frames load
             same_stack = False
         if same_stack:
             return

@@ -38,11 +38,20 @@ def _exponent(value: float) -> int:
     return int(math.floor(math.log10(magnitude)))
 
 
+def _exponent_for(value: float, digits: int) -> int:
+    """:func:`_exponent`, or the value's own power of ten when ``digits`` significant figures
+    cannot be written plainly (4580 to three figures is 4.58 × 10³, never "4.58e+03")."""
+    exponent = _exponent(value)
+    if not exponent and "e" in f"{value:.{digits}g}":
+        exponent = int(math.floor(math.log10(abs(value))))
+    return exponent
+
+
 def fmt(value, unit: str = "", digits: int = 3) -> str:
     """A number with ``digits`` significant figures and its unit; a dash when unknown."""
     if not _known(value):
         return DASH
-    exponent = _exponent(float(value))
+    exponent = _exponent_for(float(value), digits)
     if exponent:
         text = f"{value / 10 ** exponent:.{digits}g} × {power_of_ten(exponent)}"
     else:
@@ -56,7 +65,7 @@ def fmt_pm(value, half_width, unit: str = "", digits: int = 3) -> str:
         return DASH
     if not _known(half_width):
         return fmt(value, unit, digits)
-    exponent = _exponent(float(value))
+    exponent = _exponent_for(float(value), digits)
     scale = 10.0 ** exponent
     body = f"{value / scale:.{digits}g} ± {half_width / scale:.2g}"
     if exponent:

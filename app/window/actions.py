@@ -61,6 +61,9 @@ ACTIONS: tuple[ActionSpec, ...] = (
                short="Analyse all"),
     ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis",
                short="Cancel"),
+    ActionSpec("analysis_settings", "Analysis &settings…", "edit_analysis_settings", "Analysis",
+               "Ctrl+Shift+A", tip="Detection and fit settings of this experiment; applying them "
+                                   "analyses it again (one undo step)"),
     _tool("select", "&Select", "S", "Click a spherulite to select it", "Select"),
     _tool("add", "&Add nucleus", "N", "Click where a nucleus was missed", "Add"),
     _tool("delete", "&Delete detection", "D", "Click a false detection (dust, bubble) to remove it",

@@ -9,12 +9,11 @@ Project commands (new/open/save, stacks, recovery) are in :mod:`app.window.files
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 from typing import Any
 
 import shiboken6
-from PySide6.QtCore import QSettings, QStandardPaths, Qt, QTimer
+from PySide6.QtCore import QSettings, QStandardPaths, Qt
 from PySide6.QtWidgets import (
     QDockWidget,
     QHBoxLayout,
@@ -34,6 +33,7 @@ from PySide6.QtWidgets import (
 )
 
 from app.core.autosave import Autosaver
+from app.core.errors import report_error
 from app.core.model import STATUS_RUNNING, STATUS_STALE, ProjectModel
 from app.core.runner import AnalysisRunner
 from app.microscopy.details_panel import DetailsPanel
@@ -47,7 +47,7 @@ from app.microscopy.spherulite_table import SpherulitesTable
 from app.window import actions as act
 from app.window import layout
 from app.window.files import WindowFilesMixin
-from app.window.views import build_optional_views
+from app.window.views import build_views
 
 APP_NAME = "spherokin"
 CAUTION = ("Hot-stage work: the stage and slides are hot enough to burn, and polymer "
@@ -102,7 +102,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_status_bar()
         self._add_view_menus()
         self.experiments_panel.setContextMenuPolicy(Qt.ActionsContextMenu)
-        for key in ("run", "properties", "calibrate", "remove_experiment"):
+        for key in ("run", "properties", "analysis_settings", "calibrate", "remove_experiment"):
             self.experiments_panel.addAction(self.actions_by_id[key])
         self.build_recent_menu()
         self._connect()
@@ -137,7 +137,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.view_names: list[str] = []
         self._add_page("viewer", "Microscopy", self.microscopy_tabs,
                        "Frames of the current experiment with the detections")
-        self.optional_views = build_optional_views(self.model, self._report_view_problem)
+        self.optional_views = build_views(self.model, self.show_error)
         for spec, widget in self.optional_views:
             self._add_page(spec.name, spec.title, _scrollable(widget), spec.tooltip)
         self.rail.currentRowChanged.connect(self._on_rail_changed)
@@ -229,6 +229,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         model.dirty_changed.connect(lambda _d: self._refresh_title())
         model.path_changed.connect(lambda _p: self._refresh_title())
         model.problem_reported.connect(self.show_problem)
+        model.error_raised.connect(self.show_error)
         model.selection_changed.connect(lambda *_: self._refresh_actions())
         model.analysis_updated.connect(lambda _i: self._refresh_unapplied())
         model.status_changed.connect(lambda _i: self._refresh_unapplied())
@@ -242,7 +243,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.viewer.locate_requested.connect(self.locate_stack)
         self.runner.progressed.connect(self._on_progress)
         self.runner.busy_changed.connect(self._on_busy_changed)
-        self.runner.experiment_failed.connect(lambda _i, text: self.show_problem("Analysis failed", text))
+        self.runner.experiment_errored.connect(
+            lambda i, exc: self.show_error(f"Analysis of {self.model.experiment(i).name} failed", exc))
         self.autosaver.autosaved.connect(lambda p: self.statusBar().showMessage(f"Autosaved to {p}", 4000))
         self.autosaver.autosave_failed.connect(lambda t: self.statusBar().showMessage(t, 8000))
         stack = model.undo_stack
@@ -289,12 +291,6 @@ class MainWindow(WindowFilesMixin, QMainWindow):
             self.docks["details"].raise_()
             self._hidden_docks = None
 
-    def _report_view_problem(self, text: str) -> None:
-        """An optional view failed to load: keep going, but say so (stderr, status bar)."""
-        self.problems_shown.append(text)
-        print(text, file=sys.stderr)
-        QTimer.singleShot(0, lambda: self.statusBar().showMessage(f"View not loaded: {text}", 15000))
-
     # ---------------------------------------------------------------- state display
     def _refresh_title(self) -> None:
         path = self.model.path
@@ -304,7 +300,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _refresh_actions(self) -> None:
         has_experiment = self.model.current_index >= 0
-        for key in ("properties", "calibrate", "remove_experiment", "run", "ignore_frames"):
+        for key in ("properties", "analysis_settings", "calibrate", "remove_experiment", "run",
+                    "ignore_frames"):
             self.actions_by_id[key].setEnabled(has_experiment)
         self.actions_by_id["run_all"].setEnabled(self.model.experiment_count() > 0)
         self.actions_by_id["cancel"].setEnabled(self.runner.is_busy())
@@ -322,6 +319,10 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         if index >= 0 and self.model.status(index) == STATUS_STALE:
             notes.append("results out of date — analyse again (F5)")
         self.unapplied_label.setText("   ".join(notes))
+
+    def show_error(self, title: str, exc: BaseException) -> None:
+        """Bad input: a one-line warning; a bug: the internal-error dialog with the log's path."""
+        self.problems_shown.append(report_error(self, title, exc))
 
     def show_problem(self, title: str, text: str) -> None:
         """A non-blocking warning dialog (the work continues behind it)."""

@@ -10,6 +10,8 @@ def test_numbers_and_powers_of_ten():
     assert fmt(4.6e5, "mm⁻²") == "4.6 × 10⁵ mm⁻²"
     assert fmt(4.6e-5) == "4.6 × 10⁻⁵"
     assert fmt(None, "s") == DASH and fmt(float("nan")) == DASH
+    # below 10⁴ but more digits than three figures can show plainly: never "4.58e+03"
+    assert fmt(4580.0, "mm⁻³") == "4.58 × 10³ mm⁻³" and fmt(999.4) == "999"
 
 
 def test_uncertainty_is_the_95_ci_half_width_and_shares_the_power_of_ten():

@@ -4,12 +4,12 @@ locating a moved stack and the ignore-frames dialog's default."""
 from __future__ import annotations
 
 import shutil
-import sys
 
-import fake_pipeline
 import pytest
+from fake_pipeline import FakeEngine
 from PySide6.QtCore import QSettings
 
+from app.core.model import ProjectModel
 from app.microscopy.frame_range_dialog import FrameRangeDialog
 from app.window import files as window_files
 from app.window import layout
@@ -17,10 +17,10 @@ from app.window.main_window import MainWindow
 
 
 @pytest.fixture
-def window(qtbot, tmp_path, monkeypatch, small_project):
-    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
+def window(qtbot, tmp_path, small_project):
     settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    win = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
+    win = MainWindow(ProjectModel(engine=FakeEngine()), settings=settings,
+                     recovery_dir=str(tmp_path / "recovery"))
     win.ask_unsaved_changes = lambda: "discard"
     qtbot.addWidget(win)
     win.open_project_path(small_project.path, ask=False)
