@@ -74,7 +74,7 @@ class ReportEntry:
     seed: int = DEFAULT_SEED  # of the resampling
 
     def __post_init__(self):
-        if self.result is None:  # an entry without a result yet (defaults only)
+        if self.result is None:  # an entry not analysed yet: nothing to take from a result
             return
         if self.temperature_c is None:
             object.__setattr__(self, "temperature_c", self.result.temperature_c)
