@@ -160,6 +160,8 @@ def _ci_names(name: str, unit: str = "") -> list[str]:
 
 GROWTH_HEADER = [
     "experiment", "temperature_c", *_ci_names("growth_rate", "um_per_min"), "stage_uncertainty_k",
+    "growth_rate_with_temperature_ci95_low_um_per_min",
+    "growth_rate_with_temperature_ci95_high_um_per_min",
     *COUNTS, "nucleation_mode", *_ci_names("nucleus_density_per_mm2"),
     *_ci_names("nucleus_density_per_mm3"), *_ci_names("nucleation_rate_per_mm2_per_min"),
     *_ci_names("nucleation_rate_per_mm3_per_min"), "predicted_geometry",
@@ -238,7 +240,9 @@ def _growth_row(entry: ReportEntry, growth: Estimate) -> list:
     predicted = [None] * 9 if pi is None else [
         *_triple(pi.n), *_triple(pi.k_per_min_n), *_triple(pi.t_half_min)]
     counts = r.counts()
-    return [entry.name, entry.temperature_c, *_triple(growth), entry.stage_uncertainty_k,
+    g = r.growth_rate
+    return [entry.name, entry.temperature_c, g.value, g.ci95_low, g.ci95_high,
+            entry.stage_uncertainty_k, growth.low, growth.high,
             *(counts[key] for key in COUNTS), nuc.mode,
             *_with_ci(nuc.density_per_mm2, nuc.density_per_mm2_ci95),
             *_with_ci(entry.density_per_mm3, _per_volume(entry, nuc.density_per_mm2_ci95)),

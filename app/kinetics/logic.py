@@ -63,7 +63,7 @@ def compare(result, experiment, calorimetry) -> ComparisonView:
     """Bulk prediction against the calorimetry fit (``analysis.reporting.tables.compare_kinetics``):
     table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve
     (``CalorimetryResult.volume_conversion``)."""
-    from app.widgets.formatting import DASH, fmt, fmt_ci, k_unit
+    from app.widgets.formatting import DASH, fmt, fmt_interval, k_unit
 
     empty = (DASH, DASH, DASH)
     if calorimetry is None:
@@ -84,7 +84,7 @@ def compare(result, experiment, calorimetry) -> ComparisonView:
          f"{_ratio(root(c.measured_k_per_min_n, c.measured_n), root(c.predicted_k_per_min_n, c.predicted_n))}"
          " (k^(1/n))"),
         (fmt(c.predicted_t_half_min), fmt(c.measured_t_half_min),
-         fmt_ci(c.t_half_ratio, *c.t_half_ratio_ci95)),
+         fmt_interval(c.t_half_ratio, *c.t_half_ratio_ci95)),
     )
     verdict = "Agree." if c.agree else "Disagree beyond the uncertainty."
     return ComparisonView(rows, f"{verdict} {c.note} {curve_note}", (tau, x))

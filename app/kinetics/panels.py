@@ -10,7 +10,7 @@ from PySide6 import QtCore, QtWidgets
 
 from analysis.results import COUNTS
 from analysis.units import per_mm3_from_per_mm2
-from app.widgets.formatting import DASH, fmt, fmt_ci, fmt_estimate, k_unit
+from app.widgets.formatting import DASH, fmt, fmt_estimate, fmt_interval, fmt_pm, k_unit
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
@@ -68,24 +68,24 @@ class PredictionPanel(FormPanel):
         found = nuc.mode or "not determined"
         self.form.set("mode", f"{inputs.mode} (analysis: {found})")
         self.form.values["mode"].setToolTip(nuc.mode_test or "")
-        self.form.set("density_areal", fmt_ci(nuc.density_per_mm2, *(nuc.density_per_mm2_ci95 or (None, None)),
+        self.form.set("density_areal", fmt_interval(nuc.density_per_mm2, *(nuc.density_per_mm2_ci95 or (None, None)),
                                               "mm⁻²"))
         h = entry.thickness_um
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
-        self.form.set("density_volumetric", fmt_ci(entry.density_per_mm3,
+        self.form.set("density_volumetric", fmt_interval(entry.density_per_mm3,
                                                    *_per_mm3(nuc.density_per_mm2_ci95, h), "mm⁻³"))
         per = "mm⁻³" if inputs.geometry == "bulk-3d" else "mm⁻²"
         used = {"athermal": "every nucleus", "mixed": "initial burst",
                 "thermal": "none: rate only"}[inputs.mode]
         self.form.set("density_used", f"{fmt(inputs.density_per_mm_d, per)} ({used})"
                       if inputs.mode != "thermal" else used)
-        rates = [fmt_ci(value, *pair, unit) for value, pair, unit in (
+        rates = [fmt_interval(value, *pair, unit) for value, pair, unit in (
             (nuc.rate_per_mm2_per_min, nuc.rate_per_mm2_per_min_ci95 or (None, None), "mm⁻² min⁻¹"),
             (entry.rate_per_mm3_per_min, _per_mm3(nuc.rate_per_mm2_per_min_ci95, h), "mm⁻³ min⁻¹"))
             if value is not None]
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
-        self.form.set("growth_rate", fmt_ci(g.value, g.ci95_low, g.ci95_high, "µm/min"))
+        self.form.set("growth_rate", fmt_pm(g.value, g.ci95_half_width, "µm/min"))
         for key, value in result.counts().items():
             if key in self.form.values:
                 self.form.set(key, str(value))

@@ -82,19 +82,9 @@ def fmt_interval(value, low, high, unit: str = "", digits: int = 3) -> str:
     return f"{fmt(value, unit, digits)} ({CI} {fmt(low, '', digits)} – {fmt(high, '', digits)})"
 
 
-def fmt_ci(value, low, high, unit: str = "", digits: int = 3) -> str:
-    """The one way an estimate is written: "value (95 % CI low–high) unit"; the value
-    alone when its interval is unknown, a dash when the value is."""
-    if value is None or (isinstance(value, float) and not math.isfinite(value)):
-        return DASH
-    if low is None or high is None:
-        return fmt(value, unit, digits)
-    return f"{fmt(value, '', digits)} (95 % CI {fmt(low, '', digits)}–{fmt(high, '', digits)}) {unit}".rstrip()
-
-
 def fmt_estimate(est, unit: str = "", digits: int = 3) -> str:
-    """:func:`fmt_ci` of an ``analysis.intervals.Estimate`` (None: a dash)."""
-    return DASH if est is None else fmt_ci(est.value, est.low, est.high, unit, digits)
+    """:func:`fmt_interval` of an ``analysis.intervals.Estimate`` (None: a dash)."""
+    return DASH if est is None else fmt_interval(est.value, est.low, est.high, unit, digits)
 
 
 def k_unit(n) -> str:
