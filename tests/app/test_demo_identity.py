@@ -75,8 +75,6 @@ def _truth(demo):
     project, analyses, _report, _summaries = demo
     out = {}
     for experiment in project.experiments:
-        if experiment.kind == "ramp":  # one Tc per experiment here; the ramp's G(T) is tested apart
-            continue
         entry = report_entry(experiment, analyses[experiment.name].result, project.material)
         r, pred, bulk = entry.result, entry.prediction, entry.bulk_prediction()
         fit = entry.calorimetry.avrami
@@ -133,9 +131,7 @@ def test_report_files_and_summary_json_agree_with_the_analysis(demo):
     book = load_workbook(report_dir / "growth_vs_temperature.xlsx")
     sheet = list(book["growth_vs_temperature"].values)
     xlsx = {row[0]: dict(zip(sheet[0], row)) for row in sheet[1:]}
-    assert set(growth_csv) == set(xlsx) == set(truth) <= set(summaries)
-    # the ramp experiment has no single Tc: it writes its own G(T) files instead of a row
-    assert (report_dir / "ramp_Orvessa_PN-12__cooling_5_K_min_growth_vs_temperature.csv").is_file()
+    assert set(growth_csv) == set(xlsx) == set(truth) == set(summaries)
     for name, t in truth.items():
         row, cells, summary = growth_csv[name], xlsx[name], summaries[name]
         pairs = {"temperature_c": "temperature_c", "growth_rate_um_per_min": "g",
@@ -210,8 +206,6 @@ def test_microscopy_page_shows_the_same_numbers(qtbot, demo, model):
     plots = PlotsPanel(model)
     qtbot.addWidget(plots)
     for i, experiment in enumerate(model.experiments()):
-        if experiment.name not in truth:  # the demo's ramp experiment
-            continue
         t = truth[experiment.name]
         name, tc, detected, growth, _status = row_values(model, i)
         shows(tc, t["temperature_c"])
@@ -241,8 +235,6 @@ def test_kinetics_page_shows_the_same_numbers(qtbot, demo, model):
     view = KineticsView(model)
     qtbot.addWidget(view)
     for i, experiment in enumerate(model.experiments()):
-        if experiment.name not in truth:  # the demo's ramp experiment
-            continue
         t = truth[experiment.name]
         model.select(i)
         view.refresh()
