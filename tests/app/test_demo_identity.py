@@ -5,14 +5,12 @@ user meets them: the Microscopy page (experiment table, summary, nuclei plot), t
 Kinetics page, the Tc-series page (plotted points and table), summary.json of `analyze`
 and the report's CSV and XLSX files. Each quantity must show the same value in the same
 unit everywhere; a place that shows fewer digits must show the value rounded to them.
-The isothermal experiments are checked; the demo's cooling-ramp experiment (growth rate
-against temperature from one run) is analysed and reported with them but its own numbers
-are not compared here.
 """
 
 from __future__ import annotations
 
 import csv
+import dataclasses
 import html
 import json
 import re
@@ -23,7 +21,7 @@ from openpyxl import load_workbook
 from test_kinetics_view import _collect_qt_garbage  # noqa: F401 (autouse fixture)
 
 from analysis.cli.main import main as cli_main
-from analysis.project.file import load_project
+from analysis.project.file import load_project, save_project
 from analysis.reporting.entries import report_entry
 from analysis.reporting.export import write_analysis_outputs
 from analysis.results import COUNTS
@@ -42,8 +40,13 @@ _NUMBER = re.compile(r"(?P<open>\()?(?P<value>-?\d+(?:\.\d+)?)"
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     """The demo project analysed once, the `report` command run on those analyses, and
-    each experiment's summary.json written by `analyze`'s writer."""
-    project = load_project(str(DEMO))
+    each experiment's summary.json written by `analyze`'s writer. Only the isothermal
+    experiments: a ramp has no single Tc, pooled G or calorimetry isotherm (its G(T) has
+    tests of its own)."""
+    demo_project = load_project(str(DEMO))
+    isothermal = tuple(e for e in demo_project.experiments if e.kind == "isothermal")
+    project_path = tmp_path_factory.mktemp("project") / "isothermal.spherokin.json"
+    project = save_project(dataclasses.replace(demo_project, experiments=isothermal), project_path)
     analyses = {e.name: pipeline.analyze_experiment(e) for e in project.experiments}
     report_dir = tmp_path_factory.mktemp("report")
 
@@ -53,9 +56,9 @@ def demo(tmp_path_factory):
 
     with pytest.MonkeyPatch.context() as patch:
         patch.setattr(pipeline, "analyze_experiment_iter", cached)
-        assert cli_main(["report", str(DEMO), "--out", str(report_dir)]) == 0
+        assert cli_main(["report", str(project_path), "--out", str(report_dir)]) == 0
     summaries = {}
-    for experiment in _isothermal(project):
+    for experiment in project.experiments:
         out = tmp_path_factory.mktemp("analyze")
         write_analysis_outputs(analyses[experiment.name].result, out, geometry=experiment.geometry)
         summaries[experiment.name] = json.loads((out / "summary.json").read_text(encoding="utf-8"))
@@ -77,7 +80,9 @@ def _truth(demo):
     """The analysis functions' own numbers per experiment, by quantity."""
     project, analyses, _report, _summaries = demo
     out = {}
-    for experiment in _isothermal(project):
+    for experiment in project.experiments:
+        if experiment.kind == "ramp":  # one Tc per experiment here; the ramp's G(T) is tested apart
+            continue
         entry = report_entry(experiment, analyses[experiment.name].result, project.material)
         r, pred, bulk = entry.result, entry.prediction, entry.bulk_prediction()
         fit = entry.calorimetry.avrami
@@ -99,10 +104,6 @@ def _same_digits(mantissa: str, scale: float, value) -> None:
     digits = len(mantissa.lstrip("-").replace(".", "").lstrip("0")) or 1
     expected = float(f"{value / scale:.{digits}g}") * scale
     assert shown == pytest.approx(expected, rel=1e-12, abs=0.0), (mantissa, scale, value)
-
-
-def _isothermal(project):
-    return [e for e in project.experiments if getattr(e, "kind", "isothermal") != "ramp"]
 
 
 def shows(text: str, value, unit: str = "", half_width=None) -> None:
@@ -138,7 +139,9 @@ def test_report_files_and_summary_json_agree_with_the_analysis(demo):
     book = load_workbook(report_dir / "growth_vs_temperature.xlsx")
     sheet = list(book["growth_vs_temperature"].values)
     xlsx = {row[0]: dict(zip(sheet[0], row)) for row in sheet[1:]}
-    assert set(truth) <= set(growth_csv) and set(truth) <= set(xlsx) and set(truth) <= set(summaries)
+    assert set(growth_csv) == set(xlsx) == set(truth) <= set(summaries)
+    # the ramp experiment has no single Tc: it writes its own G(T) files instead of a row
+    assert (report_dir / "ramp_Orvessa_PN-12__cooling_5_K_min_growth_vs_temperature.csv").is_file()
     for name, t in truth.items():
         row, cells, summary = growth_csv[name], xlsx[name], summaries[name]
         pairs = {"temperature_c": "temperature_c", "growth_rate_um_per_min": "g",
@@ -213,7 +216,7 @@ def test_microscopy_page_shows_the_same_numbers(qtbot, demo, model):
     plots = PlotsPanel(model)
     qtbot.addWidget(plots)
     for i, experiment in enumerate(model.experiments()):
-        if experiment.name not in truth:
+        if experiment.name not in truth:  # the demo's ramp experiment
             continue
         t = truth[experiment.name]
         name, tc, detected, growth, _status = row_values(model, i)
@@ -244,7 +247,7 @@ def test_kinetics_page_shows_the_same_numbers(qtbot, demo, model):
     view = KineticsView(model)
     qtbot.addWidget(view)
     for i, experiment in enumerate(model.experiments()):
-        if experiment.name not in truth:
+        if experiment.name not in truth:  # the demo's ramp experiment
             continue
         t = truth[experiment.name]
         model.select(i)
@@ -277,7 +280,7 @@ def test_tc_series_page_shows_the_same_numbers(qtbot, demo, model):
     points = {p.name: p for p in view.points}
     header = view.table.header()
     rows = {row[0]: dict(zip(header, row)) for row in view.table.shown_rows()}
-    assert set(truth) <= set(points) and set(truth) <= set(rows)
+    assert set(points) == set(rows) == set(truth)
     for name, t in truth.items():
         p, row = points[name], rows[name]
         assert (p.temperature_c, p.growth_rate, p.growth_ci95) == (t["temperature_c"], t["g"], t["g_half"])
