@@ -15,8 +15,11 @@ import numpy as np
 
 from analysis.edits import Edit
 
-#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate.
-STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded")
+#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate. Nuclei
+#: counted for the density: ``ok``, ``nonlinear`` and ``few-points`` (when it grows like its
+#: neighbours) with the centre inside the field; never ``edge``, ``excluded`` or
+#: ``rejected`` (a candidate without the evidence of a growing spherulite; see ``reason``).
+STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded", "rejected")
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
 
@@ -36,6 +39,8 @@ class Spherulite:
     n_points: int
     status: str
     source: str = "auto"
+    reason: str = ""  # why the status is not ``ok`` (empty for ``ok``)
+    confidence: float | None = None  # 0..1 from the evidence (see analysis.spherulites.confidence)
 
     def radius_um_at(self, time_s: float) -> float | None:
         """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
@@ -94,6 +99,51 @@ class AvramiParameters:
 
 
 @dataclass(frozen=True)
+class ImageQuality:
+    """What the recording allowed, measured from the recording itself.
+
+    Attributes
+    ----------
+    noise : float
+        Temporal noise of the melt, fraction of the data's full scale (per pixel, one frame).
+    crystal_noise : float | None
+        The same for crystalline pixels of the last frames (larger with shot noise; a dark
+        melt clipped at zero shows less noise than the crystal); None when too few.
+    contrast : float | None
+        Typical crystal/melt difference (median over crystalline pixels of the last frame),
+        fraction of full scale; None when nothing crystallised.
+    snr : float | None
+        ``contrast`` over the larger of the two noises: the signal-to-noise ratio of one
+        pixel in one frame.
+    smoothing_px : float
+        Gaussian sigma (px) chosen from ``snr`` for the evidence (wider when noisier).
+    unresolved_fraction : float | None
+        Fraction of the crystallised field whose arrival time was not measured but
+        inferred (extinction wedges, pixels too faint to time); None when none crystallised.
+    blur_px : float | None
+        Gaussian sigma (px) of the crystal/melt edge beyond the smoothing applied
+        (defocus and front softness together); None when it could not be measured.
+    illumination_unevenness : float | None
+        1 − (5th / 95th percentile) of the slowly varying brightness across the field.
+    verdict : str
+        One sentence in plain language; says so when the recording is too poor for
+        automatic counting.
+    too_poor : bool
+    """
+
+    noise: float
+    crystal_noise: float | None
+    contrast: float | None
+    snr: float | None
+    smoothing_px: float
+    unresolved_fraction: float | None
+    blur_px: float | None
+    illumination_unevenness: float | None
+    verdict: str
+    too_poor: bool
+
+
+@dataclass(frozen=True)
 class ExperimentResult:
     """Everything the analysis of one stack found, with the user's edits applied."""
 
@@ -114,6 +164,7 @@ class ExperimentResult:
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+    image_quality: ImageQuality | None = None
 
     def spherulite(self, spherulite_id: int) -> Spherulite:
         for s in self.spherulites:

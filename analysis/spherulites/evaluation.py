@@ -19,7 +19,7 @@ from analysis.results import (
     RadiusSeries,
     Spherulite,
 )
-from analysis.spherulites import growth, nuclei
+from analysis.spherulites import evidence_checks, growth, nuclei
 from analysis.spherulites.fronts import blocked_distance, front_radii
 from analysis.spherulites.nucleation import (
     MeltExposure,
@@ -135,19 +135,20 @@ def _edge(ctx, det, fit) -> bool:
 
 
 def _status(ctx, det, fit, series, lin, settings) -> tuple[str, str]:
-    """Status and the linearity test's description."""
+    """Status and its reason in words ('' for ``ok``)."""
     if det.excluded:
-        return "excluded", lin.description
+        return "excluded", "excluded by the user"
     if not fit.ok:
         on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
         return ("edge" if on_border else "few-points"), fit.reason
     if det.excluded is False:
-        return "ok", lin.description
+        return "ok", ""
     if _edge(ctx, det, fit):
-        return "edge", lin.description
-    if np.count_nonzero(series.used) < settings.min_points:
-        return "few-points", lin.description
-    return ("nonlinear" if lin.nonlinear else "ok"), lin.description
+        return "edge", "nucleated outside the field (its fitted centre lies outside)"
+    used = int(np.count_nonzero(series.used))
+    if used < settings.min_points:
+        return "few-points", f"{used} frames of free growth (at least {settings.min_points} needed)"
+    return ("nonlinear", lin.description) if lin.nonlinear else ("ok", "")
 
 
 def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
@@ -160,7 +161,7 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         sy, sx = np.divmod(seeds, ctx.shape[1])
         cx, cy = det.fixed_xy or (float(sx.mean()), float(sy.mean()))
     series, lin = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
-    status, _ = _status(ctx, det, fit, series, lin, settings)
+    status, reason = _status(ctx, det, fit, series, lin, settings)
     frames = ctx.frame_index.ravel()[pix]
     seen = frames[frames >= 0]
     g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None
@@ -172,8 +173,18 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         growth_rate_um_per_min=g,
         growth_rate_ci95_um_per_min=growth.growth_rate_um_per_min(ci, ctx.um_per_px),
         r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
-        n_points=int(fit.n_levels), status=status, source=det.source)
-    return sph, series, fit
+        n_points=int(fit.n_levels), status=status, source=det.source, reason=reason)
+    return sph, series, fit, _evidence(ctx, det, fit, pix, band, spans, settings)
+
+
+def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evidence:
+    """The pixels and residuals a detection's fit rests on (see evidence_checks)."""
+    chosen = fit_pixels(ctx, pix, band, spans, settings)
+    y, x = np.divmod(chosen, ctx.shape[1])
+    t = ctx.fit_arrival.ravel()[chosen]
+    scale = growth.residual_scale_s(fit, x, y, t) if fit.ok and chosen.size else float("nan")
+    return evidence_checks.Evidence(fit, scale, x, y, t, user_included=det.excluded is False,
+                                    automatic=det.source == "auto")
 
 
 # ---------------------------------------------------------------- whole result
@@ -224,15 +235,17 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
     band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
-    spherulites, radii, fits = [], [], []
+    spherulites, radii, fits, evidence = [], [], [], []
     for det in dets:
         if det.deleted or det.merged:
             continue
-        sph, series, fit = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
-                                       global_spans, settings, provisional.get(det.id))
+        sph, series, fit, ev = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
+                                           global_spans, settings, provisional.get(det.id))
         spherulites.append(sph)
         radii.append(series)
         fits.append(fit)
+        evidence.append(ev)
+    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
     pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
@@ -285,7 +298,7 @@ def _counted(spherulites, fits, shape) -> list:
     g_med = float(np.median(g_ok)) if g_ok else None
     out = []
     for s, f in zip(spherulites, fits):
-        if s.status == "edge" or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
+        if s.status in ("edge", "rejected") or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
             continue
         if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
                                          abs(s.growth_rate_um_per_min / g_med - 1) > tolerance):

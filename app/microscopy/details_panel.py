@@ -34,7 +34,7 @@ from app.core import model as m
 from app.microscopy.overlays import STATUS_WORDS, status_colour
 
 SPHERULITE_COLUMNS = ("id", "x (px)", "y (px)", "t0 (s)", "G (µm/min)", "CI95 ±", "R²",
-                      "points", "status", "source")
+                      "points", "status", "source", "confidence", "reason")
 UNAPPLIED_COLOUR = "#ffb0b0"
 
 
@@ -45,7 +45,8 @@ def _num(value: Any, fmt: str = ".3g", unit: str = "") -> str:
 def spherulite_row(s: Any) -> tuple[str, ...]:
     return (str(s.id), f"{s.x_px:.1f}", f"{s.y_px:.1f}", _num(s.nucleation_time_s, ".1f"),
             _num(s.growth_rate_um_per_min), _num(s.growth_rate_ci95_um_per_min, ".2g"),
-            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source)
+            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source,
+            _num(getattr(s, "confidence", None), ".2f"), getattr(s, "reason", "") or "")
 
 
 def spherulite_html(s: Any, um_per_px: float | None) -> str:
@@ -63,7 +64,10 @@ def spherulite_html(s: Any, um_per_px: float | None) -> str:
         ("Radius points", str(s.n_points)),
         ("Status", f"{s.status}: {STATUS_WORDS.get(s.status, '')}"),
         ("Source", s.source),
+        ("Confidence", _num(getattr(s, "confidence", None), ".2f") + " (0-1, from its evidence)"),
     ]
+    if getattr(s, "reason", ""):
+        rows.append(("Reason", s.reason))
     return _table_html(f"Spherulite {s.id}", rows)
 
 
@@ -96,12 +100,32 @@ def _result_rows(result: Any) -> list[tuple[str, str]]:
             ("Induction time", _num(nuc.induction_time_s, ".1f", " s"))]
     if nuc.mode_test:
         rows.append(("Mode test", nuc.mode_test))
+    rejected = sum(1 for s in result.spherulites if s.status == "rejected")
+    if rejected:
+        rows.append(("Rejected candidates", f"{rejected}, not counted (View ▸ Show rejected candidates)"))
+    rows += quality_rows(getattr(result, "image_quality", None))
     for label, avrami in (("Avrami, film X(t)", result.avrami_film),
                           ("Avrami, predicted", result.avrami_predicted)):
         if avrami is not None and avrami.n is not None:
             rows.append((label, f"n = {avrami.n:.2f}, k = {_num(avrami.k_per_min_n)} min⁻ⁿ, "
                                 f"t½ = {_num(avrami.t_half_min, '.3g')} min"))
     return rows
+
+
+def quality_rows(quality: Any) -> list[tuple[str, str]]:
+    """The image-quality block (measured from the recording) as summary rows."""
+    if quality is None:
+        return []
+    return [("Image quality", quality.verdict),
+            ("Signal-to-noise", _num(quality.snr, ".2g", " per pixel and frame")
+             + f" (noise {quality.noise:.1%} of full scale"
+             + ("" if quality.contrast is None else f", contrast {quality.contrast:.1%}") + ")"),
+            ("Smoothing chosen", f"{quality.smoothing_px:.2g} px"),
+            ("Not timed", _num(None if quality.unresolved_fraction is None else 100 * quality.unresolved_fraction,
+                               ".0f", " % of the crystallised field (inferred from the growth)")),
+            ("Edge blur", _num(quality.blur_px, ".2g", " px")),
+            ("Uneven illumination", _num(None if quality.illumination_unevenness is None
+                                         else 100 * quality.illumination_unevenness, ".0f", " % fall"))]
 
 
 def _table_html(title: str, rows: list[tuple[str, str]]) -> str:
@@ -140,6 +164,7 @@ class DetailsPanel(QTabWidget):
         self.table.verticalHeader().setVisible(False)
         self.table.horizontalHeader().setSortIndicator(0, Qt.AscendingOrder)
         self.table.itemSelectionChanged.connect(self._on_table_selected)
+        self.show_rejected = False
         self.addTab(self.summary, "Summary")
         self.addTab(self.table, "Spherulites")
         self.addTab(self._build_edits_tab(), "Edits")
@@ -200,8 +225,15 @@ class DetailsPanel(QTabWidget):
         self._fill_table(result)
         self._fill_edits(index, result)
 
+    def set_show_rejected(self, shown: bool) -> None:
+        """List the rejected candidates in the table too (hidden by default)."""
+        self.show_rejected = bool(shown)
+        if self._model.current_index >= 0:
+            self._fill_table(self._model.result(self._model.current_index))
+
     def _fill_table(self, result: Any) -> None:
-        spherulites = () if result is None else result.spherulites
+        spherulites = () if result is None else tuple(
+            s for s in result.spherulites if self.show_rejected or s.status != "rejected")
         self.table.blockSignals(True)
         self.table.setSortingEnabled(False)  # fill first, then let the user's sort apply
         self.table.setRowCount(len(spherulites))

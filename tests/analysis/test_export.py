@@ -33,7 +33,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
         rows = list(csv.reader(fh))
     assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                        "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                       "status", "source"]
+                       "status", "source", "reason", "confidence"]
     assert len(rows) == 1 + len(result.spherulites)
     assert float(rows[1][3]) == pytest.approx(float(rows[1][1]) * 1.25)
     with open(tmp_path / "radii.csv", newline="") as fh:
@@ -42,7 +42,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
     summary = json.loads((tmp_path / "summary.json").read_text())
     assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
                              "thickness_um", "growth_rate_um_per_min", "nucleation", "area_fraction",
-                             "avrami_film", "avrami_predicted"]
+                             "avrami_film", "avrami_predicted", "image_quality"]
     assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n"]
     assert list(summary["nucleation"]) == ["count", "mode", "density_per_mm2", "density_per_mm3",
                                            "rate_per_mm2_per_min", "rate_per_mm3_per_min",
@@ -55,11 +55,11 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
 
 
 def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
-    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x")
+    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1 frames")
     export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path)
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
-    assert row[-2:] == ["'=cmd()", "'@x"]
+    assert row[-4:-1] == ["'=cmd()", "'@x", "'-1 frames"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):
