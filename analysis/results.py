@@ -159,8 +159,6 @@ class ExperimentResult:
     nucleation: Nucleation
     area_fraction_time_s: np.ndarray
     area_fraction: np.ndarray
-    avrami_film: AvramiParameters | None
-    avrami_predicted: AvramiParameters | None
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
@@ -171,3 +169,9 @@ class ExperimentResult:
             if s.id == spherulite_id:
                 return s
         raise KeyError(spherulite_id)
+
+    def next_detection_id(self) -> int:
+        """The id a nucleus added now takes: above every id used so far, including those
+        of deleted and merged detections (an id is never given twice)."""
+        used = max((s.id for s in self.spherulites), default=0) + 1
+        return max(int(self.extra.get("next_detection_id", used)), used)

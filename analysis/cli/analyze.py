@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
 from analysis.spherulites.pipeline import AnalysisSettings, analyze_iter
@@ -23,6 +24,9 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--sensitivity", type=float, default=None, metavar="FRAMES",
                         help="minimum depth of a nucleus below its surroundings, frame intervals "
                              "(default 0.5; lower finds more)")
+    parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
+                        help="refuse stacks whose analysis needs more memory than this "
+                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
     parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
                         help="geometry of the predicted Avrami kinetics")
 
@@ -54,6 +58,7 @@ class _ProgressBar:
 
 def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
+    prepare_output_folder(args.out)
     stack = open_stack(args.stack, um_per_px=args.um_per_px, interval_s=args.interval_s)
     stack.require_calibration()
     settings = AnalysisSettings()
@@ -65,10 +70,11 @@ def run_cli(args) -> int:
         analysis = run_to_completion(analyze_iter(
             stack, settings=settings, isothermal_start_s=args.isothermal_start_s,
             temperature_c=args.temperature_c, thickness_um=args.thickness_um,
-            geometry=args.geometry), bar)
+            geometry=args.geometry, memory_budget_mb=args.memory_budget_mb), bar)
     finally:
         bar.close()
-    write_analysis_outputs(analysis.result, args.out, arrival=analysis.arrival, stack=stack)
+    write_analysis_outputs(analysis.result, args.out, geometry=args.geometry,
+                           arrival=analysis.arrival, stack=stack)
     result = analysis.result
     g = result.growth_rate
     g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"

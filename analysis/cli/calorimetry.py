@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from analysis.outputs import prepare_output_folder
 from analysis.kinetics.calorimetry import (
     analyze_calorimetry_file,
     write_calorimetry_outputs,
@@ -26,6 +27,7 @@ def add_cli_arguments(parser) -> None:
 
 
 def run_cli(args) -> int:
+    prepare_output_folder(args.out)
     result = analyze_calorimetry_file(
         args.file, time_col=args.time_col, heat_flow_col=args.heat_flow_col,
         time_unit=args.time_unit, exotherm=args.exotherm or "auto", window=args.window,

@@ -17,6 +17,10 @@ def add_cli_arguments(parser) -> None:
 
 
 def run_cli(args) -> int:
+    if args.screenshot:
+        from analysis.outputs import prepare_output_file
+
+        prepare_output_file(args.screenshot)
     entry_points = metadata.entry_points(group="spherokin.frontends")
     gui = next((ep for ep in entry_points if ep.name == "gui"), None)
     if gui is None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from analysis.outputs import prepare_output_folder
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,
@@ -22,6 +23,7 @@ def add_cli_arguments(parser) -> None:
 
 
 def run_cli(args) -> int:
+    prepare_output_folder(args.out)
     table = read_growth_table(args.table)
     constants = LHConstants(args.tm0_c, args.tg_c, args.u_star_j_mol, args.t_inf_c)
     analysis = fit_lauritzen_hoffman(table.temperature_c, table.growth_rate_um_per_min,

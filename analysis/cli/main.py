@@ -25,6 +25,7 @@ import sys
 import traceback
 
 from analysis import __version__
+from analysis.cli.quiet import captured_chatter, quiet_environment
 from analysis.errors import InputError
 
 #: subcommand -> (module in this package, one-line help)
@@ -63,8 +64,21 @@ def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     if not argv or argv[0] not in SUBCOMMANDS and argv[0] not in ("-h", "--help", "--version"):
         argv = ["gui", *argv]
+    quiet_environment()
     parser = build_parser(argv[0] if argv[0] in SUBCOMMANDS else "")
     args = parser.parse_args(argv)
+    if args.command == "gui" and not getattr(args, "screenshot", None):
+        return _run(args)  # the desktop application keeps its own stderr
+    with captured_chatter() as chatter:
+        status = _run(args)
+    summary = chatter.summary()
+    if status == 0 and summary:
+        print(f"spherokin {args.command}: {summary}", file=sys.stderr)
+    return status
+
+
+def _run(args) -> int:
+    """The chosen subcommand; bad input: one line and 2, a bug: traceback and 1."""
     try:
         return int(args.handler(args) or 0)
     except InputError as exc:

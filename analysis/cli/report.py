@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from analysis.outputs import prepare_output_folder
 from analysis.reporting.report import report_project
 
 
@@ -13,6 +14,7 @@ def add_cli_arguments(parser) -> None:
 def run_cli(args) -> int:
     from analysis.project.file import load_project
 
+    prepare_output_folder(args.out)  # before the analysis, which can take minutes
     project = load_project(args.project)
     summary = report_project(project, args.out)
     for problem in summary.problems:

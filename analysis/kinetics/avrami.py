@@ -9,8 +9,7 @@ Model and prediction
     ``to_parameters() -> results.AvramiParameters``.
     ``predict_avrami(geometry, growth_rate_um_per_min, *, density_per_mm_d=None,
     rate_per_mm_d_per_min=None) -> AvramiPrediction``
-    ``predict_model_from_result(result, geometry="bulk-3d", mode=None) -> AvramiPrediction``
-    ``predict_from_result(result, geometry="bulk-3d", mode=None) -> AvramiParameters``
+    (the prediction for an experiment's result is ``analysis.kinetics.prediction``)
 Closed forms
     ``avrami_conversion(t_min, n, k, t0_min=0)``, ``half_time(n, k)``, ``k_from_half_time(n,
     t_half)``, ``k_per_second(k_per_min_n, n)``
@@ -60,20 +59,17 @@ import numpy as np
 from scipy import optimize, stats
 
 from analysis.errors import InputError
-from analysis.results import AvramiParameters, ExperimentResult
+from analysis.results import AvramiParameters
 
 __all__ = [
     "AvramiFit", "AvramiPrediction", "FitFailure", "GEOMETRIES", "avrami_conversion",
     "fit_avrami_curve", "fit_avrami_window", "half_time", "k_from_half_time", "k_per_second",
-    "mass_fraction_from_volume", "predict_avrami", "predict_from_result",
-    "predict_model_from_result", "volume_fraction_from_mass",
+    "mass_fraction_from_volume", "predict_avrami", "volume_fraction_from_mass",
 ]
 
 LN2 = math.log(2.0)
 GEOMETRIES = {"film-2d": 2, "bulk-3d": 3}
 _UNIT_BALL = {2: math.pi, 3: 4.0 * math.pi / 3.0}
-_MODE_ALIASES = {"athermal": "athermal", "thermal": "thermal", "sporadic": "thermal",
-                 "mixed": "mixed"}
 
 
 # ---------------------------------------------------------------- closed forms
@@ -190,64 +186,6 @@ def predict_avrami(geometry: str, growth_rate_um_per_min: float, *,
     return AvramiPrediction(geometry=geometry, dimension=d, mode=mode,
                             athermal_k=_UNIT_BALL[d] * n0 * g_mm ** d,
                             sporadic_k=_UNIT_BALL[d] * ndot * g_mm ** d / (d + 1))
-
-
-def _result_inputs(result: ExperimentResult, d: int) -> tuple[float | None, float | None]:
-    """Density and rate per mm^d from a result; 3-D from 2-D via the film thickness."""
-    nuc = result.nucleation
-    if d == 2:
-        return nuc.density_per_mm2, nuc.rate_per_mm2_per_min
-    density, rate = nuc.density_per_mm3, nuc.rate_per_mm3_per_min
-    h_mm = None if not result.thickness_um else result.thickness_um * 1e-3
-    if density is None and nuc.density_per_mm2 is not None and h_mm:
-        density = nuc.density_per_mm2 / h_mm
-    if rate is None and nuc.rate_per_mm2_per_min is not None and h_mm:
-        rate = nuc.rate_per_mm2_per_min / h_mm
-    return density, rate
-
-
-def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
-                              mode: str | None = None) -> AvramiPrediction:
-    """Model from an experiment's pooled G and nucleation (mode from the result if None;
-    if the result states none either, from which of density and rate are known).
-
-    For "bulk-3d" the volumetric values are used, or N_A / h when only areal values and
-    the film thickness h are known. Missing inputs raise InputError naming the stack.
-    """
-    d = _dimension(geometry)
-    density, rate = _result_inputs(result, d)
-    wanted = mode or result.nucleation.mode
-    if wanted is None:  # no mode stated: use whatever nucleation data there are
-        wanted = {(True, True): "mixed", (False, True): "thermal"}.get(
-            (density is not None, rate is not None), "athermal")
-    mode_key = _MODE_ALIASES.get(wanted)
-    if mode_key is None:
-        raise InputError(f"nucleation mode {wanted!r} unknown; use athermal, thermal or mixed",
-                         result.stack)
-    if mode_key == "athermal":
-        rate = None
-    elif mode_key == "thermal":
-        density = None
-    missing = [name for name, value, need in (("nucleus density", density, mode_key != "thermal"),
-                                              ("nucleation rate", rate, mode_key != "athermal"))
-               if need and value is None]
-    if result.growth_rate.value is None:
-        missing.insert(0, "growth rate")
-    if missing:
-        extra = " (or areal values and the film thickness)" if d == 3 else ""
-        raise InputError(f"cannot predict {geometry} Avrami kinetics: missing "
-                         f"{' and '.join(missing)}{extra}", result.stack)
-    try:
-        return predict_avrami(geometry, result.growth_rate.value, density_per_mm_d=density,
-                              rate_per_mm_d_per_min=rate)
-    except InputError as err:
-        raise InputError(err.problem, result.stack) from None
-
-
-def predict_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
-                        mode: str | None = None) -> AvramiParameters:
-    """Predicted n, k (min^-n) and t_half (min) for an experiment; see ``predict_model_from_result``."""
-    return predict_model_from_result(result, geometry, mode).to_parameters()
 
 
 # ---------------------------------------------------------------- fits

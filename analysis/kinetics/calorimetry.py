@@ -49,8 +49,6 @@ Method
 
 from __future__ import annotations
 
-import csv
-import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -59,6 +57,8 @@ import numpy as np
 from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
+from analysis.units import write_csv_atomic, write_json_atomic
+from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
     AvramiFit,
     FitFailure,
@@ -394,25 +394,13 @@ def analyze_source(source) -> CalorimetryResult:
 
 
 # ---------------------------------------------------------------- output and CLI
-def _finite(value):
-    """JSON has no NaN or infinity: such numbers are written as null."""
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(value) else None
-    return value
-
-
 def write_calorimetry_outputs(result: CalorimetryResult, out_dir) -> tuple[Path, Path]:
-    """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity)."""
+    """Write ``calorimetry.json`` and ``conversion.csv`` (time_min, relative_crystallinity),
+    all or nothing; NaN is written as null."""
+    with staged_outputs(out_dir) as stage:
+        write_json_atomic(stage / "calorimetry.json", result.to_json_dict())
+        t, x = result.conversion_table()
+        write_csv_atomic(stage / "conversion.csv", [("time_min", "relative_crystallinity"),
+                                                    *((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))])
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    json_path, csv_path = out / "calorimetry.json", out / "conversion.csv"
-    doc = {k: ({kk: _finite(vv) for kk, vv in v.items()} if isinstance(v, dict) else
-               [_finite(x) for x in v] if isinstance(v, list) else _finite(v))
-           for k, v in result.to_json_dict().items()}
-    json_path.write_text(json.dumps(doc, indent=2, allow_nan=False) + "\n", encoding="utf-8")
-    t, x = result.conversion_table()
-    with open(csv_path, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(["time_min", "relative_crystallinity"])
-        writer.writerows((f"{a:.6g}", f"{b:.6g}") for a, b in zip(t, x))
-    return json_path, csv_path
+    return out / "calorimetry.json", out / "conversion.csv"

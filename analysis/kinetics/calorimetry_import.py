@@ -14,11 +14,11 @@ import math
 import os
 import re
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.textio import excerpt, read_text, split_fields
 
 _DIALECTS = (("\t", "."), ("\t", ","), (";", "."), (";", ","), (",", "."), (" ", "."), (" ", ","))
 _TIME_FACTORS = {"s": 1 / 60, "sec": 1 / 60, "second": 1 / 60, "seconds": 1 / 60,
@@ -60,8 +60,8 @@ class Isotherm:
     warnings: tuple[str, ...] = ()
 
 
-def _split(line: str, delimiter: str) -> list[str]:
-    return line.split() if delimiter == " " else line.split(delimiter)
+def _split(line: str, delimiter: str, line_no: int | None = None, path=None) -> list[str]:
+    return split_fields(line, delimiter, line_no=line_no, path=path)
 
 
 def _number(text: str, decimal: str) -> float | None:
@@ -86,11 +86,11 @@ def _numeric_row(fields: list[str], decimal: str) -> list[float] | None:
     return values
 
 
-def _runs(lines: list[str], delimiter: str, decimal: str):
+def _runs(lines: list[str], delimiter: str, decimal: str, path=None):
     """Runs of consecutive data rows with equal field count: list of (start, stop, width)."""
     runs, start, width = [], None, None
     for i, line in enumerate([*lines, ""]):
-        row = _numeric_row(_split(line, delimiter), decimal) if line.strip() else None
+        row = _numeric_row(_split(line, delimiter, i + 1, path), decimal) if line.strip() else None
         w = None if row is None else len(row)
         if start is not None and w != width:
             runs.append((start, i, width))
@@ -101,24 +101,14 @@ def _runs(lines: list[str], delimiter: str, decimal: str):
 
 
 def _read_lines(path) -> list[str]:
-    try:
-        raw = Path(path).read_bytes()
-    except OSError as err:
-        raise InputError(f"cannot read calorimetry file ({err.strerror})", path) from None
-    if b"\x00" in raw[:4096]:
-        raise InputError("binary file, not a delimited text export", path)
-    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
-        try:
-            return raw.decode(encoding).splitlines()
-        except UnicodeDecodeError:
-            continue
-    raise InputError("cannot decode the file as text", path)  # pragma: no cover - latin-1 decodes all
+    """Lines of the export: a regular file within the text size limit, encoding detected."""
+    return read_text(path, "calorimetry file").lstrip("\ufeff").splitlines()
 
 
 def _best_dialect(lines: list[str], path):
     best = None
     for delimiter, decimal in _DIALECTS:
-        runs = _runs(lines, delimiter, decimal)
+        runs = _runs(lines, delimiter, decimal, path)
         if runs:
             main = max(runs, key=lambda r: r[1] - r[0])
             score = main[1] - main[0]
@@ -127,6 +117,23 @@ def _best_dialect(lines: list[str], path):
     if best is None:
         raise InputError("no numeric data rows found (need at least two numeric columns)", path)
     return best[1:]
+
+
+def _check_rows_after_data(lines, stop: int, width: int, delimiter: str, decimal: str, path):
+    """A numeric row after the data block is a row with the wrong field count: an error.
+
+    Ignoring it would drop data silently; reading it by position would shift columns (a
+    decimal comma in a comma-separated export splits one value into two fields).
+    """
+    for i in range(stop, len(lines)):
+        if not lines[i].strip():
+            continue
+        fields = _split(lines[i], delimiter, i + 1, path)
+        if _numeric_row(fields, decimal) is None:
+            continue
+        problem = (f"has {len(fields)} fields but the data rows have {width}" if len(fields) != width
+                   else "continues the data after an interruption")
+        raise InputError(f"line {i + 1} {problem}: {excerpt(lines[i].strip())}", path)
 
 
 def _unit_of(name: str) -> str | None:
@@ -173,13 +180,17 @@ def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:
         if other[0] != start and other[2] == width and other[1] - other[0] >= 5:
             cut = stop if other[0] > start else other[1]
             raise InputError(f"numeric data interrupted at line {cut + 1}: "
-                             f"{lines[cut].strip()[:40]!r}", path)
+                             f"{excerpt(lines[cut].strip())}", path)
+    _check_rows_after_data(lines, stop, width, delimiter, decimal, path)
     header = None
     for i in range(start - 1, -1, -1):
         if lines[i].strip():
             fields = [f.strip().strip('"') for f in _split(lines[i], delimiter)]
             if len(fields) == width:
                 header = i
+            elif _numeric_row(fields, decimal) is not None:
+                raise InputError(f"line {i + 1} has {len(fields)} fields but the data rows have "
+                                 f"{width}: {excerpt(lines[i].strip())}", path)
             break
     columns = ([f.strip().strip('"') for f in _split(lines[header], delimiter)]
                if header is not None else [f"column {j + 1}" for j in range(width)])

@@ -36,8 +36,6 @@ alpha = 0.1 (from memory).
 
 from __future__ import annotations
 
-import csv
-import json
 import math
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -46,7 +44,10 @@ import numpy as np
 from scipy import optimize, stats
 
 from analysis.errors import InputError
+from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
+from analysis.outputs import staged_outputs
+from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
            "fit_lauritzen_hoffman", "hoffman_weeks", "lh_coordinates",
@@ -343,24 +344,10 @@ def secondary_nucleation_dict(analysis: LHAnalysis) -> dict:
     }
 
 
-def _json_safe(value):
-    """NaN and infinities (not valid JSON) become null, recursively."""
-    if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_safe(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
 def write_secondary_nucleation(analysis: LHAnalysis, out_dir) -> Path:
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    path = out / "secondary_nucleation.json"
-    path.write_text(json.dumps(_json_safe(secondary_nucleation_dict(analysis)), indent=2,
-                               allow_nan=False) + "\n", encoding="utf-8")
-    return path
+    with staged_outputs(out_dir) as stage:
+        write_json_atomic(stage / "secondary_nucleation.json", secondary_nucleation_dict(analysis))
+    return Path(out_dir) / "secondary_nucleation.json"
 
 
 # ---------------------------------------------------------------- Hoffman-Weeks
@@ -398,41 +385,58 @@ class GrowthTable:
 
 
 def _table_rows(path):
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except OSError as err:
-        raise InputError(f"cannot read growth-rate table ({err.strerror})", path) from None
-    except UnicodeDecodeError:
-        raise InputError("growth-rate table is not UTF-8 text", path) from None
-    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
+    """(line number, line, fields) of the non-comment lines, every row as wide as the header."""
+    text = read_text(path, "growth-rate table").lstrip("\ufeff")
+    lines = [(number, line) for number, line in enumerate(text.splitlines(), start=1)
+             if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         raise InputError("growth-rate table is empty", path)
-    delimiter = max((",", ";", "\t"), key=lines[0].count)
-    return [[f.strip() for f in row] for row in csv.reader(lines, delimiter=delimiter)]
+    delimiter = max((",", ";", "\t"), key=lines[0][1].count)
+    rows = [(number, line, [f.strip() for f in split_fields(line, delimiter, line_no=number,
+                                                            path=path, quoted=True)])
+            for number, line in lines]
+    width = len(rows[0][2])
+    for number, line, fields in rows[1:]:
+        check_field_count(fields, width, line_no=number, line=line, path=path, delimiter=delimiter)
+    return rows, delimiter
+
+
+def _table_number(text: str, delimiter: str) -> float:
+    """A number; with ';' or tab delimiters a decimal comma is accepted (``14,6``)."""
+    if delimiter != "," and "," in text and "." not in text:
+        text = text.replace(",", ".")
+    return float(text)
 
 
 def read_growth_table(path) -> GrowthTable:
-    """CSV with columns temperature_c, growth_rate_um_per_min[, ci95_um_per_min]."""
-    rows = _table_rows(path)
-    header = [h.casefold() for h in rows[0]]
+    """CSV with columns temperature_c, growth_rate_um_per_min[, ci95_um_per_min].
+
+    Comma, semicolon or tab delimited; every row must have as many fields as the header
+    (see :mod:`analysis.textio`), so a decimal comma in a comma-separated file is an error
+    naming the line instead of shifted columns.
+    """
+    rows, delimiter = _table_rows(path)
+    names = rows[0][2]
+    header = [h.casefold() for h in names]
     needed = ("temperature_c", "growth_rate_um_per_min")
     missing = [name for name in needed if name not in header]
     if missing:
-        raise InputError(f"missing column(s) {', '.join(missing)}; header is {rows[0]}", path)
+        raise InputError(f"missing column(s) {', '.join(missing)}; header is "
+                         f"{excerpt(', '.join(names))}", path)
     cols = [header.index(n) for n in needed]
     if "ci95_um_per_min" in header:
         cols.append(header.index("ci95_um_per_min"))
     values = []
-    for line_no, row in enumerate(rows[1:], start=2):
+    for line_no, line, row in rows[1:]:
         try:
-            values.append([float(row[c]) for c in cols])
-        except (ValueError, IndexError):
-            raise InputError(f"row {line_no}: expected numbers in {', '.join(rows[0][c] for c in cols)}",
+            values.append([_table_number(row[c], delimiter) for c in cols])
+        except ValueError:
+            raise InputError(f"line {line_no}: expected numbers in "
+                             f"{', '.join(names[c] for c in cols)}: {excerpt(line.strip())}",
                              path) from None
+        if not all(math.isfinite(v) for v in values[-1]):
+            raise InputError(f"line {line_no}: NaN or infinite value", path)
     data = np.asarray(values, dtype=float).reshape(-1, len(cols))
-    if not np.all(np.isfinite(data)):
-        bad = 2 + int(np.flatnonzero(~np.all(np.isfinite(data), axis=1))[0])
-        raise InputError(f"row {bad}: NaN or infinite value", path)
     if data.shape[0] < 3:
         raise InputError(f"only {data.shape[0]} data rows; need at least 3 temperatures", path)
     if np.any(data[:, 1] <= 0):

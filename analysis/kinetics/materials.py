@@ -31,6 +31,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from analysis.errors import InputError
+from analysis.textio import read_text
 
 __all__ = ["Material", "SourcedValue", "VALUE_KEYS", "get_material", "list_materials",
            "load_material_file", "user_material_dir"]
@@ -122,13 +123,11 @@ def _parse_material(raw, path) -> Material:
 
 def load_material_file(path) -> list[Material]:
     """Read one materials JSON file (built-in format); InputError if it is malformed."""
+    text = read_text(path, "materials file").lstrip("\ufeff")
     try:
-        with open(path, encoding="utf-8") as fh:
-            doc = json.load(fh)
-    except OSError as err:
-        raise InputError(f"cannot read materials file ({err.strerror})", path) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as err:
-        raise InputError(f"not a valid JSON materials file ({err})", path) from None
+        doc = json.loads(text)
+    except (ValueError, RecursionError) as err:
+        raise InputError(f"not a valid JSON materials file ({str(err)[:80]})", path) from None
     if not isinstance(doc, dict) or not isinstance(doc.get("materials"), list):
         raise InputError("materials file needs a top-level 'materials' list", path)
     if doc.get("schema", 1) != 1:

@@ -6,13 +6,14 @@ not stored: they are always reproducible from this recipe.
 
 File format (``*.spherokin.json``)::
 
-    {"format": "spherokin-project", "schema_version": 1, "app_version": "...",
+    {"format": "spherokin-project", "schema_version": 2, "app_version": "...",
      "created": ISO-8601, "modified": ISO-8601, "material": "iPP" | null,
      "series": {"tm0_c": ..., "tg_c": ..., ...},
      "experiments": [{"name", "stack" (relative to the project file), "temperature_c",
                       "um_per_px", "interval_s", "times_s", "isothermal_start_s",
                       "thickness_um", "notes", "settings", "geometry", "mode_override",
-                      "calorimetry": {...} | null, "edits": [{"kind": ...}, ...]}]}
+                      "calorimetry": {...} | null,
+                      "edits": [{"kind": ..., "id": detection id, ...}, ...]}]}
 
 Older schemas are migrated step by step by :data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
@@ -24,7 +25,8 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
+import re
+import sys
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
@@ -33,15 +35,50 @@ from typing import Any, Callable
 from analysis import __version__
 from analysis.edits import Edit, edit_from_dict, edit_to_dict
 from analysis.errors import InputError
+from analysis.units import write_json_atomic
+from analysis.textio import read_text
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 SUFFIX = ".spherokin.json"
 
+#: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
+_TARGETED_EDITS = ("add_nucleus", "delete_detection", "merge_detections", "move_centre",
+                   "exclude", "include", "ignore_frames")
+
+
+def _v1_edits_name_their_detection(document: dict) -> dict:
+    """Schema 1 -> 2: edits name the detection they act on by its id.
+
+    Schema-1 edits found their target as the detection nearest to a point when replayed,
+    which could land on a neighbour once other edits had moved things. From schema 2
+    each record also stores the detection's ``id`` (``other_id`` for the one merged
+    away); ids did not exist in schema 1, so migrated records get ``null`` and keep
+    being found by their point. A schema-1 ``add_nucleus`` was seeded at the arrival
+    map's minimum near the click; from schema 2 the nucleus sits exactly at the click.
+    The version is bumped so that an older reader refuses a schema-2 file instead of
+    ignoring the ids and misplacing the edits.
+    """
+    experiments = []
+    for experiment in document.get("experiments") or []:
+        if isinstance(experiment, dict) and isinstance(experiment.get("edits"), list):
+            edits = []
+            for record in experiment["edits"]:
+                if isinstance(record, dict) and record.get("kind") in _TARGETED_EDITS:
+                    record = {**record, "id": record.get("id")}
+                    if record["kind"] == "merge_detections":
+                        record["other_id"] = record.get("other_id")
+                edits.append(record)
+            experiment = {**experiment, "edits": edits}
+        experiments.append(experiment)
+    if "experiments" in document:
+        document["experiments"] = experiments
+    return document
+
+
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
-#: Each function carries a docstring saying why the format changed. v1 is the first
-#: released schema, so the chain is empty for now.
-MIGRATIONS: dict[int, Callable[[dict], dict]] = {}
+#: Each function carries a docstring saying why the format changed.
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_edits_name_their_detection}
 
 
 @dataclass(frozen=True)
@@ -128,20 +165,66 @@ def open_experiment_stack(experiment: Experiment):
 # ---------------------------------------------------------------- loading
 
 
+#: Deepest nesting of a project document; ours is 5 deep (edits inside experiments).
+#: Deeper documents are refused before anything recursive walks them.
+MAX_JSON_DEPTH = 64
+
+
 def load_project(path) -> Project:
     """Read a project file, migrating older schemas; :class:`InputError` when unusable."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("no such project file", path) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"project file cannot be read ({exc})", path) from None
+    text = read_text(path, "project file").lstrip("\ufeff")
+    return project_from_dict(parse_project_json(text, path), path)
+
+
+def parse_project_json(text: str, path) -> Any:
+    """The parsed document, or :class:`InputError` naming the file for bad or hostile JSON.
+
+    Nesting is checked before parsing (the parser recurses) and numbers after it: an
+    integer of more than 4300 digits or beyond the float range is refused here rather
+    than failing deep inside the analysis.
+    """
+    depth = _bracket_depth(text)
+    if depth > MAX_JSON_DEPTH:
+        raise InputError(f"project file is nested {depth} levels deep (at most {MAX_JSON_DEPTH})", path)
     try:
         document = json.loads(text)
     except json.JSONDecodeError as exc:
         raise InputError(f"project file is not valid JSON (line {exc.lineno}: {exc.msg})", path) from None
-    return project_from_dict(document, path)
+    except (ValueError, RecursionError) as exc:
+        if "digits" in str(exc):  # Python refuses integers over sys.get_int_max_str_digits()
+            raise InputError(f"project file holds an integer with more than "
+                             f"{getattr(sys, 'get_int_max_str_digits', lambda: 4300)()} digits", path) from None
+        raise InputError(f"project file cannot be parsed ({str(exc)[:80]})", path) from None
+    _check_numbers(document, path)
+    return document
+
+
+def _bracket_depth(text: str) -> int:
+    """Deepest nesting of [ and { outside strings (a linear scan, no recursion)."""
+    depth = deepest = 0
+    for token in re.finditer(r'"(?:[^"\\]|\\.)*"|[\[\]{}]', text):
+        char = token.group()
+        if char in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        elif char in "]}":
+            depth -= 1
+    return deepest
+
+
+def _check_numbers(document: Any, path) -> None:
+    """Integers that do not fit a float are refused (they would overflow every formula)."""
+    pending = [document]
+    while pending:
+        value = pending.pop()
+        if isinstance(value, dict):
+            pending.extend(value.values())
+        elif isinstance(value, list):
+            pending.extend(value)
+        elif isinstance(value, int) and not isinstance(value, bool) and abs(value) > 2**1023:
+            raise InputError(f"project file holds an integer too large for any setting "
+                             f"({len(str(abs(value)))} digits)", path)
 
 
 def project_from_dict(document: Any, path) -> Project:
@@ -288,36 +371,5 @@ def save_project(project: Project, path) -> Project:
     path = Path(path)
     stamped = replace(project, modified=_now(), created=project.created or _now(),
                       path=str(path.resolve()))
-    text = json.dumps(project_to_dict(stamped, path), indent=2, ensure_ascii=False)
-    write_text_atomic(path, text + "\n")
+    write_json_atomic(path, project_to_dict(stamped, path))
     return stamped
-
-
-def write_text_atomic(path, text: str) -> None:
-    """Write via a temporary file in the same folder, flush + fsync, then rename."""
-    path = Path(path)
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.chmod(temporary, _file_mode(path))
-        with os.fdopen(handle, "w", encoding="utf-8") as out:
-            out.write(text)
-            out.flush()
-            os.fsync(out.fileno())
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
-
-
-def _file_mode(path: Path) -> int:
-    """Keep an existing file's permissions; new files get the usual umask-based mode.
-
-    mkstemp creates files readable by the owner only, which would silently hide a
-    shared project from colleagues after the first save.
-    """
-    try:
-        return path.stat().st_mode & 0o777
-    except FileNotFoundError:
-        umask = os.umask(0)
-        os.umask(umask)
-        return 0o666 & ~umask

@@ -4,8 +4,6 @@ overlay.png (formats in docs/design.md), and the ``analyze`` command line.
 
 from __future__ import annotations
 
-import csv
-import json
 import math
 import os
 from typing import Any
@@ -13,6 +11,9 @@ from typing import Any
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
+from analysis.units import json_clean, write_csv_atomic, write_json_atomic
+from analysis.outputs import clean_text, staged_outputs
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
@@ -26,14 +27,6 @@ _CENTRE = (255, 255, 90)
 _LABEL = (255, 255, 255)
 
 
-def _number(value) -> Any:
-    """JSON-safe number: None for missing or non-finite values."""
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
-
-
 def _cell(value) -> str:
     """CSV cell text; a leading = + - @ is escaped with a quote (formula injection)."""
     if value is None:
@@ -41,7 +34,7 @@ def _cell(value) -> str:
     if isinstance(value, float):
         text = "" if not math.isfinite(value) else repr(round(value, 6))
         return text
-    text = str(value)
+    text = clean_text(str(value))
     if text[:1] in ("=", "+", "-", "@"):
         return "'" + text
     return text
@@ -75,61 +68,61 @@ def radii_rows(result) -> list[list[str]]:
     return rows
 
 
-def _write_csv(path: str, header, rows) -> None:
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(header)
-        writer.writerows(rows)
+def _avrami_dict(params) -> dict[str, Any]:
+    if not params:
+        return {"n": None, "k_per_min_n": None, "t_half_min": None}
+    return {"n": params.n, "k_per_min_n": params.k_per_min_n, "t_half_min": params.t_half_min}
 
 
-def _avrami_dict(params, *, with_geometry: bool) -> dict[str, Any]:
-    out = {"n": None, "k_per_min_n": None, "t_half_min": None}
-    if params is not None:
-        out = {"n": _number(params.n), "k_per_min_n": _number(params.k_per_min_n),
-               "t_half_min": _number(params.t_half_min)}
-    if with_geometry:
-        geometry = params.geometry if params is not None else None
-        out = {"geometry": geometry, **out}
-    return out
+def _predicted(result, geometry: str):
+    try:
+        return predict_from_result(result, geometry)
+    except InputError:
+        return None
 
 
-def summary_dict(result) -> dict[str, Any]:
-    """The summary.json record of a result (schema 1, docs/design.md)."""
+def summary_dict(result, geometry: str) -> dict[str, Any]:
+    """The summary.json record of a result (schema 1, docs/design.md); NaN becomes null.
+
+    ``avrami_predicted`` is the ``geometry`` prediction of
+    :func:`analysis.kinetics.prediction.predict_from_result` (null values when an input is
+    missing), ``avrami_film`` the whole-curve fit of the image's X(t).
+    """
     g, nuc = result.growth_rate, result.nucleation
-    return {
+    return json_clean({
         "schema": 1,
         "stack": result.stack,
         "frames": int(result.frames),
-        "um_per_px": _number(result.um_per_px),
-        "interval_s": _number(result.interval_s),
-        "temperature_c": _number(result.temperature_c),
-        "thickness_um": _number(result.thickness_um),
-        "growth_rate_um_per_min": {"value": _number(g.value), "ci95_low": _number(g.ci95_low),
-                                   "ci95_high": _number(g.ci95_high), "n": int(g.n)},
+        "um_per_px": result.um_per_px,
+        "interval_s": result.interval_s,
+        "temperature_c": result.temperature_c,
+        "thickness_um": result.thickness_um,
+        "growth_rate_um_per_min": {"value": g.value, "ci95_low": g.ci95_low,
+                                   "ci95_high": g.ci95_high, "n": int(g.n)},
         "nucleation": {"count": int(nuc.count), "mode": nuc.mode,
-                       "density_per_mm2": _number(nuc.density_per_mm2),
-                       "density_per_mm3": _number(nuc.density_per_mm3),
-                       "rate_per_mm2_per_min": _number(nuc.rate_per_mm2_per_min),
-                       "rate_per_mm3_per_min": _number(nuc.rate_per_mm3_per_min),
-                       "induction_time_s": _number(nuc.induction_time_s)},
-        "area_fraction": {"time_s": [_number(t) for t in result.area_fraction_time_s],
-                          "value": [_number(x) for x in result.area_fraction]},
-        "avrami_film": _avrami_dict(result.avrami_film, with_geometry=False),
-        "avrami_predicted": _avrami_dict(result.avrami_predicted, with_geometry=True),
+                       "density_per_mm2": nuc.density_per_mm2,
+                       "density_per_mm3": nuc.density_per_mm3,
+                       "rate_per_mm2_per_min": nuc.rate_per_mm2_per_min,
+                       "rate_per_mm3_per_min": nuc.rate_per_mm3_per_min,
+                       "induction_time_s": nuc.induction_time_s},
+        "area_fraction": {"time_s": result.area_fraction_time_s,
+                          "value": result.area_fraction},
+        "avrami_film": _avrami_dict(film_avrami_fit(result)),
+        "avrami_predicted": {"geometry": geometry, **_avrami_dict(_predicted(result, geometry))},
         "image_quality": image_quality_dict(result.image_quality),
-    }
+    })
 
 
 def image_quality_dict(quality) -> dict[str, Any] | None:
     """The ``image_quality`` object of summary.json (None when not measured)."""
     if quality is None:
         return None
-    return {"noise_fraction_of_full_scale": _number(quality.noise),
-            "crystal_noise_fraction_of_full_scale": _number(quality.crystal_noise),
-            "contrast_fraction_of_full_scale": _number(quality.contrast),
-            "signal_to_noise": _number(quality.snr), "smoothing_px": _number(quality.smoothing_px),
-            "unresolved_fraction": _number(quality.unresolved_fraction), "blur_px": _number(quality.blur_px),
-            "illumination_unevenness": _number(quality.illumination_unevenness),
+    return {"noise_fraction_of_full_scale": quality.noise,
+            "crystal_noise_fraction_of_full_scale": quality.crystal_noise,
+            "contrast_fraction_of_full_scale": quality.contrast,
+            "signal_to_noise": quality.snr, "smoothing_px": quality.smoothing_px,
+            "unresolved_fraction": quality.unresolved_fraction, "blur_px": quality.blur_px,
+            "illumination_unevenness": quality.illumination_unevenness,
             "too_poor_for_automatic_counting": bool(quality.too_poor), "verdict": quality.verdict}
 
 
@@ -173,26 +166,26 @@ def overlay_image(result, background: np.ndarray | None, *, shape=None) -> np.nd
     return img
 
 
-def write_analysis_outputs(result, out_dir, *, arrival=None, stack=None) -> list[str]:
-    """Write spherulites.csv, radii.csv, summary.json and overlay.png into ``out_dir``.
+def write_analysis_outputs(result, out_dir, *, geometry: str, arrival=None,
+                           stack=None) -> list[str]:
+    """Write spherulites.csv, radii.csv, summary.json and overlay.png into ``out_dir``,
+    all or nothing; ``geometry`` ("film-2d" or "bulk-3d") of the predicted kinetics.
 
     ``stack`` (a FrameStack) supplies the last frame for the overlay; without it the
     overlay is drawn on black at the arrival map's size. Returns the written paths.
     """
+    names = ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")
+    with staged_outputs(out_dir) as stage:
+        _write_analysis_files(result, [os.path.join(stage, name) for name in names], geometry, arrival, stack)
+    return [os.path.join(os.fspath(out_dir), name) for name in names]
+
+
+def _write_analysis_files(result, paths, geometry, arrival, stack) -> None:
     import cv2
 
-    out_dir = os.fspath(out_dir)
-    try:
-        os.makedirs(out_dir, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot create the output folder: {exc.strerror}", out_dir) from None
-    paths = [os.path.join(out_dir, name) for name in
-             ("spherulites.csv", "radii.csv", "summary.json", "overlay.png")]
-    _write_csv(paths[0], SPHERULITE_COLUMNS, spherulite_rows(result))
-    _write_csv(paths[1], RADII_COLUMNS, radii_rows(result))
-    with open(paths[2], "w", encoding="utf-8") as fh:
-        json.dump(summary_dict(result), fh, indent=2, allow_nan=False)
-        fh.write("\n")
+    write_csv_atomic(paths[0], [SPHERULITE_COLUMNS, *spherulite_rows(result)])
+    write_csv_atomic(paths[1], [RADII_COLUMNS, *radii_rows(result)])
+    write_json_atomic(paths[2], summary_dict(result, geometry))
     background = stack[len(stack) - 1] if stack is not None and len(stack) else None
     shape = None if arrival is None else np.asarray(arrival.arrival_s).shape
     if background is None and shape is None:
@@ -200,4 +193,3 @@ def write_analysis_outputs(result, out_dir, *, arrival=None, stack=None) -> list
         shape = labels.shape if labels is not None else (256, 256)
     if not cv2.imwrite(paths[3], overlay_image(result, background, shape=shape)):
         raise InputError("could not write overlay.png", paths[3])
-    return paths

@@ -18,6 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
+from analysis.units import write_atomic
+
 __all__ = ["AvramiCurve", "avrami_figure", "conversion_comparison_figure", "growth_rate_figure",
            "hoffman_weeks_figure", "lauritzen_hoffman_figure", "save_figure"]
 
@@ -41,8 +43,8 @@ def _figure(width_in: float = _SIZE_IN[0]):
 def save_figure(fig, stem) -> tuple[Path, Path]:
     stem = Path(stem)
     png, svg = stem.with_suffix(".png"), stem.with_suffix(".svg")
-    fig.savefig(png, dpi=300)
-    fig.savefig(svg)
+    write_atomic(png, lambda temporary: fig.savefig(temporary, dpi=300, format="png"))
+    write_atomic(svg, lambda temporary: fig.savefig(temporary, format="svg"))
     return png, svg
 
 

@@ -20,13 +20,14 @@ Public API
 
 from __future__ import annotations
 
-import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.outputs import clean_text, prepare_output_folder, staged_outputs
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,
@@ -42,11 +43,13 @@ from analysis.reporting.tables import (
     write_csv,
     write_xlsx,
 )
+from analysis.units import write_json_atomic
 
 #: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
 HW_PAIRS_KEY = "hoffman_weeks_pairs"
 
-__all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "project_entries_iter",
+__all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
+           "project_entries_iter",
            "report_project", "report_project_iter", "series_constants"]
 
 
@@ -127,7 +130,7 @@ def _write_figures(entries, lh, material, out: Path) -> list[Path]:
 
 def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
     """``hoffman_weeks.json`` and its figure from (Tc, Tm) pairs in deg C, if there are any."""
-    pairs = [p for p in (pairs or []) if p is not None and len(p) == 2 and None not in p]
+    pairs = checked_hoffman_weeks_pairs(pairs)
     if not pairs:
         return []
     tc, tm = (np.array(v, dtype=float) for v in zip(*pairs))
@@ -138,8 +141,7 @@ def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
     doc = {"schema": 1, "pairs": [[float(a), float(b)] for a, b in zip(tc, tm)],
            "tm0_c": hw.tm0_c, "gamma": hw.gamma, "slope": hw.slope,
            "intercept_c": hw.intercept_c, "r2": hw.r2, "caveat": hw.caveat}
-    path = out / "hoffman_weeks.json"
-    path.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    path = write_json_atomic(out / "hoffman_weeks.json", doc)
     return [path, *figures.save_figure(figures.hoffman_weeks_figure(tc, tm, hw),
                                        out / "hoffman_weeks")]
 
@@ -154,9 +156,14 @@ def build_report(entries, out_dir, *, constants: LHConstants | None = None,
     entries = list(entries)
     if not entries:
         raise InputError("the project has no analysable experiment; nothing to report")
+    with staged_outputs(out_dir) as stage:
+        files, lh, problems = _write_report_files(entries, stage, constants, material,
+                                                  list(problems), hoffman_weeks_pairs)
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    problems = list(problems)
+    return ReportSummary(str(out), tuple(str(out / Path(f).name) for f in files), lh, tuple(problems))
+
+
+def _write_report_files(entries, out: Path, constants, material, problems, hoffman_weeks_pairs):
     growth, comparison = growth_vs_temperature_table(entries), comparison_table(entries)
     files = [write_csv(growth, out / "growth_vs_temperature.csv"),
              write_csv(comparison, out / "kinetics_comparison.csv"),
@@ -167,7 +174,7 @@ def build_report(entries, out_dir, *, constants: LHConstants | None = None,
         files.append(write_secondary_nucleation(lh, out))
     files.extend(_write_figures(entries, lh, material, out))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
-    return ReportSummary(str(out), tuple(str(f) for f in files), lh, tuple(problems))
+    return files, lh, problems
 
 
 def series_constants(project) -> tuple[LHConstants | None, str]:
@@ -219,13 +226,35 @@ def project_entries_iter(project):
             except InputError as err:
                 cal_problem = str(err)
                 problems.append(f"{exp.name}: calorimetry skipped ({err})")
-        entries.append(ReportEntry(exp.name, analysis.result, exp.geometry, exp.mode_override,
+        entries.append(ReportEntry(clean_text(exp.name), analysis.result, exp.geometry, exp.mode_override,
                                    cal, cal_problem))
     yield Progress("analysing experiments", 1.0)
     return entries, problems
 
 
+def checked_hoffman_weeks_pairs(pairs, path=None) -> list[tuple[float, float]]:
+    """(Tc, Tm) pairs in deg C from the project series; InputError naming the file if malformed."""
+    if pairs is None:
+        return []
+    if not isinstance(pairs, (list, tuple)):
+        raise InputError(f"series {HW_PAIRS_KEY} must be a list of [Tc, Tm] pairs", path)
+    checked = []
+    for number, pair in enumerate(pairs, start=1):
+        if pair is None or (isinstance(pair, (list, tuple)) and None in pair):
+            continue  # a row the user has not filled in yet
+        if (not isinstance(pair, (list, tuple)) or len(pair) != 2
+                or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in pair)
+                or not all(math.isfinite(v) for v in pair)):
+            raise InputError(f"series {HW_PAIRS_KEY} entry {number} must be two finite numbers "
+                             f"[Tc, Tm] in C, got {str(pair)[:40]}", path)
+        checked.append((float(pair[0]), float(pair[1])))
+    return checked
+
+
 def report_project_iter(project, out_dir):
+    """Check the output folder and the series first, then analyse and write the report."""
+    prepare_output_folder(out_dir)
+    pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
@@ -235,7 +264,7 @@ def report_project_iter(project, out_dir):
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,
-                           hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
+                           hoffman_weeks_pairs=pairs)
     yield Progress("writing report", 1.0)
     return summary
 

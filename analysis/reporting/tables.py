@@ -18,15 +18,17 @@ agreement and a plain-language note, for entries that have calorimetry.
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import dataclass
 from functools import cached_property
 from pathlib import Path
 
 from analysis.errors import InputError
-from analysis.kinetics.avrami import AvramiPrediction, predict_model_from_result
+from analysis.kinetics.avrami import AvramiPrediction
+from analysis.kinetics.prediction import predict_model_from_result
+from analysis.outputs import clean_text
 from analysis.results import ExperimentResult
+from analysis.units import write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
            "escape_cell", "growth_vs_temperature_table", "write_csv", "write_xlsx"]
@@ -75,9 +77,12 @@ class ReportEntry:
 
 
 def escape_cell(value):
-    """Neutralise spreadsheet formulas: text starting with = + - @ (or tab/CR) gets a "'"."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
+    """Neutralise spreadsheet formulas (text starting with = + - @, tab or CR gets a "'")
+    and replace control characters with spaces."""
+    if isinstance(value, str):
+        value = clean_text(value)  # spreadsheet files cannot hold control characters
+        if value.startswith(_FORMULA_START):
+            return "'" + value
     return value
 
 
@@ -216,13 +221,10 @@ def _csv_value(value):
 
 
 def write_csv(table: Table, path) -> Path:
-    """UTF-8 CSV; text cells escaped against formula injection; None -> empty."""
-    path = Path(path)
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh)
-        writer.writerow([_csv_value(h) for h in table.header])
-        writer.writerows([_csv_value(v) for v in row] for row in table.rows)
-    return path
+    """UTF-8 CSV, written atomically; text cells escaped against formula injection;
+    None -> empty."""
+    return write_csv_atomic(path, [[_csv_value(v) for v in row]
+                                   for row in (table.header, *table.rows)])
 
 
 def _xlsx_value(value):
@@ -232,7 +234,8 @@ def _xlsx_value(value):
 
 
 def write_xlsx(sheets: dict, path) -> Path:
-    """One worksheet per table; header row bold and frozen; text cells escaped."""
+    """One worksheet per table; header row bold and frozen; text cells escaped; the file
+    is written atomically."""
     from openpyxl import Workbook
     from openpyxl.styles import Font
 
@@ -246,6 +249,4 @@ def write_xlsx(sheets: dict, path) -> Path:
         for row in table.rows:
             sheet.append([_xlsx_value(v) for v in row])
         sheet.freeze_panes = "A2"
-    path = Path(path)
-    book.save(path)
-    return path
+    return write_atomic(path, lambda temporary: book.save(temporary))

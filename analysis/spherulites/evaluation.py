@@ -10,6 +10,8 @@ unchanged territories cost nothing when edits are replayed.
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from analysis import heuristics
@@ -25,9 +27,7 @@ from analysis.spherulites.nucleation import (
     MeltExposure,
     area_fraction,
     field_area_mm2,
-    film_avrami,
     nucleation_statistics,
-    predicted_avrami,
 )
 from analysis.spherulites.replay import cached, digest, edited_territories
 
@@ -55,16 +55,37 @@ def fit_pixels(ctx, pix, band, spans, settings):
     return chosen[::step]
 
 
+def _cone_key(chosen, hold_xy, refine, warm) -> tuple:
+    """Cache key of a cone fit: everything the fit depends on, so the cache is a pure
+    memo (the same edits always give the same fits, whatever was computed before)."""
+    start = None if warm is None or not warm.ok else (warm.x_px, warm.y_px, warm.t0_s,
+                                                       warm.slope_s_per_px)
+    return ("cone", digest(chosen), hold_xy, refine, None if hold_xy is not None else start)
+
+
+def _held_centre(ctx, det, chosen, refine, warm) -> tuple[float, float] | None:
+    """The centre the fit must keep: the user's, or the automatic one when the pixels
+    are no longer those the automatic fit used (a neighbour's edit changed them)."""
+    if det.fixed_xy is not None:
+        return det.fixed_xy
+    if det.held and _cone_key(chosen, None, refine, warm) not in ctx.auto_fit_keys:
+        return det.anchor_xy
+    return None
+
+
 def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
           warm: growth.ConeFit | None = None) -> growth.ConeFit:
     """Cone fit of one territory (cached); ``refine`` adds the refit without the apex.
     ``warm``: an earlier fit of nearly the same pixels to start from (fewer iterations)."""
     chosen = fit_pixels(ctx, pix, band, spans, settings)
-    key = ("cone", digest(chosen), det.fixed_xy, refine)
+    hold = _held_centre(ctx, det, chosen, refine, warm)
+    key = _cone_key(chosen, hold, refine, warm)
+    if ctx.fit_key_recorder is not None:
+        ctx.fit_key_recorder.add(key)
     if key in ctx.cache:
         return ctx.cache[key]
     y, x = np.divmod(chosen, ctx.shape[1])
-    start, guess = det.fixed_xy, None
+    start, guess = hold, None
     if start is None and warm is not None and warm.ok:
         start, guess = (warm.x_px, warm.y_px), (warm.t0_s, warm.slope_s_per_px)
     if start is None:
@@ -72,7 +93,7 @@ def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
         sy, sx = np.divmod(seeds, ctx.shape[1])
         start = (float(sx.mean()), float(sy.mean()))
     t, levels = ctx.fit_arrival.ravel()[chosen], ctx.frame_index.ravel()[chosen]
-    fixed = det.fixed_xy is not None
+    fixed = hold is not None
     fit = growth.fit_cone(x, y, t, levels, start_xy=start, f_scale_s=0.5 * ctx.interval_s,
                           fixed_centre=fixed, field_shape=ctx.shape, start_t0_slope=guess)
     if refine and fit.ok and settings.apex_exclusion_px > 0:
@@ -131,7 +152,7 @@ def _edge(ctx, det, fit) -> bool:
     fitted centre keeps the count unbiased for nuclei right at the border."""
     h, w = ctx.shape
     inside = -0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5
-    return det.fixed_xy is None and not inside
+    return det.source == "auto" and det.fixed_xy is None and not inside
 
 
 def _status(ctx, det, fit, series, lin, settings) -> tuple[str, str]:
@@ -156,10 +177,12 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
     fit = _cone(ctx, det, pix, band, spans, settings, warm=warm)
     if fit.ok:
         cx, cy = fit.x_px, fit.y_px
+    elif det.fixed_xy is not None or det.held:
+        cx, cy = det.centre_xy
     else:
         seeds = np.concatenate(det.seeds)
         sy, sx = np.divmod(seeds, ctx.shape[1])
-        cx, cy = det.fixed_xy or (float(sx.mean()), float(sy.mean()))
+        cx, cy = float(sx.mean()), float(sy.mean())
     series, lin = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
     status, reason = _status(ctx, det, fit, series, lin, settings)
     frames = ctx.frame_index.ravel()[pix]
@@ -190,15 +213,16 @@ def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evid
 # ---------------------------------------------------------------- whole result
 def _provisional_cones(ctx, live) -> dict:
     """A cone per single-seed detection from its seed (apex, lowest working-map time)
-    and the field's mean slope; merged detections get none (they keep their flooding)."""
+    and the field's mean slope, its apex at the user's centre when there is one; merged
+    detections get none (they keep their flooding)."""
     cones = {}
     for d in live:
         if len(d.seeds) != 1:
             continue
         sy, sx = np.divmod(d.seeds[0], ctx.shape[1])
         t0 = float(np.min(ctx.work.ravel()[d.seeds[0]]))
-        cones[d.id] = growth.ConeFit(float(sx.mean()), float(sy.mean()), t0, ctx.slope_s_per_px,
-                                     0, 0, 0, 0, 0, 1.0, 0, 0)
+        x, y = d.fixed_xy if d.fixed_xy is not None else (float(sx.mean()), float(sy.mean()))
+        cones[d.id] = growth.ConeFit(x, y, t0, ctx.slope_s_per_px, 0, 0, 0, 0, 0, 1.0, 0, 0)
     return cones
 
 
@@ -229,6 +253,13 @@ def result_of(ctx, dets, global_spans, unapplied, settings) -> ExperimentResult:
     return evaluate(ctx, dets, global_spans, unapplied, settings)[0]
 
 
+def automatic_fit_keys(ctx, dets, settings) -> frozenset:
+    """The cone fits the automatic result is made of (they are all cached by now)."""
+    recorder: set = set()
+    evaluate(dataclasses.replace(ctx, fit_key_recorder=recorder), dets, [], [], settings)
+    return frozenset(recorder)
+
+
 def evaluate(ctx, dets, global_spans, unapplied, settings):
     """The result, and the final fits by detection id and their pixel groups."""
     labels, provisional = _partition(ctx, dets, global_spans, settings)
@@ -248,19 +279,17 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
     spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
     pooled, pooled_text = _pooled(spherulites, fits, ctx.um_per_px)
     time_s, fraction = _area_fraction(ctx, global_spans)
-    nucleation, burst_density = _nucleation(ctx, spherulites, fits, time_s, fraction)
-    film = film_avrami(time_s, fraction, nucleation.induction_time_s)
-    predicted = predicted_avrami(ctx.geometry, ctx.thickness_um, pooled.value, nucleation,
-                                 burst_density)
+    nucleation = _nucleation(ctx, spherulites, fits, time_s, fraction)
     result = ExperimentResult(
         stack=ctx.stack, frames=ctx.frames, um_per_px=ctx.um_per_px, interval_s=ctx.interval_s,
         temperature_c=ctx.temperature_c, thickness_um=ctx.thickness_um,
         spherulites=tuple(spherulites), radii=tuple(radii), growth_rate=pooled,
         nucleation=nucleation, area_fraction_time_s=time_s, area_fraction=fraction,
-        avrami_film=film, avrami_predicted=predicted, unapplied_edits=tuple(unapplied),
+        unapplied_edits=tuple(unapplied),
         warnings=tuple(_warnings(ctx, spherulites, fits)),
         extra={"pooled_growth_rate_method": pooled_text, "territories": labels,
-               "geometry": ctx.geometry})
+               "geometry": ctx.geometry,
+               "next_detection_id": max((d.id for d in dets), default=0) + 1})
     return result, dict(zip([s.id for s in spherulites], fits)), groups
 
 

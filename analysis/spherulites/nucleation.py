@@ -11,8 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from analysis.errors import InputError
-from analysis.results import AvramiParameters, Nucleation
+from analysis.results import Nucleation
+from analysis.units import per_mm3_from_per_mm2
 
 
 def area_fraction(arrival_s: np.ndarray, times_s: np.ndarray) -> np.ndarray:
@@ -21,7 +21,7 @@ def area_fraction(arrival_s: np.ndarray, times_s: np.ndarray) -> np.ndarray:
     A pixel counts as crystalline at t_f when its arrival time is at or before t_f;
     unusable pixels (NaN) are left out of numerator and denominator. What a
     transmission image shows is projected area, which follows the 2-D law whatever the
-    film thickness (REFERENCES §1.7).
+    film thickness (docs/sources.md §1.7).
     """
     arrival = np.asarray(arrival_s)
     usable = arrival[~np.isnan(arrival)]
@@ -110,23 +110,22 @@ def classify_mode(t0_s: np.ndarray, exposure: MeltExposure, *, burst_window_s: f
 
 def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float,
                           interval_s: float, thickness_um: float | None, end_s: float,
-                          t0_se_s=None) -> tuple[Nucleation, float | None]:
+                          t0_se_s=None) -> Nucleation:
     """Count, densities, rate, induction time and mode of the nuclei inside the field.
 
     ``t0_s`` are the nucleation times (s from the isothermal start) of the nuclei whose
-    centre lies inside the field (REFERENCES §1.6: count by centre). N_V = N_A / h
+    centre lies inside the field (docs/sources.md §1.6: count by centre). N_V = N_A / h
     assumes that all nuclei through the film thickness h are seen in transmission and
-    none sit on the glass surfaces (REFERENCES §1.7). The burst window for the mode test
+    none sit on the glass surfaces (docs/sources.md §1.7). The burst window for the mode test
     is two frame intervals plus twice the median standard error of t0 (common practice).
-    Returns the :class:`Nucleation` and the density of the initial burst per mm^2 (the
-    predetermined part, for mixed-mode kinetics).
+    The density of the initial burst (the predetermined part, for mixed-mode kinetics)
+    is ``burst_density_per_mm2``.
     """
     t = np.asarray(t0_s, dtype=float)
     t = t[np.isfinite(t)]
-    h_mm = thickness_um * 1e-3 if thickness_um else None
     if t.size == 0:
-        return Nucleation(0, None, 0.0, 0.0 if h_mm else None, None, None, None,
-                          "no nuclei inside the field"), None
+        return Nucleation(0, None, 0.0, per_mm3_from_per_mm2(0.0, thickness_um), None, None, None,
+                          "no nuclei inside the field")
     se = np.asarray(t0_se_s if t0_se_s is not None else [], dtype=float)
     se = se[np.isfinite(se)]
     window = 2.0 * interval_s + (2.0 * float(np.median(se)) if se.size else 0.0)
@@ -135,49 +134,14 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
     rate_min = None if rate_s is None else rate_s * 60.0
     nucleation = Nucleation(
         count=int(t.size), mode=mode, density_per_mm2=n_a,
-        density_per_mm3=None if h_mm is None else n_a / h_mm,
+        density_per_mm3=per_mm3_from_per_mm2(n_a, thickness_um),
         rate_per_mm2_per_min=rate_min,
-        rate_per_mm3_per_min=None if (rate_min is None or h_mm is None) else rate_min / h_mm,
+        rate_per_mm3_per_min=per_mm3_from_per_mm2(rate_min, thickness_um),
         induction_time_s=max(0.0, float(t.min())), mode_test=text,
         burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2)
-    return nucleation, nucleation.burst_density_per_mm2
+    return nucleation
 
 
 def field_area_mm2(shape: tuple[int, int], um_per_px: float) -> float:
     """Area of the whole field of view, mm^2."""
     return shape[0] * shape[1] * (um_per_px * 1e-3) ** 2
-
-
-def film_avrami(time_s, fraction, induction_s) -> AvramiParameters | None:
-    """Avrami fit of the image's X(t) (2-D law), in min from the induction time."""
-    from analysis.kinetics.avrami import fit_avrami_curve
-
-    origin = induction_s or 0.0
-    fit = fit_avrami_curve((np.asarray(time_s) - origin) / 60.0, fraction)
-    return fit.to_parameters("film-2d") if fit else None
-
-
-def predicted_avrami(geometry: str, thickness_um: float | None, growth_rate_um_per_min,
-                     nucleation: Nucleation, burst_density_per_mm2) -> AvramiParameters | None:
-    """Avrami n, k, t_half predicted from N (the initial burst), Ndot and the pooled G.
-
-    For ``bulk-3d`` the areal values become volumetric through N_V = N_A / h
-    (REFERENCES §1.7); without a thickness there is no 3-D prediction.
-    """
-    from analysis.kinetics.avrami import predict_avrami
-
-    if growth_rate_um_per_min is None or nucleation.mode is None:
-        return None
-    density = burst_density_per_mm2 if nucleation.mode != "thermal" else None
-    rate = nucleation.rate_per_mm2_per_min
-    if geometry == "bulk-3d":
-        if not thickness_um:
-            return None
-        h_mm = thickness_um * 1e-3
-        density = None if density is None else density / h_mm
-        rate = None if rate is None else rate / h_mm
-    try:
-        return predict_avrami(geometry, growth_rate_um_per_min, density_per_mm_d=density,
-                              rate_per_mm_d_per_min=rate).to_parameters()
-    except InputError:
-        return None

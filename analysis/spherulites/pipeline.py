@@ -14,17 +14,22 @@ robust cone fit per territory gives centre, nucleation time and G
 (the cached state and the replay: :mod:`analysis.spherulites.replay`; one set of detections
 evaluated into a result: :mod:`analysis.spherulites.evaluation`).
 
-Edit semantics (replayed in list order; a target is the detection whose centre is
-nearest to the edit's point within ``AnalysisSettings.edit_tolerance_px``):
-``add_nucleus`` seeds a new territory at the arrival-map minimum within 3 px of the
-click (source ``manual``); ``delete_detection`` removes the detection and leaves its
+Edit semantics (replayed in list order; a target is the detection the edit names by id,
+checked against its recorded centre within ``AnalysisSettings.edit_tolerance_px``, else
+the detection nearest to that centre, see :mod:`analysis.spherulites.replay`):
+``add_nucleus`` puts a nucleus exactly at the clicked point (source ``manual``; its
+centre is held there, its territory seeded at the nearest free crystallised pixel);
+``delete_detection`` removes the detection and leaves its
 territory *unassigned* (no neighbour absorbs it: a deleted detection is usually dust or
 a scratch whose pixels would spoil the neighbours' cone fits; its area still counts as
-crystallised in X(t)); ``merge_detections`` joins the second territory to the first;
+crystallised in X(t)); ``merge_detections`` joins the second territory to the first,
+whose centre is then fitted afresh;
 ``move_centre`` holds the centre at the new point and refits t0 and G; ``exclude`` and
 ``include`` set the status (``include`` also forces an automatic reject to ``ok`` when
 it has a growth rate); ``ignore_frames`` removes the frames from one spherulite's data or,
 without a position, from the whole experiment (fits, radii and X(t)).
+A detection no edit names keeps its automatic centre and id: when an edit next to it
+changes its pixels, its cone is refitted with the centre held (t0 and G only).
 """
 
 from __future__ import annotations
@@ -43,7 +48,12 @@ from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion, scaled
 from analysis.results import ExperimentResult
 from analysis.spherulites import growth, nuclei
-from analysis.spherulites.evaluation import evaluate, fit_pixels, result_of
+from analysis.spherulites.evaluation import (
+    automatic_fit_keys,
+    evaluate,
+    fit_pixels,
+    result_of,
+)
 from analysis.spherulites.replay import Context, auto_detections, cached, digest, replay
 
 _AUTOMATIC = ("result without edits",)  # cache key
@@ -183,6 +193,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
     automatic, _, _ = _automatic_evaluation(ctx, settings)
     for sph in automatic.spherulites:
         ctx.auto_lookup_xy[sph.id - 1] = (sph.x_px, sph.y_px)
+    ctx = dataclasses.replace(ctx, auto_fit_keys=automatic_fit_keys(ctx, auto_detections(ctx),
+                                                                    settings))
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
 
@@ -374,17 +386,21 @@ def _with_edits(arrival, ctx, settings, edits) -> Analysis:
 
 def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
                  isothermal_start_s: float = 0.0, temperature_c: float | None = None,
-                 thickness_um: float | None = None,
-                 geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+                 thickness_um: float | None = None, geometry: str = "film-2d",
+                 memory_budget_mb: float | None = None) -> Generator[Progress, None, Analysis]:
     """Analyse a :class:`FrameStack`: arrival map, nuclei, growth fits, nucleation, X(t).
 
     Yields :class:`Progress`; returns an :class:`Analysis`. Times in the result are
     seconds from ``isothermal_start_s`` (on the stack's clock). InputError when the
-    stack lacks its calibration.
+    stack lacks its calibration or its analysis would exceed the memory budget
+    (``memory_budget_mb``, default from :mod:`analysis.stack.budget`), checked before
+    any frame is decoded.
     """
     from analysis.arrival.arrival_map import ArrivalSettings, arrival_map_iter
+    from analysis.stack.budget import check_memory_budget
 
     stack.require_calibration()
+    check_memory_budget(stack, memory_budget_mb)
     arrival_settings = ArrivalSettings.from_dict(settings.arrival)
     arrival = yield from scaled(arrival_map_iter(stack, settings=arrival_settings), 0.0, 0.85)
     analysis = yield from scaled(analyze_arrival_iter(

@@ -18,6 +18,7 @@ import numpy as np
 import tifffile
 
 from analysis.errors import InputError
+from analysis.textio import require_regular_file
 from analysis.stack.tiff_metadata import TiffCalibration, read_tiff_calibration
 
 TIFF_SUFFIXES = {".tif", ".tiff"}
@@ -57,7 +58,7 @@ class TiffSource:
             self._file_dtype = np.dtype(series.dtype)
             self.dtype = self._file_dtype.newbyteorder("=")
             self.calibration = read_tiff_calibration(self._tif)
-            self._frame_axes, self._stored_shape, self._channel_first = _split_axes(self._axes, shape)
+            self._frame_axes, self._stored_shape, self._channel_first = _split_axes(self._axes, shape, path)
             self.frame_shape = self._stored_shape[:2] + ((3,) if len(self._stored_shape) == 3 else ())
             self.count = int(np.prod([shape[i] for i in range(len(self._frame_axes))], dtype=np.int64))
             self._check_size(series)
@@ -139,10 +140,10 @@ def _tifffile_complaints():
         logger.propagate = propagate
 
 
-def _split_axes(axes: str, shape: tuple[int, ...]):
+def _split_axes(axes: str, shape: tuple[int, ...], path=None):
     """Split tifffile axes into frame axes and one frame's shape (H, W) or (H, W, 3)."""
     if "Y" not in axes or "X" not in axes:
-        raise InputError(f"image axes {axes!r} have no Y and X")
+        raise InputError(f"image axes {axes!r} have no Y and X", path)
     y = axes.index("Y")
     if axes.endswith("YXS"):
         frame_shape, channel_first, frame_axes = shape[y:], False, axes[:y]
@@ -151,13 +152,12 @@ def _split_axes(axes: str, shape: tuple[int, ...]):
     elif axes.endswith("YX"):
         frame_shape, channel_first, frame_axes = shape[y:], False, axes[:y]
     else:
-        raise InputError(f"image axes {axes!r} are not supported (expected frames of YX or YXS)")
+        raise InputError(f"image axes {axes!r} are not supported (expected frames of YX or YXS)", path)
     if "C" in frame_axes and shape[axes.index("C")] > 1:
         raise InputError(
-            f"stack has {shape[axes.index('C')]} channels; export one channel or an RGB stack"
-        )
+            f"stack has {shape[axes.index('C')]} channels; export one channel or an RGB stack", path)
     if len(frame_shape) == 3 and frame_shape[2] not in (3, 4):
-        raise InputError(f"frames have {frame_shape[2]} samples per pixel; expected grey or RGB")
+        raise InputError(f"frames have {frame_shape[2]} samples per pixel; expected grey or RGB", path)
     return frame_axes, tuple(int(s) for s in frame_shape), channel_first
 
 
@@ -272,6 +272,7 @@ def open_source(path: Path):
         raise InputError("no such file or folder", path)
     if path.is_dir():
         return FolderSource(path)
+    require_regular_file(path, "stack")  # a FIFO or a device would block or never end
     suffix = path.suffix.lower()
     if suffix in TIFF_SUFFIXES:
         return TiffSource(path)

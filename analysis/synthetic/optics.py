@@ -255,6 +255,9 @@ class SyntheticStack:
     contrast: np.ndarray = field(repr=False)  # fully crystalline minus melt, padded grid
     sensor: np.ndarray = field(repr=False)  # illumination × dust, field grid
     gain: np.ndarray = field(repr=False)  # flicker, per frame
+    # Growth on a temperature programme: (S at each frame, S at each padded pixel's arrival),
+    # S = ∫ G dt in px; the soft front is then drawn in S instead of in time × constant G.
+    growth_px: Any = field(default=None, repr=False)
 
     def __len__(self) -> int:
         return self.params.n_frames
@@ -272,10 +275,15 @@ class SyntheticStack:
     def frame(self, index: int) -> np.ndarray:
         """Render frame ``index``: (H, W) or (H, W, 3), uint8 or uint16."""
         p = self.params
-        t_iso = float(self.times_s[index]) - p.isothermal_start_s
-        g_px_per_s = p.growth_rate_um_per_min / 60.0 / p.um_per_px
-        crystal = np.subtract(np.float32(t_iso), self.kinetics.arrival_pad_s, dtype=np.float32)
-        crystal *= np.float32(g_px_per_s / p.front_width_px)  # soft front, ~front_width_px wide
+        if self.growth_px is None:
+            t_iso = float(self.times_s[index]) - p.isothermal_start_s
+            g_px_per_s = p.growth_rate_um_per_min / 60.0 / p.um_per_px
+            crystal = np.subtract(np.float32(t_iso), self.kinetics.arrival_pad_s, dtype=np.float32)
+            crystal *= np.float32(g_px_per_s / p.front_width_px)  # soft front, ~front_width_px wide
+        else:
+            s_frame, s_pad = self.growth_px
+            crystal = np.subtract(s_frame[index], s_pad, dtype=np.float32)
+            crystal /= np.float32(p.front_width_px)
         crystal += np.float32(0.5)
         np.clip(crystal, 0.0, 1.0, out=crystal)
         if self.contrast.ndim == 3:

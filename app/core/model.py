@@ -358,23 +358,28 @@ class ProjectModel(QObject):
 
 
 def describe_edit(edit: Any) -> str:
-    """Short words for an edit record (undo history, edit lists)."""
+    """Short words for an edit record (undo history, edit lists): the detection it names
+    by id and where it was, in image pixels."""
     kind = getattr(edit, "kind", type(edit).__name__)
+
+    def which(det_id, x, y) -> str:
+        where = f"({x:.1f}, {y:.1f}) px"
+        return f"#{det_id} at {where}" if det_id is not None else f"at {where}"
+
     if kind == "ignore_frames":
-        target = "experiment" if edit.x_px is None else f"({edit.x_px:.0f}, {edit.y_px:.0f})"
+        target = "the experiment" if edit.x_px is None else which(edit.id, edit.x_px, edit.y_px)
         return f"Ignore frames {edit.first_frame}-{edit.last_frame} of {target}"
-    where = f"({edit.x_px:.0f}, {edit.y_px:.0f})"
-    words = {
-        "add_nucleus": f"Add nucleus at {where}",
-        "delete_detection": f"Delete detection at {where}",
-        "exclude": f"Exclude spherulite at {where}",
-        "include": f"Include spherulite at {where}",
-    }
+    if kind == "add_nucleus":
+        number = f" #{edit.id}" if edit.id is not None else ""
+        return f"Add nucleus{number} at ({edit.x_px:.1f}, {edit.y_px:.1f}) px"
+    target = which(edit.id, edit.x_px, edit.y_px)
     if kind == "merge_detections":
-        return f"Merge ({edit.other_x_px:.0f}, {edit.other_y_px:.0f}) into {where}"
+        return f"Merge {which(edit.other_id, edit.other_x_px, edit.other_y_px)} into {target}"
     if kind == "move_centre":
-        return f"Move centre {where} to ({edit.new_x_px:.0f}, {edit.new_y_px:.0f})"
-    return words.get(kind, f"{kind} at {where}")
+        return f"Move centre of {target} to ({edit.new_x_px:.1f}, {edit.new_y_px:.1f}) px"
+    words = {"delete_detection": "Delete detection", "exclude": "Exclude spherulite",
+             "include": "Include spherulite"}
+    return f"{words.get(kind, kind)} {target}"
 
 
 if __name__ == "__main__":  # pragma: no cover - quick look at a project file

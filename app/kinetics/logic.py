@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.kinetics.avrami import predict_model_from_result
+from analysis.kinetics.prediction import predict_model_from_result
 
 
 def prediction(result, geometry: str, mode_override: str | None):

@@ -30,6 +30,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from analysis.errors import InputError
+from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
 from app.core import model as m
 from app.microscopy.overlays import STATUS_WORDS, status_colour
 
@@ -79,7 +81,7 @@ def experiment_html(experiment: Any, result: Any, status: str, message: str) -> 
             ("Isothermal start", f"{experiment.isothermal_start_s:g} s on the recording clock"),
             ("Analysis", status + (f": {message}" if message else ""))]
     if result is not None:
-        rows += _result_rows(result)
+        rows += _result_rows(result, experiment)
     body = _table_html(html.escape(experiment.name), rows)
     if result is not None and result.warnings:
         body += "<p><b>Warnings</b><br>" + "<br>".join(map(html.escape, result.warnings)) + "</p>"
@@ -88,7 +90,15 @@ def experiment_html(experiment: Any, result: Any, status: str, message: str) -> 
     return body
 
 
-def _result_rows(result: Any) -> list[tuple[str, str]]:
+def _predicted(result: Any, experiment: Any):
+    try:
+        return predict_from_result(result, experiment.geometry, experiment.mode_override,
+                                   thickness_um=experiment.thickness_um)
+    except InputError:
+        return None
+
+
+def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     g, nuc = result.growth_rate, result.nucleation
     ci = "" if g.ci95_low is None else f" (95 % CI {g.ci95_low:.3g} – {g.ci95_high:.3g})"
     rows = [("Frames", str(result.frames)),
@@ -104,9 +114,9 @@ def _result_rows(result: Any) -> list[tuple[str, str]]:
     if rejected:
         rows.append(("Rejected candidates", f"{rejected}, not counted (View ▸ Show rejected candidates)"))
     rows += quality_rows(getattr(result, "image_quality", None))
-    for label, avrami in (("Avrami, film X(t)", result.avrami_film),
-                          ("Avrami, predicted", result.avrami_predicted)):
-        if avrami is not None and avrami.n is not None:
+    for label, avrami in (("Avrami, film X(t)", film_avrami_fit(result)),
+                          (f"Avrami, predicted {experiment.geometry}", _predicted(result, experiment))):
+        if avrami:
             rows.append((label, f"n = {avrami.n:.2f}, k = {_num(avrami.k_per_min_n)} min⁻ⁿ, "
                                 f"t½ = {_num(avrami.t_half_min, '.3g')} min"))
     return rows

@@ -17,6 +17,9 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QSplitter, QVBoxLayout, QWidget
 
+from analysis.kinetics.avrami import avrami_conversion
+from analysis.kinetics.prediction import film_avrami_fit
+
 from app.core import model as m
 from app.microscopy.overlays import SELECTED_COLOUR, status_colour
 
@@ -45,10 +48,10 @@ def avrami_curve(avrami: Any, t_max_s: float, origin_s: float = 0.0):
     The film fit counts time from the induction time (``origin_s``), so the curve starts
     there on the plot's axis of time from reaching Tc.
     """
-    if avrami is None or avrami.n is None or avrami.k_per_min_n is None or not t_max_s > origin_s:
+    if not avrami or avrami.n is None or avrami.k_per_min_n is None or not t_max_s > origin_s:
         return None
     t_s = np.linspace(origin_s, t_max_s, 200)
-    return t_s, 1.0 - np.exp(-avrami.k_per_min_n * ((t_s - origin_s) / 60.0) ** avrami.n)
+    return t_s, avrami_conversion((t_s - origin_s) / 60.0, avrami.n, avrami.k_per_min_n)
 
 
 def _plot(title: str, y_label: str) -> pg.PlotWidget:
@@ -193,7 +196,7 @@ class PlotsPanel(QWidget):
             t = np.asarray(result.area_fraction_time_s, float)
             x = np.asarray(result.area_fraction, float)
             origin = result.nucleation.induction_time_s or 0.0
-            curve = avrami_curve(result.avrami_film, float(t.max()) if t.size else 0.0, origin)
+            curve = avrami_curve(film_avrami_fit(result), float(t.max()) if t.size else 0.0, origin)
         self._fraction_points.setData(t, x)
         self._fraction_fit.setData(*(curve if curve is not None else ([], [])))
         self.fraction_plot.setYRange(0, 1.02)

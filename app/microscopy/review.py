@@ -72,7 +72,7 @@ class ReviewQueue(QObject):
         if index < 0 or target is None:
             self.message.emit("Select a detection first (next doubtful: J).")
             return
-        self._model.push_edit(index, kind(target.x_px, target.y_px))
+        self._model.push_edit(index, kind(target.x_px, target.y_px, id=target.id))
         self.message.emit(f"#{target.id} {word}; J for the next doubtful detection.")
 
     def _show(self, spherulite_id: int, total: int) -> None:

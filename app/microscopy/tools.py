@@ -2,8 +2,9 @@
 
 Each finished gesture pushes exactly one edit (one undo entry). Two-click gestures
 (merge, move centre) remember their first click until the second one, or until Escape /
-another tool cancels them. Detections are referred to by their centre, as the edit
-records require.
+another tool cancels them. An edit names the detection the user clicked by its id and
+its centre as shown; a nucleus added by hand sits exactly at the clicked point and
+takes the next free id.
 """
 
 from __future__ import annotations
@@ -91,12 +92,14 @@ class ToolController(QObject):
         if index < 0:
             return
         if self.tool == "add":
-            self._model.push_edit(index, AddNucleus(round(x_px, 1), round(y_px, 1)))
+            result = self._model.result(index)
+            new_id = result.next_detection_id() if result is not None else None
+            self._model.push_edit(index, AddNucleus(round(x_px, 1), round(y_px, 1), id=new_id))
             return
         if self.tool == "move" and self._first is not None:
             first, self._first = self._first, None
-            self._model.push_edit(index, MoveCentre(first.x_px, first.y_px,
-                                                    round(x_px, 1), round(y_px, 1)))
+            self._model.push_edit(index, MoveCentre(first.x_px, first.y_px, round(x_px, 1),
+                                                    round(y_px, 1), id=first.id))
             self.hint_changed.emit(HINTS["move"])
             return
         target = self._pick(x_px, y_px)
@@ -112,17 +115,18 @@ class ToolController(QObject):
         target = None if whole else self._model.selected_spherulite()
         if target is None:
             return IgnoreFrames(int(first_frame), int(last_frame))
-        return IgnoreFrames(int(first_frame), int(last_frame), target.x_px, target.y_px)
+        return IgnoreFrames(int(first_frame), int(last_frame), target.x_px, target.y_px,
+                            id=target.id)
 
     # ---------------------------------------------------------------- internals
     def _apply(self, index: int, target: Any) -> None:
         if self.tool == "select":
             self._model.select_spherulite(target.id)
         elif self.tool == "delete":
-            self._model.push_edit(index, DeleteDetection(target.x_px, target.y_px))
+            self._model.push_edit(index, DeleteDetection(target.x_px, target.y_px, id=target.id))
         elif self.tool == "exclude":
             cls = IncludeSpherulite if target.status in ("excluded", "rejected") else ExcludeSpherulite
-            self._model.push_edit(index, cls(target.x_px, target.y_px))
+            self._model.push_edit(index, cls(target.x_px, target.y_px, id=target.id))
         elif self._first is None:  # merge / move: first click
             self._model.select_spherulite(target.id)  # (a selection change resets _first)
             self._first = target
@@ -130,8 +134,9 @@ class ToolController(QObject):
         elif self.tool == "merge":
             first, self._first = self._first, None
             if first.id != target.id:
-                self._model.push_edit(index, MergeDetections(first.x_px, first.y_px,
-                                                             target.x_px, target.y_px))
+                self._model.push_edit(index, MergeDetections(
+                    first.x_px, first.y_px, target.x_px, target.y_px, id=first.id,
+                    other_id=target.id))
             self.hint_changed.emit(HINTS["merge"])
 
     def _pick(self, x_px: float, y_px: float) -> Any:

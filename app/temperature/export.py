@@ -9,10 +9,7 @@ failed export never damages an earlier good file. The report runs in the shared
 from __future__ import annotations
 
 import dataclasses
-import os
-import tempfile
 from dataclasses import dataclass
-from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
@@ -78,29 +75,11 @@ def write_table(model, cache, path: str, kind: str) -> str:
     entries = report_entries(model, cache)
     growth = growth_vs_temperature_table(entries)
     if kind == "csv":
-        return _atomic(path, lambda temporary: write_csv(growth, temporary))
+        return str(write_csv(growth, path))
     if kind == "xlsx":
         sheets = {"growth_vs_temperature": growth, "comparison": comparison_table(entries)}
-        return _atomic(path, lambda temporary: write_xlsx(sheets, temporary))
+        return str(write_xlsx(sheets, path))
     raise ValueError(f"unknown table format {kind!r}")
-
-
-def _atomic(path: str, write) -> str:
-    target = Path(path)
-    if not target.parent.is_dir():
-        raise OSError(f"{target}: the folder does not exist")
-    handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=target.suffix)
-    os.close(handle)
-    try:
-        write(temporary)
-        os.replace(temporary, target)
-    except OSError as error:
-        raise OSError(f"{target}: could not write the table ({error.strerror or error})") from error
-    finally:
-        if os.path.exists(temporary):
-            os.remove(temporary)
-    return str(target)
-
 
 
 @dataclass(frozen=True)

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.kinetics.avrami import predict_from_result
+from analysis.kinetics.prediction import predict_from_result
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import contextlib
 import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -21,6 +20,8 @@ import pyqtgraph as pg
 from pyqtgraph.exporters import ImageExporter
 from PySide6 import QtCore, QtGui, QtWidgets
 from PySide6.QtSvg import QSvgGenerator
+
+from analysis.units import write_bytes_atomic
 
 #: Logical figure size (points at 120 per inch) and the PNG resolution.
 #: Line colours shared by every page's plots.
@@ -105,8 +106,9 @@ def export_plot(item: pg.PlotItem, base_path: str | os.PathLike) -> ExportedFigu
     ------
     ValueError
         If an axis has no label (a figure must state its units).
-    OSError
-        If a file cannot be written; the message names the file.
+    analysis.errors.InputError
+        If a file cannot be written (missing folder, no permission); the message names
+        the file. Both files are written atomically (``analysis.units``).
     """
     for side in ("bottom", "left"):
         if not axis_label_text(item, side):
@@ -118,8 +120,8 @@ def export_plot(item: pg.PlotItem, base_path: str | os.PathLike) -> ExportedFigu
     with _figure_geometry(item):
         image = _render_png(item)
         svg_bytes = _render_svg(item)
-    _write_png_atomic(image, png_path)
-    _write_bytes_atomic(svg_bytes, svg_path)
+    write_bytes_atomic(png_path, _png_bytes(image, png_path))
+    write_bytes_atomic(svg_path, svg_bytes)
     return ExportedFigure(str(png_path), str(svg_path), (image.width(), image.height()))
 
 
@@ -168,27 +170,12 @@ def _render_svg(item: pg.PlotItem) -> bytes:
     return bytes(buffer.data())
 
 
-def _write_png_atomic(image: QtGui.QImage, path: Path) -> None:
+def _png_bytes(image: QtGui.QImage, path: Path) -> bytes:
     buffer = QtCore.QBuffer()
     buffer.open(QtCore.QIODevice.OpenModeFlag.WriteOnly)
     if not image.save(buffer, "PNG"):
         raise OSError(f"{path}: could not encode the figure as PNG")
-    _write_bytes_atomic(bytes(buffer.data()), path)
-
-
-def _write_bytes_atomic(data: bytes, path: Path) -> None:
-    folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise OSError(f"{path}: the folder does not exist")
-    try:
-        handle, temporary = tempfile.mkstemp(dir=folder, prefix=f".{path.name}.", suffix=".part")
-        with os.fdopen(handle, "wb") as stream:
-            stream.write(data)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.replace(temporary, path)
-    except OSError as error:
-        raise OSError(f"{path}: could not write the figure ({error.strerror or error})") from error
+    return bytes(buffer.data())
 
 
 def ask_and_export(parent: QtWidgets.QWidget, item: pg.PlotItem, suggested_name: str) -> ExportedFigure | None:

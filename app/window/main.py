@@ -41,9 +41,15 @@ def _application() -> Any:
 
 def run_from_cli(args: Any) -> int:
     """Run the GUI for parsed ``spherokin gui`` arguments; returns the exit status."""
+    from app.window.system_libraries import check_before_qt
+
     screenshot = getattr(args, "screenshot", None)
     if not screenshot and not has_display():
         print(NO_DISPLAY, file=sys.stderr)
+        return 2
+    problem = check_before_qt()  # before Qt loads its platform plugin, which would abort
+    if problem:
+        print(f"spherokin gui: {problem}", file=sys.stderr)
         return 2
     app = _application()
     if screenshot:

@@ -22,22 +22,8 @@ from analysis.kinetics.avrami import (
     k_per_second,
     mass_fraction_from_volume,
     predict_avrami,
-    predict_from_result,
-    predict_model_from_result,
     volume_fraction_from_mass,
 )
-from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
-
-
-def make_result(*, g=10.0, mode="athermal", n_mm2=None, n_mm3=None, rate_mm2=None,
-                rate_mm3=None, thickness_um=None):
-    return ExperimentResult(
-        stack="demo.tif", frames=10, um_per_px=1.0, interval_s=1.0, temperature_c=130.0,
-        thickness_um=thickness_um, spherulites=(), radii=(),
-        growth_rate=PooledGrowthRate(g, None, None, 5),
-        nucleation=Nucleation(5, mode, n_mm2, n_mm3, rate_mm2, rate_mm3, None),
-        area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0),
-        avrami_film=None, avrami_predicted=None)
 
 
 # Worked values: docs/sources.md section 1.4 (derived here; Avrami 1940 J. Chem. Phys. 8, 212 # from memory)
@@ -136,33 +122,6 @@ def test_mass_volume_conversion():
     assert np.allclose(back, w, atol=1e-14)
     with pytest.raises(InputError):
         volume_fraction_from_mass(0.5)
-
-
-def test_predict_from_result_uses_thickness_for_volume_density():
-    # N_V = N_A / h (docs/sources.md 1.7, derived here): 100 mm^-2 over 100 um = 1e3 mm^-3
-    res = make_result(n_mm2=100.0, thickness_um=100.0)
-    params = predict_from_result(res, "bulk-3d")
-    assert params.geometry == "bulk-3d" and params.n == 3
-    assert params.k_per_min_n == pytest.approx(4.18879e-3, rel=1e-5)
-    film = predict_from_result(res, "film-2d")
-    assert film.k_per_min_n == pytest.approx(3.14159e-2, rel=1e-5)
-
-
-def test_predict_from_result_mode_override_and_errors():
-    res = make_result(mode="mixed", n_mm3=1e3, rate_mm3=10.0)
-    assert predict_model_from_result(res).mode == "mixed"
-    assert predict_model_from_result(res, mode="athermal").sporadic_k == 0.0
-    assert predict_model_from_result(res, mode="sporadic").n == 4
-    with pytest.raises(InputError, match="demo.tif.*nucleus density"):
-        predict_from_result(make_result(n_mm2=100.0), "bulk-3d")  # no thickness
-    assert predict_model_from_result(make_result(mode=None, n_mm3=1e3)).mode == "athermal"
-    assert predict_model_from_result(make_result(mode=None, rate_mm3=10.0)).mode == "thermal"
-    with pytest.raises(InputError, match="mode 'burst' unknown"):
-        predict_model_from_result(res, mode="burst")
-    with pytest.raises(InputError, match="geometry"):
-        predict_from_result(res, "bulk-4d")
-    with pytest.raises(InputError, match="growth rate"):
-        predict_from_result(make_result(g=None, n_mm3=1.0))
 
 
 @pytest.mark.parametrize("density, rate_per_s, n_theory", [(400.0, 0.0, 2), (0.0, 2.0, 3)])

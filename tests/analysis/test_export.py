@@ -28,7 +28,7 @@ def result():
 
 
 def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
-    export.write_analysis_outputs(result, tmp_path)
+    export.write_analysis_outputs(result, tmp_path, geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         rows = list(csv.reader(fh))
     assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
@@ -56,14 +56,15 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
 
 def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
     odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1 frames")
-    export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path)
+    export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path,
+                                  geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
     assert row[-4:-1] == ["'=cmd()", "'@x", "'-1 frames"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):
-    export.write_analysis_outputs(result, tmp_path)
+    export.write_analysis_outputs(result, tmp_path, geometry="film-2d")
     image = cv2.imread(str(tmp_path / "overlay.png"))
     assert image.shape == (90, 110, 3) and image.max() > 0
 
@@ -72,7 +73,7 @@ def test_unwritable_output_folder_is_an_input_error(result, tmp_path):
     blocker = tmp_path / "file"
     blocker.write_text("x")
     with pytest.raises(InputError, match="output folder"):
-        export.write_analysis_outputs(result, blocker / "out")
+        export.write_analysis_outputs(result, blocker / "out", geometry="film-2d")
 
 
 # ---------------------------------------------------------------- end to end through the CLI

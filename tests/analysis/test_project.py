@@ -42,7 +42,8 @@ def test_round_trip_keeps_everything_and_paths_stay_relative(tmp_path):
     document = json.loads((tmp_path / "copy.spherokin.json").read_text())
     assert document["format"] == "spherokin-project" and document["schema_version"] == SCHEMA_VERSION
     assert document["experiments"][0]["stack"] == "stacks/tc128/stack.tif"
-    assert document["experiments"][0]["edits"][0] == {"kind": "add_nucleus", "x_px": 101.5, "y_px": 40.0}
+    assert document["experiments"][0]["edits"][0] == {"kind": "add_nucleus", "x_px": 101.5, "y_px": 40.0,
+                                                       "id": None}
     again = load_project(tmp_path / "copy.spherokin.json")
     assert again.experiments == project.experiments
     assert saved.modified and saved.created == project.created
@@ -57,8 +58,8 @@ def test_save_is_atomic_and_leaves_no_temporary_files(tmp_path, monkeypatch):
     def explode(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr("analysis.project.file.os.replace", explode)
-    with pytest.raises(OSError):
+    monkeypatch.setattr("analysis.units.os.replace", explode)
+    with pytest.raises(InputError, match="p.spherokin.json: could not write the file .disk full"):
         save_project(replace(project, material="PET"), target)
     assert target.read_text() == before  # the old file survives a failed save
     assert [p.name for p in tmp_path.iterdir()] == ["p.spherokin.json"]
@@ -72,15 +73,25 @@ def test_newer_schema_is_refused_with_a_clear_message(tmp_path):
 
 
 def test_migration_chain_runs_step_by_step(monkeypatch):
-    def v1_to_v2(document):
+    def next_step(document):
         """Test-only step: renames a key."""
         document["renamed"] = document.pop("old", None)
         return document
 
-    monkeypatch.setattr("analysis.project.file.SCHEMA_VERSION", 2)
-    monkeypatch.setitem(__import__("analysis.project.file").project.file.MIGRATIONS, 1, v1_to_v2)
+    monkeypatch.setattr("analysis.project.file.SCHEMA_VERSION", SCHEMA_VERSION + 1)
+    monkeypatch.setitem(__import__("analysis.project.file").project.file.MIGRATIONS,
+                        SCHEMA_VERSION, next_step)
     migrated = migrate({"format": "spherokin-project", "schema_version": 1, "old": 3}, "x")
-    assert migrated == {"format": "spherokin-project", "schema_version": 2, "renamed": 3}
+    assert migrated == {"format": "spherokin-project", "schema_version": SCHEMA_VERSION + 1,
+                        "renamed": 3}
+
+
+def test_v1_edits_migrate_to_records_that_name_no_detection_yet(tmp_path):
+    shutil.copy(FIXTURE_V1, tmp_path / "p.spherokin.json")
+    edits = load_project(tmp_path / "p.spherokin.json").experiments[0].edits
+    assert len(edits) == 8 and all(edit.id is None for edit in edits)
+    assert edits[2].other_id is None
+    assert (edits[0].x_px, edits[0].y_px) == (101.5, 40.0)  # the click, kept exactly
 
 
 @pytest.mark.parametrize("text, problem", [

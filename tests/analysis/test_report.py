@@ -38,8 +38,7 @@ def make_result(tc, n_mm3=2e4):
         thickness_um=25.0, spherulites=(), radii=(),
         growth_rate=PooledGrowthRate(g, 0.97 * g, 1.03 * g, 15),
         nucleation=Nucleation(60, "athermal", n_mm3 * 0.025, n_mm3, None, None, 0.0),
-        area_fraction_time_s=t_s, area_fraction=1 - np.exp(-k * (t_s / 60) ** 2),
-        avrami_film=None, avrami_predicted=None)
+        area_fraction_time_s=t_s, area_fraction=1 - np.exp(-k * (t_s / 60) ** 2))
 
 
 @pytest.fixture(scope="module")

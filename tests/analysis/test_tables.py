@@ -27,8 +27,7 @@ def result(tc, g=10.0, n_mm3=1e3, count=400, name="stack.tif", mode="athermal"):
         stack=name, frames=10, um_per_px=1.0, interval_s=1.0, temperature_c=tc, thickness_um=20.0,
         spherulites=(), radii=(), growth_rate=PooledGrowthRate(g, g and 0.98 * g, g and 1.02 * g, 12),
         nucleation=Nucleation(count, mode, n_mm3 * 0.02, n_mm3, None, None, None),
-        area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0),
-        avrami_film=None, avrami_predicted=None)
+        area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0))
 
 
 class FakeCalorimetry:

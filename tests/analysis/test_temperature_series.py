@@ -179,7 +179,7 @@ def test_growth_table_reader(tmp_path):
 @pytest.mark.parametrize("text, problem", [
     ("", "empty"),
     ("temp,g\n1,2\n", "missing column"),
-    ("temperature_c,growth_rate_um_per_min\n125,fast\n130,1\n135,1\n", "row 2"),
+    ("temperature_c,growth_rate_um_per_min\n125,fast\n130,1\n135,1\n", "line 2"),
     ("temperature_c,growth_rate_um_per_min\n125,1\n130,1\n", "need at least 3"),
     ("temperature_c,growth_rate_um_per_min\n125,1\n130,0\n135,1\n", "positive"),
     ("temperature_c,growth_rate_um_per_min\n125,1\n130,nan\n135,1\n", "NaN"),

@@ -43,7 +43,7 @@ def _result(experiment, spherulites, unapplied=()):
         growth_rate=PooledGrowthRate(12.0, 11.0, 13.0, len(spherulites)),
         nucleation=Nucleation(len(spherulites), "athermal", 1.0, None, None, None, 0.0),
         area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0),
-        avrami_film=None, avrami_predicted=None, unapplied_edits=tuple(unapplied))
+        unapplied_edits=tuple(unapplied))
 
 
 def analyze_experiment_iter(experiment):

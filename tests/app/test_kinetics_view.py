@@ -49,8 +49,7 @@ def hand_made_result(temperature_c=128.0, g=G_UM_PER_MIN, n_a=N_A_PER_MM2, count
         growth_rate=PooledGrowthRate(g, 0.95 * g, 1.05 * g, 25),
         nucleation=Nucleation(count=count, mode=mode, density_per_mm2=n_a, density_per_mm3=None,
                               rate_per_mm2_per_min=None, rate_per_mm3_per_min=None, induction_time_s=0.0),
-        area_fraction_time_s=t_s, area_fraction=-np.expm1(-k_film * (t_s / 60) ** 2),
-        avrami_film=None, avrami_predicted=None)
+        area_fraction_time_s=t_s, area_fraction=-np.expm1(-k_film * (t_s / 60) ** 2))
 
 
 def model_with(results, tmp_path) -> ProjectModel:

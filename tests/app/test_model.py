@@ -8,7 +8,14 @@ import sys
 import fake_pipeline
 import pytest
 
-from analysis.edits import AddNucleus, DeleteDetection, ExcludeSpherulite, IgnoreFrames
+from analysis.edits import (
+    AddNucleus,
+    DeleteDetection,
+    ExcludeSpherulite,
+    IgnoreFrames,
+    MergeDetections,
+    MoveCentre,
+)
 from analysis.progress import run_to_completion
 from app.core import model as m
 
@@ -89,15 +96,15 @@ def test_remove_and_restore_experiment_keeps_its_analysis(shared):
 
 
 def test_save_is_clean_and_reopens_with_edits(shared, tmp_path):
-    shared.push_edit(0, AddNucleus(10.0, 12.0))
+    shared.push_edit(0, AddNucleus(10.0, 12.0, id=7))
     target = tmp_path / "saved.spherokin.json"
     shared.save(str(target))
     assert not shared.is_dirty()
     record = json.loads(target.read_text())["experiments"][0]["edits"]
-    assert record == [{"kind": "add_nucleus", "x_px": 10.0, "y_px": 12.0}]
+    assert record == [{"kind": "add_nucleus", "x_px": 10.0, "y_px": 12.0, "id": 7}]
     reopened = m.ProjectModel()
     reopened.open_project(str(target))
-    assert reopened.experiment(0).edits == (AddNucleus(10.0, 12.0),)
+    assert reopened.experiment(0).edits == (AddNucleus(10.0, 12.0, id=7),)
 
 
 def test_failed_save_keeps_work_and_dirty_state(shared, tmp_path):
@@ -119,8 +126,12 @@ def test_project_fields_are_undoable(shared):
 
 
 def test_describe_edit_words():
-    assert m.describe_edit(AddNucleus(3.2, 4.9)) == "Add nucleus at (3, 5)"
-    assert m.describe_edit(IgnoreFrames(2, 5)) == "Ignore frames 2-5 of experiment"
+    assert m.describe_edit(AddNucleus(3.2, 4.9, id=12)) == "Add nucleus #12 at (3.2, 4.9) px"
+    assert m.describe_edit(IgnoreFrames(2, 5)) == "Ignore frames 2-5 of the experiment"
+    move = MoveCentre(104.09, 134.6, 91.0, 149.0, id=57)
+    assert m.describe_edit(move) == "Move centre of #57 at (104.1, 134.6) px to (91.0, 149.0) px"
+    merge = MergeDetections(1.0, 2.0, 3.0, 4.0, id=1, other_id=2)
+    assert m.describe_edit(merge) == "Merge #2 at (3.0, 4.0) px into #1 at (1.0, 2.0) px"
 
 
 def test_selection_follows_the_experiment_through_remove_and_undo(shared):

@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 from PySide6 import QtGui
 
+from analysis.errors import InputError
 from app.widgets.plotting import FIGURE_SIZE_LOGICAL, PNG_DPI, export_plot, styled_plot
 
 
@@ -54,5 +55,5 @@ def test_plot_without_unit_label_is_refused(qtbot, tmp_path):
 
 def test_unwritable_folder_names_the_file(plot, tmp_path):
     target = tmp_path / "missing" / "fig"
-    with pytest.raises(OSError, match="fig.png"):
+    with pytest.raises(InputError, match="fig.png.*folder does not exist"):
         export_plot(plot.getPlotItem(), target)

@@ -107,23 +107,26 @@ def test_tools_turn_clicks_into_single_edits(window):
     first, second = model.result(0).spherulites[:2]
     tools.set_tool("delete")
     tools.click(first.x_px + 1, first.y_px - 1)
-    assert model.experiment(0).edits[-1] == DeleteDetection(first.x_px, first.y_px)
+    assert model.experiment(0).edits[-1] == DeleteDetection(first.x_px, first.y_px, id=first.id)
     window.undo()
     tools.set_tool("merge")
     tools.click(first.x_px, first.y_px)
     assert model.experiment(0).edits == ()  # first click only remembers
     tools.click(second.x_px, second.y_px)
-    assert model.experiment(0).edits == (MergeDetections(first.x_px, first.y_px,
-                                                         second.x_px, second.y_px),)
+    assert model.experiment(0).edits == (MergeDetections(first.x_px, first.y_px, second.x_px,
+                                                         second.y_px, id=first.id,
+                                                         other_id=second.id),)
     tools.set_tool("move")
     tools.click(second.x_px, second.y_px)
     tools.click(second.x_px + 3.0, second.y_px)
     assert model.experiment(0).edits[-1] == MoveCentre(second.x_px, second.y_px,
-                                                       second.x_px + 3.0, second.y_px)
+                                                       second.x_px + 3.0, second.y_px, id=second.id)
     assert model.undo_stack.count() == 2
     tools.set_tool("add")
+    next_id = model.result(0).next_detection_id()
+    assert next_id > max(s.id for s in model.result(0).spherulites)
     tools.click(5.0, 6.0)
-    assert model.experiment(0).edits[-1] == AddNucleus(5.0, 6.0)
+    assert model.experiment(0).edits[-1] == AddNucleus(5.0, 6.0, id=next_id)
 
 
 def test_exclude_tool_toggles_include(window):
@@ -131,10 +134,10 @@ def test_exclude_tool_toggles_include(window):
     target = model.result(0).spherulites[0]
     tools.set_tool("exclude")
     tools.click(target.x_px, target.y_px)
-    assert model.experiment(0).edits[-1] == ExcludeSpherulite(target.x_px, target.y_px)
+    assert model.experiment(0).edits[-1] == ExcludeSpherulite(target.x_px, target.y_px, id=target.id)
     assert model.result(0).spherulites[0].status == "excluded"
     tools.click(target.x_px, target.y_px)
-    assert model.experiment(0).edits[-1] == IncludeSpherulite(target.x_px, target.y_px)
+    assert model.experiment(0).edits[-1] == IncludeSpherulite(target.x_px, target.y_px, id=target.id)
 
 
 def test_selection_is_shared_by_viewer_table_and_plots(window):
@@ -249,10 +252,10 @@ def test_ignore_frames_targets_the_selected_spherulite_or_the_experiment(window)
     target = window.model.result(0).spherulites[0]
     window.model.select_spherulite(target.id)
     assert window.tools.ignore_frames_edit(2, 4, whole=False) == IgnoreFrames(
-        2, 4, target.x_px, target.y_px)
+        2, 4, target.x_px, target.y_px, id=target.id)
     assert window.tools.ignore_frames_edit(2, 4, whole=True) == IgnoreFrames(2, 4)
     window.model.push_edit(0, IgnoreFrames(2, 4))
-    assert "Ignore frames 2-4 of experiment" in window.details.edits_list.item(0).text()
+    assert "Ignore frames 2-4 of the experiment" in window.details.edits_list.item(0).text()
 
 
 def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch):

@@ -60,7 +60,6 @@ def synthetic_result(stack: str) -> ExperimentResult:
         growth_rate=PooledGrowthRate(30.0, 29.0, 31.0, SPHERULITES),
         nucleation=Nucleation(SPHERULITES, "athermal", None, None, None, None, None),
         area_fraction_time_s=np.zeros(0), area_fraction=np.zeros(0),
-        avrami_film=None, avrami_predicted=None,
         extra={"territories": nearest_centre_labels(spherulites)})
 
 
