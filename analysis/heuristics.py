@@ -57,10 +57,11 @@ class DetectionHeuristics:
         "the local peak: a soft front is half-way at its centre (symmetry of the front).")
     # ---- smoothing chosen from the measured image quality (analysis.arrival.quality)
     target_smoothed_snr: float = _h(
-        16.0, "The evidence smoothing is widened until a typical crystal pixel stands this many "
-        "smoothed-noise sigmas above the melt: the threshold sits about 6.5 sigmas up (ten "
-        "robust spreads of the folded melt evidence) and a time is reliable from 2.5 "
-        "thresholds of plateau on (reliable_contrast_thresholds), so 16 sigmas.")
+        13.0, "The evidence smoothing is widened until the median crystal pixel (half the bright "
+        "quadrants' contrast) stands this many smoothed-noise sigmas above the melt: the "
+        "threshold sits about 6.5 sigmas up (ten robust spreads of the folded melt evidence) "
+        "and the brighter half of the crystal, at least twice that, is timed without "
+        "threshold bias (tuned on stress seeds 1-3 between 10 and 16).")
     max_adaptive_smoothing_px: float = _h(
         3.5, "Largest Gaussian sigma the adaptive smoothing may choose, px: wider smoothing "
         "merges nuclei closer than about three sigma and rounds the cone apex.")
@@ -73,8 +74,9 @@ class DetectionHeuristics:
         "even the widest smoothing cannot separate crystal from melt reliably; the "
         "recording is too poor for automatic counting (common practice).")
     poor_unresolved_fraction: float = _h(
-        0.3, "When more than this fraction of the crystallised field has no measured arrival "
-        "time, the nuclei cannot be counted automatically (common practice).")
+        0.6, "When more than this fraction of the crystallised field has no measured arrival "
+        "time, the nuclei cannot be counted automatically: between crossed polarizers the "
+        "extinction arms alone, always inferred, cover up to about 40 % (common practice).")
     uneven_illumination: float = _h(
         0.5, "Brightness falling by more than this fraction across the field is reported as "
         "uneven illumination worth correcting at the microscope (common practice).")
@@ -140,6 +142,14 @@ class DetectionHeuristics:
         3.0, "A candidate whose robust residual scale exceeds this multiple of the field's "
         "typical one does not follow one growth cone: a noise island or the seam between "
         "fronts (common practice).")
+    edge_centre_uncertainty: float = _h(
+        0.5, "A spherulite entering from outside is reported only when the 95 % uncertainty of "
+        "its fitted centre is below this fraction of the centre's distance outside the field "
+        "(and at least edge_centre_floor_px): a short arc locates its centre no better "
+        "(common practice).")
+    edge_centre_floor_px: float = _h(
+        5.0, "Smallest centre uncertainty always accepted for a spherulite entering from "
+        "outside, px (a few pixels: the precision of an inside centre).")
     duplicate_agreement_intervals: float = _h(
         1.0, "Two cones whose arrival times over their pixels differ by less than this many "
         "frame intervals (median) describe the same front: the timing quantum.")

@@ -271,7 +271,7 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
     last = _last_frames(stack, settings.start_frame, mode)
     model, threshold, at_start, probe = _set_up(first, second, last, settings, mode,
-                                                integer_data=raw0.dtype.kind in "ui")
+                                                integer_data=raw0.dtype.kind in "ui", full_scale=_full_scale(raw0))
     state = PassState(first.shape[:2], n, settings)
     state.gate[:] = threshold
     state.threshold = threshold
@@ -349,10 +349,12 @@ class _QualityProbe:
 
 
 def _full_scale(frame) -> float:
+    """Full scale of the data: the integer type's maximum (a 12-bit camera stored in 16 bits
+    reads as a sixteenth of it), or the largest value of float data."""
     return float(np.iinfo(frame.dtype).max) if frame.dtype.kind in "ui" else max(float(np.max(frame)), 1e-12)
 
 
-def _set_up(first, second, last, settings, mode, *, integer_data):
+def _set_up(first, second, last, settings, mode, *, integer_data, full_scale):
     """Melt model (its smoothing chosen from the measured signal-to-noise ratio),
     detection threshold and frame-0 crystals from the first two frames and the last."""
     noise = segment.temporal_noise(first, second, integer_data=integer_data)
@@ -365,8 +367,7 @@ def _set_up(first, second, last, settings, mode, *, integer_data):
         float(np.mean(noise)), crystal_noise or 0.0)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
                               smoothing_px=quality.smoothing_for(snr, settings.smoothing_px))
-    probe = _QualityProbe(contrast, crystal_noise, crystal_last, None if last is None else last[1],
-                          255.0 if integer_data else 1.0)
+    probe = _QualityProbe(contrast, crystal_noise, crystal_last, None if last is None else last[1], full_scale)
     ones = np.ones(model.channels, np.float32)
     trial = segment.evidence(second, model, ones)
     provisional = segment.evidence_threshold(trial[::2, ::2], settings.sensitivity)
@@ -484,7 +485,8 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode, probe) ->
     index = np.where(np.isfinite(arrival), np.minimum(index, times.size - 1), _NEVER).astype(np.int32)
     index[unusable] = _UNUSABLE
     crystallised = np.isfinite(arrival) & ~at_start & ~unusable
-    image_quality = _image_quality(probe, model, arrival, contrast, times, slowness, crystallised, filled)
+    image_quality = _image_quality(probe, model, arrival, contrast, times, slowness, crystallised, filled,
+                                   at_start)
     return ArrivalMap(
         arrival_s=arrival, frame_index=index, crystalline_at_start=at_start & ~unusable,
         shifts_px=state.shifts, times_s=times, um_per_px=um_per_px, unusable=unusable,
@@ -494,7 +496,7 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode, probe) ->
     )
 
 
-def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised, filled):
+def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised, filled, at_start):
     """The image-quality block (analysis.arrival.quality.measure) of a finished pass."""
     blur = None
     if probe.front_evidence is not None:
@@ -503,12 +505,10 @@ def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised
                                     float(times[probe.front_frame]), slowness, model.smoothing_px)
     noise_dn = float(np.mean(model.noise))
     level = model.level if model.level.ndim == 2 else model.level.sum(axis=2)
-    if np.median(level) >= 3.0 * noise_dn * model.channels:
-        uneven = quality.unevenness(level, ~model.blind)  # a bright melt shows the lamp directly
-    elif probe.last is not None and probe.crystal_last is not None:
-        uneven = quality.unevenness(np.abs(probe.last - model.level), probe.crystal_last)
-    else:
-        uneven = None
+    # The melt shows the lamp directly (block means beat its noise even when it is dim);
+    # a black melt carries no measurable illumination.
+    melt = ~(model.blind | at_start)
+    uneven = quality.unevenness(level, melt) if np.median(level[melt]) >= 0.25 * noise_dn * model.channels else None
     return quality.measure(noise_dn=noise_dn, crystal_noise_dn=probe.crystal_noise, full_scale=probe.full_scale,
                            contrast_noise_units=probe.contrast,
                            smoothing_px=model.smoothing_px, crystallised=crystallised, inferred=filled,

@@ -6,7 +6,8 @@ streaming pass the last frame is compared with the melt reference: the typical
 crystal/melt difference divided by the melt's temporal noise is the signal-to-noise
 ratio of one pixel in one frame, ``snr``. A Gaussian of sigma σ (px) averages white noise
 down by 2·sqrt(π)·σ (the noise-equivalent area of the kernel is 4πσ²) while leaving a
-plateau unchanged, so the smallest σ with ``snr · 2·sqrt(π)·σ ≥ target`` is chosen.
+plateau unchanged, so the smallest σ with ``(snr / 2) · 2·sqrt(π)·σ ≥ target`` is chosen
+(half the bright crystal's contrast: the median pixel of an extinction cross).
 
 After the pass, :func:`measure` reports the block that ``summary.json`` and the Details
 panel show: noise, contrast and their ratio, the fraction of the crystallised field
@@ -30,13 +31,14 @@ _PROBE_SIGMA_PX = 2.0  # smoothing used to find crystalline pixels in the last f
 
 
 def crystal_contrast(last: np.ndarray, level: np.ndarray, noise: np.ndarray) -> tuple[float | None, np.ndarray]:
-    """Typical crystal/melt difference of the last frame, in melt-noise units, and the
-    crystalline mask it was measured on.
+    """Crystal/melt difference of the last frame's bright crystal (90th percentile of the
+    crystalline pixels), in melt-noise units, and the crystalline mask it was measured on.
 
     The per-channel difference from the melt is smoothed (σ = 2 px, which keeps a
-    plateau's level) and summed in noise units; crystalline pixels stand more than
-    six smoothed-noise sigmas above the melt. Returns (None, empty mask) when less than
-    1 % of the field qualifies (nothing crystallised yet).
+    plateau's level) and summed in noise units; crystalline pixels stand more than six
+    smoothed-noise sigmas above the melt. The 90th percentile is the brightness of the
+    bright quadrants, which the dark extinction arms (left out of the mask) do not bias.
+    Returns (None, empty mask) when less than 1 % of the field qualifies.
     """
     diff = (np.asarray(last, np.float32) - level) / noise.reshape((1, 1, -1) if level.ndim == 3 else ())
     smooth = np.abs(cv2.GaussianBlur(diff, (0, 0), _PROBE_SIGMA_PX))
@@ -44,10 +46,10 @@ def crystal_contrast(last: np.ndarray, level: np.ndarray, noise: np.ndarray) -> 
         smooth = smooth.sum(axis=2)
     channels = 1 if level.ndim == 2 else level.shape[2]
     smoothed_noise = channels / (2.0 * math.sqrt(math.pi) * _PROBE_SIGMA_PX)
-    crystal = smooth > 6.0 * smoothed_noise + np.median(smooth)
+    crystal = smooth > 6.0 * smoothed_noise
     if crystal.mean() < 0.01:
         return None, crystal
-    return float(np.median(smooth[crystal])) / channels, crystal
+    return float(np.percentile(smooth[crystal], 90)) / channels, crystal
 
 
 def crystal_noise(before: np.ndarray, last: np.ndarray, crystal: np.ndarray | None, *,
@@ -66,12 +68,17 @@ def crystal_noise(before: np.ndarray, last: np.ndarray, crystal: np.ndarray | No
 
 
 def smoothing_for(snr: float | None, minimum_px: float) -> float:
-    """Gaussian sigma (px) for the evidence: the smallest, in quarter pixels, that lifts
-    a pixel of this signal-to-noise ratio to the target (never below ``minimum_px``)."""
+    """Gaussian sigma (px) for the evidence: the smallest, in quarter pixels, that lifts a
+    typical crystal pixel to the target (never below ``minimum_px``).
+
+    ``snr`` is the bright crystal's contrast over the noise; between crossed polarizers
+    the median pixel of a spherulite transmits half of it (the median of sin²(2φ) over
+    the azimuth φ is 1/2), so that half is what must reach the target.
+    """
     rules = heuristics.current()
     if snr is None or not math.isfinite(snr) or snr <= 0:
         return float(minimum_px)
-    needed = rules.target_smoothed_snr / (2.0 * math.sqrt(math.pi) * snr)
+    needed = rules.target_smoothed_snr / (2.0 * math.sqrt(math.pi) * 0.5 * snr)
     sigma = math.ceil(needed * 4.0) / 4.0
     return float(min(max(sigma, minimum_px), max(rules.max_adaptive_smoothing_px, minimum_px)))
 
@@ -79,8 +86,8 @@ def smoothing_for(snr: float | None, minimum_px: float) -> float:
 def unevenness(image: np.ndarray, mask: np.ndarray | None = None) -> float | None:
     """1 − (5th / 95th percentile) of the slowly varying level of ``image`` over ``mask``.
 
-    The level is the median over 16 × 16 px blocks (at least half of them in the mask),
-    so texture, extinction crosses and noise do not count; None with too few blocks.
+    The level is the mean over 16 × 16 px blocks (at least half of them in the mask):
+    it averages the noise down sixteenfold, even on a dim melt; None with too few blocks.
     """
     grey = np.asarray(image, np.float32)
     grey = grey if grey.ndim == 2 else grey.sum(axis=2)
@@ -91,7 +98,7 @@ def unevenness(image: np.ndarray, mask: np.ndarray | None = None) -> float | Non
         return None
     tiles = grey[:h, :w].reshape(h // block, block, w // block, block).swapaxes(1, 2).reshape(-1, block * block)
     inside = mask[:h, :w].reshape(h // block, block, w // block, block).swapaxes(1, 2).reshape(-1, block * block)
-    levels = [np.median(t[m]) for t, m in zip(tiles, inside) if m.mean() >= 0.5]
+    levels = [np.mean(t[m]) for t, m in zip(tiles, inside) if m.mean() >= 0.5]
     if len(levels) < 6:
         return None
     low, high = np.percentile(levels, [5, 95])

@@ -50,13 +50,34 @@ def _typical_residual(items) -> float:
     return float(np.median(scales)) if scales else float("nan")
 
 
-def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: float) -> str:
+def _outside_px(x: float, y: float, shape) -> float:
+    """Distance (px) of a point outside the field (0 inside)."""
+    h, w = shape
+    return math.hypot(max(-0.5 - x, 0.0, x - (w - 0.5)), max(-0.5 - y, 0.0, y - (h - 0.5)))
+
+
+def _inside_px(x: float, y: float, shape) -> float:
+    """Distance (px) of a point inside the field to the field's edge."""
+    h, w = shape
+    return max(min(x + 0.5, w - 0.5 - x, y + 0.5, h - 0.5 - y), 0.0)
+
+
+def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: float, shape) -> str:
     """Why this candidate is not a spherulite, or '' when its evidence holds."""
     rules = heuristics.current()
     fit = ev.fit
     if not fit.ok:
         where = "at the edge of the field, " if sph.status == "edge" else ""
         return f"no growing front {where}could be fitted ({fit.reason})"
+    outside = _outside_px(fit.x_px, fit.y_px, shape)
+    uncertainty = 1.96 * math.hypot(fit.se_x_px, fit.se_y_px)
+    if outside > 0 and uncertainty > max(rules.edge_centre_uncertainty * outside, rules.edge_centre_floor_px):
+        return (f"enters from outside the field; its centre, {outside:.0f} px out, is uncertain by "
+                f"±{uncertainty:.0f} px (the arc seen is too short)")
+    inside_margin = _inside_px(fit.x_px, fit.y_px, shape)
+    if outside == 0 and uncertainty > rules.edge_centre_floor_px and uncertainty > inside_margin:
+        return (f"its centre, {inside_margin:.0f} px inside the edge of the field, is uncertain by "
+                f"±{uncertainty:.0f} px: it cannot be placed inside or outside")
     if fit.n_levels < rules.reject_min_levels:
         return f"grows over only {fit.n_levels} frames (at least {rules.reject_min_levels} needed)"
     if math.isfinite(slope) and abs(slope / fit.slope_s_per_px - 1) > rules.reject_max_slope_deviation:
@@ -109,7 +130,7 @@ def confidence(sph, ev: Evidence, *, slope: float, typical: float, interval_s: f
                nearest_px: float, shape) -> float:
     """Confidence in [0, 1] that a detection is one real spherulite, from its evidence.
 
-    The product of: frames of growth 1 − exp(−levels / 8); residuals min(1, typical /
+    The product of: frames of growth 1 − exp(−levels / 5); residuals min(1, typical /
     residual); growth-rate agreement exp(−(deviation / 0.15)²); nucleation-time precision
     exp(−se(t0) / interval); closeness to another nucleus min(1, distance / 10 px); 0.7
     when the centre lies outside the field (an arc locates its centre less well).
@@ -117,7 +138,7 @@ def confidence(sph, ev: Evidence, *, slope: float, typical: float, interval_s: f
     fit = ev.fit
     if sph.status == "rejected" or not fit.ok:
         return 0.0
-    value = 1.0 - math.exp(-fit.n_levels / 8.0)
+    value = 1.0 - math.exp(-fit.n_levels / 5.0)
     if math.isfinite(typical) and ev.residual_s > 0:
         value *= min(1.0, typical / ev.residual_s)
     if math.isfinite(slope):
@@ -139,7 +160,7 @@ def judge(spherulites, evidence, *, interval_s: float, shape):
     judged = []
     for sph, ev in items:
         reason = "" if ev.user_included or not ev.automatic or sph.status == "excluded" else \
-            _rejection(sph, ev, slope, typical, interval_s)
+            _rejection(sph, ev, slope, typical, interval_s, shape)
         judged.append(dataclasses.replace(sph, status="rejected", reason=reason) if reason else sph)
     items = list(zip(judged, evidence))
     twins = _duplicates(items, interval_s)
