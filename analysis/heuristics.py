@@ -150,6 +150,10 @@ class DetectionHeuristics:
     edge_centre_floor_px: float = _h(
         5.0, "Smallest centre uncertainty always accepted for a spherulite entering from "
         "outside, px (a few pixels: the precision of an inside centre).")
+    phantom_margin_intervals: float = _h(
+        1.0, "A nucleus must have been in melt for at least this many frame intervals before "
+        "another front reached its centre to be told apart from that front (one timing "
+        "quantum; a nucleus born inside crystal is a phantom, Avrami 1939, J. Chem. Phys. 7, 1103).")
     duplicate_agreement_intervals: float = _h(
         1.0, "Two cones whose arrival times over their pixels differ by less than this many "
         "frame intervals (median) describe the same front: the timing quantum.")

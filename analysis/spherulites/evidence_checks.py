@@ -91,6 +91,27 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
     return ""
 
 
+def _phantom_check(k, sph, ev: Evidence, items, interval_s: float):
+    """A nucleus cannot be born inside crystal (the phantom nuclei of Avrami 1939, J.
+    Chem. Phys. 7, 1103), and one born as another front arrives cannot be told from that
+    front: when another detection's fitted front reaches this one's centre less than
+    ``phantom_margin_intervals`` frame intervals after its fitted nucleation time, its
+    'cone' is the seam where fronts met, not a nucleus."""
+    fit = ev.fit
+    if not fit.ok or sph.status == "rejected" or not ev.automatic or ev.user_included:
+        return sph
+    margin = heuristics.current().phantom_margin_intervals * interval_s
+    for j, (other, oe) in enumerate(items):
+        if j == k or not oe.fit.ok or other.status == "rejected":
+            continue
+        reached = oe.fit.t0_s + oe.fit.slope_s_per_px * math.hypot(fit.x_px - oe.fit.x_px, fit.y_px - oe.fit.y_px)
+        if reached < fit.t0_s + margin:
+            return dataclasses.replace(sph, status="rejected", reason=(
+                f"#{other.id}'s front reached its centre {reached - fit.t0_s:+.0f} s from its nucleation "
+                "time: a seam between fronts, not a nucleus"))
+    return sph
+
+
 def _duplicates(items, interval_s: float) -> dict[int, int]:
     """{id: id of the stronger twin} for fitted detections describing the same front."""
     rules = heuristics.current()
@@ -98,8 +119,11 @@ def _duplicates(items, interval_s: float) -> dict[int, int]:
     twin = {}
     for i, (a, ea) in enumerate(fitted):
         for b, eb in fitted[i + 1:]:
-            if math.hypot(ea.fit.x_px - eb.fit.x_px, ea.fit.y_px - eb.fit.y_px) > 0.5 * (
-                    ea.x.size ** 0.5 + eb.x.size ** 0.5):
+            # Their centres must agree within the uncertainty of the two fits (95 %).
+            apart = math.hypot(ea.fit.x_px - eb.fit.x_px, ea.fit.y_px - eb.fit.y_px)
+            spread = 1.96 * math.sqrt(ea.fit.se_x_px ** 2 + ea.fit.se_y_px ** 2 + eb.fit.se_x_px ** 2 +
+                                      eb.fit.se_y_px ** 2)
+            if apart > max(spread, rules.edge_centre_floor_px):
                 continue
             if _one_front(ea, eb, interval_s, rules.duplicate_agreement_intervals):
                 weak, strong = (a, b) if ea.x.size < eb.x.size else (b, a)
@@ -110,9 +134,10 @@ def _duplicates(items, interval_s: float) -> dict[int, int]:
 
 def _one_front(ea: Evidence, eb: Evidence, interval_s: float, agreement: float) -> bool:
     """One cone fitted to both detections' pixels explains them as well as their own
-    cones do (robust residual scale within ``agreement`` frame intervals of the worse of
-    the two, and of the same growth rate): the two are pieces of one front, typically an
-    arc entering the field split by its extinction arms."""
+    cones do (robust residual scale within a quarter of ``agreement`` frame intervals of
+    the worse of the two, and the same growth rate within 10 %): the two are pieces of
+    one front, typically an arc entering the field split by its extinction arms. Only
+    asked of pairs whose centres agree within their uncertainty (see _duplicates)."""
     x, y, t = (np.concatenate([a, b]) for a, b in ((ea.x, eb.x), (ea.y, eb.y), (ea.t, eb.t)))
     strong = ea if ea.x.size >= eb.x.size else eb
     levels = np.round(t / interval_s).astype(np.int64)
@@ -162,6 +187,8 @@ def judge(spherulites, evidence, *, interval_s: float, shape):
         reason = "" if ev.user_included or not ev.automatic or sph.status == "excluded" else \
             _rejection(sph, ev, slope, typical, interval_s, shape)
         judged.append(dataclasses.replace(sph, status="rejected", reason=reason) if reason else sph)
+    items = list(zip(judged, evidence))
+    judged = [_phantom_check(k, s, e, items, interval_s) for k, (s, e) in enumerate(items)]
     items = list(zip(judged, evidence))
     twins = _duplicates(items, interval_s)
     judged = [dataclasses.replace(s, status="rejected", reason=f"the same growing front as #{twins[s.id]}")
