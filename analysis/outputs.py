@@ -76,30 +76,43 @@ def prepare_output_file(path) -> Path:
     return target
 
 
-def remove_stale_temporaries(folder, name: str | None = None, *, older_than_s: float = STALE_AFTER_S) -> list[Path]:
+def _temporary_pattern(name: str | None) -> re.Pattern:
+    """Names of atomic-write temporaries: ``.<name>.<8 random chars>.tmp`` or ``.part<suffix>``."""
+    stem = ".+" if name is None else re.escape(name)
+    return re.compile(rf"^\.{stem}\.[A-Za-z0-9_]{{8}}\.(?:tmp|part(?:\.[A-Za-z0-9]+)?)$")
+
+
+def remove_stale_temporaries(folder, name: str | None = None, *,
+                             older_than_s: float = STALE_AFTER_S) -> list[Path]:
     """Remove leftovers of interrupted writes in ``folder``; returns what was removed.
 
-    Staging folders of :func:`staged_outputs` and, for ``name``, the ``.name.*.tmp``
-    files of an atomic save. Only entries older than ``older_than_s`` go, so a save in
-    progress in another window is left alone.
+    Staging folders of :func:`staged_outputs` and the temporaries of atomic writes
+    (those of file ``name`` only, when it is given). Only entries older than
+    ``older_than_s`` go, so a save in progress in another window is left alone.
     """
     folder = Path(folder)
-    patterns = [STAGING_PREFIX + "*"]
-    if name is not None:
-        patterns.append(f".{name}.*.tmp")
+    pattern = _temporary_pattern(name)
     removed, now = [], time.time()
-    for pattern in patterns:
-        for entry in folder.glob(pattern):
-            try:
-                if now - entry.lstat().st_mtime < older_than_s:
-                    continue
-                if entry.is_dir() and not entry.is_symlink():
-                    shutil.rmtree(entry)
-                else:
-                    entry.unlink()
-            except OSError:
-                continue  # another process got there first, or it is not ours to remove
-            removed.append(entry)
+    try:
+        entries = list(folder.iterdir())
+    except OSError:
+        return removed
+    for entry in entries:
+        staging = entry.name.startswith(STAGING_PREFIX)
+        if not staging and not pattern.match(entry.name):
+            continue
+        try:
+            if now - entry.lstat().st_mtime < older_than_s:
+                continue
+            if staging and entry.is_dir() and not entry.is_symlink():
+                shutil.rmtree(entry)
+            elif not entry.is_dir():
+                entry.unlink()
+            else:
+                continue
+        except OSError:
+            continue  # another process got there first, or it is not ours to remove
+        removed.append(entry)
     return removed
 
 

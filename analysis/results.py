@@ -15,13 +15,30 @@ import numpy as np
 
 from analysis.edits import Edit
 
-#: Spherulite statuses. Only ``ok`` spherulites enter the pooled growth rate. Nuclei
-#: counted for the density: ``ok``, ``nonlinear`` and ``few-points`` (when it grows like its
-#: neighbours) with the centre inside the field; never ``edge``, ``excluded`` or
-#: ``rejected`` (a candidate without the evidence of a growing spherulite; see ``reason``).
-STATUSES = ("ok", "edge", "few-points", "nonlinear", "excluded", "rejected")
+#: Spherulite statuses are defined, with their thresholds and reasons, in
+#: ``analysis.spherulites.statuses``. Only ``ok`` spherulites enter the pooled growth rate;
+#: ``rejected`` candidates count nowhere (see ``reason``).
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
+
+#: The three counts a result reports: key -> (label, what it counts). The keys name the
+#: JSON fields, CSV columns and help topics; the labels head every panel and table, so a
+#: count reads the same wherever it appears.
+COUNTS: dict[str, tuple[str, str]] = {
+    "spherulites_detected": (
+        "Spherulites detected",
+        "every spherulite the analysis reports, found automatically or added by hand "
+        "(deleted and merged detections and rejected candidates not), whatever its status"),
+    "nuclei_counted": (
+        "Nuclei counted",
+        "nuclei whose centre lies inside the field, with a nucleation time, not cut by the "
+        "border and growing like their neighbours: the count behind the nucleation density "
+        "N_A, the nucleation rate and the mode"),
+    "spherulites_in_pooled_g": (
+        "Spherulites in pooled G",
+        "spherulites with status ok and a usable growth fit: the ones pooled into the "
+        "experiment's growth rate G"),
+}
 
 
 @dataclass(frozen=True)
@@ -36,11 +53,12 @@ class Spherulite:
     growth_rate_um_per_min: float | None
     growth_rate_ci95_um_per_min: float | None
     r2: float | None
-    n_points: int
+    n_points: int  # distinct frames among the pixels of the cone fit
     status: str
     source: str = "auto"
-    reason: str = ""  # why the status is not ``ok`` (empty for ``ok``)
-    confidence: float | None = None  # 0..1 from the evidence (see analysis.spherulites.confidence)
+    reason: str = ""  # why this status, with the numbers that decided it; notes such as
+    #                   nucleation before the isothermal start
+    confidence: float | None = None  # 0..1 from the evidence (analysis.spherulites.evidence_checks)
 
     def radius_um_at(self, time_s: float) -> float | None:
         """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
@@ -62,6 +80,10 @@ class RadiusSeries:
     radius_um: np.ndarray
     free_fraction: np.ndarray
     used: np.ndarray  # bool: the sample entered the fit (not ignored, front free enough)
+
+    def n_used(self) -> int:
+        """Radii measured while the front grew freely: the count the few-points rule uses."""
+        return int(np.count_nonzero(self.used))
 
 
 @dataclass(frozen=True)
@@ -85,6 +107,8 @@ class Nucleation:
     # Nuclei of the initial burst per mm^2 (the predetermined part; for "mixed" this is
     # the athermal density, smaller than density_per_mm2 which counts every nucleus).
     burst_density_per_mm2: float | None = None
+    # Nucleation times (s from the isothermal start) of the counted nuclei, ascending.
+    times_s: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -163,6 +187,12 @@ class ExperimentResult:
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
     image_quality: ImageQuality | None = None
+
+    def counts(self) -> dict[str, int]:
+        """The :data:`COUNTS` of this result, by key."""
+        return {"spherulites_detected": sum(1 for s in self.spherulites if s.status != "rejected"),
+                "nuclei_counted": int(self.nucleation.count),
+                "spherulites_in_pooled_g": int(self.growth_rate.n)}
 
     def spherulite(self, spherulite_id: int) -> Spherulite:
         for s in self.spherulites:

@@ -124,7 +124,7 @@ def read_bytes_limited(path, what: str = "file", limit_bytes: int | None = None)
             raise InputError(f"cannot read the {what} ({err.strerror})", path) from None
     if len(raw) > limit:
         raise InputError(
-            f"the {what} is larger than the {limit / 2**20:g} MiB limit for text inputs "
+            f"the {what} is larger than the {limit / 2**20:.3g} MiB limit for text inputs "
             f"(raise it with the environment variable {TEXT_LIMIT_ENV}=<MiB>)", path)
     return raw
 

@@ -34,8 +34,8 @@ and transformed fractions.
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, fields
-from typing import Any, Generator
+from dataclasses import dataclass
+from typing import Generator
 
 import cv2
 import numpy as np
@@ -44,7 +44,6 @@ from analysis.arrival import evidence as segment
 from analysis.arrival import quality
 from analysis.arrival.registration import (
     AUTO_WARP_TOLERANCE_PX,
-    REGISTRATION_MODES,
     DriftTracker,
     WindowedImage,
     extrapolate_unseen_drift,
@@ -54,115 +53,12 @@ from analysis.arrival.tracking import DONE, MELT, PassState, retire_all, step_fr
 from analysis import heuristics
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion
+from analysis.settings import ArrivalSettings  # described once, with ranges and help
 
 __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
 
 _STAGE = "arrival times"
 _NEVER, _UNUSABLE = -1, -2
-
-
-@dataclass(frozen=True)
-class ArrivalSettings:
-    """User-tunable settings of the arrival-time pass (stored with the experiment).
-
-    Attributes
-    ----------
-    sensitivity : float
-        Scales the automatic detection threshold down (>1 finds fainter crystals, more
-        false alarms) or up (<1).
-    min_size_px : int
-        Crystalline patches smaller than this (px) in the final map are noise and removed;
-        also the smallest object accepted as crystalline in frame 0.
-    start_frame : int
-        First frame analysed; it and the next frames give the melt reference. Earlier
-        frames (the sample still settling at Tc, focus being adjusted) are skipped, and
-        the map's ``times_s``, ``frame_index`` and ``shifts_px`` cover the frames used.
-    reference_frames : int
-        Frames averaged (where still melt) into the melt reference.
-    channel : str
-        ``"auto"``, ``"grey"`` or ``"colour"`` (retardation plate recordings).
-    registration : str
-        ``"auto"``, ``"on"`` or ``"off"`` (see :mod:`analysis.arrival.registration`).
-    register_every_frames : int
-        Once drift has been measured, register only every n-th frame and follow the
-        measured drift velocity in between (drift is slow and smooth; 1: every frame).
-    persistence_frames : int
-        Consecutive frames the evidence must stay up before a pixel counts as crystalline.
-    hysteresis : float
-        Fraction of the threshold the evidence must keep during the persistence frames.
-    track_frames : int
-        Frames of evidence kept after detection to find the plateau and the half-way time.
-    smoothing_px : float
-        Gaussian sigma applied to the difference from the melt, px.
-    fill_wedges : bool
-        Fill pixels without evidence (extinction wedges, dark bands) from the growth geometry.
-    """
-
-    sensitivity: float = 1.0
-    min_size_px: int = 12
-    start_frame: int = 0
-    reference_frames: int = 3
-    channel: str = "auto"
-    registration: str = "auto"
-    register_every_frames: int = 4
-    persistence_frames: int = 2
-    hysteresis: float = 0.6
-    track_frames: int = 12
-    smoothing_px: float = 1.0
-    fill_wedges: bool = True
-
-    def __post_init__(self):
-        problems = []
-        if not (math.isfinite(self.sensitivity) and self.sensitivity > 0):
-            problems.append("sensitivity must be a positive number")
-        if self.min_size_px < 1:
-            problems.append("min_size_px must be at least 1")
-        if self.start_frame < 0:
-            problems.append("start_frame must not be negative")
-        if self.reference_frames < 1:
-            problems.append("reference_frames must be at least 1")
-        if self.channel not in segment.CHANNEL_MODES:
-            problems.append(f"channel must be one of {segment.CHANNEL_MODES}")
-        if self.registration not in REGISTRATION_MODES:
-            problems.append(f"registration must be one of {REGISTRATION_MODES}")
-        if self.register_every_frames < 1:
-            problems.append("register_every_frames must be at least 1")
-        if self.persistence_frames < 1:
-            problems.append("persistence_frames must be at least 1")
-        if not 0 < self.hysteresis <= 1:
-            problems.append("hysteresis must be in (0, 1]")
-        if self.track_frames < max(3, self.persistence_frames + 1):
-            problems.append("track_frames must be at least 3 and exceed persistence_frames")
-        if not (math.isfinite(self.smoothing_px) and 0 < self.smoothing_px <= 10):
-            problems.append("smoothing_px must be in (0, 10]")
-        if problems:
-            raise InputError("arrival settings: " + "; ".join(problems))
-
-    def to_dict(self) -> dict[str, Any]:
-        return asdict(self)
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> "ArrivalSettings":
-        """Build from a stored dict; unknown keys are an error, missing keys take defaults."""
-        known = {f.name: f.type for f in fields(cls)}
-        unknown = sorted(set(data) - set(known))
-        if unknown:
-            raise InputError(f"arrival settings: unknown keys {unknown}")
-        defaults = cls()
-        values = {}
-        for name, value in data.items():
-            kind = type(getattr(defaults, name))
-            try:
-                values[name] = kind(value) if kind is not bool else _as_bool(value)
-            except (TypeError, ValueError):
-                raise InputError(f"arrival settings: {name} must be of type {kind.__name__}") from None
-        return cls(**values)
-
-
-def _as_bool(value) -> bool:
-    if isinstance(value, bool):
-        return value
-    raise ValueError(value)
 
 
 @dataclass(frozen=True)

@@ -36,6 +36,7 @@ from scipy import ndimage
 from skimage import measure
 
 from analysis import heuristics
+from analysis.settings import CHANNEL_MODES  # described once with the other settings
 
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
@@ -43,7 +44,6 @@ __all__ = [
     "estimate_slowness", "complete_wedges",
 ]
 
-CHANNEL_MODES = ("auto", "grey", "colour")
 
 
 @dataclass

@@ -41,12 +41,13 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from analysis.settings import REGISTRATION_MODES  # described once with the other settings
+
 __all__ = [
     "REGISTRATION_MODES", "AUTO_WARP_TOLERANCE_PX", "ShiftEstimate", "DriftTracker", "WindowedImage",
     "bandpass", "estimate_shift", "warp_onto_reference", "extrapolate_unseen_drift", "drift_path",
 ]
 
-REGISTRATION_MODES = ("auto", "on", "off")
 AUTO_WARP_TOLERANCE_PX = 0.05
 _FINE_SIGMA_PX = 1.0
 _COARSE_SIGMA_PX = 6.0

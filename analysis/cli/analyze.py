@@ -4,31 +4,42 @@ from __future__ import annotations
 
 import sys
 
+from analysis.cli.setting_flags import (
+    add_analysis_settings_arguments,
+    add_spec_arguments,
+    analysis_settings_from_args,
+    value_of,
+)
 from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
-from analysis.spherulites.pipeline import AnalysisSettings, analyze_iter
+from analysis.results import COUNTS
+from analysis.settings import DEFAULT_GEOMETRY, EXPERIMENT_SPECS
+from analysis.spherulites.pipeline import analyze_iter
 from analysis.stack.frames import open_stack
 
 
+#: The experiment values ``analyze`` takes on the command line (flags named after the keys).
+EXPERIMENT_FLAGS = ("um_per_px", "interval_s", "temperature_c", "thickness_um", "isothermal_start_s",
+                    "geometry")
+
+
+def _experiment_specs():
+    by_key = {spec.key: spec for spec in EXPERIMENT_SPECS}
+    return [by_key[key] for key in EXPERIMENT_FLAGS]
+
+
 def add_cli_arguments(parser) -> None:
-    """Arguments of ``spherokin analyze``."""
+    """Arguments of ``spherokin analyze``: the stack, the output folder, then flags generated
+    from the setting descriptions (experiment values, then every analysis setting)."""
     parser.add_argument("stack", help="multi-page TIFF, folder of frames or video")
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder")
-    parser.add_argument("--um-per-px", type=float, help="pixel size in µm (overrides the file)")
-    parser.add_argument("--interval-s", type=float, help="frame interval in s (overrides the file)")
-    parser.add_argument("--temperature-c", type=float, help="crystallization temperature, °C")
-    parser.add_argument("--thickness-um", type=float, help="film thickness, µm (for N_V = N_A / h)")
-    parser.add_argument("--isothermal-start-s", type=float, default=0.0,
-                        help="time on the recording clock when the sample reached Tc, s")
-    parser.add_argument("--sensitivity", type=float, default=None, metavar="FRAMES",
-                        help="minimum depth of a nucleus below its surroundings, frame intervals "
-                             "(default 0.5; lower finds more)")
+    add_spec_arguments(parser, _experiment_specs())
+    add_analysis_settings_arguments(parser)
     parser.add_argument("--memory-budget-mb", type=float, default=None, metavar="MIB",
                         help="refuse stacks whose analysis needs more memory than this "
-                             "(default 4096, or $SPHEROKIN_MEMORY_BUDGET_MB)")
-    parser.add_argument("--geometry", choices=("film-2d", "bulk-3d"), default="film-2d",
-                        help="geometry of the predicted Avrami kinetics")
+                             "(default: $SPHEROKIN_MEMORY_BUDGET_MB, else 3/4 of the "
+                             "computer's memory)")
 
 
 class _ProgressBar:
@@ -58,26 +69,27 @@ class _ProgressBar:
 
 def run_cli(args) -> int:
     """Run ``spherokin analyze``; InputError propagates to the CLI (exit 2)."""
+    # Flags are checked before the output folder is made: a typo leaves nothing behind.
+    given = {spec.key: value_of(args, spec) for spec in _experiment_specs()}
+    geometry = given["geometry"] or DEFAULT_GEOMETRY
+    settings = analysis_settings_from_args(args)
     prepare_output_folder(args.out)
-    stack = open_stack(args.stack, um_per_px=args.um_per_px, interval_s=args.interval_s)
+    stack = open_stack(args.stack, um_per_px=given["um_per_px"], interval_s=given["interval_s"])
     stack.require_calibration()
-    settings = AnalysisSettings()
-    if args.sensitivity is not None:
-        settings = AnalysisSettings.from_dict({**settings.to_dict(), "sensitivity_frames": args.sensitivity},
-                                          path=args.stack)
     bar = _ProgressBar()
     try:
         analysis = run_to_completion(analyze_iter(
-            stack, settings=settings, isothermal_start_s=args.isothermal_start_s,
-            temperature_c=args.temperature_c, thickness_um=args.thickness_um,
-            geometry=args.geometry, memory_budget_mb=args.memory_budget_mb), bar)
+            stack, settings=settings, isothermal_start_s=given["isothermal_start_s"] or 0.0,
+            temperature_c=given["temperature_c"], thickness_um=given["thickness_um"],
+            geometry=geometry, memory_budget_mb=args.memory_budget_mb), bar)
     finally:
         bar.close()
-    write_analysis_outputs(analysis.result, args.out, geometry=args.geometry,
+    write_analysis_outputs(analysis.result, args.out, geometry=geometry,
                            arrival=analysis.arrival, stack=stack)
     result = analysis.result
     g = result.growth_rate
-    g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g}, n = {g.n})"
-    print(f"{len(result.spherulites)} spherulites; G = {g_text}; nucleation "
-          f"{result.nucleation.mode or 'n/a'}; outputs in {args.out}")
+    g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g})"
+    counts = "; ".join(f"{COUNTS[key][0]} {value}" for key, value in result.counts().items())
+    print(f"{counts}; G = {g_text}; nucleation {result.nucleation.mode or 'n/a'}; "
+          f"outputs in {args.out}")
     return 0

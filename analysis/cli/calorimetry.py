@@ -7,10 +7,11 @@ from analysis.kinetics.calorimetry import (
     analyze_calorimetry_file,
     write_calorimetry_outputs,
 )
+from analysis.settings import DEFAULT_FIT_WINDOW
 
 
 def add_cli_arguments(parser) -> None:
-    """Options of ``spherokin calorimetry`` (DESIGN.md)."""
+    """Options of ``spherokin calorimetry`` (docs/design.md)."""
     parser.add_argument("file", help="delimited text export of an isothermal DSC run")
     parser.add_argument("--out", required=True, help="output directory")
     parser.add_argument("--time-col", help="time column: name or 0-based index")
@@ -18,8 +19,9 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--time-unit", choices=("s", "min"), help="unit of the time column")
     parser.add_argument("--exotherm", choices=("up", "down"), help="sign of the exotherm "
                         "(default: detected)")
-    parser.add_argument("--window", default="3,20", help="Avrami conversion window LO,HI in "
-                        "percent (3,20) or as fractions (0.03,0.2); default 3,20")
+    default_window = ",".join(f"{100 * v:g}" for v in DEFAULT_FIT_WINDOW)
+    parser.add_argument("--window", default=default_window, help="Avrami conversion window LO,HI "
+                        f"in percent ({default_window}) or as fractions; default {default_window}")
     parser.add_argument("--mass-mg", type=float, help="sample mass in mg (for J/g with mW data)")
     parser.add_argument("--material", help="material name for crystallinity = dH / dH0")
     parser.add_argument("--lag-s", type=float, default=0.0, help="instrument time constant in s "

@@ -9,6 +9,7 @@ from analysis.kinetics.lauritzen_hoffman import (
     read_growth_table,
     write_secondary_nucleation,
 )
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL
 
 
 def add_cli_arguments(parser) -> None:
@@ -16,8 +17,8 @@ def add_cli_arguments(parser) -> None:
     parser.add_argument("--out", required=True, help="output directory")
     parser.add_argument("--tm0-c", type=float, required=True, help="equilibrium melting point, C")
     parser.add_argument("--tg-c", type=float, required=True, help="glass transition, C")
-    parser.add_argument("--u-star-j-mol", type=float, default=6270.0,
-                        help="transport activation energy U*, J/mol (default 6270)")
+    parser.add_argument("--u-star-j-mol", type=float, default=DEFAULT_U_STAR_J_PER_MOL,
+                        help="transport activation energy U*, J/mol (default %(default)g)")
     parser.add_argument("--t-inf-c", type=float, help="T_inf, C (default Tg - 30 K)")
     parser.add_argument("--material", help="material for sigma*sigma_e (b0, dH0, rho_c)")
 

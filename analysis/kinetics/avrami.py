@@ -14,7 +14,7 @@ Closed forms
     ``avrami_conversion(t_min, n, k, t0_min=0)``, ``half_time(n, k)``, ``k_from_half_time(n,
     t_half)``, ``k_per_second(k_per_min_n, n)``
 Fits (a failed fit is a falsy ``FitFailure(reason)``, never an exception)
-    ``fit_avrami_window(t_min, x, window=(0.03, 0.20)) -> AvramiFit | FitFailure``
+    ``fit_avrami_window(t_min, x, window=DEFAULT_FIT_WINDOW) -> AvramiFit | FitFailure``
     ``fit_avrami_curve(t_min, x, *, x_range=(0.005, 0.995)) -> AvramiFit | FitFailure``
 Crystallinity bases
     ``volume_fraction_from_mass(w, *, density_ratio=None, material=None)`` and
@@ -60,6 +60,7 @@ from scipy import optimize, stats
 
 from analysis.errors import InputError
 from analysis.results import AvramiParameters
+from analysis.settings import DEFAULT_FIT_WINDOW
 
 __all__ = [
     "AvramiFit", "AvramiPrediction", "FitFailure", "GEOMETRIES", "avrami_conversion",
@@ -239,7 +240,7 @@ def _check_window(window) -> tuple[float, float] | FitFailure:
     return lo, hi
 
 
-def fit_avrami_window(t_min, x, window=(0.03, 0.20)) -> AvramiFit | FitFailure:
+def fit_avrami_window(t_min, x, window=DEFAULT_FIT_WINDOW) -> AvramiFit | FitFailure:
     """Linear fit of ln(-ln(1 - X)) against ln t for window[0] <= X <= window[1].
 
     Parameters

@@ -16,7 +16,7 @@ heat_flow_unit=None) -> Isotherm``
     Columns by name (case-insensitive, with or without the unit) or 0-based index.
     ``Isotherm``: ``time_min``, ``heat_flow`` (in ``heat_flow_unit``: "mW" or "W/g"),
     ``mass_mg`` from the file's metadata, ``warnings``.
-``analyze_isotherm(isotherm, *, exotherm="auto", window=(0.03, 0.20), mass_mg=None,
+``analyze_isotherm(isotherm, *, exotherm="auto", window=DEFAULT_FIT_WINDOW, mass_mg=None,
 material=None, baseline="linear", baseline_start_min=None, baseline_end_min=None,
 transient_end_min=None) -> CalorimetryResult``
 ``analyze_calorimetry_file(path, **options) -> CalorimetryResult`` (read + analyse)
@@ -67,12 +67,14 @@ from analysis.kinetics.avrami import (
 )
 from analysis.kinetics.calorimetry_import import (  # re-exported: reading lives in its own module
     CalorimetryPreview,
+    header_mismatches,
     Isotherm,
     read_isotherm,
     sniff_calorimetry_file,
 )
+from analysis.settings import DEFAULT_FIT_WINDOW
 
-__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm",
+__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "header_mismatches",
            "analyze_calorimetry_file", "analyze_isotherm", "analyze_source", "parse_window",
            "read_isotherm", "sniff_calorimetry_file", "write_calorimetry_outputs"]
 
@@ -112,6 +114,27 @@ class CalorimetryResult:
         """(time_min, X) between the baseline start and end, X clipped to [0, 1]."""
         sel = (self.time_min >= self.baseline_start_min) & (self.time_min <= self.baseline_end_min)
         return self.time_min[sel], np.clip(self.relative_crystallinity[sel], 0.0, 1.0)
+
+    def volume_conversion(self) -> tuple[np.ndarray, np.ndarray, str]:
+        """(t_min from the induction time, X, basis in words) for comparison with microscopy.
+
+        X is converted from the calorimeter's mass basis to a volume basis with the
+        material's crystal/amorphous density ratio (docs/sources.md §4.1); without a
+        material, or without densities for it, X stays on a mass basis and the basis
+        says why. Points at or before the induction time are left out.
+        """
+        from analysis.kinetics.avrami import volume_fraction_from_mass
+
+        t, x = self.conversion_table()
+        tau = t - self.induction_time_min
+        keep = tau > 0
+        tau, x = tau[keep], x[keep]
+        if self.material is None:
+            return tau, x, "mass basis (choose a material for the density ratio)"
+        try:
+            return tau, volume_fraction_from_mass(x, material=self.material), "volume basis"
+        except InputError as error:
+            return tau, x, f"mass basis ({error.problem})"
 
     def to_json_dict(self) -> dict:
         """The ``calorimetry.json`` document (docs/design.md)."""
@@ -270,7 +293,7 @@ def _enthalpy(area_unit_min: float, unit: str, mass_mg: float | None):
     return area_unit_min * 60.0 / mass_mg if mass_mg else None
 
 
-def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=(0.03, 0.20),
+def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=DEFAULT_FIT_WINDOW,
                      mass_mg: float | None = None, material: str | None = None,
                      baseline: str = "linear", baseline_start_min: float | None = None,
                      baseline_end_min: float | None = None,
@@ -335,7 +358,7 @@ def _finish(iso, t, q, line, sign, i_tr, start, end, t0, x, total, window, mass_
     if material is not None and enthalpy is not None:
         from analysis.kinetics.materials import get_material
 
-        dh0 = get_material(material).dh0_j_per_g
+        dh0 = get_material(material, path=iso.path).dh0_j_per_g
         crystallinity = None if dh0 is None else enthalpy / dh0
     seg = slice(start, end + 1)
     fit = fit_avrami_window(t[seg] - t0, x[seg], window)
@@ -356,7 +379,7 @@ def _finish(iso, t, q, line, sign, i_tr, start, end, t0, x, total, window, mass_
 def parse_window(window, path=None) -> tuple[float, float]:
     """Conversion window as fractions. Accepts (lo, hi) or "lo,hi"; values > 1 are percent.
 
-    "3,20" and (0.03, 0.2) both mean 3-20 %.
+    "3,20" and 0.03,0.2 both mean 3-20 %.
     """
     if isinstance(window, str):
         parts = window.replace(";", ",").split(",")
@@ -387,7 +410,7 @@ def analyze_source(source) -> CalorimetryResult:
     return analyze_calorimetry_file(
         source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
         time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit,
-        exotherm=source.exotherm or "auto", window=source.window or (0.03, 0.20),
+        exotherm=source.exotherm or "auto", window=source.window or DEFAULT_FIT_WINDOW,
         mass_mg=source.mass_mg, material=source.material,
         baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min,
         lag_s=getattr(source, "lag_s", None) or 0.0)

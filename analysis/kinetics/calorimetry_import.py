@@ -46,6 +46,8 @@ class CalorimetryPreview:
     time_unit: str | None
     heat_flow_unit: str | None
     mass_mg: float | None
+    sample_name: str | None = None  # from a "Sample" line above the data
+    temperature_c: float | None = None  # from an "isothermal temperature" line above the data
 
 
 @dataclass(frozen=True)
@@ -172,6 +174,56 @@ def _mass_from_metadata(metadata: list[str]) -> float | None:
     return None
 
 
+def _header_value(metadata: list[str], accept) -> str | None:
+    """The value of the first ``label<delimiter>value`` line above the data whose label
+    (case-folded, unit in brackets removed) ``accept`` takes; quotes stripped."""
+    for line in metadata:
+        parts = re.split(r"[;\t,:=]", line.strip(), maxsplit=1)
+        if len(parts) != 2:
+            continue
+        label = re.sub(r"[(\[].*?[)\]]", "", parts[0]).strip().strip('"').casefold()
+        value = parts[1].strip().strip('"').strip("'").strip()
+        if value and accept(label):
+            return value
+    return None
+
+
+def _temperature_from_metadata(metadata: list[str]) -> float | None:
+    """The isothermal (or set) temperature of a header line in °C, if one is given."""
+    text = _header_value(metadata, lambda label: label in (
+        "isothermal temperature", "isotherm temperature", "set temperature",
+        "crystallization temperature", "crystallisation temperature", "tc"))
+    if text is None:
+        return None
+    match = re.match(r"^\s*(-?\d+(?:[.,]\d+)?)", text)
+    return float(match.group(1).replace(",", ".")) if match else None
+
+
+def header_mismatches(preview: CalorimetryPreview, *, temperature_c: float | None,
+                      experiment_name: str, mass_mg: float | None) -> tuple[str, ...]:
+    """Where the file's header disagrees with the experiment it is imported into.
+
+    Compared when both sides are known: the isothermal temperature (more than 0.5 °C
+    apart), the sample name (no word of three or more letters in common with the
+    experiment's name), and the sample mass (more than 1 % apart from the mass stored
+    for the experiment). Tolerances: common practice for a calibrated DSC and balance.
+    """
+    found = []
+    if preview.temperature_c is not None and temperature_c is not None and \
+            abs(preview.temperature_c - temperature_c) > 0.5:
+        found.append(f"the file is an isotherm at {preview.temperature_c:g} °C, the experiment's "
+                     f"Tc is {temperature_c:g} °C")
+    if preview.sample_name and experiment_name:
+        words = lambda text: {w.casefold() for w in re.findall(r"[^\W\d_]{3,}", text)}
+        if not words(preview.sample_name) & words(experiment_name):
+            found.append(f"the file's sample is “{preview.sample_name}”, the experiment is "
+                         f"“{experiment_name}”")
+    if preview.mass_mg and mass_mg and abs(preview.mass_mg - mass_mg) > 0.01 * mass_mg:
+        found.append(f"the file gives a sample mass of {preview.mass_mg:g} mg, the experiment "
+                     f"has {mass_mg:g} mg")
+    return tuple(found)
+
+
 def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:
     """Detect the dialect, column row and columns of a delimited export (for a mapping dialog)."""
     lines = _read_lines(path)
@@ -204,7 +256,10 @@ def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:
         time_col=time_col, heat_flow_col=flow_col,
         time_unit=None if time_col is None else _time_unit(_unit_of(columns[time_col])),
         heat_flow_unit=None if flow_col is None else _flow_unit(_unit_of(columns[flow_col]))[0],
-        mass_mg=_mass_from_metadata(metadata))
+        mass_mg=_mass_from_metadata(metadata),
+        sample_name=_header_value(metadata, lambda label: label in ("sample", "sample name",
+                                                                    "sample id")),
+        temperature_c=_temperature_from_metadata(metadata))
 
 
 def _time_unit(unit: str | None) -> str | None:

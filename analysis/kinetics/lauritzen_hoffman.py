@@ -2,7 +2,7 @@
 
 Public API (stable; the GUI codes against it)
 ---------------------------------------------
-``LHConstants(tm0_c, tg_c, u_star_j_per_mol=6270.0, t_inf_c=None)``: ``t_inf_c`` defaults
+``LHConstants(tm0_c, tg_c, u_star_j_per_mol=DEFAULT_U_STAR_J_PER_MOL, t_inf_c=None)``: ``t_inf_c`` defaults
 to Tg - 30 K; ``.t_inf``/``.tm0_k`` properties.
 ``lh_coordinates(tc_c, g_um_per_min, constants) -> (x, y)``: x = 1/(T dT f) (K^-2),
 y = ln G + U*/(R (T - T_inf)).
@@ -41,13 +41,15 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import stats
 
 from analysis.errors import InputError
 from analysis.units import write_json_atomic
 from analysis.kinetics.avrami import FitFailure
 from analysis.outputs import staged_outputs
+from analysis.kinetics.regime_break import best_break, best_free_split
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, t_inf_default_c
 
 __all__ = ["GrowthTable", "HoffmanWeeks", "LHAnalysis", "LHConstants", "RegimeFit",
            "fit_lauritzen_hoffman", "hoffman_weeks", "lh_coordinates",
@@ -68,13 +70,13 @@ HW_CAVEAT = ("Linear Hoffman-Weeks extrapolation tends to underestimate Tm0: the
 class LHConstants:
     tm0_c: float
     tg_c: float
-    u_star_j_per_mol: float = 6270.0
+    u_star_j_per_mol: float = DEFAULT_U_STAR_J_PER_MOL
     t_inf_c: float | None = None
 
     @property
     def t_inf(self) -> float:
         """T_inf in deg C (Tg - 30 K unless given)."""
-        return self.tg_c - 30.0 if self.t_inf_c is None else self.t_inf_c
+        return t_inf_default_c(self.tg_c) if self.t_inf_c is None else self.t_inf_c
 
     @property
     def tm0_k(self) -> float:
@@ -87,6 +89,10 @@ def _checked_kelvin(tc_c, constants: LHConstants, path=None) -> np.ndarray:
     if not np.all(np.isfinite(t)):
         raise InputError("crystallization temperatures must be finite", path)
     bad = t[(t <= t_inf_k) | (t >= constants.tm0_k)]
+    if bad.size == t.size and np.all(t <= t_inf_k):
+        origin = f" (Tg - 30 K, Tg = {constants.tg_c:g} C)" if constants.t_inf_c is None else ""
+        raise InputError(f"T_inf = {constants.t_inf:g} C{origin} is above every Tc; check Tg and "
+                         "T_inf", path)
     if bad.size:
         raise InputError(f"Tc = {bad[0] - 273.15:g} C is outside (T_inf, Tm0) = "
                          f"({constants.t_inf:g}, {constants.tm0_c:g}) C", path)
@@ -183,35 +189,20 @@ def _hinge_rss(tb_c, tc, x, y, w, constants, absolute=False):
     return rss, coef, cov, xb
 
 
-def _gaps(tc):
-    """(low, high) temperature gaps with at least 3 points on each side."""
-    temps = np.unique(tc)
-    return [(lo, hi) for lo, hi in zip(temps[:-1], temps[1:])
-            if np.count_nonzero(tc <= lo) >= 3 and np.count_nonzero(tc >= hi) >= 3]
-
-
 def _best_break(tc, x, y, w, constants):
     """Continuous two-segment fit: (rss, break temperature), searched within every gap."""
-    best = None
-    for lo, hi in _gaps(tc):
-        res = optimize.minimize_scalar(lambda tb: _hinge_rss(tb, tc, x, y, w, constants)[0],
-                                       bounds=(lo, hi), method="bounded",
-                                       options={"xatol": 1e-6})
-        if best is None or res.fun < best[0]:
-            best = (float(res.fun), float(res.x))
-    return best
+    return best_break(tc, x, y, w, lambda t: lh_coordinates(t, np.ones_like(t), constants)[0],
+                      lambda tb: _hinge_rss(tb, tc, x, y, w, constants)[0])
 
 
 def _best_free_split(tc, x, y, w):
     """Two independent lines: (rss, break temperature = middle of the best gap)."""
-    best = None
-    for lo, hi in _gaps(tc):
-        below = tc <= lo
-        rss = sum(_wls(np.column_stack([np.ones(m.sum()), x[m]]), y[m], w[m], False)[2]
-                  for m in (below, ~below))
-        if best is None or rss < best[0]:
-            best = (float(rss), float((lo + hi) / 2))
-    return best
+    def split_rss(low_c):
+        below = tc <= low_c
+        return sum(_wls(np.column_stack([np.ones(m.sum()), x[m]]), y[m], w[m], False)[2]
+                   for m in (below, ~below))
+
+    return best_free_split(tc, x, y, w, split_rss)
 
 
 def _regime_names(kg_low_t: float, kg_high_t: float) -> tuple[str, str]:
@@ -259,12 +250,12 @@ def thomas_stavely_sigma(delta_hf_j_per_m3: float, a0_m: float, b0_m: float,
     return alpha * delta_hf_j_per_m3 * math.sqrt(a0_m * b0_m)
 
 
-def _surface_energies(regimes, material, constants, warnings):
+def _surface_energies(regimes, material, constants, warnings, path=None):
     if material is None:
         return None, None, None
     from analysis.kinetics.materials import get_material
 
-    mat = get_material(material)
+    mat = get_material(material, path=path)
     dhf, b0, a0 = mat.delta_hf_j_per_m3, mat.b0_m, mat.a0_m
     if dhf is None or b0 is None:
         warnings.append(f"material {mat.name} lacks dH0, rho_c or b0: no sigma*sigma_e")
@@ -323,7 +314,7 @@ def fit_lauritzen_hoffman(tc_c, g_um_per_min, ci95_um_per_min=None, *, constants
             ratio, break_c = kgs[1] / kgs[0], best[1]
     warnings = [f"Kg = {r.kg_k2:.3g} K^2 is outside the usual 1e4-2e6 K^2 ({r.name})"
                 for r in regimes if not 1e4 <= r.kg_k2 <= 2e6]
-    product, sigma, sigma_e = _surface_energies(regimes, material, constants, warnings)
+    product, sigma, sigma_e = _surface_energies(regimes, material, constants, warnings, path)
     return LHAnalysis(constants, tc, g, None if ci95_um_per_min is None else np.asarray(
         ci95_um_per_min, dtype=float), overall, regimes, ratio, break_c, aicc1, aicc2,
         product, sigma, sigma_e, material, tuple(warnings))

@@ -152,12 +152,15 @@ def list_materials(*, extra_files=()) -> list[Material]:
     return list(by_name.values())
 
 
-def get_material(name: str, *, extra_files=()) -> Material:
-    """Look a material up by name or alias, ignoring case; InputError if unknown."""
+def get_material(name: str, *, extra_files=(), path=None) -> Material:
+    """Look a material up by name or alias, ignoring case; InputError if unknown.
+
+    ``path``: the file that asked for the material (named in the error).
+    """
     wanted = str(name).strip().casefold()
     materials = list_materials(extra_files=extra_files)
     for material in materials:
         if wanted in (n.casefold() for n in material.names()):
             return material
     known = ", ".join(m.name for m in materials)
-    raise InputError(f"unknown material {name!r}; known materials: {known}")
+    raise InputError(f"unknown material {str(name)[:40]!r}; known materials: {known}", path)

@@ -42,6 +42,7 @@ from analysis.kinetics.avrami import (
     predict_avrami,
 )
 from analysis.results import AvramiParameters, ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY
 from analysis.units import per_mm3_from_per_mm2
 
 __all__ = ["PredictionInputs", "film_avrami_fit", "film_conversion", "predict_from_result",
@@ -90,7 +91,7 @@ def _predetermined_per_mm2(result: ExperimentResult, mode: str) -> float | None:
     return nuc.density_per_mm2
 
 
-def prediction_inputs(result: ExperimentResult, geometry: str = "bulk-3d", mode: str | None = None,
+def prediction_inputs(result: ExperimentResult, geometry: str = DEFAULT_GEOMETRY, mode: str | None = None,
                       *, thickness_um: float | None = None) -> PredictionInputs:
     """The inputs of the prediction (never raises for missing values; see
     :func:`predict_model_from_result` for that). ``mode`` overrides the result's mode."""
@@ -105,7 +106,7 @@ def prediction_inputs(result: ExperimentResult, geometry: str = "bulk-3d", mode:
     return PredictionInputs(geometry, mode_key, result.growth_rate.value, density, rate, h or None)
 
 
-def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
+def predict_model_from_result(result: ExperimentResult, geometry: str = DEFAULT_GEOMETRY,
                               mode: str | None = None, *,
                               thickness_um: float | None = None) -> AvramiPrediction:
     """Avrami model from an experiment's pooled G and nucleation statistics.
@@ -130,7 +131,7 @@ def predict_model_from_result(result: ExperimentResult, geometry: str = "bulk-3d
         raise InputError(err.problem, result.stack) from None
 
 
-def predict_from_result(result: ExperimentResult, geometry: str = "bulk-3d",
+def predict_from_result(result: ExperimentResult, geometry: str = DEFAULT_GEOMETRY,
                         mode: str | None = None, *,
                         thickness_um: float | None = None) -> AvramiParameters:
     """Predicted n, k (min^-n) and t_half (min); see :func:`predict_model_from_result`."""

@@ -6,7 +6,7 @@ not stored: they are always reproducible from this recipe.
 
 File format (``*.spherokin.json``)::
 
-    {"format": "spherokin-project", "schema_version": 2, "app_version": "...",
+    {"format": "spherokin-project", "schema_version": 3, "app_version": "...",
      "created": ISO-8601, "modified": ISO-8601, "material": "iPP" | null,
      "series": {"tm0_c": ..., "tg_c": ..., ...},
      "experiments": [{"name", "stack" (relative to the project file), "temperature_c",
@@ -15,31 +15,40 @@ File format (``*.spherokin.json``)::
                       "calorimetry": {...} | null,
                       "edits": [{"kind": ..., "id": detection id, ...}, ...]}]}
 
-Older schemas are migrated step by step by :data:`MIGRATIONS`; newer ones are refused.
+``settings`` holds :class:`analysis.settings.AnalysisSettings` (``{"arrival": {...}, ...}``);
+every key and value is checked when the file loads (:mod:`analysis.project.reading`), with
+the descriptions of :mod:`analysis.settings`. Older schemas are migrated step by step by
+:data:`MIGRATIONS`; newer ones are refused.
 Saving writes a temporary file in the same folder, flushes and fsyncs it, then renames it
-over the target, so a crash never leaves a half-written project.
+over the target, so a crash never leaves a half-written project; temporaries of earlier
+saves that were killed are removed by the next save.
 """
 
 from __future__ import annotations
 
 import json
-import math
 import os
 import re
 import sys
-from dataclasses import dataclass, field, replace
-from datetime import datetime, timezone
+from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
 
 from analysis import __version__
-from analysis.edits import Edit, edit_from_dict, edit_to_dict
+from analysis.edits import edit_to_dict
 from analysis.errors import InputError
-from analysis.units import write_json_atomic
+from analysis.outputs import remove_stale_temporaries
+from analysis.project.model import CalorimetrySource, Experiment, Project, new_project, now_stamp
+from analysis.project.reading import project_from_document
 from analysis.textio import read_text
+from analysis.units import write_json_atomic
+
+__all__ = ["FORMAT", "SCHEMA_VERSION", "SUFFIX", "MIGRATIONS", "CalorimetrySource", "Experiment",
+           "Project", "new_project", "open_experiment_stack", "load_project", "project_from_dict",
+           "parse_project_json", "migrate", "project_to_dict", "save_project"]
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 SUFFIX = ".spherokin.json"
 
 #: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
@@ -76,76 +85,36 @@ def _v1_edits_name_their_detection(document: dict) -> dict:
     return document
 
 
+def _v2_settings_named_as_the_analysis_reads_them(document: dict) -> dict:
+    """Schema 2 -> 3: settings are checked strictly; the one older name is renamed.
+
+    The first version wrote the nucleus-depth setting under its command-line name
+    ``sensitivity`` (``--sensitivity``, in frame intervals), where the analysis looked for
+    ``sensitivity_frames``; the value was silently ignored. It now becomes
+    ``sensitivity_frames`` so it reaches the analysis (schema-1 and schema-2 files may
+    hold it). A file holding both names is refused rather than having one dropped. The
+    version is bumped so that the rename runs exactly once, on files written before it;
+    from schema 3 on every key and value is checked when the file loads.
+    """
+    for experiment in document.get("experiments") or []:
+        settings = experiment.get("settings") if isinstance(experiment, dict) else None
+        if not isinstance(settings, dict) or "sensitivity" not in settings:
+            continue
+        if "sensitivity_frames" in settings:
+            raise InputError(f"experiment {experiment.get('name')!r}: settings hold both sensitivity "
+                             "and sensitivity_frames (the same setting); keep one")
+        settings = dict(settings)
+        settings["sensitivity_frames"] = settings.pop("sensitivity")
+        experiment["settings"] = settings
+    return document
+
+
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
 #: Each function carries a docstring saying why the format changed.
-MIGRATIONS: dict[int, Callable[[dict], dict]] = {1: _v1_edits_name_their_detection}
-
-
-@dataclass(frozen=True)
-class CalorimetrySource:
-    """Where an experiment's isothermal DSC run lives and how to read it."""
-
-    file: str  # absolute in memory; stored relative to the project file
-    time_col: str | int | None = None
-    heat_flow_col: str | int | None = None
-    time_unit: str | None = None  # "s" | "min" | None (from the column name)
-    heat_flow_unit: str | None = None  # "mW" | "W/g" | None
-    exotherm: str = "auto"  # "up" | "down" | "auto"
-    window: tuple[float, float] = (0.03, 0.20)
-    mass_mg: float | None = None
-    material: str | None = None
-    baseline_start_min: float | None = None
-    baseline_end_min: float | None = None
-    lag_s: float = 0.0  # the instrument's thermal lag constant, from its calibration
-
-
-@dataclass(frozen=True)
-class Experiment:
-    """One isothermal crystallization: a stack at one Tc and how to analyse it."""
-
-    name: str
-    stack_path: str  # absolute in memory; stored relative to the project file
-    temperature_c: float | None = None
-    um_per_px: float | None = None
-    interval_s: float | None = None
-    times_s: tuple[float, ...] | None = None
-    isothermal_start_s: float = 0.0
-    thickness_um: float | None = None
-    notes: str = ""
-    settings: dict[str, Any] = field(default_factory=dict)
-    edits: tuple[Edit, ...] = ()
-    calorimetry: CalorimetrySource | None = None
-    geometry: str = "bulk-3d"
-    mode_override: str | None = None
-
-
-@dataclass(frozen=True)
-class Project:
-    """A temperature series: experiments plus series-wide settings."""
-
-    experiments: tuple[Experiment, ...] = ()
-    material: str | None = None
-    series: dict[str, Any] = field(default_factory=dict)
-    app_version: str = __version__
-    created: str = ""
-    modified: str = ""
-    path: str | None = None
-
-    def with_experiment(self, index: int, experiment: Experiment) -> "Project":
-        """A copy with experiment ``index`` replaced."""
-        experiments = list(self.experiments)
-        experiments[index] = experiment
-        return replace(self, experiments=tuple(experiments))
-
-
-def _now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds")
-
-
-def new_project() -> Project:
-    """An empty project stamped with the current time."""
-    stamp = _now()
-    return Project(created=stamp, modified=stamp)
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {
+    1: _v1_edits_name_their_detection,
+    2: _v2_settings_named_as_the_analysis_reads_them,
+}
 
 
 def open_experiment_stack(experiment: Experiment):
@@ -228,25 +197,13 @@ def _check_numbers(document: Any, path) -> None:
 
 
 def project_from_dict(document: Any, path) -> Project:
-    """Build a :class:`Project` from a parsed document; stack paths resolve against ``path``."""
+    """Build a :class:`Project` from a parsed document, checking every key and value.
+
+    Stack paths resolve against ``path``; an unknown key or a bad value is one
+    :class:`InputError` line naming the file, the experiment and the key.
+    """
     path = Path(path)
-    document = migrate(document, path)
-    base = path.resolve().parent
-    try:
-        experiments = tuple(_experiment_from_dict(e, base, path) for e in document.get("experiments", []))
-        return Project(
-            experiments=experiments,
-            material=document.get("material"),
-            series=dict(document.get("series") or {}),
-            app_version=str(document.get("app_version", "")),
-            created=str(document.get("created", "")),
-            modified=str(document.get("modified", "")),
-            path=str(path.resolve()),
-        )
-    except InputError:
-        raise
-    except (TypeError, ValueError, AttributeError, KeyError) as exc:
-        raise InputError(f"project file has a malformed entry ({exc})", path) from None
+    return project_from_document(migrate(document, path), path)
 
 
 def migrate(document: Any, path) -> dict:
@@ -254,68 +211,20 @@ def migrate(document: Any, path) -> dict:
     if not isinstance(document, dict) or document.get("format") != FORMAT:
         raise InputError(f"not a spherokin project (missing \"format\": \"{FORMAT}\")", path)
     version = document.get("schema_version")
-    if not isinstance(version, int) or version < 1:
-        raise InputError(f"project has an invalid schema_version {version!r}", path)
+    if not isinstance(version, int) or isinstance(version, bool) or version < 1:
+        raise InputError(f"project has an invalid schema_version {version!r:.40}", path)
     if version > SCHEMA_VERSION:
         raise InputError(
             f"project was saved by a newer spherokin (schema {version}; this version reads up "
             f"to {SCHEMA_VERSION}); update spherokin to open it", path)
     while version < SCHEMA_VERSION:
-        document = MIGRATIONS[version](dict(document))
+        try:
+            document = MIGRATIONS[version](dict(document))
+        except InputError as exc:
+            raise InputError(exc.problem, path) from None
         version += 1
         document["schema_version"] = version
     return document
-
-
-def _number(value, what: str, path, *, positive: bool = False) -> float | None:
-    if value is None:
-        return None
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise InputError(f"{what} must be a number, got {value!r}", path)
-    if positive and value <= 0:
-        raise InputError(f"{what} must be positive, got {value!r}", path)
-    return float(value)
-
-
-def _resolve(stored: str, base: Path) -> str:
-    candidate = Path(stored)
-    return str(candidate if candidate.is_absolute() else (base / candidate).resolve())
-
-
-def _experiment_from_dict(d: dict, base: Path, path) -> Experiment:
-    name = str(d.get("name") or "unnamed")
-    if "stack" not in d:
-        raise InputError(f"experiment {name!r} has no stack path", path)
-    times = d.get("times_s")
-    return Experiment(
-        name=name,
-        stack_path=_resolve(str(d["stack"]), base),
-        temperature_c=_number(d.get("temperature_c"), f"{name}: temperature_c", path),
-        um_per_px=_number(d.get("um_per_px"), f"{name}: um_per_px", path, positive=True),
-        interval_s=_number(d.get("interval_s"), f"{name}: interval_s", path, positive=True),
-        times_s=None if times is None else tuple(_number(t, f"{name}: times_s", path) for t in times),
-        isothermal_start_s=_number(d.get("isothermal_start_s", 0.0), f"{name}: isothermal_start_s", path) or 0.0,
-        thickness_um=_number(d.get("thickness_um"), f"{name}: thickness_um", path, positive=True),
-        notes=str(d.get("notes", "")),
-        settings=dict(d.get("settings") or {}),
-        edits=tuple(edit_from_dict(e, path=str(path)) for e in d.get("edits", [])),
-        calorimetry=_calorimetry_from_dict(d.get("calorimetry"), base, path),
-        geometry=str(d.get("geometry", "bulk-3d")),
-        mode_override=d.get("mode_override"),
-    )
-
-
-def _calorimetry_from_dict(d: dict | None, base: Path, path) -> CalorimetrySource | None:
-    if d is None:
-        return None
-    if "file" not in d:
-        raise InputError("calorimetry entry has no file", path)
-    values = dict(d)
-    values["file"] = _resolve(str(d["file"]), base)
-    if "window" in values:
-        values["window"] = tuple(float(v) for v in values["window"])
-    known = CalorimetrySource.__dataclass_fields__
-    return CalorimetrySource(**{k: v for k, v in values.items() if k in known})
 
 
 # ---------------------------------------------------------------- saving
@@ -328,7 +237,7 @@ def project_to_dict(project: Project, path) -> dict:
         "format": FORMAT,
         "schema_version": SCHEMA_VERSION,
         "app_version": __version__,
-        "created": project.created or _now(),
+        "created": project.created or now_stamp(),
         "modified": project.modified,
         "material": project.material,
         "series": project.series,
@@ -358,7 +267,7 @@ def _experiment_to_dict(e: Experiment, base: Path) -> dict:
         "isothermal_start_s": e.isothermal_start_s,
         "thickness_um": e.thickness_um,
         "notes": e.notes,
-        "settings": e.settings,
+        "settings": e.settings.to_dict(),
         "geometry": e.geometry,
         "mode_override": e.mode_override,
         "calorimetry": calorimetry,
@@ -369,7 +278,8 @@ def _experiment_to_dict(e: Experiment, base: Path) -> dict:
 def save_project(project: Project, path) -> Project:
     """Write ``project`` atomically to ``path``; returns it with ``path`` and ``modified`` set."""
     path = Path(path)
-    stamped = replace(project, modified=_now(), created=project.created or _now(),
+    stamped = replace(project, modified=now_stamp(), created=project.created or now_stamp(),
                       path=str(path.resolve()))
     write_json_atomic(path, project_to_dict(stamped, path))
+    remove_stale_temporaries(path.parent, path.name)  # left by saves that were killed
     return stamped

@@ -82,24 +82,28 @@ def _predicted(result, geometry: str):
 
 
 def summary_dict(result, geometry: str) -> dict[str, Any]:
-    """The summary.json record of a result (schema 1, docs/design.md); NaN becomes null.
+    """The summary.json record of a result (schema 2, docs/design.md); NaN becomes null.
+
+    Counts carry the keys of :data:`analysis.results.COUNTS`.
 
     ``avrami_predicted`` is the ``geometry`` prediction of
     :func:`analysis.kinetics.prediction.predict_from_result` (null values when an input is
     missing), ``avrami_film`` the whole-curve fit of the image's X(t).
     """
-    g, nuc = result.growth_rate, result.nucleation
+    g, nuc, counts = result.growth_rate, result.nucleation, result.counts()
     return json_clean({
-        "schema": 1,
+        "schema": 2,
         "stack": result.stack,
         "frames": int(result.frames),
         "um_per_px": result.um_per_px,
         "interval_s": result.interval_s,
         "temperature_c": result.temperature_c,
         "thickness_um": result.thickness_um,
+        "spherulites_detected": counts["spherulites_detected"],
         "growth_rate_um_per_min": {"value": g.value, "ci95_low": g.ci95_low,
-                                   "ci95_high": g.ci95_high, "n": int(g.n)},
-        "nucleation": {"count": int(nuc.count), "mode": nuc.mode,
+                                   "ci95_high": g.ci95_high,
+                                   "spherulites_in_pooled_g": counts["spherulites_in_pooled_g"]},
+        "nucleation": {"nuclei_counted": counts["nuclei_counted"], "mode": nuc.mode,
                        "density_per_mm2": nuc.density_per_mm2,
                        "density_per_mm3": nuc.density_per_mm3,
                        "rate_per_mm2_per_min": nuc.rate_per_mm2_per_min,

@@ -6,7 +6,7 @@ Every function returns a ``Figure``; ``save_figure(fig, stem)`` writes ``stem.pn
 
 ``growth_rate_figure(entries)``, ``lauritzen_hoffman_figure(lh)``,
 ``avrami_figure(curves, title)`` with ``AvramiCurve(label, t_min, x, fit)``,
-``conversion_comparison_figure(entries, material=None)``,
+``conversion_comparison_figure(entries)``,
 ``hoffman_weeks_figure(tc_c, tm_c, hw)``.
 """
 
@@ -56,8 +56,8 @@ def _message(ax, text: str) -> None:
 def growth_rate_figure(entries):
     """G (log scale) against Tc with 95 % CI error bars."""
     fig, ax = _figure()
-    pts = [(e.result.temperature_c, e.result.growth_rate) for e in entries
-           if e.result.temperature_c is not None and e.result.growth_rate.value]
+    pts = [(e.temperature_c, e.result.growth_rate) for e in entries
+           if e.temperature_c is not None and e.result.growth_rate.value]
     ax.set_xlabel("Crystallization temperature (°C)")
     ax.set_ylabel("Growth rate G (µm/min)")
     if not pts:
@@ -148,21 +148,7 @@ def avrami_figure(curves, title: str = ""):
     return fig
 
 
-def _dsc_volume_curve(cal, material):
-    t, x = cal.conversion_table()
-    tt = t - cal.induction_time_min
-    if material is None:
-        return tt, x, "DSC (mass basis)"
-    from analysis.errors import InputError
-    from analysis.kinetics.avrami import volume_fraction_from_mass
-
-    try:
-        return tt, volume_fraction_from_mass(x, material=material), "DSC (volume basis)"
-    except InputError:
-        return tt, x, "DSC (mass basis)"
-
-
-def conversion_comparison_figure(entries, material: str | None = None):
+def conversion_comparison_figure(entries):
     """Measured DSC X(t) (converted to volume fraction) against the 3-D microscopy prediction."""
     fig, ax = _figure(4.2)
     ax.set_xlabel("Time from onset (min)")
@@ -173,10 +159,11 @@ def conversion_comparison_figure(entries, material: str | None = None):
         if pred is None or cal is None:
             continue
         color = _PALETTE[drawn % len(_PALETTE)]
-        tt, xv, label = _dsc_volume_curve(cal, material)
+        tt, xv, basis = cal.volume_conversion()
+        label = f"DSC ({basis.split(' (')[0]})"
         keep = _thin(tt, 400)
         tt, xv = tt[keep], xv[keep]
-        tc = entry.result.temperature_c
+        tc = entry.temperature_c
         name = f"{tc:g} °C" if tc is not None else entry.name
         ax.plot(tt, xv, "-", lw=1.2, color=color, label=f"{name} {label}")
         t_end = max(float(tt.max()), 3 * pred.t_half_min)

@@ -13,8 +13,8 @@ Public API
 ``project_entries_iter(project) -> Generator[Progress, None, (entries, problems)]``
     Analyses every experiment (``pipeline.analyze_experiment_iter``) and its calorimetry.
 ``report_project_iter(project, out_dir)`` / ``report_project(project, out_dir)``
-``series_constants(project) -> (LHConstants | None, note)``: Tm0/Tg from
-    ``project.series`` (tm0_c, tg_c, u_star_j_per_mol, t_inf_c), else from the material table.
+Entries, their calorimetry, the Lauritzen-Hoffman inputs and the series constants come
+from ``analysis.reporting.entries``, which the application's pages use too.
 ``add_cli_arguments(parser)`` / ``run_cli(args)``.
 """
 
@@ -27,7 +27,7 @@ from pathlib import Path
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.outputs import clean_text, prepare_output_folder, staged_outputs
+from analysis.outputs import prepare_output_folder, staged_outputs
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
     fit_lauritzen_hoffman,
@@ -35,9 +35,11 @@ from analysis.kinetics.lauritzen_hoffman import (
     write_secondary_nucleation,
 )
 from analysis.progress import Progress, run_to_completion, scaled
+from analysis.settings import HW_PAIRS_KEY
 from analysis.reporting import figures
+from analysis.kinetics.prediction import film_avrami_fit, film_conversion
+from analysis.reporting.entries import lauritzen_hoffman_inputs, report_entry, series_constants
 from analysis.reporting.tables import (
-    ReportEntry,
     comparison_table,
     growth_vs_temperature_table,
     write_csv,
@@ -45,12 +47,8 @@ from analysis.reporting.tables import (
 )
 from analysis.units import write_json_atomic
 
-#: key of the (Tc, Tm) pairs in ``Project.series`` (deg C), written by the GUI
-HW_PAIRS_KEY = "hoffman_weeks_pairs"
-
 __all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
-           "project_entries_iter",
-           "report_project", "report_project_iter", "series_constants"]
+           "project_entries_iter", "report_project", "report_project_iter"]
 
 
 @dataclass(frozen=True)
@@ -61,22 +59,11 @@ class ReportSummary:
     problems: tuple[str, ...] = field(default=())
 
 
-def _lh_inputs(entries):
-    rows = [(e.result.temperature_c, e.result.growth_rate) for e in entries
-            if e.result.temperature_c is not None and e.result.growth_rate.value]
-    tc = np.array([r[0] for r in rows], dtype=float)
-    g = np.array([r[1].value for r in rows], dtype=float)
-    cis = [None if r[1].ci95_low is None or r[1].ci95_high is None
-           else (r[1].ci95_high - r[1].ci95_low) / 2 for r in rows]
-    ci = None if any(c is None or c <= 0 for c in cis) else np.array(cis, dtype=float)
-    return tc, g, ci
-
-
 def _lauritzen_hoffman(entries, constants, material, problems):
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci = _lh_inputs(entries)
+    tc, g, ci = lauritzen_hoffman_inputs(entries)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None
@@ -92,12 +79,10 @@ def _lauritzen_hoffman(entries, constants, material, problems):
 def _avrami_curves(entries):
     micro, dsc = [], []
     for e in entries:
-        label = f"{e.result.temperature_c:g} °C" if e.result.temperature_c is not None else e.name
-        r = e.result
-        if r.area_fraction.size:
-            start = (r.nucleation.induction_time_s or 0.0) / 60.0
-            micro.append(figures.AvramiCurve(label, r.area_fraction_time_s / 60.0 - start,
-                                             r.area_fraction))
+        label = f"{e.temperature_c:g} °C" if e.temperature_c is not None else e.name
+        if e.result.area_fraction.size:
+            micro.append(figures.AvramiCurve(label, *film_conversion(e.result),
+                                             film_avrami_fit(e.result)))
         if e.calorimetry is not None:
             t, x = e.calorimetry.conversion_table()
             dsc.append(figures.AvramiCurve(label, t - e.calorimetry.induction_time_min, x,
@@ -105,20 +90,13 @@ def _avrami_curves(entries):
     return micro, dsc
 
 
-def _with_film_fits(curves):
-    from analysis.kinetics.avrami import fit_avrami_window
-
-    return [figures.AvramiCurve(c.label, c.t_min, c.x, fit_avrami_window(c.t_min, c.x))
-            for c in curves]
-
-
-def _write_figures(entries, lh, material, out: Path) -> list[Path]:
+def _write_figures(entries, lh, out: Path) -> list[Path]:
     micro, dsc = _avrami_curves(entries)
     made = [
         ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
-        ("avrami_microscopy", figures.avrami_figure(_with_film_fits(micro), "Microscopy (area fraction)")),
+        ("avrami_microscopy", figures.avrami_figure(micro, "Microscopy (area fraction)")),
         ("avrami_calorimetry", figures.avrami_figure(dsc, "Calorimetry")),
-        ("conversion_comparison", figures.conversion_comparison_figure(entries, material)),
+        ("conversion_comparison", figures.conversion_comparison_figure(entries)),
     ]
     if lh is not None:
         made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh)))
@@ -172,38 +150,9 @@ def _write_report_files(entries, out: Path, constants, material, problems, hoffm
     lh = _lauritzen_hoffman(entries, constants, material, problems)
     if lh is not None:
         files.append(write_secondary_nucleation(lh, out))
-    files.extend(_write_figures(entries, lh, material, out))
+    files.extend(_write_figures(entries, lh, out))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return files, lh, problems
-
-
-def series_constants(project) -> tuple[LHConstants | None, str]:
-    """LH constants from the project's series settings, completed from the material table."""
-    series = dict(project.series or {})
-    tm0, tg = series.get("tm0_c"), series.get("tg_c")
-    note = "Tm0 and Tg from the project"
-    if (tm0 is None or tg is None) and project.material:
-        from analysis.kinetics.materials import get_material
-
-        mat = get_material(project.material)
-        tm0 = mat.tm0_c if tm0 is None else tm0
-        tg = mat.tg_c if tg is None else tg
-        note = f"Tm0 = {tm0:g} C and Tg = {tg:g} C (material table entry {mat.name} where not set)"
-    if tm0 is None or tg is None:
-        return None, "no Tm0/Tg: set them for the series or choose a material"
-    return LHConstants(float(tm0), float(tg), float(series.get("u_star_j_per_mol") or 6270.0),
-                       series.get("t_inf_c")), note
-
-
-def _calorimetry(experiment, material):
-    from analysis.kinetics.calorimetry import analyze_source
-
-    source = experiment.calorimetry
-    if source.material is None and material is not None:
-        from dataclasses import replace
-
-        source = replace(source, material=material)
-    return analyze_source(source)
 
 
 def project_entries_iter(project):
@@ -219,15 +168,10 @@ def project_entries_iter(project):
         except InputError as err:
             problems.append(f"{exp.name}: skipped ({err})")
             continue
-        cal, cal_problem = None, None
-        if exp.calorimetry is not None:
-            try:
-                cal = _calorimetry(exp, project.material)
-            except InputError as err:
-                cal_problem = str(err)
-                problems.append(f"{exp.name}: calorimetry skipped ({err})")
-        entries.append(ReportEntry(clean_text(exp.name), analysis.result, exp.geometry, exp.mode_override,
-                                   cal, cal_problem))
+        entry = report_entry(exp, analysis.result, project.material)
+        if entry.calorimetry_problem:
+            problems.append(f"{exp.name}: calorimetry skipped ({entry.calorimetry_problem})")
+        entries.append(entry)
     yield Progress("analysing experiments", 1.0)
     return entries, problems
 
@@ -255,12 +199,13 @@ def report_project_iter(project, out_dir):
     """Check the output folder and the series first, then analyse and write the report."""
     prepare_output_folder(out_dir)
     pairs = checked_hoffman_weeks_pairs((project.series or {}).get(HW_PAIRS_KEY), project.path)
+    # an unknown material stops here, before the long analysis
+    constants, note = series_constants(project.series, project.material, project.path)
     entries, problems = yield from scaled(project_entries_iter(project), 0.0, 0.9)
     if not entries:
         reasons = "; ".join(problems[:3]) or "it has no experiments"
         raise InputError(f"no experiment could be analysed, nothing to report ({reasons})",
                          project.path)
-    constants, note = series_constants(project)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,

@@ -3,9 +3,11 @@
 Public API (shared by the report and the GUI)
 ---------------------------------------------
 ``ReportEntry(name, result, geometry="bulk-3d", mode_override=None, calorimetry=None,
-calorimetry_problem=None)``: one experiment, its ``ExperimentResult`` and optional
-``calorimetry.CalorimetryResult``; ``.prediction`` (an ``AvramiPrediction`` or None) and
-``.prediction_problem``.
+calorimetry_problem=None, temperature_c=None, thickness_um=None)``: one experiment, its
+``ExperimentResult`` and optional ``calorimetry.CalorimetryResult``; Tc and h are the
+result's unless given; ``.prediction`` (an ``AvramiPrediction`` or None) and
+``.prediction_problem``, ``.density_per_mm3`` and ``.rate_per_mm3_per_min`` (N_A / h).
+Build entries with ``analysis.reporting.entries.report_entry``.
 ``Table(header, rows)``: ``header`` list of column names with units, ``rows`` list of lists
 (numbers stay numbers, None for unknown).
 ``growth_vs_temperature_table(entries) -> Table`` (sorted by temperature)
@@ -25,10 +27,15 @@ from pathlib import Path
 
 from analysis.errors import InputError
 from analysis.kinetics.avrami import AvramiPrediction
-from analysis.kinetics.prediction import predict_model_from_result
+from analysis.kinetics.prediction import (
+    PredictionInputs,
+    predict_model_from_result,
+    prediction_inputs,
+)
 from analysis.outputs import clean_text
-from analysis.results import ExperimentResult
-from analysis.units import write_atomic, write_csv_atomic
+from analysis.results import COUNTS, ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY
+from analysis.units import per_mm3_from_per_mm2, write_atomic, write_csv_atomic
 
 __all__ = ["Comparison", "ReportEntry", "Table", "compare_kinetics", "comparison_table",
            "escape_cell", "growth_vs_temperature_table", "write_csv", "write_xlsx"]
@@ -44,17 +51,56 @@ class Table:
 
 @dataclass(frozen=True)
 class ReportEntry:
+    """One analysed experiment as every table, figure and page shows it.
+
+    ``temperature_c`` and ``thickness_um`` are the experiment's (°C, µm); None at
+    construction means the result's.
+    """
+
     name: str
     result: ExperimentResult
-    geometry: str = "bulk-3d"
+    geometry: str = DEFAULT_GEOMETRY
     mode_override: str | None = None
     calorimetry: object | None = None  # calorimetry.CalorimetryResult
     calorimetry_problem: str | None = None
+    temperature_c: float | None = None
+    thickness_um: float | None = None
+
+    def __post_init__(self):
+        if self.temperature_c is None:
+            object.__setattr__(self, "temperature_c", self.result.temperature_c)
+        if not self.thickness_um:
+            object.__setattr__(self, "thickness_um", self.result.thickness_um)
+
+    @property
+    def density_per_mm3(self) -> float | None:
+        """N_V = N_A / h, mm^-3, with this entry's film thickness."""
+        return per_mm3_from_per_mm2(self.result.nucleation.density_per_mm2, self.thickness_um)
+
+    @property
+    def rate_per_mm3_per_min(self) -> float | None:
+        """Ndot_V = Ndot_A / h, mm^-3 min^-1."""
+        return per_mm3_from_per_mm2(self.result.nucleation.rate_per_mm2_per_min, self.thickness_um)
+
+    @property
+    def growth_rate_ci95_half_width(self) -> float | None:
+        """Half the width of the pooled G's 95 % interval, µm/min (None if unknown)."""
+        g = self.result.growth_rate
+        return None if g.ci95_low is None or g.ci95_high is None else (g.ci95_high - g.ci95_low) / 2.0
+
+    def prediction_inputs(self, geometry: str | None = None) -> PredictionInputs:
+        """What enters this entry's prediction (``geometry`` defaults to the entry's)."""
+        return prediction_inputs(self.result, geometry or self.geometry, self.mode_override,
+                                 thickness_um=self.thickness_um)
+
+    def _predict(self, geometry: str) -> AvramiPrediction:
+        return predict_model_from_result(self.result, geometry, self.mode_override,
+                                         thickness_um=self.thickness_um)
 
     @cached_property
     def _predicted(self) -> tuple[AvramiPrediction | None, str | None]:
         try:
-            return predict_model_from_result(self.result, self.geometry, self.mode_override), None
+            return self._predict(self.geometry), None
         except InputError as err:
             return None, err.problem
 
@@ -71,7 +117,7 @@ class ReportEntry:
         if self.geometry == "bulk-3d":
             return self.prediction
         try:
-            return predict_model_from_result(self.result, "bulk-3d", self.mode_override)
+            return self._predict("bulk-3d")
         except InputError:
             return None
 
@@ -88,7 +134,7 @@ def escape_cell(value):
 
 GROWTH_HEADER = [
     "experiment", "temperature_c", "growth_rate_um_per_min", "growth_rate_ci95_low_um_per_min",
-    "growth_rate_ci95_high_um_per_min", "n_spherulites", "nucleation_mode",
+    "growth_rate_ci95_high_um_per_min", *COUNTS, "nucleation_mode",
     "nucleus_density_per_mm2", "nucleus_density_per_mm3", "nucleation_rate_per_mm2_per_min",
     "nucleation_rate_per_mm3_per_min", "predicted_geometry", "predicted_avrami_n",
     "predicted_k_per_min_n", "predicted_t_half_min", "dsc_avrami_n", "dsc_k_per_min_n",
@@ -110,14 +156,15 @@ def _growth_row(entry: ReportEntry) -> list:
     r = entry.result
     g, nuc, pred = r.growth_rate, r.nucleation, entry.prediction
     predicted = [None, None, None] if pred is None else [pred.n, pred.k_per_min_n, pred.t_half_min]
-    return [entry.name, r.temperature_c, g.value, g.ci95_low, g.ci95_high, g.n, nuc.mode,
-            nuc.density_per_mm2, nuc.density_per_mm3, nuc.rate_per_mm2_per_min,
-            nuc.rate_per_mm3_per_min, entry.geometry, *predicted, *_dsc_columns(entry.calorimetry)]
+    counts = r.counts()
+    return [entry.name, entry.temperature_c, g.value, g.ci95_low, g.ci95_high,
+            *(counts[key] for key in COUNTS), nuc.mode,
+            nuc.density_per_mm2, entry.density_per_mm3, nuc.rate_per_mm2_per_min,
+            entry.rate_per_mm3_per_min, entry.geometry, *predicted, *_dsc_columns(entry.calorimetry)]
 
 
 def _by_temperature(entries):
-    return sorted(entries, key=lambda e: (e.result.temperature_c is None,
-                                          e.result.temperature_c or 0.0, e.name))
+    return sorted(entries, key=lambda e: (e.temperature_c is None, e.temperature_c or 0.0, e.name))
 
 
 def growth_vs_temperature_table(entries) -> Table:
@@ -187,7 +234,7 @@ def compare_kinetics(entry: ReportEntry) -> Comparison | None:
     sigma = _predicted_log_sigma(entry, pred)
     factor = math.exp(1.96 * sigma)
     agree = abs(math.log(ratio)) <= 1.96 * sigma
-    return Comparison(entry.name, entry.result.temperature_c, pred.n, fit.n, pred.k_per_min_n,
+    return Comparison(entry.name, entry.temperature_c, pred.n, fit.n, pred.k_per_min_n,
                       fit.k_per_min_n, pred.t_half_min, fit.t_half_min, ratio, factor, agree,
                       _note(agree, ratio, fit.n, factor))
 

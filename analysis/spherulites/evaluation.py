@@ -21,7 +21,7 @@ from analysis.results import (
     RadiusSeries,
     Spherulite,
 )
-from analysis.spherulites import evidence_checks, growth, nuclei
+from analysis.spherulites import evidence_checks, growth, nuclei, statuses
 from analysis.spherulites.fronts import blocked_distance, front_radii
 from analysis.spherulites.nucleation import (
     MeltExposure,
@@ -146,30 +146,29 @@ def _measure_radii(ctx, det_id, pix, labels, cx, cy, spans, settings) -> RadiusS
                         samples.radius_px[ok] * ctx.um_per_px, samples.free_fraction[ok], used)
 
 
-def _edge(ctx, det, fit) -> bool:
-    """Nucleated outside the field: the fitted centre lies outside it. (A minimum on the
-    border decides only when there is no fit, see :func:`_status`.) Counting by the
-    fitted centre keeps the count unbiased for nuclei right at the border."""
+def _inside(ctx, x_px, y_px) -> bool:
     h, w = ctx.shape
-    inside = -0.5 <= fit.x_px <= w - 0.5 and -0.5 <= fit.y_px <= h - 0.5
-    return det.source == "auto" and det.fixed_xy is None and not inside
+    return -0.5 <= x_px <= w - 0.5 and -0.5 <= y_px <= h - 0.5
 
 
-def _status(ctx, det, fit, series, lin, settings) -> tuple[str, str]:
-    """Status and its reason in words ('' for ``ok``)."""
-    if det.excluded:
-        return "excluded", "excluded by the user"
-    if not fit.ok:
-        on_border = det.source == "auto" and bool(ctx.markers.on_border[det.id - 1])
-        return ("edge" if on_border else "few-points"), fit.reason
-    if det.excluded is False:
-        return "ok", ""
-    if _edge(ctx, det, fit):
-        return "edge", "nucleated outside the field (its fitted centre lies outside)"
-    used = int(np.count_nonzero(series.used))
-    if used < settings.min_points:
-        return "few-points", f"{used} frames of free growth (at least {settings.min_points} needed)"
-    return ("nonlinear", lin.description) if lin.nonlinear else ("ok", "")
+def _verdict(ctx, det, fit, series, lin, settings) -> statuses.Verdict:
+    """Status and reason (see analysis.spherulites.statuses), plus the early-nucleation note.
+
+    Edge spherulites are decided by the fitted centre (a minimum on the border decides
+    only when there is no fit): counting by the fitted centre keeps the count unbiased
+    for nuclei right at the border.
+    """
+    verdict = statuses.classify(
+        excluded=det.excluded, fit_ok=fit.ok, fit_reason=fit.reason,
+        marker_on_border=det.source == "auto" and bool(ctx.markers.on_border[det.id - 1]),
+        centre_inside=fit.ok and _inside(ctx, fit.x_px, fit.y_px),
+        user_centre=det.source != "auto" or det.fixed_xy is not None,
+        free_radii=series.n_used(), min_points=settings.min_points,
+        min_free_fraction=settings.min_free_fraction, nonlinear=lin.nonlinear,
+        linearity=lin.description)
+    note = statuses.early_nucleation_note(
+        fit.t0_s - ctx.isothermal_start_s if fit.ok else None, fit.se_t0_s, fit.dof)
+    return statuses.Verdict(verdict.status, statuses.with_note(verdict.reason, note))
 
 
 def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
@@ -184,7 +183,7 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         sy, sx = np.divmod(seeds, ctx.shape[1])
         cx, cy = float(sx.mean()), float(sy.mean())
     series, lin = _radius_series(ctx, det.id, pix, labels, cx, cy, spans, settings)
-    status, reason = _status(ctx, det, fit, series, lin, settings)
+    verdict = _verdict(ctx, det, fit, series, lin, settings)
     frames = ctx.frame_index.ravel()[pix]
     seen = frames[frames >= 0]
     g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None
@@ -196,7 +195,8 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         growth_rate_um_per_min=g,
         growth_rate_ci95_um_per_min=growth.growth_rate_um_per_min(ci, ctx.um_per_px),
         r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
-        n_points=int(fit.n_levels), status=status, source=det.source, reason=reason)
+        n_points=int(fit.n_levels), status=verdict.status, source=det.source,
+        reason=verdict.reason)
     return sph, series, fit, _evidence(ctx, det, fit, pix, band, spans, settings)
 
 
@@ -316,7 +316,7 @@ def _area_fraction(ctx, global_spans):
 def _counted(spherulites, fits, shape) -> list:
     """(spherulite, fit) pairs that count as nuclei inside the field.
 
-    Nuclei count by their centre (REFERENCES §1.6); edge spherulites never count. A
+    Nuclei count by their centre (docs/sources.md §1.6); edge spherulites never count. A
     ``few-points`` detection counts only when its cone fit grows within ``few_points_g_tolerance`` (30 %) of the
     field's median G (common practice): with fewer frames a real late nucleus still
     grows like its neighbours, whereas dust or a segmentation artefact does not.

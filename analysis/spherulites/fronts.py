@@ -6,7 +6,7 @@ At frame f the front in a sector is the farthest pixel of the territory whose ar
 time is at or before t_f. A sector is *free* at frame f while that front is still short
 of the first pixel of another territory (or of the field edge) along the sector; once it
 gets there the spherulite has impinged in that direction and the radius no longer grows
-(REFERENCES §1.6: measure G only before impingement). The radius of the frame is the
+(docs/sources.md §1.6: measure G only before impingement). The radius of the frame is the
 median over free sectors that hold data (extinction wedges left as NaN hold none).
 """
 

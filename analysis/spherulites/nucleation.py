@@ -138,7 +138,8 @@ def nucleation_statistics(t0_s, *, exposure: MeltExposure, field_area_mm2: float
         rate_per_mm2_per_min=rate_min,
         rate_per_mm3_per_min=per_mm3_from_per_mm2(rate_min, thickness_um),
         induction_time_s=max(0.0, float(t.min())), mode_test=text,
-        burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2)
+        burst_density_per_mm2=None if mode == "thermal" else n_burst / field_area_mm2,
+        times_s=tuple(float(v) for v in np.sort(t)))
     return nucleation
 
 

@@ -47,6 +47,7 @@ from analysis.edits import Edit
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion, scaled
 from analysis.results import ExperimentResult
+from analysis.settings import DEFAULT_GEOMETRY, GEOMETRIES, AnalysisSettings
 from analysis.spherulites import growth, nuclei
 from analysis.spherulites.evaluation import (
     automatic_fit_keys,
@@ -60,88 +61,6 @@ _AUTOMATIC = ("result without edits",)  # cache key
 
 
 @dataclass(frozen=True)
-class AnalysisSettings:
-    """Tunable analysis settings, stored with the experiment (``to_dict``/``from_dict``).
-
-    Attributes
-    ----------
-    arrival : dict
-        Settings of the arrival-map pass (``analysis.arrival.arrival_map.ArrivalSettings`` fields).
-    sensitivity_frames : float
-        Minimum depth of an arrival-map minimum below its saddle, in frame intervals, for
-        it to count as a nucleus. Lower finds later/closer nuclei but risks splits.
-    min_territory_px : int
-        Smallest territory kept, px.
-    smooth_px : float
-        Gaussian smoothing of the arrival map before detection, px.
-    boundary_band_px : int
-        Pixels this close to another territory are left out of the cone fit.
-    apex_exclusion_px : float
-        Pixels this close to the fitted centre are left out of a second fit (0 = none).
-    max_fit_pixels : int
-        Territories with more usable pixels are subsampled (evenly) for the fit.
-    n_sectors : int
-        Angular sectors for the radius measurement.
-    min_free_fraction : float
-        A radius enters the linearity test when at least this fraction of directions is free.
-    min_points : int
-        Fewer frames than this of free growth -> status ``few-points``.
-    nonlinear_alpha, nonlinear_min_change : float
-        Significance and minimum relative slope change of the non-linear growth test.
-    edit_tolerance_px : float
-        How far from a detection's centre an edit may point and still find it.
-    """
-
-    arrival: dict = field(default_factory=dict)
-    sensitivity_frames: float = 0.5
-    min_territory_px: int = 20
-    smooth_px: float = 1.0
-    boundary_band_px: int = 2
-    apex_exclusion_px: float = 6.0
-    max_fit_pixels: int = 4000
-    n_sectors: int = 36
-    min_free_fraction: float = 0.25
-    min_points: int = 4
-    nonlinear_alpha: float = 0.01
-    nonlinear_min_change: float = 0.20
-    edit_tolerance_px: float = 15.0
-
-    def to_dict(self) -> dict[str, Any]:
-        return dataclasses.asdict(self)
-
-    @classmethod
-    def from_dict(cls, d: dict[str, Any] | None, *, path: str | None = None) -> "AnalysisSettings":
-        """Settings from a stored dict; unknown keys are ignored, bad values raise InputError."""
-        d = dict(d or {})
-        known = {f.name: f for f in dataclasses.fields(cls)}
-        values = {k: v for k, v in d.items() if k in known}
-        try:
-            settings = cls(**values)
-        except TypeError as exc:
-            raise InputError(f"bad analysis settings: {exc}", path) from None
-        settings.validate(path)
-        return settings
-
-    def validate(self, path: str | None = None) -> None:
-        checks = [("sensitivity_frames", self.sensitivity_frames > 0),
-                  ("min_territory_px", self.min_territory_px >= 1),
-                  ("smooth_px", self.smooth_px >= 0), ("boundary_band_px", self.boundary_band_px >= 0),
-                  ("max_fit_pixels", self.max_fit_pixels >= 50), ("n_sectors", self.n_sectors >= 8),
-                  ("min_free_fraction", 0 <= self.min_free_fraction <= 1),
-                  ("min_points", self.min_points >= 2), ("nonlinear_alpha", 0 < self.nonlinear_alpha < 1),
-                  ("edit_tolerance_px", self.edit_tolerance_px > 0),
-                  ("arrival", isinstance(self.arrival, dict))]
-        for name, ok in checks:
-            try:
-                good = bool(ok)
-            except (TypeError, ValueError):
-                good = False
-            if not good:
-                raise InputError(f"analysis setting {name} = {getattr(self, name)!r} is out of range", path)
-
-
-
-@dataclass(frozen=True)
 class Analysis:
     """An analysed stack: the arrival map, the result with edits applied, cached state."""
 
@@ -149,7 +68,9 @@ class Analysis:
     result: ExperimentResult
     settings: AnalysisSettings = AnalysisSettings()
     edits: tuple = ()
-    _context: Context | None = field(default=None, repr=False, compare=False)
+    #: Cached replay state (arrival map, markers, fits) that :func:`apply_edits` reuses;
+    #: None for an analysis that cannot replay edits.
+    context: Context | None = field(default=None, repr=False, compare=False)
 
 
 
@@ -337,14 +258,14 @@ def _check_inputs(arrival, thickness_um, geometry, path) -> None:
         raise InputError("frame times must be finite and increasing over at least 2 frames", path)
     if thickness_um is not None and not (np.isfinite(thickness_um) and thickness_um > 0):
         raise InputError(f"film thickness {thickness_um!r} um must be positive", path)
-    if geometry not in ("film-2d", "bulk-3d"):
-        raise InputError(f"unknown geometry {geometry!r} (film-2d or bulk-3d)", path)
+    if geometry not in GEOMETRIES:
+        raise InputError(f"unknown geometry {geometry!r} ({' or '.join(GEOMETRIES)})", path)
 
 
 def analyze_arrival_iter(arrival, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
                          isothermal_start_s: float = 0.0, temperature_c: float | None = None,
                          thickness_um: float | None = None, stack: str = "",
-                         geometry: str = "film-2d") -> Generator[Progress, None, Analysis]:
+                         geometry: str = DEFAULT_GEOMETRY) -> Generator[Progress, None, Analysis]:
     """Analyse an existing arrival map (no frames needed); see :func:`analyze_iter`."""
     _check_inputs(arrival, thickness_um, geometry, stack or None)
     ctx = yield from _context_from_arrival(
@@ -366,9 +287,9 @@ def apply_edits(analysis: Analysis, edits: Sequence[Edit]) -> Analysis:
     No pass over frames: markers, territories and fits are recomputed from cached state,
     and unchanged territories reuse their cached fits.
     """
-    if analysis._context is None:
+    if analysis.context is None:
         raise ValueError("this Analysis carries no replay state")
-    return _with_edits(analysis.arrival, analysis._context, analysis.settings, edits)
+    return _with_edits(analysis.arrival, analysis.context, analysis.settings, edits)
 
 
 def _with_edits(arrival, ctx, settings, edits) -> Analysis:
@@ -386,7 +307,7 @@ def _with_edits(arrival, ctx, settings, edits) -> Analysis:
 
 def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edits=(),
                  isothermal_start_s: float = 0.0, temperature_c: float | None = None,
-                 thickness_um: float | None = None, geometry: str = "film-2d",
+                 thickness_um: float | None = None, geometry: str = DEFAULT_GEOMETRY,
                  memory_budget_mb: float | None = None) -> Generator[Progress, None, Analysis]:
     """Analyse a :class:`FrameStack`: arrival map, nuclei, growth fits, nucleation, X(t).
 
@@ -396,13 +317,12 @@ def analyze_iter(stack, *, settings: AnalysisSettings = AnalysisSettings(), edit
     (``memory_budget_mb``, default from :mod:`analysis.stack.budget`), checked before
     any frame is decoded.
     """
-    from analysis.arrival.arrival_map import ArrivalSettings, arrival_map_iter
+    from analysis.arrival.arrival_map import arrival_map_iter
     from analysis.stack.budget import check_memory_budget
 
     stack.require_calibration()
     check_memory_budget(stack, memory_budget_mb)
-    arrival_settings = ArrivalSettings.from_dict(settings.arrival)
-    arrival = yield from scaled(arrival_map_iter(stack, settings=arrival_settings), 0.0, 0.85)
+    arrival = yield from scaled(arrival_map_iter(stack, settings=settings.arrival), 0.0, 0.85)
     analysis = yield from scaled(analyze_arrival_iter(
         arrival, settings=settings, edits=edits, isothermal_start_s=isothermal_start_s,
         temperature_c=temperature_c, thickness_um=thickness_um, stack=str(stack.path),
@@ -419,12 +339,11 @@ def analyze_experiment_iter(experiment) -> Generator[Progress, None, Analysis]:
     from analysis.project.file import open_experiment_stack
 
     stack = open_experiment_stack(experiment)
-    settings = AnalysisSettings.from_dict(experiment.settings, path=experiment.stack_path)
     return (yield from analyze_iter(
-        stack, settings=settings, edits=tuple(experiment.edits),
-        isothermal_start_s=experiment.isothermal_start_s or 0.0,
+        stack, settings=experiment.settings, edits=tuple(experiment.edits),
+        isothermal_start_s=experiment.isothermal_start_s,
         temperature_c=experiment.temperature_c, thickness_um=experiment.thickness_um,
-        geometry=getattr(experiment, "geometry", "film-2d") or "film-2d"))
+        geometry=experiment.geometry))
 
 
 def analyze_experiment(experiment) -> Analysis:

@@ -10,7 +10,8 @@ The estimate is linear in the pixels of one frame and in pixels x frames. Its
 coefficients were measured with ``/usr/bin/time`` on simulated 40-frame stacks of 256^2
 to 1536^2 px (peak resident memory 179, 212, 381 and 722 MB) and 160 frames of 512^2 px
 (272 MB): about 260 bytes per pixel of one frame for the per-pixel state and working
-images, about 2 bytes per pixel and frame, and 200 MB for the interpreter and
+images, about 2 bytes per pixel and frame (1024^2 px: 381 MB at 40 frames, 564 MB at
+120; 256^2 px: 179 MB at 40, 190 MB at 320 frames), and 200 MB for the interpreter and
 libraries. It is rounded up, not fitted tightly: the aim is to refuse what cannot run,
 not to predict the last megabyte.
 """
@@ -23,14 +24,17 @@ import os
 from analysis.errors import InputError
 
 __all__ = ["DEFAULT_MEMORY_BUDGET_MB", "MEMORY_BUDGET_ENV", "analysis_memory_bytes",
-           "check_memory_budget", "memory_budget_bytes"]
+           "check_memory_budget", "default_budget_bytes", "memory_budget_bytes"]
 
 #: Environment variable with the memory budget of one analysis, MiB.
 MEMORY_BUDGET_ENV = "SPHEROKIN_MEMORY_BUDGET_MB"
-#: A laptop with 8 GB keeps room for the desktop and the GUI's own images.
+#: Used when the computer's memory cannot be read.
 DEFAULT_MEMORY_BUDGET_MB = 4096
+#: Share of the physical memory an analysis may plan for by default: the rest stays for
+#: the desktop, the GUI's own images and the estimate's error.
+MEMORY_SHARE = 0.75
 BYTES_PER_FRAME_PIXEL = 260  # per-pixel state and working images (measured, see above)
-BYTES_PER_PIXEL_AND_FRAME = 2  # per-pixel histories that grow with the recording
+BYTES_PER_PIXEL_AND_FRAME = 2  # evidence histories of pixels still crystallising (measured)
 BASE_BYTES = 200 * 2**20  # Python, numpy, scipy, OpenCV, scikit-image
 
 
@@ -47,13 +51,23 @@ def analysis_memory_bytes(frame_shape, n_frames: int, itemsize: int = 1) -> int:
             + pixels * int(n_frames) * BYTES_PER_PIXEL_AND_FRAME)
 
 
+def default_budget_bytes() -> int:
+    """Three quarters of the physical memory, or 4096 MiB where it cannot be read."""
+    try:
+        physical = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (AttributeError, ValueError, OSError):
+        physical = 0
+    return int(MEMORY_SHARE * physical) if physical > 0 else DEFAULT_MEMORY_BUDGET_MB * 2**20
+
+
 def memory_budget_bytes(budget_mb: float | None = None) -> int:
-    """The budget: ``budget_mb`` if given, else ``SPHEROKIN_MEMORY_BUDGET_MB``, else 4096 MiB."""
+    """The budget: ``budget_mb`` if given, else ``SPHEROKIN_MEMORY_BUDGET_MB``, else
+    :func:`default_budget_bytes`."""
     source = "--memory-budget-mb"
     if budget_mb is None:
         text = os.environ.get(MEMORY_BUDGET_ENV, "").strip()
         if not text:
-            return DEFAULT_MEMORY_BUDGET_MB * 2**20
+            return default_budget_bytes()
         source = MEMORY_BUDGET_ENV
         try:
             budget_mb = float(text)

@@ -5,13 +5,19 @@ edit list) is written every minute to a side file: ``<project>.autosave`` beside
 project, or ``untitled-<stamp>.spherokin.json.autosave`` in the recovery folder for a
 project never saved. Saving, or closing and discarding, removes the side file; one that
 is still there at the next start means the application did not close normally, and the
-window offers to recover it.
+window offers to recover it. The offer compares the autosave with the saved project
+(:func:`compare_with_project`); an autosave that is not recovered is only deleted when the
+user asks for it, and one kept for later is set aside (:func:`keep_aside`) so that new
+autosaves never overwrite it.
 """
 
 from __future__ import annotations
 
 import dataclasses
+import glob
+import json
 import os
+import re
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -36,8 +42,74 @@ class Recoverable:
     saved_at: float  # seconds since the epoch
 
     def describe(self) -> str:
-        when = time.strftime("%Y-%m-%d %H:%M", time.localtime(self.saved_at))
-        return f"{self.project_path or 'an unsaved project'} (autosaved {when})"
+        return f"{self.project_path or 'an unsaved project'} (autosaved {_when(self.saved_at)})"
+
+
+def _when(stamp: float) -> str:
+    return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(stamp))
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """How an autosave relates to its saved project.
+
+    ``status``: "unsaved" (no project file was ever saved), "missing" (the project file
+    is gone), "same" (the autosave holds what the project file holds), "autosave-newer"
+    or "project-newer" (by the file times; the contents differ).
+    """
+
+    status: str
+    text: str
+
+
+#: Keys that change on every save without changing the work.
+_STAMP_KEYS = ("modified", "created", "app_version")
+
+
+def _document(path) -> dict | None:
+    try:
+        document = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, ValueError, RecursionError):
+        return None
+    if not isinstance(document, dict):
+        return None
+    return {k: v for k, v in document.items() if k not in _STAMP_KEYS}
+
+
+def compare_with_project(item: Recoverable) -> Comparison:
+    """Compare the autosave with its project file by content and by time saved."""
+    if item.project_path is None:
+        return Comparison("unsaved", "The project had never been saved.")
+    project = Path(item.project_path)
+    try:
+        project_time = project.stat().st_mtime
+    except OSError:
+        return Comparison("missing", f"The project file {project} is gone; the autosave is "
+                                     "the only copy.")
+    ours = _document(item.autosave_path)
+    if ours is not None and ours == _document(project):
+        return Comparison("same", "The autosave holds the same work as the saved project.")
+    if project_time > item.saved_at:
+        return Comparison("project-newer", (
+            f"The saved project ({_when(project_time)}) is NEWER than this autosave "
+            f"({_when(item.saved_at)}): recovering would replace newer work with older."))
+    return Comparison("autosave-newer", (
+        f"The autosave ({_when(item.saved_at)}) is newer than the saved project "
+        f"({_when(project_time)})."))
+
+
+def keep_aside(item: Recoverable) -> Path:
+    """Rename an autosave so that no later autosave overwrites it; returns the new path.
+
+    It keeps the side-file suffix, so it is offered again at the next start.
+    """
+    stamp = time.strftime("%Y%m%d-%H%M%S", time.localtime(item.saved_at))
+    target = item.autosave_path.with_name(
+        item.autosave_path.name[: -len(SIDE_SUFFIX)] + f".kept-{stamp}" + SIDE_SUFFIX)
+    if ".kept-" in item.autosave_path.name or target.exists():
+        return item.autosave_path  # already set aside
+    item.autosave_path.rename(target)
+    return target
 
 
 class Autosaver(QObject):
@@ -96,18 +168,37 @@ class Autosaver(QObject):
             self.discard()
 
 
-def find_recoverable(recovery_dir: str | os.PathLike, project_paths=()) -> list[Recoverable]:
-    """Autosaves left behind: untitled ones in ``recovery_dir`` and beside known projects."""
+def find_recoverable(recovery_dir: str | os.PathLike | None, project_paths=()) -> list[Recoverable]:
+    """Autosaves left behind: untitled ones in ``recovery_dir`` (None: not looked for) and
+    beside known projects.
+
+    Autosaves of sessions still running are skipped: a project locked by a live window
+    (:mod:`app.core.project_lock`), or an untitled one whose name carries the id of a
+    running process other than this one.
+    """
+    from app.core.project_lock import live_lock_owner
+
     found = []
-    folder = Path(recovery_dir)
-    if folder.is_dir():
+    folder = None if recovery_dir is None else Path(recovery_dir)
+    if folder is not None and folder.is_dir():
         for side in sorted(folder.glob("*" + SIDE_SUFFIX)):
-            found.append(Recoverable(side, None, side.stat().st_mtime))
+            if not _belongs_to_live_session(side.name):
+                found.append(Recoverable(side, None, side.stat().st_mtime))
     for project_path in dict.fromkeys(str(p) for p in project_paths):
-        side = side_path_for(project_path)
-        if side.is_file():
-            found.append(Recoverable(side, project_path, side.stat().st_mtime))
+        project = Path(project_path)
+        if live_lock_owner(project_path) is not None:
+            continue
+        for side in sorted(project.parent.glob(glob.escape(project.name) + "*" + SIDE_SUFFIX)):
+            if side.is_file():
+                found.append(Recoverable(side, project_path, side.stat().st_mtime))
     return found
+
+
+def _belongs_to_live_session(name: str) -> bool:
+    from app.core.project_lock import process_is_running
+
+    match = re.match(r"untitled-\d+-(\d+)\.", name)
+    return bool(match) and int(match.group(1)) != os.getpid() and process_is_running(int(match.group(1)))
 
 
 def load_recovered(item: Recoverable) -> Any:

@@ -1,7 +1,8 @@
 """Inputs the kinetics and temperature-series pages both take from the project.
 
 No science here: the calorimetry analysis comes from ``analysis.kinetics.calorimetry``;
-this module caches it and picks the inputs an experiment's settings name.
+this module caches it. Which inputs an experiment uses is decided in
+``analysis.reporting.entries``.
 """
 
 from __future__ import annotations
@@ -40,24 +41,6 @@ class CalorimetryCache:
 def _trim(cache: OrderedDict, size: int) -> None:
     while len(cache) > size:
         cache.popitem(last=False)
-
-
-def volumetric_density(result, experiment) -> tuple[float | None, float | None]:
-    """(N_V in mm⁻³, film thickness h in µm used): the pipeline's N_V, else N_A / h
-    exactly as ``analysis.kinetics.avrami`` forms it for the bulk prediction."""
-    nuc = result.nucleation
-    h = experiment.thickness_um or result.thickness_um
-    if nuc.density_per_mm3 is not None:
-        return nuc.density_per_mm3, h
-    if nuc.density_per_mm2 is None or not h:
-        return None, h
-    return nuc.density_per_mm2 / (h * 1e-3), h
-
-
-def material_for(experiment, project) -> str | None:
-    """The material whose densities convert calorimetry to a volume basis."""
-    source = experiment.calorimetry
-    return (source.material if source is not None and source.material else None) or project.material
 
 
 def file_stem(name: str) -> str:

@@ -5,6 +5,11 @@ them (dialect, column row, metadata), lets the user pick the time and heat-flow 
 their units, the exotherm direction, the sample mass and the material, and checks the
 choice by analysing the whole file (``analyze_source``) before accepting. The result is an
 ``analysis.project.file.CalorimetrySource``; nothing is changed in the project here.
+
+Nothing is overwritten silently: when the file's header names another temperature,
+sample or mass than the experiment's, the dialog says so and asks before importing; the
+instrument settings already stored (lag, exotherm direction, material) are kept for a new
+file unless the user changes them.
 """
 
 from __future__ import annotations
@@ -15,7 +20,7 @@ import os
 from PySide6 import QtCore, QtWidgets
 
 from analysis.errors import InputError
-from analysis.kinetics.calorimetry import analyze_source, sniff_calorimetry_file
+from analysis.kinetics.calorimetry import analyze_source, header_mismatches, sniff_calorimetry_file
 from analysis.kinetics.materials import list_materials
 from analysis.project.file import CalorimetrySource
 
@@ -26,13 +31,18 @@ _FROM_NAME = "from column name"
 class CalorimetryMappingDialog(QtWidgets.QDialog):
     """Map the columns of one isotherm file. Raises InputError if the file cannot be sniffed."""
 
-    def __init__(self, path: str, current: CalorimetrySource | None = None, parent=None):
+    def __init__(self, path: str, current: CalorimetrySource | None = None, parent=None, *,
+                 experiment=None):
         super().__init__(parent)
         self.setWindowTitle(f"Import calorimetry isotherm: {os.path.basename(path)}")
         self.path = os.path.abspath(path)
         self.preview = sniff_calorimetry_file(self.path, max_rows=12)
         self._current = current if current is not None and current.file == self.path else None
+        self._instrument = current  # lag, exotherm and material carry over to a new file
         self._source: CalorimetrySource | None = None
+        self.mismatches = () if experiment is None else header_mismatches(
+            self.preview, temperature_c=experiment.temperature_c, experiment_name=experiment.name,
+            mass_mg=current.mass_mg if current is not None else None)
         self._build()
         self._fill_from(self._current)
 
@@ -60,6 +70,14 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         buttons.rejected.connect(self.reject)
         layout = QtWidgets.QVBoxLayout(self)
         layout.addWidget(about)
+        self.mismatch_note = QtWidgets.QLabel(
+            "<b>The file's header differs from this experiment:</b> " + "; ".join(self.mismatches)
+            + ". Check that this is the right file." if self.mismatches else "")
+        self.mismatch_note.setObjectName("mismatch_note")
+        self.mismatch_note.setWordWrap(True)
+        self.mismatch_note.setStyleSheet("color: #9a3412;")
+        self.mismatch_note.setVisible(bool(self.mismatches))
+        layout.addWidget(self.mismatch_note)
         layout.addWidget(QtWidgets.QLabel("Lines above the data"))
         layout.addWidget(self.metadata)
         layout.addWidget(QtWidgets.QLabel("First rows"))
@@ -132,11 +150,12 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         self.flow_col.setCurrentIndex(flow_col)
         self.time_unit.setCurrentText((source and source.time_unit) or _FROM_NAME)
         self.flow_unit.setCurrentText((source and source.heat_flow_unit) or _FROM_NAME)
-        self.exotherm.setCurrentIndex(max(0, self.exotherm.findData(source.exotherm if source else "auto")))
-        mass = (source.mass_mg if source else None) or p.mass_mg
+        kept = source or self._instrument  # the stored instrument settings, also for a new file
+        self.exotherm.setCurrentIndex(max(0, self.exotherm.findData(kept.exotherm if kept else "auto")))
+        mass = (source.mass_mg if source else None) or p.mass_mg or (kept.mass_mg if kept else None)
         self.mass.setValue(mass or 0.0)
-        self.lag.setValue((getattr(source, "lag_s", 0.0) or 0.0) if source else 0.0)
-        material = source.material if source else None
+        self.lag.setValue((getattr(kept, "lag_s", 0.0) or 0.0) if kept else 0.0)
+        material = kept.material if kept else None
         self.material.setCurrentIndex(max(0, self.material.findData(material)))
 
     def _column_index(self, chosen, guessed, fallback: int) -> int:
@@ -171,12 +190,24 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         """The accepted mapping (None until the dialog was accepted)."""
         return self._source
 
+    def confirm_mismatches(self) -> bool:
+        """Ask before importing a file whose header disagrees with the experiment."""
+        answer = QtWidgets.QMessageBox.question(
+            self, "Import a file that does not match?",
+            "The file's header differs from this experiment:\n• " + "\n• ".join(self.mismatches)
+            + "\n\nImport it into this experiment anyway?",
+            QtWidgets.QMessageBox.StandardButton.Yes | QtWidgets.QMessageBox.StandardButton.No,
+            QtWidgets.QMessageBox.StandardButton.No)
+        return answer == QtWidgets.QMessageBox.StandardButton.Yes
+
     def accept(self) -> None:
         candidate = self.chosen_source()
         try:  # the whole file with this mapping, so a bad choice is caught here
             analyze_source(candidate)
         except InputError as error:
             self.error.setText(str(error))
+            return
+        if self.mismatches and not self.confirm_mismatches():
             return
         self._source = candidate
         super().accept()

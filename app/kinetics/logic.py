@@ -1,7 +1,7 @@
 """Glue between the kinetics view and ``analysis``: caching, inputs, curves for display.
 
-No science is done here: predictions, fits, conversions and comparisons come from
-``analysis.kinetics.avrami`` and ``analysis.kinetics.calorimetry``; this module picks their inputs from the
+No science is done here: entries, predictions, fits, conversions and comparisons come from
+``analysis.reporting.entries``, ``analysis.kinetics`` and ``analysis.reporting.tables``; this module picks their inputs from the
 project and shapes their outputs for the widgets.
 """
 
@@ -11,22 +11,20 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from analysis.errors import InputError
-from analysis.kinetics.prediction import predict_model_from_result
+from analysis.kinetics.prediction import film_conversion
+from analysis.reporting.entries import experiment_entry
+from analysis.reporting.tables import compare_kinetics
 
 
-def prediction(result, geometry: str, mode_override: str | None):
-    """The Avrami model predicted from the experiment's N and G (InputError if impossible)."""
-    return predict_model_from_result(result, geometry, mode_override)
+def entry(result, experiment, calorimetry=None):
+    """The experiment's ``ReportEntry`` (``analysis.reporting.entries.experiment_entry``):
+    the same prediction, N_V and Tc as the report and the Tc-series page."""
+    return experiment_entry(experiment, result, calorimetry)
 
 
 def safe_prediction(result, experiment):
-    if result is None:
-        return None
-    try:
-        return prediction(result, experiment.geometry, experiment.mode_override)
-    except InputError:
-        return None
+    """The experiment's predicted Avrami model, or None when it cannot be predicted."""
+    return None if result is None else entry(result, experiment).prediction
 
 
 def predicted_curve(model, calorimetry, points: int = 300):
@@ -42,10 +40,11 @@ def predicted_curve(model, calorimetry, points: int = 300):
 
 
 def image_area_fraction(result):
-    """The measured crystallized area fraction of the film images, t in min."""
-    if result is None or result.area_fraction is None or len(result.area_fraction) == 0:
+    """The film's measured area fraction X(t), t in min from the induction time (the clock
+    of the prediction): ``analysis.kinetics.prediction.film_conversion``."""
+    if result is None or len(result.area_fraction) == 0:
         return None, None
-    return np.asarray(result.area_fraction_time_s, float) / 60.0, np.asarray(result.area_fraction, float)
+    return film_conversion(result)
 
 
 @dataclass(frozen=True)
@@ -56,41 +55,24 @@ class ComparisonView:
 
 
 
-def _measured_curve(calorimetry, material):
-    """Calorimetry X(t − t0) on a volume basis (mass basis, with the reason, without densities)."""
-    from analysis.kinetics.avrami import volume_fraction_from_mass
-
-    t, x = calorimetry.conversion_table()
-    tau = t - calorimetry.induction_time_min
-    keep = tau > 0
-    tau, x = tau[keep], x[keep]
-    if material is None:
-        return tau, x, "mass basis (choose a material for the density ratio)"
-    try:
-        return tau, volume_fraction_from_mass(x, material=material), "volume basis"
-    except InputError as error:
-        return tau, x, f"mass basis ({error.problem})"
-
-
 def _ratio(measured, predicted) -> str:
     return "—" if measured is None or predicted is None or not predicted else f"{measured / predicted:.2f}"
 
 
-def compare(result, experiment, calorimetry, material) -> ComparisonView:
+def compare(result, experiment, calorimetry) -> ComparisonView:
     """Bulk prediction against the calorimetry fit (``analysis.reporting.tables.compare_kinetics``):
-    table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve."""
-    from analysis.reporting.tables import ReportEntry, compare_kinetics
+    table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve
+    (``CalorimetryResult.volume_conversion``)."""
     from app.widgets.formatting import DASH, fmt, k_unit
 
     empty = (DASH, DASH, DASH)
     if calorimetry is None:
         return ComparisonView((empty,) * 3, "Import a calorimetry isotherm to compare.", (None, None))
-    tau, x, basis = _measured_curve(calorimetry, material)
+    tau, x, basis = calorimetry.volume_conversion()
     curve_note = f"The plotted calorimetry curve is on a {basis}."
     if result is None:
         return ComparisonView((empty,) * 3, f"No microscopy result to compare with. {curve_note}", (tau, x))
-    entry = ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override, calorimetry)
-    c = compare_kinetics(entry)
+    c = compare_kinetics(entry(result, experiment, calorimetry))
     if c is None:
         why = (calorimetry.avrami.reason if not calorimetry.avrami
                else "no bulk prediction from microscopy (see the prediction above)")

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from PySide6 import QtCore, QtWidgets
 
-from app.core.kinetics_inputs import volumetric_density
+from analysis.results import COUNTS
 from app.widgets.formatting import DASH, fmt, fmt_pm, k_unit
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
@@ -17,10 +17,10 @@ from app.widgets.help_panel import help_button
 FORMULAS = {
     ("bulk-3d", "athermal"): "k = (4π/3) · N_V · G³,   n = 3",
     ("bulk-3d", "thermal"): "k = (π/3) · Ṅ_V · G³,   n = 4",
-    ("bulk-3d", "mixed"): "X = 1 − exp(−[(4π/3)·N_V·G³·t³ + (π/3)·Ṅ_V·G³·t⁴])",
+    ("bulk-3d", "mixed"): "X = 1 − exp(−[(4π/3)·N₀·G³·t³ + (π/3)·Ṅ_V·G³·t⁴]),  N₀ = initial burst per mm³",
     ("film-2d", "athermal"): "k = π · N_A · G²,   n = 2",
     ("film-2d", "thermal"): "k = (π/3) · Ṅ_A · G²,   n = 3",
-    ("film-2d", "mixed"): "X = 1 − exp(−[π·N_A·G²·t² + (π/3)·Ṅ_A·G²·t³])",
+    ("film-2d", "mixed"): "X = 1 − exp(−[π·N₀·G²·t² + (π/3)·Ṅ_A·G²·t³]),  N₀ = initial burst per mm²",
 }
 HALF_TIME_FORMULA = "t½ = (ln 2 / k)^(1/n)"
 
@@ -31,11 +31,14 @@ class PredictionPanel(FormPanel):
     TITLE = "Microscopy → Avrami prediction"
     ROWS = [
         ("mode", "Nucleation mode", "nucleation_mode"),
+        ("nuclei_counted", COUNTS["nuclei_counted"][0], "nuclei_counted"),
         ("density_areal", "N_A (areal)", "density_areal"),
         ("thickness", "film thickness h", "density_volumetric"),
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
+        ("density_used", "N in the prediction", "density_used"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
         ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("spherulites_in_pooled_g", COUNTS["spherulites_in_pooled_g"][0], "spherulites_in_pooled_g"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),
         ("t_half", "predicted t½", "half_time"),
@@ -50,22 +53,32 @@ class PredictionPanel(FormPanel):
         self.add_full_row(self.formula)
         self.add_full_row(self.problem)
 
-    def show_inputs(self, result, experiment, mode_used: str | None, mode_found: str | None) -> None:
+    def show_inputs(self, entry) -> None:
+        """The inputs of ``entry``'s prediction (``analysis.reporting.tables.ReportEntry``)."""
+        result, inputs = entry.result, entry.prediction_inputs()
         nuc = result.nucleation
-        found = mode_found or "not determined"
-        self.form.set("mode", f"{mode_used or DASH} (analysis: {found})")
+        found = nuc.mode or "not determined"
+        self.form.set("mode", f"{inputs.mode} (analysis: {found})")
         self.form.values["mode"].setToolTip(nuc.mode_test or "")
         self.form.set("density_areal", fmt(nuc.density_per_mm2, "mm⁻²"))
-        volumetric, h = volumetric_density(result, experiment)
+        h = entry.thickness_um
         self.form.set("thickness", fmt(h, "µm") if h else "not set (needed for N_V)")
-        self.form.set("density_volumetric", fmt(volumetric, "mm⁻³"))
+        self.form.set("density_volumetric", fmt(entry.density_per_mm3, "mm⁻³"))
+        per = "mm⁻³" if inputs.geometry == "bulk-3d" else "mm⁻²"
+        used = {"athermal": "every nucleus", "mixed": "initial burst",
+                "thermal": "none: rate only"}[inputs.mode]
+        self.form.set("density_used", f"{fmt(inputs.density_per_mm_d, per)} ({used})"
+                      if inputs.mode != "thermal" else used)
         rates = [fmt(value, unit) for value, unit in ((nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹"),
-                                                      (nuc.rate_per_mm3_per_min, "mm⁻³ min⁻¹"))
+                                                      (entry.rate_per_mm3_per_min, "mm⁻³ min⁻¹"))
                  if value is not None]
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
         ci = None if g.ci95_high is None or g.value is None else g.ci95_high - g.value
-        self.form.set("growth_rate", f"{fmt_pm(g.value, ci, 'µm/min')}  ({g.n} spherulites)")
+        self.form.set("growth_rate", fmt_pm(g.value, ci, 'µm/min'))
+        for key, value in result.counts().items():
+            if key in self.form.values:
+                self.form.set(key, str(value))
 
     def show_prediction(self, model, geometry: str) -> None:
         """``model``: analysis.kinetics.avrami.AvramiPrediction, or None with ``problem`` set."""

@@ -17,7 +17,9 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
-from app.core.kinetics_inputs import CalorimetryCache, file_stem, material_for
+from analysis.reporting.entries import calorimetry_source
+from analysis.settings import DEFAULT_FIT_WINDOW
+from app.core.kinetics_inputs import CalorimetryCache, file_stem
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel
@@ -27,7 +29,7 @@ from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
 
-DEFAULT_WINDOW = (0.03, 0.20)  # CalorimetrySource's default, the common 3-20 % guideline
+DEFAULT_WINDOW = DEFAULT_FIT_WINDOW  # the common 3-20 % guideline
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))
@@ -165,8 +167,12 @@ class KineticsView(LazyPage):
         self._set_combo(self.geometry, experiment.geometry)
         self._set_combo(self.mode, experiment.mode_override)
         prediction = self._show_prediction(experiment)
-        calorimetry = self._show_calorimetry(experiment, experiment.calorimetry)
+        calorimetry = self._show_calorimetry(experiment, self._source(experiment))
         self._show_comparison(experiment, prediction, calorimetry)
+
+    def _source(self, experiment):
+        """The experiment's calorimetry run as the report analyses it (material filled in)."""
+        return calorimetry_source(experiment, self.model.project.material)
 
     @staticmethod
     def _set_combo(combo: QtWidgets.QComboBox, data) -> None:
@@ -181,16 +187,14 @@ class KineticsView(LazyPage):
             self.prediction.clear(f"Microscopy analysis: {self.model.status(self.index())}. Run it "
                                   "to see N, G and the predicted kinetics.")
             return None
-        mode_found = result.nucleation.mode
-        mode_used = experiment.mode_override or mode_found
-        self.prediction.show_inputs(result, experiment, mode_used, mode_found)
-        try:
-            model = logic.prediction(result, experiment.geometry, experiment.mode_override)
-        except InputError as error:
-            self.prediction.show_problem(error.problem, experiment.geometry, mode_used)
+        entry = logic.entry(result, experiment)
+        self.prediction.show_inputs(entry)
+        if entry.prediction is None:
+            self.prediction.show_problem(entry.prediction_problem, experiment.geometry,
+                                         entry.prediction_inputs().mode)
             return None
-        self.prediction.show_prediction(model, experiment.geometry)
-        return model
+        self.prediction.show_prediction(entry.prediction, experiment.geometry)
+        return entry.prediction
 
     # ---------------------------------------------------------------- calorimetry
     def _effective_source(self, source):
@@ -251,8 +255,7 @@ class KineticsView(LazyPage):
     # ---------------------------------------------------------------- comparison
     def _show_comparison(self, experiment, prediction, calorimetry) -> None:
         result = self.model.result(self.index())
-        material = material_for(experiment, self.model.project)
-        comparison = logic.compare(result, experiment, calorimetry, material)
+        comparison = logic.compare(result, experiment, calorimetry)
         self.comparison.clear(comparison.note)
         for row, cells in enumerate(comparison.rows):
             self.comparison.set_row(row, cells)
@@ -278,7 +281,7 @@ class KineticsView(LazyPage):
         self._preview.update(values)
         experiment = self.experiment()
         if experiment is not None and experiment.calorimetry is not None:
-            calorimetry = self._show_calorimetry(experiment, experiment.calorimetry)
+            calorimetry = self._show_calorimetry(experiment, self._source(experiment))
             self._show_comparison(experiment, logic.safe_prediction(self.model.result(self.index()),
                                                                     experiment), calorimetry)
 
@@ -289,7 +292,8 @@ class KineticsView(LazyPage):
             return
         source = dataclasses.replace(experiment.calorimetry, **changes)
         try:  # never store a baseline or window the analysis refuses
-            self.calorimetry.analyze(source)
+            self.calorimetry.analyze(calorimetry_source(
+                dataclasses.replace(experiment, calorimetry=source), self.model.project.material))
         except InputError as error:
             QtWidgets.QMessageBox.warning(self, "Change not applied", str(error))
             self.refresh()
@@ -338,11 +342,12 @@ class KineticsView(LazyPage):
         """The mapping dialog for ``path`` (None, after an error dialog, if unreadable)."""
         experiment = self.experiment()
         try:
-            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self)
+            dialog = CalorimetryMappingDialog(path, experiment.calorimetry, self,
+                                              experiment=experiment)
         except InputError as error:
             QtWidgets.QMessageBox.critical(self, "Cannot read the calorimetry file", str(error))
             return None
-        if experiment.calorimetry is None or experiment.calorimetry.file != dialog.path:
+        if experiment.calorimetry is None:  # else the stored material is kept
             dialog.set_material(self.model.project.material)
         return dialog
 

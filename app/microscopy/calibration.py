@@ -2,7 +2,9 @@
 
 The dialog shows one image (a micrometer frame, or the current frame), a line the user
 drags end to end over a known length of the ruling, the measured length in pixels, and
-the resulting scale in µm per pixel.
+the resulting scale in µm per pixel beside the experiment's current scale and the change,
+so OK never replaces a scale unnoticed. With a current scale the known length starts at
+what the line measures at that scale (OK untouched changes nothing).
 
 Run alone: ``python -m app.microscopy.calibration IMAGE_OR_STACK``.
 """
@@ -39,7 +41,7 @@ class CalibrationDialog(QDialog):
     """Measure a known length on an image; :attr:`um_per_px` is the result."""
 
     def __init__(self, image: np.ndarray, title: str = "", can_apply_to_all: bool = True,
-                 parent=None):
+                 parent=None, *, current_um_per_px: float | None = None):
         super().__init__(parent)
         self.setWindowTitle("Calibrate the scale" + (f" — {title}" if title else ""))
         self.resize(900, 700)
@@ -52,16 +54,25 @@ class CalibrationDialog(QDialog):
         self.line = pg.LineSegmentROI([(width * 0.25, height * 0.5), (width * 0.75, height * 0.5)],
                                       pen=pg.mkPen("#ffd24c", width=2))
         self.plot.addItem(self.line)
+        self.current_um_per_px = current_um_per_px
         self.known_um = QDoubleSpinBox(decimals=3, minimum=0.0, maximum=1e6, value=100.0)
         self.known_um.setSuffix(" µm")
+        if current_um_per_px:
+            self.known_um.setValue(round(current_um_per_px * width * 0.5, 3))
         self.measured = QLabel()
         self.result_label = QLabel()
+        self.current_label = QLabel("not set" if not current_um_per_px
+                                    else f"{current_um_per_px:.5g} µm per pixel")
+        self.change_label = QLabel()
+        self.change_label.setObjectName("calibration_change")
         self.apply_all = QCheckBox("Apply to every experiment of the project")
         self.apply_all.setVisible(can_apply_to_all)
         form = QFormLayout()
         form.addRow("Known length on the micrometer", self.known_um)
         form.addRow("Line length", self.measured)
-        form.addRow("Scale", self.result_label)
+        form.addRow("Current scale", self.current_label)
+        form.addRow("New scale", self.result_label)
+        form.addRow("Change", self.change_label)
         hint = QLabel("Drag the yellow line's ends onto two marks of the stage micrometer a known "
                       "distance apart (zoom with the wheel for precision), then type that distance.")
         hint.setWordWrap(True)
@@ -95,11 +106,26 @@ class CalibrationDialog(QDialog):
     def _end_points(self):
         return [self.line.mapToParent(h.pos()) for h in self.line.getHandles()]
 
+    def change_text(self) -> str:
+        """The change OK would make, in words."""
+        scale, current = self.um_per_px, self.current_um_per_px
+        if scale is None:
+            return "—"
+        if not current:
+            return f"sets the scale to {scale:.5g} µm/px (none yet)"
+        if abs(scale / current - 1.0) < 5e-4:
+            return "none (the current scale is kept)"
+        return f"{current:.5g} → {scale:.5g} µm/px ({scale / current - 1.0:+.1%})"
+
     def _update(self, *_args) -> None:
         self.measured.setText(f"{self.length_px():.1f} px")
         scale = self.um_per_px
         self.result_label.setText("—" if scale is None else f"{scale:.5g} µm per pixel")
-        self.buttons.button(QDialogButtonBox.Ok).setEnabled(scale is not None)
+        self.change_label.setText(self.change_text())
+        ok = self.buttons.button(QDialogButtonBox.Ok)
+        ok.setEnabled(scale is not None)
+        ok.setText("Apply the new scale" if scale is not None and self.current_um_per_px and
+                   abs(scale / self.current_um_per_px - 1.0) >= 5e-4 else "OK")
 
 
 if __name__ == "__main__":  # pragma: no cover

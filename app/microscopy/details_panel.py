@@ -32,6 +32,7 @@ from PySide6.QtWidgets import (
 
 from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
+from analysis.results import COUNTS
 from app.core import model as m
 from app.microscopy.overlays import STATUS_WORDS, status_colour
 
@@ -51,7 +52,8 @@ def spherulite_row(s: Any) -> tuple[str, ...]:
             _num(getattr(s, "confidence", None), ".2f"), getattr(s, "reason", "") or "")
 
 
-def spherulite_html(s: Any, um_per_px: float | None) -> str:
+def spherulite_html(s: Any, um_per_px: float | None, free_radii: int | None = None) -> str:
+    """The selected spherulite's numbers; ``free_radii``: the count the few-points rule uses."""
     where = f"({s.x_px:.1f}, {s.y_px:.1f}) px"
     if um_per_px:
         where += f" = ({s.x_px * um_per_px:.1f}, {s.y_px * um_per_px:.1f}) µm"
@@ -62,9 +64,10 @@ def spherulite_html(s: Any, um_per_px: float | None) -> str:
         ("Growth rate G", _num(s.growth_rate_um_per_min, ".3g", " µm/min")
          + ("" if s.growth_rate_ci95_um_per_min is None
             else f" ± {s.growth_rate_ci95_um_per_min:.2g} (95 %)")),
-        ("R² of the radius fit", _num(s.r2, ".4f")),
-        ("Radius points", str(s.n_points)),
-        ("Status", f"{s.status}: {STATUS_WORDS.get(s.status, '')}"),
+        ("R² of the cone fit", _num(s.r2, ".4f")),
+        ("Frames in the cone fit", str(s.n_points)),
+        ("Free-growth radii", "—" if free_radii is None else str(free_radii)),
+        ("Status", f"{s.status}: {s.reason or STATUS_WORDS.get(s.status, '')}"),
         ("Source", s.source),
         ("Confidence", _num(getattr(s, "confidence", None), ".2f") + " (0-1, from its evidence)"),
     ]
@@ -101,9 +104,11 @@ def _predicted(result: Any, experiment: Any):
 def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     g, nuc = result.growth_rate, result.nucleation
     ci = "" if g.ci95_low is None else f" (95 % CI {g.ci95_low:.3g} – {g.ci95_high:.3g})"
+    counts = result.counts()
     rows = [("Frames", str(result.frames)),
-            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci + f", n = {g.n}"),
-            ("Nuclei", f"{nuc.count}, mode {nuc.mode or '—'}"),
+            *((COUNTS[key][0], str(value)) for key, value in counts.items()),
+            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci),
+            ("Nucleation mode", nuc.mode or "—"),
             ("Density", _num(nuc.density_per_mm2, ".3g", " mm⁻²") + " | "
              + _num(nuc.density_per_mm3, ".3g", " mm⁻³")),
             ("Nucleation rate", _num(nuc.rate_per_mm2_per_min, ".3g", " mm⁻² min⁻¹")),
@@ -215,7 +220,9 @@ class DetailsPanel(QTabWidget):
         selected = self._model.selected_spherulite()
         result = self._model.result(index)
         if selected is not None:
-            self.summary.setHtml(spherulite_html(selected, result.um_per_px))
+            series = next((r for r in result.radii if r.id == selected.id), None)
+            self.summary.setHtml(spherulite_html(selected, result.um_per_px,
+                                                 None if series is None else series.n_used()))
         else:
             self.summary.setHtml(experiment_html(self._model.experiment(index), result,
                                                  self._model.status(index),

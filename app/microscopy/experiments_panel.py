@@ -20,11 +20,12 @@ from PySide6.QtWidgets import (
     QTableWidgetItem,
 )
 
+from analysis.results import COUNTS
 from app.core import model as m
 
-COLUMNS = ("Experiment", "Tc (°C)", "n", "G (µm/min)", "Status")
+COLUMNS = ("Experiment", "Tc (°C)", COUNTS["spherulites_detected"][0], "G (µm/min)", "Status")
 COLUMN_TIPS = ("Name of the experiment (one stack)", "Crystallization temperature",
-               "Number of spherulites detected (manual ones included)",
+               f"{COUNTS['spherulites_detected'][0]}: {COUNTS['spherulites_detected'][1]}",
                "Pooled growth rate ± half-width of its 95 % confidence interval",
                "State of the analysis")
 STATUS_TINTS = {
@@ -51,7 +52,7 @@ def format_growth_rate(result: Any) -> str:
 def row_values(model: "m.ProjectModel", index: int) -> tuple[str, ...]:
     experiment, result = model.experiment(index), model.result(index)
     tc = "—" if experiment.temperature_c is None else f"{experiment.temperature_c:g}"
-    count = "—" if result is None else str(len(result.spherulites))
+    count = "—" if result is None else str(result.counts()["spherulites_detected"])
     status = model.status(index)
     if status == m.STATUS_RUNNING and model.status_message(index):
         status = f"running: {model.status_message(index)}"

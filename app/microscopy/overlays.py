@@ -17,6 +17,8 @@ from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QColor, QFont, QPainterPath, QPen
 from PySide6.QtWidgets import QGraphicsItem, QGraphicsPathItem
 
+from analysis.spherulites.statuses import STATUSES
+
 #: Our status palette (bright strokes; a dark halo goes underneath).
 STATUS_COLOURS = {
     "ok": "#4cf2c2",          # mint
@@ -28,14 +30,8 @@ STATUS_COLOURS = {
 }
 SELECTED_COLOUR = "#ffffff"
 HALO = QColor(10, 12, 20, 190)
-STATUS_WORDS = {
-    "ok": "used in the pooled G",
-    "edge": "nucleated outside the field",
-    "few-points": "too few radius points",
-    "nonlinear": "radius not linear in time",
-    "excluded": "excluded by you",
-    "rejected": "not a spherulite by the evidence (see its reason); never counted",
-}
+#: What each status means, from its one definition.
+STATUS_WORDS = {name: status.meaning for name, status in STATUSES.items()}
 
 
 def status_colour(status: str) -> QColor:

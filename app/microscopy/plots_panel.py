@@ -19,6 +19,7 @@ from PySide6.QtWidgets import QSplitter, QVBoxLayout, QWidget
 
 from analysis.kinetics.avrami import avrami_conversion
 from analysis.kinetics.prediction import film_avrami_fit
+from analysis.results import COUNTS
 
 from app.core import model as m
 from app.microscopy.overlays import SELECTED_COLOUR, status_colour
@@ -73,7 +74,9 @@ class PlotsPanel(QWidget):
         self._model = model
         self.splitter = QSplitter(Qt.Vertical)
         self.radius_plot = _plot("Radius of each spherulite", "radius (µm)")
-        self.count_plot = _plot("Nuclei", "count")
+        self.count_plot = _plot(COUNTS["nuclei_counted"][0], "count")
+        self.count_plot.setToolTip(f"{COUNTS['nuclei_counted'][0]}: {COUNTS['nuclei_counted'][1]}, "
+                                   "against their nucleation time")
         self.fraction_plot = _plot("Crystallized area fraction X(t)", "X")
         for plot in (self.radius_plot, self.count_plot, self.fraction_plot):
             self.splitter.addWidget(plot)
@@ -185,7 +188,7 @@ class PlotsPanel(QWidget):
         if result is not None:
             record = np.asarray(result.area_fraction_time_s, float)
             times, counts = nuclei_count_curve(
-                (s.nucleation_time_s for s in result.spherulites),
+                result.nucleation.times_s,
                 float(record.max()) if record.size else None)
         self._count_curve.setData(times, counts)
 

@@ -13,28 +13,22 @@ from dataclasses import dataclass
 
 from PySide6 import QtCore, QtWidgets
 
-from analysis.errors import InputError
-from analysis.kinetics.calorimetry import analyze_source
 from analysis.progress import Progress, scaled
-from analysis.reporting.report import (
-    HW_PAIRS_KEY,
-    build_report,
-    project_entries_iter,
-    series_constants,
-)
+from analysis.reporting.entries import report_entry, series_constants
+from analysis.reporting.report import HW_PAIRS_KEY, build_report, project_entries_iter
 from analysis.reporting.tables import (
-    ReportEntry,
     comparison_table,
     growth_vs_temperature_table,
     write_csv,
     write_xlsx,
 )
+from analysis.results import COUNTS
 
 #: Display names for the table's columns (the files keep the snake_case names).
 DISPLAY_NAMES = {
     "experiment": "experiment", "temperature_c": "Tc (°C)", "growth_rate_um_per_min": "G (µm/min)",
     "growth_rate_ci95_low_um_per_min": "G 95 % low (µm/min)",
-    "growth_rate_ci95_high_um_per_min": "G 95 % high (µm/min)", "n_spherulites": "spherulites",
+    "growth_rate_ci95_high_um_per_min": "G 95 % high (µm/min)", **{key: label for key, (label, _what) in COUNTS.items()},
     "nucleation_mode": "mode", "nucleus_density_per_mm2": "N_A (mm⁻²)",
     "nucleus_density_per_mm3": "N_V (mm⁻³)", "nucleation_rate_per_mm2_per_min": "Ṅ_A (mm⁻² min⁻¹)",
     "nucleation_rate_per_mm3_per_min": "Ṅ_V (mm⁻³ min⁻¹)", "predicted_geometry": "geometry",
@@ -47,26 +41,16 @@ DISPLAY_NAMES = {
 
 
 def report_entries(model, cache) -> list:
-    """One ``analysis.reporting.tables.ReportEntry`` per analysed experiment."""
-    entries = []
-    for i, experiment in enumerate(model.experiments()):
-        result = model.result(i)
-        if result is None:
-            continue
-        calorimetry, problem = None, None
-        if experiment.calorimetry is not None:
-            try:
-                calorimetry = cache.analyze(experiment.calorimetry)
-            except InputError as error:
-                problem = str(error)
-        entries.append(ReportEntry(experiment.name, result, experiment.geometry,
-                                   experiment.mode_override, calorimetry, problem))
-    return entries
+    """One ``ReportEntry`` per analysed experiment (``analysis.reporting.entries.report_entry``,
+    the calorimetry through the page's cache)."""
+    material = model.project.material
+    return [report_entry(experiment, model.result(i), material, cache.analyze)
+            for i, experiment in enumerate(model.experiments()) if model.result(i) is not None]
 
 
-def table_rows(model, cache) -> tuple[list[str], list[list]]:
-    """Display header and rows of the growth-rate-versus-temperature table."""
-    table = growth_vs_temperature_table(report_entries(model, cache))
+def table_rows(entries) -> tuple[list[str], list[list]]:
+    """Display header and rows of the growth-rate-versus-temperature table of ``entries``."""
+    table = growth_vs_temperature_table(entries)
     return [DISPLAY_NAMES.get(name, name) for name in table.header], table.rows
 
 
@@ -98,20 +82,6 @@ def report_snapshot(model) -> ReportSnapshot:
     return ReportSnapshot(model.project, results)
 
 
-def _entry_with_calorimetry(experiment, result, material) -> ReportEntry:
-    calorimetry, problem = None, None
-    source = experiment.calorimetry
-    if source is not None:
-        if source.material is None and material is not None:
-            source = dataclasses.replace(source, material=material)
-        try:
-            calorimetry = analyze_source(source)
-        except InputError as error:
-            problem = str(error)
-    return ReportEntry(experiment.name, result, experiment.geometry, experiment.mode_override,
-                       calorimetry, problem)
-
-
 def report_iter(snapshot: ReportSnapshot, folder: str):
     """The same folder as ``spherokin report``: cached analyses are reused, the others run here.
 
@@ -126,11 +96,11 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
         entries, problems = yield from scaled(project_entries_iter(sub_project), 0.0, 0.8)
     for number, (experiment, result) in enumerate(ready):
         yield Progress("calorimetry", 0.8 + 0.1 * number / max(1, len(ready)), experiment.name)
-        entry = _entry_with_calorimetry(experiment, result, project.material)
+        entry = report_entry(experiment, result, project.material)
         if entry.calorimetry_problem:
             problems.append(f"{experiment.name}: calorimetry skipped ({entry.calorimetry_problem})")
         entries.append(entry)
-    constants, note = series_constants(project)
+    constants, note = series_constants(project.series, project.material)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, folder, constants=constants, material=project.material,
                            problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))

@@ -13,13 +13,14 @@ from PySide6 import QtCore, QtWidgets
 
 from analysis.kinetics.materials import list_materials
 from analysis.reporting.report import HW_PAIRS_KEY
+from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K, t_inf_default_c
 from app.widgets.formatting import DASH, fmt
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
 NOT_SET = -300.0  # spin-box minimum shown as "not set"
 TRANSPORT_SETS = {
-    "universal": (6270.0, 30.0),  # U* J/mol, Tg - T_inf in K
+    "universal": (DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K),  # U* J/mol, Tg - T_inf in K
     "WLF": (17238.0, 51.6),
 }
 HW_KEY = HW_PAIRS_KEY  # the series key the report reads
@@ -56,14 +57,15 @@ class ConstantsForm(QtWidgets.QGroupBox):
         self.tm0 = _spin("tm0_c", " °C", NOT_SET, 500.0)
         self.tg = _spin("tg_c", " °C", NOT_SET, 400.0)
         self.u_star = _spin("u_star_j_per_mol", " J/mol", 0.0, 100000.0, 0)
-        self.t_inf_auto = QtWidgets.QCheckBox("Tg − 30 K", objectName="t_inf_auto")
+        self.t_inf_auto = QtWidgets.QCheckBox(f"Tg − {T_INF_BELOW_TG_K:g} K", objectName="t_inf_auto")
         self.tm0.setToolTip("Equilibrium melting temperature (Hoffman-Weeks helper below)")
         self.tg.setToolTip("Glass transition temperature")
         self.u_star.setToolTip("Activation energy of chain transport to the growth front")
         self.t_inf = _spin("t_inf_c", " °C", NOT_SET, 400.0)
         self.transport = QtWidgets.QComboBox(objectName="transport_set")
         self.transport.addItem("set U* and T∞…", None)
-        self.transport.addItem("universal: 6270 J/mol, Tg − 30 K", "universal")
+        self.transport.addItem(f"universal: {DEFAULT_U_STAR_J_PER_MOL:g} J/mol, Tg − {T_INF_BELOW_TG_K:g} K",
+                               "universal")
         self.transport.addItem("WLF: 17 238 J/mol, Tg − 51.6 K", "WLF")
         self.transport.activated.connect(self._transport_chosen)
         self.transport.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
@@ -101,12 +103,12 @@ class ConstantsForm(QtWidgets.QGroupBox):
             for key, spin in (("tm0_c", self.tm0), ("tg_c", self.tg), ("t_inf_c", self.t_inf)):
                 value = series.get(key)
                 spin.setValue(NOT_SET if value is None else float(value))
-            self.u_star.setValue(float(series.get("u_star_j_per_mol", 6270.0)))
+            self.u_star.setValue(float(series.get("u_star_j_per_mol", DEFAULT_U_STAR_J_PER_MOL)))
             auto = series.get("t_inf_c") is None
             self.t_inf_auto.setChecked(auto)
             self.t_inf.setEnabled(not auto)
             if auto and series.get("tg_c") is not None:
-                self.t_inf.setValue(float(series["tg_c"]) - 30.0)
+                self.t_inf.setValue(t_inf_default_c(float(series["tg_c"])))
         finally:
             self._filling = False
 

@@ -11,15 +11,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.kinetics.prediction import predict_from_result
 from analysis.kinetics.lauritzen_hoffman import (
-    LHConstants,
     fit_lauritzen_hoffman,
     hoffman_weeks,
     lh_coordinates,
     lh_growth_rate,
 )
-from app.core.kinetics_inputs import volumetric_density
+from analysis.reporting.entries import lauritzen_hoffman_inputs, series_constants
 from app.temperature.lauritzen_hoffman import HW_KEY
 
 
@@ -37,67 +35,37 @@ class SeriesPoint:
     measured_t_half_min: float | None
 
 
-def _half_width(growth) -> float | None:
-    if growth.ci95_low is None or growth.ci95_high is None:
-        return None
-    return (growth.ci95_high - growth.ci95_low) / 2.0
-
-
-def _predicted_half_time(result, experiment) -> float | None:
-    try:
-        return predict_from_result(result, "bulk-3d", experiment.mode_override).t_half_min
-    except InputError:
-        return None
-
-
-def _measured_half_time(experiment, cache) -> float | None:
-    if experiment.calorimetry is None:
-        return None
-    try:
-        fit = cache.analyze(experiment.calorimetry).avrami
-    except InputError:
-        return None
+def _measured_half_time(entry) -> float | None:
+    fit = entry.calorimetry.avrami if entry.calorimetry is not None else None
     return fit.t_half_min if fit else None
 
 
-def collect(model, cache) -> list[SeriesPoint]:
-    """One point per experiment with an analysis result, in project order."""
-    points = []
-    for i, experiment in enumerate(model.experiments()):
-        result = model.result(i)
-        if result is None:
-            continue
-        nuc, growth = result.nucleation, result.growth_rate
-        volumetric, _h = volumetric_density(result, experiment)
-        temperature = experiment.temperature_c if experiment.temperature_c is not None else result.temperature_c
-        points.append(SeriesPoint(experiment.name, temperature, growth.value, _half_width(growth),
-                                  nuc.density_per_mm2, volumetric, _predicted_half_time(result, experiment),
-                                  _measured_half_time(experiment, cache)))
-    return points
+def _predicted_half_time(entry) -> float | None:
+    prediction = entry.bulk_prediction()
+    return None if prediction is None else prediction.t_half_min
+
+
+def points_from(entries) -> list[SeriesPoint]:
+    """One point per report entry (``analysis.reporting.entries.report_entry``), in order."""
+    return [SeriesPoint(e.name, e.temperature_c, e.result.growth_rate.value,
+                        e.growth_rate_ci95_half_width, e.result.nucleation.density_per_mm2,
+                        e.density_per_mm3, _predicted_half_time(e), _measured_half_time(e))
+            for e in entries]
 
 
 def column(points, name: str) -> np.ndarray:
     return np.array([np.nan if getattr(p, name) is None else getattr(p, name) for p in points], float)
 
 
-def constants_from(series: dict) -> LHConstants:
-    """LH constants from the project's series settings (InputError naming what is missing)."""
-    missing = [label for key, label in (("tm0_c", "Tm0"), ("tg_c", "Tg")) if series.get(key) is None]
-    if missing:
-        raise InputError(f"set {' and '.join(missing)} (or choose a material) for the Lauritzen-Hoffman fit")
-    return LHConstants(tm0_c=float(series["tm0_c"]), tg_c=float(series["tg_c"]),
-                       u_star_j_per_mol=float(series.get("u_star_j_per_mol") or 6270.0),
-                       t_inf_c=series.get("t_inf_c"))
-
-
-def lh_fit(points, series: dict, material: str | None):
-    """``fit_lauritzen_hoffman`` over the experiments with a growth rate."""
-    constants = constants_from(series)
-    usable = [p for p in points if p.temperature_c is not None and p.growth_rate is not None]
-    tc, g = column(usable, "temperature_c"), column(usable, "growth_rate")
-    ci = column(usable, "growth_ci95")
-    weights = None if np.isnan(ci).any() else ci
-    return fit_lauritzen_hoffman(tc, g, weights, constants=constants, material=material)
+def lh_fit(entries, series: dict, material: str | None):
+    """(``fit_lauritzen_hoffman`` over the entries with a Tc and a growth rate, where the
+    constants came from) with the constants and inputs the report uses
+    (``analysis.reporting.entries``); InputError when Tm0 or Tg is unknown."""
+    constants, note = series_constants(series, material)
+    if constants is None:
+        raise InputError(note)
+    tc, g, ci = lauritzen_hoffman_inputs(entries)
+    return fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material), note
 
 
 def lh_display(fit, points: int = 60):

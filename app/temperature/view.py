@@ -39,6 +39,7 @@ class TemperatureView(LazyPage):
         self.model = model
         self.calorimetry = CalorimetryCache()
         self.points: list = []
+        self.entries: list = []  # analysis.reporting.tables.ReportEntry, project order
         self.fit = None
         self.report_job = temperature_export.ReportJob(self)
         self._build()
@@ -133,8 +134,9 @@ class TemperatureView(LazyPage):
         self.constants.fill(project.material, project.series)
         self.hw.fill(logic.hw_pairs(project.series))
         self._show_hw()
-        self.points = logic.collect(self.model, self.calorimetry)
-        header, rows = temperature_export.table_rows(self.model, self.calorimetry)
+        self.entries = temperature_export.report_entries(self.model, self.calorimetry)
+        self.points = logic.points_from(self.entries)
+        header, rows = temperature_export.table_rows(self.entries)
         self.table.set_rows(header, rows)
         missing = self.model.experiment_count() - len(rows)
         self.empty_note.setVisible(missing > 0)
@@ -151,7 +153,7 @@ class TemperatureView(LazyPage):
     def _show_lh(self) -> None:
         project = self.model.project
         try:
-            self.fit = logic.lh_fit(self.points, project.series, project.material)
+            self.fit, note = logic.lh_fit(self.entries, project.series, project.material)
         except InputError as error:
             self.fit = None
             self.lh_results.clear(f"No Lauritzen-Hoffman fit: {error.problem}")
@@ -159,6 +161,8 @@ class TemperatureView(LazyPage):
             self.plots.show_growth_fit(None, None)
             return
         self.lh_results.show_fit(self.fit)
+        if "material table" in note:  # say where constants not set by the user came from
+            self.lh_results.message.setText("; ".join([note, *self.fit.warnings]))
         self.plots.show_lh(*logic.lh_display(self.fit))
         self.plots.show_growth_fit(*logic.growth_curve(self.fit))
 

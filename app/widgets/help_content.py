@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from analysis.results import COUNTS
+
 _AVRAMI_PAPERS = (
     "M. Avrami, J. Chem. Phys. 7, 1103 (1939); 8, 212 (1940); 9, 177 (1941) (from memory)",
     "W.A. Johnson and R.F. Mehl, Trans. AIME 135, 416 (1939) (from memory)",
@@ -89,6 +91,18 @@ TOPICS: tuple[HelpTopic, ...] = (
         "The analysis decides from how the number of nuclei per unit of untransformed area grows "
         "with time; the criterion it used is shown as the tooltip of the mode in the kinetics view.",
         _AVRAMI_PAPERS[:1],
+    ),
+    HelpTopic(
+        "density_used", "Nuclei present at the start N₀ (the density in the prediction)",
+        "The density of predetermined nuclei that enters the predicted Avrami kinetics. Athermal: "
+        "every nucleus counted in the field. Mixed: only the initial burst, the nuclei born within a "
+        "few frame intervals of the first; the later ones are described by the nucleation rate Ṅ, "
+        "so counting them in N₀ as well would count them twice. Thermal: none, the rate alone.",
+        "athermal: N₀ = N_A (film) or N_A / h (bulk);  mixed: N₀ = burst count / field area "
+        "(per mm², or per mm³ after / h);  thermal: N₀ = 0",
+        "The burst is the densest group of births at the start of the record; with one or two "
+        "frame intervals between nuclei the split between burst and later births is uncertain.",
+        _AVRAMI_PAPERS[:2],
     ),
     HelpTopic(
         "avrami", "Avrami equation, exponent n and rate constant k",
@@ -274,6 +288,28 @@ CAUTIONS: tuple[str, ...] = (
     "Dry solvent-cast films fully before melting them: residual solvent is flammable and its bubbles "
     "spoil growth-rate measurements.",
 )
+
+
+_COUNT_NOTES = {
+    "spherulites_detected": (
+        "number of spherulites in the result's list",
+        "Includes spherulites cut by the border, ones with too few radius points and ones you "
+        "excluded; they are shown so that you can check them, not all of them enter N or G."),
+    "nuclei_counted": (
+        "N_A = nuclei counted / field area",
+        "Counting by the centre position means spherulites cut by the border are neither lost nor "
+        "counted twice; the count is Poisson, so its relative uncertainty is 1/√(count)."),
+    "spherulites_in_pooled_g": (
+        "G = weighted mean of the single-spherulite growth rates",
+        "Spherulites that impinge at once, leave the field or whose radius does not grow linearly "
+        "are left out, so this count is usually smaller than the number detected."),
+}
+
+#: One topic per count of ``analysis.results.COUNTS``, under the same key and label.
+TOPICS += tuple(
+    HelpTopic(key, label, f"{label}: {what}.", _COUNT_NOTES[key][0], _COUNT_NOTES[key][1],
+              (_FILM_REVIEW,))
+    for key, (label, what) in COUNTS.items())
 
 
 def topic(key: str) -> HelpTopic:

@@ -12,6 +12,7 @@ import html
 from PySide6 import QtCore, QtWidgets
 
 from app.widgets.help_content import CAUTIONS, CAUTIONS_TITLE, TOPICS, HelpTopic, topic
+from app.widgets.help_guide import GUIDE_SECTIONS, guide_html
 
 _shared_panel: "HelpPanel | None" = None
 
@@ -29,13 +30,16 @@ def _topic_html(entry: HelpTopic) -> str:
 
 
 def help_html() -> str:
-    """The whole help text as one HTML document (cautions first, then every topic)."""
+    """The whole help text as one HTML document (cautions first, then using the
+    application, then every number)."""
     contents = "".join(f'<li><a href="#{t.key}">{html.escape(t.title)}</a></li>' for t in TOPICS)
+    guide = "".join(f'<li><a href="#{k}">{html.escape(t)}</a></li>' for k, t in GUIDE_SECTIONS)
     cautions = "".join(f"<li>{html.escape(c)}</li>" for c in CAUTIONS)
     return (
         '<a name="cautions"></a>'
         f'<h2 style="color:#9a3412">{html.escape(CAUTIONS_TITLE)}</h2><ul>{cautions}</ul><hr>'
-        f"<h2>The numbers</h2><ul>{contents}</ul><hr>"
+        f"<h2>Using spherokin</h2><ul>{guide}</ul>" + guide_html()
+        + f"<h2>The numbers</h2><ul>{contents}</ul><hr>"
         + "".join(_topic_html(t) for t in TOPICS)
         + "<p><i>Citations marked (from memory) were not checked against the original paper.</i></p>"
     )
@@ -46,25 +50,31 @@ class HelpPanel(QtWidgets.QWidget):
 
     def __init__(self, parent: QtWidgets.QWidget | None = None):
         super().__init__(parent)
-        self.setWindowTitle("spherokin help: kinetics and temperature series")
+        self.setWindowTitle("spherokin help")
         self.picker = QtWidgets.QComboBox()
         self.picker.addItem(CAUTIONS_TITLE, "cautions")
+        for key, title in GUIDE_SECTIONS:
+            self.picker.addItem(title, key)
         for entry in TOPICS:
             self.picker.addItem(entry.title, entry.key)
         self.picker.activated.connect(lambda i: self.show_topic(self.picker.itemData(i)))
         self.browser = QtWidgets.QTextBrowser()
         self.browser.setOpenLinks(False)
         self.browser.anchorClicked.connect(self._follow)
-        self.browser.setHtml(help_html())
+        self.refresh()
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addWidget(self.picker)
         layout.addWidget(self.browser)
         self.current_key = "cautions"
 
+    def refresh(self) -> None:
+        """Render the text again (after the window registered its shortcuts)."""
+        self.browser.setHtml(help_html())
+
     def show_topic(self, key: str) -> None:
-        """Scroll to a topic ("cautions" or a key of ``help_content.TOPICS``)."""
-        if key != "cautions":
+        """Scroll to a topic ("cautions", a guide section or a key of ``help_content.TOPICS``)."""
+        if key != "cautions" and key not in dict(GUIDE_SECTIONS):
             topic(key)  # KeyError for an unknown topic: a programming error, not user input
         self.current_key = key
         index = self.picker.findData(key)

@@ -114,6 +114,16 @@ def build_actions(window: Any) -> dict[str, QAction]:
     return actions
 
 
+def shortcut_rows(actions: dict[str, QAction]) -> list[tuple[str, str]]:
+    """(key sequence as shown on this platform, what it does) for every action with a key."""
+    rows = []
+    for spec in ACTIONS:
+        keys = actions[spec.id].shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+        if keys:
+            rows.append((keys, spec.tip or spec.text.replace("&", "").rstrip("…")))
+    return rows
+
+
 def populate_menus(window: Any, actions: dict[str, QAction]) -> dict[str, Any]:
     menus = {name: window.menuBar().addMenu(f"&{name}") for name in MENU_ORDER}
     for spec in ACTIONS:

@@ -12,7 +12,8 @@ from pathlib import Path
 
 from PySide6.QtWidgets import QFileDialog, QMessageBox
 
-from app.core.autosave import find_recoverable, load_recovered
+from app.core.autosave import compare_with_project, find_recoverable, keep_aside, load_recovered
+from app.core.project_lock import ProjectLock, live_lock_owner
 from app.microscopy.calibration import CalibrationDialog
 from app.window.properties_dialog import PropertiesDialog, stack_note
 from app.window.stack_import import experiments_from_paths, is_stack_path
@@ -30,14 +31,21 @@ class WindowFilesMixin:
         if self.confirm_discard_or_save():
             self.autosaver.discard()
             self.model.new_project()
+            self.hold_project_lock(None)
 
     def open_project_dialog(self) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Open project", self._last_folder(), PROJECT_FILTER)
         if path:
             self.open_project_path(path)
 
-    def open_project_path(self, path: str, *, ask: bool = True) -> bool:
-        """Open ``path`` (asking about unsaved changes first); False if not opened."""
+    def open_project_path(self, path: str, *, ask: bool = True, read_only: bool = False) -> bool:
+        """Open ``path`` (asking about unsaved changes first); False if not opened.
+
+        ``read_only`` (screenshots): no lock, no recovery offer, open even if another
+        window has the project.
+        """
+        if not read_only and not self.project_is_free(path):
+            return False
         if ask and not self.confirm_discard_or_save():
             return False
         try:
@@ -49,8 +57,40 @@ class WindowFilesMixin:
             return False
         self.autosaver.discard()
         self.model.replace_project(project)
+        if read_only:
+            return True
+        self.hold_project_lock(project.path)
         self.add_recent(project.path)
+        self.offer_recovery([project.path], include_untitled=False)
         return True
+
+    # ---------------------------------------------------------------- one window per project
+    def project_is_free(self, path: str) -> bool:
+        """False (with a message) when another live window has ``path`` open."""
+        if path and str(Path(path).resolve()) == (self.model.path or ""):
+            return True
+        owner = live_lock_owner(Path(path).resolve())
+        if owner is None:
+            return True
+        from app.core.project_lock import lock_path_for
+
+        self.show_problem("The project is open in another window", (
+            f"{path} is open in another spherokin window ({owner.describe()}). Switch to that "
+            f"window; if that session has ended on another computer, delete "
+            f"{lock_path_for(Path(path).resolve())}."))
+        return False
+
+    def hold_project_lock(self, path: str | None) -> None:
+        """Hold the lock of ``path`` (None: of no project), releasing the previous one."""
+        current = getattr(self, "_project_lock", None)
+        if current is not None and path is not None and current.project_path == str(path):
+            return
+        if current is not None:
+            current.release()
+        self._project_lock = None
+        if path:
+            self._project_lock = ProjectLock(path)
+            self._project_lock.acquire()
 
     def save_project(self) -> bool:
         if not self.model.path:
@@ -67,6 +107,8 @@ class WindowFilesMixin:
         return self._save_to(path)
 
     def _save_to(self, path: str) -> bool:
+        if not self.project_is_free(path):
+            return False
         old_side = self.autosaver.side_path()
         try:
             saved = self.model.save(path)
@@ -74,6 +116,7 @@ class WindowFilesMixin:
             self.show_problem("Could not save", f"{path}: {exc}")
             return False
         old_side.unlink(missing_ok=True)
+        self.hold_project_lock(saved)
         self.add_recent(saved)
         self.statusBar().showMessage(f"Saved {saved}", 4000)
         return True
@@ -200,7 +243,8 @@ class WindowFilesMixin:
             self.show_problem("Cannot read the image", str(exc))
             return
         dialog = CalibrationDialog(image, Path(path).name if path else "current frame",
-                                   self.model.experiment_count() > 1, self)
+                                   self.model.experiment_count() > 1, self,
+                                   current_um_per_px=self.model.experiment(index).um_per_px)
         if dialog.exec() and dialog.um_per_px is not None:
             self.apply_calibration(dialog.um_per_px, dialog.apply_all.isChecked())
 
@@ -231,32 +275,71 @@ class WindowFilesMixin:
         stack.endMacro()
 
     # ---------------------------------------------------------------- crash recovery
-    def offer_recovery(self) -> bool:
-        """After a crash, offer to recover autosaved work; True if something was recovered."""
-        found = find_recoverable(self.autosaver.recovery_dir, self.recent_projects())
-        for item in found:
-            if self.ask_recover(item) and self.recover(item):
+    def offer_recovery(self, project_paths=None, *, include_untitled: bool = True) -> bool:
+        """Offer to recover autosaved work; True if something was recovered.
+
+        Nothing the user has not chosen to discard is deleted: a failed recovery keeps
+        the autosave and says where it is; "keep" sets it aside for the next start. An
+        autosave identical to its saved project holds nothing to lose and is removed.
+        """
+        paths = self.recent_projects() if project_paths is None else list(project_paths)
+        offered = self.__dict__.setdefault("_autosaves_offered", set())
+        folder = self.autosaver.recovery_dir if include_untitled else None
+        for item in find_recoverable(folder, paths):
+            if item.autosave_path in offered:
+                continue  # asked once this session: kept for the next start
+            offered.add(item.autosave_path)
+            comparison = compare_with_project(item)
+            if comparison.status == "same":
+                item.autosave_path.unlink(missing_ok=True)
+                continue
+            choice = self.ask_recover(item, comparison)
+            choice = {True: "recover", False: "keep"}.get(choice, choice)
+            if choice == "recover" and self.recover(item):
                 return True
-            item.autosave_path.unlink(missing_ok=True)
+            if choice == "delete":
+                item.autosave_path.unlink(missing_ok=True)
+            elif choice == "keep":
+                self._keep_autosave(item)
         return False
 
-    def ask_recover(self, item) -> bool:
-        """Whether to recover ``item`` (a dialog; tests replace this method)."""
-        answer = QMessageBox.question(
-            self, "Recover unsaved work?",
-            f"spherokin did not close normally. Recover the unsaved work in "
-            f"{item.describe()}?\n\n(No deletes the autosave.)",
-            QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
-        return answer == QMessageBox.Yes
+    def _keep_autosave(self, item) -> None:
+        try:
+            kept = keep_aside(item)
+            self.__dict__.setdefault("_autosaves_offered", set()).add(kept)
+        except OSError as exc:
+            kept = item.autosave_path
+            self.show_problem("Autosave kept", f"{kept}: could not be renamed ({exc.strerror}); "
+                              "it is kept where it is, but a new autosave may replace it")
+            return
+        self.statusBar().showMessage(f"Autosave kept as {kept}", 8000)
+
+    def ask_recover(self, item, comparison=None) -> str:
+        """'recover', 'keep' or 'delete' for ``item`` (a dialog; tests replace this method)."""
+        newer_project = comparison is not None and comparison.status == "project-newer"
+        box = QMessageBox(QMessageBox.Warning if newer_project else QMessageBox.Question,
+                          "Recover unsaved work?",
+                          f"spherokin did not close normally. Unsaved work was autosaved in "
+                          f"{item.autosave_path} for {item.describe()}.\n\n"
+                          f"{comparison.text if comparison else ''}", QMessageBox.NoButton, self)
+        recover = box.addButton("Recover", QMessageBox.AcceptRole)
+        keep = box.addButton("Keep for later", QMessageBox.RejectRole)
+        delete = box.addButton("Delete the autosave", QMessageBox.DestructiveRole)
+        box.setDefaultButton(keep if newer_project else recover)
+        box.setEscapeButton(keep)
+        box.exec()
+        return {recover: "recover", delete: "delete"}.get(box.clickedButton(), "keep")
 
     def recover(self, item) -> bool:
+        """Load the autosave; on failure it is kept and the message says where."""
         try:
             project = load_recovered(item)
         except Exception as exc:
-            self.show_problem("Cannot recover", str(exc))
+            self.show_problem("Cannot recover", f"{exc}\nThe autosave is kept at {item.autosave_path}.")
             return False
         self.model.replace_project(project, recovered=True)
-        self.autosaver.autosave()  # the recovered work is protected again at once
-        if item.autosave_path != self.autosaver.side_path():
+        self.hold_project_lock(project.path)
+        written = self.autosaver.autosave()  # the recovered work is protected again at once
+        if written is not None and item.autosave_path != written:
             item.autosave_path.unlink(missing_ok=True)
         return True

@@ -89,7 +89,7 @@ def dispose(app: Any, window: Any) -> None:
 
 
 def _render(app: Any, window: Any, project: str | None, out: str, view: str | None) -> int:
-    if project and not window.open_project_path(project, ask=False):
+    if project and not window.open_project_path(project, ask=False, read_only=True):
         print(window.problems_shown[-1], file=sys.stderr)
         return 2
     if view and not window.show_view(view):

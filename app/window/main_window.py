@@ -42,6 +42,7 @@ from app.microscopy.plots_panel import PlotsPanel
 from app.microscopy.review import ReviewQueue
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
+from app.widgets.help_guide import register_shortcuts
 from app.window import actions as act
 from app.window.files import WindowFilesMixin
 from app.window.views import build_optional_views
@@ -94,6 +95,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.tools = ToolController(self.model, self.viewer, self)
         self.review = ReviewQueue(self.model, self.viewer, self.tools, self)
         self.actions_by_id = act.build_actions(self)
+        register_shortcuts(act.shortcut_rows(self.actions_by_id))  # listed in Help
         self.menus = act.populate_menus(self, self.actions_by_id)
         self.toolbars = act.populate_toolbars(self, self.actions_by_id)
         self._build_status_bar()
@@ -434,6 +436,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.runner.wait(10.0)
         self.save_layout()
         self.autosaver.discard()
+        self.hold_project_lock(None)
         event.accept()
 
 

@@ -41,10 +41,14 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
     assert radii[0] == ["id", "time_s", "radius_um", "free_fraction"] and len(radii) > 10
     summary = json.loads((tmp_path / "summary.json").read_text())
     assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
-                             "thickness_um", "growth_rate_um_per_min", "nucleation", "area_fraction",
-                             "avrami_film", "avrami_predicted", "image_quality"]
-    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high", "n"]
-    assert list(summary["nucleation"]) == ["count", "mode", "density_per_mm2", "density_per_mm3",
+                             "thickness_um", "spherulites_detected", "growth_rate_um_per_min",
+                             "nucleation", "area_fraction", "avrami_film", "avrami_predicted",
+                             "image_quality"]
+    assert summary["schema"] == 2
+    assert summary["spherulites_detected"] == len(result.spherulites)
+    assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high",
+                                                       "spherulites_in_pooled_g"]
+    assert list(summary["nucleation"]) == ["nuclei_counted", "mode", "density_per_mm2", "density_per_mm3",
                                            "rate_per_mm2_per_min", "rate_per_mm3_per_min",
                                            "induction_time_s"]
     assert list(summary["avrami_film"]) == ["n", "k_per_min_n", "t_half_min"]
@@ -55,12 +59,12 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
 
 
 def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
-    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1 frames")
+    odd = dataclasses.replace(result.spherulites[0], status="=cmd()", source="@x", reason="-1+2")
     export.write_analysis_outputs(dataclasses.replace(result, spherulites=(odd,)), tmp_path,
                                   geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
-    assert row[-4:-1] == ["'=cmd()", "'@x", "'-1 frames"]
+    assert row[-4:-1] == ["'=cmd()", "'@x", "'-1+2"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):

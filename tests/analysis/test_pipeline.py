@@ -251,7 +251,8 @@ def test_apply_edits_equals_a_fresh_analysis_with_the_same_edits(field_analysis)
 def test_settings_round_trip_and_bad_values():
     settings = pipeline.AnalysisSettings(sensitivity_frames=0.7, arrival={"channel": "auto"})
     assert pipeline.AnalysisSettings.from_dict(settings.to_dict()) == settings
-    assert pipeline.AnalysisSettings.from_dict({"unknown": 1}) == pipeline.AnalysisSettings()
+    with pytest.raises(InputError, match="unknown is not a known setting"):
+        pipeline.AnalysisSettings.from_dict({"unknown": 1})
     with pytest.raises(InputError, match="sensitivity_frames"):
         pipeline.AnalysisSettings.from_dict({"sensitivity_frames": -1}, path="exp.json")
 

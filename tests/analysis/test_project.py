@@ -100,7 +100,7 @@ def test_v1_edits_migrate_to_records_that_name_no_detection_yet(tmp_path):
     ('{"format": "spherokin-project", "schema_version": "one"}', "invalid schema_version"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": [{"name": "a"}]}', "no stack"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
-     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "positive"),
+     '[{"name": "a", "stack": "s.tif", "um_per_px": 0}]}', "'a': um_per_px must be a number in \\(0.0001"),
     ('{"format": "spherokin-project", "schema_version": 1, "experiments": '
      '[{"name": "a", "stack": "s.tif", "edits": [{"kind": "teleport"}]}]}', "unknown edit kind"),
 ])

@@ -13,7 +13,8 @@ from analysis.errors import InputError
 from analysis.kinetics.calorimetry import analyze_calorimetry_file
 from analysis.kinetics.lauritzen_hoffman import LHConstants, lh_growth_rate
 from analysis.project.file import Experiment, Project
-from analysis.reporting.report import build_report, series_constants
+from analysis.reporting.entries import series_constants
+from analysis.reporting.report import build_report
 from analysis.reporting.tables import ReportEntry
 from analysis.results import ExperimentResult, Nucleation, PooledGrowthRate
 from analysis.synthetic.hot_stage import simulate_dsc_isotherm, write_dsc_csv
@@ -85,13 +86,14 @@ def test_report_needs_entries_and_skips_lh_without_constants(tmp_path):
 
 
 def test_series_constants_from_project_or_material():
-    exp = Experiment(name="a", stack_path="/nowhere/a.tif")
-    explicit = Project(experiments=(exp,), series={"tm0_c": 186.0, "tg_c": -8.0, "t_inf_c": -40.0})
-    constants, _ = series_constants(explicit)
+    explicit = {"tm0_c": 186.0, "tg_c": -8.0, "t_inf_c": -40.0}
+    constants, _ = series_constants(explicit, None)
     assert (constants.tm0_c, constants.tg_c, constants.t_inf) == (186.0, -8.0, -40.0)
-    from_material, note = series_constants(Project(experiments=(exp,), material="PP"))
+    assert constants.u_star_j_per_mol == LHConstants(0.0, 0.0).u_star_j_per_mol  # one default
+    from_material, note = series_constants({}, "PP")
     assert from_material.tm0_c == 185.0 and "material table" in note  # iPP, Clark & Hoffman 1984 # from memory
-    assert series_constants(Project(experiments=(exp,)))[0] is None
+    missing, reason = series_constants({"tm0_c": 186.0}, None)
+    assert missing is None and reason.startswith("no Tg")
 
 
 def test_project_report_wiring(tmp_path, monkeypatch):

@@ -54,7 +54,8 @@ def test_growth_table_rows_sorted_with_units():
     assert table.header == GROWTH_HEADER
     assert [row[0] for row in table.rows] == ["cold", "hot"]
     cold = dict(zip(table.header, table.rows[0]))
-    assert cold["growth_rate_um_per_min"] == 30.0 and cold["n_spherulites"] == 12
+    assert cold["growth_rate_um_per_min"] == 30.0 and cold["spherulites_in_pooled_g"] == 12
+    assert cold["nuclei_counted"] == 400 and cold["spherulites_detected"] == 0
     # 3-D athermal k = (4 pi/3) N_V G^3 (docs/sources.md 1.2, derived here)
     assert cold["predicted_k_per_min_n"] == pytest.approx(4 * math.pi / 3 * 1e3 * 0.03 ** 3)
     assert cold["dsc_avrami_n"] == 3.0 and cold["dsc_t_half_min"] == 2.0

@@ -30,7 +30,8 @@ def test_cautions_cover_burns_fumes_and_the_labs_rules():
 def test_numbers_shown_in_the_views_have_topics():
     for key in ("growth_rate", "density_areal", "density_volumetric", "predicted_k", "half_time",
                 "fit_window", "comparison", "kg", "regimes", "sigma_sigma_e", "hoffman_weeks",
-                "transport_constants", "calorimetry_conversion", "volume_mass"):
+                "transport_constants", "calorimetry_conversion", "volume_mass", "density_used",
+                "spherulites_detected", "nuclei_counted", "spherulites_in_pooled_g"):
         assert topic(key).title
 
 

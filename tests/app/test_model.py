@@ -8,6 +8,7 @@ import sys
 import fake_pipeline
 import pytest
 
+from analysis.errors import InputError
 from analysis.edits import (
     AddNucleus,
     DeleteDetection,
@@ -109,7 +110,7 @@ def test_save_is_clean_and_reopens_with_edits(shared, tmp_path):
 
 def test_failed_save_keeps_work_and_dirty_state(shared, tmp_path):
     shared.push_edit(0, AddNucleus(10.0, 12.0))
-    with pytest.raises(OSError):
+    with pytest.raises(InputError, match="p.spherokin.json: the folder does not exist"):
         shared.save(str(tmp_path / "no such folder" / "p.spherokin.json"))
     assert shared.is_dirty()
     assert shared.experiment(0).edits == (AddNucleus(10.0, 12.0),)

@@ -54,7 +54,9 @@ def test_table_sorts_and_copies_tsv(view):
 
 def test_lh_fit_needs_constants_and_undo_restores(view):
     model = view.model
-    assert "Tm0" in view.lh_results.message.text()  # nothing fitted without constants
+    # until the series sets its own, Tm0 and Tg come from the material table, as in the report
+    assert "material table entry iPP" in view.lh_results.message.text()
+    from_table = view.lh_results.form.text("kg")
     _set_spin(view.constants.tm0, 185.0)
     _set_spin(view.constants.tg, -10.0)
     assert model.undo_stack.count() == 2
@@ -69,6 +71,9 @@ def test_lh_fit_needs_constants_and_undo_restores(view):
     assert view.lh_results.form.text("kg") == kg_text
     model.undo_stack.undo()
     assert model.project.series.get("tg_c") is None
+    assert view.lh_results.form.text("kg") == from_table
+    model.set_project_fields(material=None)
+    assert "no Tg" in view.lh_results.message.text()  # nothing fitted without constants
     assert view.lh_results.form.text("kg") == "—"
 
 

@@ -206,7 +206,7 @@ def test_crash_recovery_offer_restores_the_autosaved_edits(window, qtbot, tmp_pa
     fresh.ask_unsaved_changes = lambda: "discard"
     qtbot.addWidget(fresh)
     offered = []
-    fresh.ask_recover = lambda item: offered.append(item.project_path) or True
+    fresh.ask_recover = lambda item, comparison=None: offered.append(item.project_path) or True
     assert fresh.offer_recovery()
     assert offered == [window.model.path]
     assert fresh.model.experiment(0).edits == (AddNucleus(4.0, 4.0),)
@@ -264,7 +264,7 @@ def test_calibrate_on_the_frame_shown_is_one_undoable_change(window, monkeypatch
     window.ask_calibration_source = lambda: "frame"
 
     class Measured:
-        def __init__(self, image, title, can_apply_to_all, parent):
+        def __init__(self, image, title, can_apply_to_all, parent, current_um_per_px=None):
             assert image.shape == (64, 64)
             self.um_per_px = 1.25
             self.apply_all = type("Box", (), {"isChecked": lambda self: False})()
