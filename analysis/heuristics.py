@@ -139,9 +139,10 @@ class DetectionHeuristics:
         "amount does not grow like a spherulite at this temperature (one growth rate per "
         "temperature, Lauritzen & Hoffman 1960; generous for noisy fits).")
     reject_residual_ratio: float = _h(
-        3.0, "A candidate whose robust residual scale exceeds this multiple of the field's "
-        "typical one does not follow one growth cone: a noise island or the seam between "
-        "fronts (common practice).")
+        3.0, "A short-lived candidate (fewer than twice reject_min_levels frames) whose robust "
+        "residual scale exceeds this multiple of the field's typical one does not follow one "
+        "growing front: a noise island or the seam between fronts. A long-lived one is more "
+        "likely two merged nuclei and goes to review instead (common practice).")
     edge_centre_uncertainty: float = _h(
         0.5, "A spherulite entering from outside is reported only when the 95 % uncertainty of "
         "its fitted centre is below this fraction of the centre's distance outside the field "
@@ -154,6 +155,9 @@ class DetectionHeuristics:
         1.0, "A nucleus must have been in melt for at least this many frame intervals before "
         "another front reached its centre to be told apart from that front (one timing "
         "quantum; a nucleus born inside crystal is a phantom, Avrami 1939, J. Chem. Phys. 7, 1103).")
+    same_centre_px: float = _h(
+        2.0, "Two fitted centres closer than this are the same within pixel precision (a pair "
+        "of real nuclei this close cannot be told apart), px.")
     duplicate_agreement_intervals: float = _h(
         1.0, "Two cones whose arrival times over their pixels differ by less than this many "
         "frame intervals (median) describe the same front: the timing quantum.")

@@ -85,7 +85,8 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
                 "not a spherulite at this temperature (dust, a bubble or noise)")
     floor = max(typical, 0.25 * interval_s) if math.isfinite(typical) else 0.25 * interval_s
     # A curved r(t) (status nonlinear, from its own radius series) leaves large cone residuals too.
-    if sph.status != "nonlinear" and ev.residual_s > rules.reject_residual_ratio * floor:
+    short_lived = fit.n_levels < 2 * rules.reject_min_levels
+    if short_lived and sph.status != "nonlinear" and ev.residual_s > rules.reject_residual_ratio * floor:
         return (f"its pixels do not follow one growing front (residuals {ev.residual_s / floor:.1f}× "
                 "the field's typical)")
     return ""
@@ -123,7 +124,7 @@ def _duplicates(items, interval_s: float) -> dict[int, int]:
             apart = math.hypot(ea.fit.x_px - eb.fit.x_px, ea.fit.y_px - eb.fit.y_px)
             spread = 1.96 * math.sqrt(ea.fit.se_x_px ** 2 + ea.fit.se_y_px ** 2 + eb.fit.se_x_px ** 2 +
                                       eb.fit.se_y_px ** 2)
-            if apart > max(spread, rules.edge_centre_floor_px):
+            if apart > max(spread, rules.same_centre_px):
                 continue
             if _one_front(ea, eb, interval_s, rules.duplicate_agreement_intervals):
                 weak, strong = (a, b) if ea.x.size < eb.x.size else (b, a)
