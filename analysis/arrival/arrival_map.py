@@ -231,9 +231,8 @@ class _QualityProbe:
     """What the image-quality block needs from the pass: the contrast measured before it,
     and the evidence of one frame whose front crosses the field (for the edge blur)."""
 
-    def __init__(self, contrast, crystal_noise, crystal_last, last, full_scale):
-        self.contrast, self.crystal_last, self.last, self.full_scale = contrast, crystal_last, last, full_scale
-        self.crystal_noise = crystal_noise
+    def __init__(self, contrast, crystal_noise, full_scale):
+        self.contrast, self.crystal_noise, self.full_scale = contrast, crystal_noise, full_scale
         self.front_frame, self.front_evidence = None, None
 
     def keep_front(self, state, specimen, k):
@@ -263,7 +262,7 @@ def _set_up(first, second, last, settings, mode, *, integer_data, full_scale):
         float(np.mean(noise)), crystal_noise or 0.0)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
                               smoothing_px=quality.smoothing_for(snr, settings.smoothing_px))
-    probe = _QualityProbe(contrast, crystal_noise, crystal_last, None if last is None else last[1], full_scale)
+    probe = _QualityProbe(contrast, crystal_noise, full_scale)
     ones = np.ones(model.channels, np.float32)
     trial = segment.evidence(second, model, ones)
     provisional = segment.evidence_threshold(trial[::2, ::2], settings.sensitivity)

@@ -107,7 +107,8 @@ def unevenness(image: np.ndarray, mask: np.ndarray | None = None) -> float | Non
 
 def edge_blur_px(evidence_frame: np.ndarray, plateau: np.ndarray, arrival_s: np.ndarray,
                  frame_time_s: float, slowness_s_per_px: float, smoothing_px: float) -> float | None:
-    """Gaussian sigma (px) of the crystal/melt edge beyond the applied smoothing.
+    """Gaussian sigma (px) of the crystal/melt edge beyond the applied smoothing: defocus,
+    the softness of the front and the scatter of the arrival times together.
 
     Pixels near the front of one frame are placed by their signed distance to it,
     ``(frame time − arrival) / slowness``, and their evidence relative to their own
