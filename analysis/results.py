@@ -93,6 +93,14 @@ class PooledGrowthRate:
     ci95_high: float | None
     n: int
 
+    @property
+    def ci95_half_width(self) -> float | None:
+        """Half the width of the 95 % interval, µm/min (None when unknown): the "±" every
+        page and table shows."""
+        if self.ci95_low is None or self.ci95_high is None:
+            return None
+        return (self.ci95_high - self.ci95_low) / 2.0
+
 
 @dataclass(frozen=True)
 class Nucleation:

@@ -31,6 +31,7 @@ from analysis.results import NUCLEATION_MODES  # the modes a user may force inst
 __all__ = [
     "Spec", "Place", "ArrivalSettings", "AnalysisSettings", "parse_value", "specs_of",
     "settings_from_dict", "EXPERIMENT_SPECS", "CALORIMETRY_SPECS", "SERIES_SPECS",
+    "TEMPERATURE_SOURCE_SPECS", "EXPERIMENT_KINDS",
     "GEOMETRIES", "DEFAULT_GEOMETRY", "NUCLEATION_MODES", "CHANNEL_MODES", "REGISTRATION_MODES",
     "EXOTHERM_DIRECTIONS", "DEFAULT_FIT_WINDOW", "DEFAULT_U_STAR_J_PER_MOL", "T_INF_BELOW_TG_K",
     "t_inf_default_c", "check_fit_window", "check_hoffman_weeks_pairs", "check_series_order",
@@ -38,18 +39,19 @@ __all__ = [
 
 #: Geometry of the predicted Avrami kinetics. The default is the bulk (3-D) prediction:
 #: it is what an isothermal DSC sample shows, and summary.json compares it with DSC.
+EXPERIMENT_KINDS = ("isothermal", "ramp")
 GEOMETRIES = ("film-2d", "bulk-3d")
 DEFAULT_GEOMETRY = "bulk-3d"
 CHANNEL_MODES = ("auto", "grey", "colour")
 REGISTRATION_MODES = ("auto", "on", "off")
 EXOTHERM_DIRECTIONS = ("auto", "up", "down")
 #: Conversion window of an Avrami fit, fractions of the final conversion: the early,
-#: impingement-light part of the isotherm (Lorenzo et al. 2007, Polymer Testing 26, 222;
-#: docs/sources.md §4.2).
+#: impingement-light part of the isotherm (Lorenzo, Arnal, Albuquerque & Müller 2007,
+#: Polymer Testing 26, 222 — from memory; docs/sources.md §4.2).
 DEFAULT_FIT_WINDOW = (0.03, 0.20)
 #: Transport activation energy of the "universal" constant set: 1500 cal/mol, usually
-#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970, Polymer J. 1, 82;
-#: Hoffman, Davis & Lauritzen 1976; docs/sources.md §2.2).
+#: quoted as 6270 J/mol, used with T∞ = Tg − 30 K (Suzuki & Kovacs 1970; Hoffman, Davis &
+#: Lauritzen 1976 — from memory; docs/sources.md §2.2).
 DEFAULT_U_STAR_J_PER_MOL = 6270.0
 T_INF_BELOW_TG_K = 30.0
 
@@ -366,6 +368,22 @@ EXPERIMENT_SPECS: tuple[Spec, ...] = (
                "sample shows, film-2d what the film itself shows."),
     _spec("mode_override", "Nucleation mode", str, None, choices=NUCLEATION_MODES, optional=True,
           help="Force the nucleation mode of the prediction instead of the detected one."),
+    _spec("kind", "Experiment kind", str, "isothermal", choices=EXPERIMENT_KINDS,
+          help="isothermal: one Tc; ramp: the film follows a temperature programme (stage log or "
+               "typed programme) and one run gives G over a range of temperatures."),
+)
+#: The temperature source of a ramp experiment (besides its log file and columns).
+TEMPERATURE_SOURCE_SPECS: tuple[Spec, ...] = (
+    _spec("programme", "Typed programme", str, None, optional=True,
+          help="Block programme 'START, RATE:END, hold:SECONDS, ...' (°C, K/min, °C, s) when there is no log."),
+    _spec("time_unit", "Log time unit", str, None, choices=("s", "min", "h"), optional=True,
+          help="Unit of the log's time column; null reads it from the column name (else s)."),
+    _spec("temperature_unit", "Log temperature unit", str, None, choices=("C", "K"), optional=True,
+          help="Unit of the log's temperature column; null reads it from the column name (else °C)."),
+    _spec("clock_offset_s", "Log clock offset", float, 0.0, "s", low=-1e7, high=1e7,
+          help="Added to the log's times (or the programme's start) to give the recording clock."),
+    _spec("lag_s", "Sensor lag", float, 0.0, "s", low=0.0, high=600.0,
+          help="First-order lag of the film behind the stage sensor (0 = none)."),
 )
 #: One frame time (each entry of an experiment's ``times_s``).
 FRAME_TIME_SPEC = _spec("times_s", "Frame time", float, None, "s", low=-1e7, high=1e8,
@@ -404,6 +422,8 @@ SERIES_SPECS: tuple[Spec, ...] = (
           low=0.0, high=200_000.0, help="Activation energy of segmental transport to the growth front."),
     _spec("t_inf_c", "T∞", float, None, "°C", low=-273.15, high=400.0, optional=True,
           help="Temperature where transport ceases; null means Tg − 30 K."),
+    _spec("lh_include_ramps", "Ramps in the Lauritzen-Hoffman fit", bool, False,
+          help="Add a point every 2 K of each ramp experiment's G(T) to the fit, beside the isothermal points."),
 )
 #: Key of the Hoffman-Weeks (Tc, Tm) pairs in ``Project.series``, °C.
 HW_PAIRS_KEY = "hoffman_weeks_pairs"
@@ -426,11 +446,12 @@ def check_hoffman_weeks_pairs(value: Any, place: Place) -> list[list[float]]:
     if not isinstance(value, list) or len(value) > 10_000:
         raise place.error(HW_PAIRS_KEY, f"must be a list of [Tc, Tm] pairs, got {_shown(value)}")
     pairs = []
-    for pair in value:
+    for number, pair in enumerate(value, start=1):
+        entry = f"{HW_PAIRS_KEY} entry {number}"
         if not isinstance(pair, (list, tuple)) or len(pair) != 2:
-            raise place.error(HW_PAIRS_KEY, f"must hold [Tc, Tm] pairs, got {_shown(pair)}")
-        tc, tm = (parse_value(HW_TEMPERATURE_SPEC, v, place) for v in pair)
-        pairs.append([tc, tm])
+            raise place.error(entry, f"must be a [Tc, Tm] pair, got {_shown(pair)}")
+        spec = dataclasses.replace(HW_TEMPERATURE_SPEC, key=entry)
+        pairs.append([parse_value(spec, v, place) for v in pair])
     return pairs
 
 

@@ -10,6 +10,7 @@ from analysis.cli.setting_flags import (
     analysis_settings_from_args,
     value_of,
 )
+from analysis.cli.ramp_options import add_ramp_arguments, constants_from_args, programme_from_args
 from analysis.outputs import prepare_output_folder
 from analysis.progress import Progress, run_to_completion
 from analysis.reporting.export import write_analysis_outputs
@@ -40,6 +41,7 @@ def add_cli_arguments(parser) -> None:
                         help="refuse stacks whose analysis needs more memory than this "
                              "(default: $SPHEROKIN_MEMORY_BUDGET_MB, else 3/4 of the "
                              "computer's memory)")
+    add_ramp_arguments(parser)
 
 
 class _ProgressBar:
@@ -73,9 +75,12 @@ def run_cli(args) -> int:
     given = {spec.key: value_of(args, spec) for spec in _experiment_specs()}
     geometry = given["geometry"] or DEFAULT_GEOMETRY
     settings = analysis_settings_from_args(args)
+    programme, constants = programme_from_args(args), constants_from_args(args)
     prepare_output_folder(args.out)
     stack = open_stack(args.stack, um_per_px=given["um_per_px"], interval_s=given["interval_s"])
     stack.require_calibration()
+    if programme is not None:
+        programme.require_coverage(float(stack.times_s[0]), float(stack.times_s[-1]))
     bar = _ProgressBar()
     try:
         analysis = run_to_completion(analyze_iter(
@@ -89,7 +94,31 @@ def run_cli(args) -> int:
     result = analysis.result
     g = result.growth_rate
     g_text = "n/a" if g.value is None else f"{g.value:.4g} um/min (95 % CI {g.ci95_low:.4g}-{g.ci95_high:.4g})"
+    if programme is not None:
+        return _ramp_outputs(analysis, programme, constants, args, given["isothermal_start_s"] or 0.0)
     counts = "; ".join(f"{COUNTS[key][0]} {value}" for key, value in result.counts().items())
     print(f"{counts}; G = {g_text}; nucleation {result.nucleation.mode or 'n/a'}; "
           f"outputs in {args.out}")
+    return 0
+
+
+def _ramp_outputs(analysis, programme, constants, args, time_offset_s: float) -> int:
+    """G(T) and N(T) of a ramp run, written beside the per-spherulite outputs."""
+    from analysis.kinetics.ramp import analyze_ramp
+    from analysis.reporting.ramp_outputs import write_ramp_outputs
+
+    ramp = analyze_ramp(analysis, programme, constants=constants, time_offset_s=time_offset_s)
+    write_ramp_outputs(ramp, args.out)
+    growth = ramp.growth
+    if not growth:
+        print(f"{len(analysis.result.spherulites)} spherulites; no G(T): {growth.reason}; "
+              f"outputs in {args.out}")
+        return 0
+    lh = growth.lauritzen_hoffman
+    kg = f"; Kg = {lh.kg_k2:.4g} ± {lh.kg_ci95:.2g} K²" if lh else ""
+    print(f"{len(growth.tracks)} spherulites in G(T) over {growth.temperature_c.min():.1f}-"
+          f"{growth.temperature_c.max():.1f} °C (G {growth.growth_rate_um_per_min.min():.3g}-"
+          f"{growth.growth_rate_um_per_min.max():.3g} µm/min){kg}; outputs in {args.out}")
+    for warning in growth.warnings:
+        print(f"warning: {warning}", file=sys.stderr)
     return 0

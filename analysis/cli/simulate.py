@@ -46,6 +46,21 @@ def add_cli_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--write-maps", action="store_true",
                         help="also write truth_maps.npz (true arrival-time and owner maps)")
     add_dsc_cli_arguments(parser)
+    _add_ramp_arguments(parser)
+
+
+def _add_ramp_arguments(parser: argparse.ArgumentParser) -> None:
+    """--ramp SPEC turns the recording into a ramp or step run (G follows T(t)); the other
+    --ramp-* options set its kinetics, lag and stage log (RampParams fields)."""
+    from analysis.synthetic.ramp import RampParams
+
+    group = parser.add_argument_group("ramp or step programme (growth follows the temperature)")
+    for f in fields(RampParams):
+        flag = "--ramp" if f.name == "programme" else "--ramp-" + f.name.replace("_", "-")
+        kind = str if f.name == "programme" else float
+        group.add_argument(flag, dest="ramp_" + f.name, type=kind,
+                           default=None if f.name == "programme" else f.default,
+                           help=f"{f.metadata['help']} (default {f.default})")
 
 
 def _parse_size(text: str) -> tuple[int, int]:
@@ -70,9 +85,28 @@ def params_from_args(args: argparse.Namespace) -> StackParams:
     return params
 
 
+def _run_ramp(args, params) -> int:
+    from analysis.synthetic.ramp import RampParams, simulate_ramp_stack, write_ramp
+
+    if args.dsc:
+        raise InputError("--dsc is for isothermal recordings; leave it out with --ramp")
+    values = {f.name: getattr(args, "ramp_" + f.name) for f in fields(RampParams)}
+    ramp = simulate_ramp_stack(RampParams(**values), params)
+    out = write_ramp(ramp, args.out, compression=None if args.tiff_compression == "none" else "zlib",
+                     write_maps=args.write_maps)
+    temps = ramp.frame_temperature_c
+    print(f"wrote {out / 'stack.tif'} and {out / 'stage_log.csv'}: {params.n_frames} frames, film "
+          f"{temps[0]:.1f} -> {temps[-1]:.1f} °C, final area fraction {ramp.sim.area_fraction[-1]:.3f}; "
+          f"the log's clock offset is {ramp.params.log_start_s:g} s")
+    return 0
+
+
 def run_cli(args: argparse.Namespace) -> int:
-    """``spherokin simulate``: write stack.tif, truth.json (and a DSC export)."""
+    """``spherokin simulate``: write stack.tif, truth.json (and a DSC export, or a stage log
+    for a ramp)."""
     params = params_from_args(args)
+    if getattr(args, "ramp_programme", None):
+        return _run_ramp(args, params)
     dsc = simulate_dsc_for_film(params, args) if args.dsc else None
     sim = simulate_stack(params)
     out = write_stack(sim, args.out, compression=None if args.tiff_compression == "none" else "zlib",

@@ -67,14 +67,15 @@ from analysis.kinetics.avrami import (
 )
 from analysis.kinetics.calorimetry_import import (  # re-exported: reading lives in its own module
     CalorimetryPreview,
-    header_mismatches,
+    HeaderCheck,
+    check_header,
     Isotherm,
     read_isotherm,
     sniff_calorimetry_file,
 )
 from analysis.settings import DEFAULT_FIT_WINDOW
 
-__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "header_mismatches",
+__all__ = ["CalorimetryPreview", "CalorimetryResult", "Isotherm", "HeaderCheck", "check_header",
            "analyze_calorimetry_file", "analyze_isotherm", "analyze_source", "parse_window",
            "read_isotherm", "sniff_calorimetry_file", "write_calorimetry_outputs"]
 

@@ -199,29 +199,50 @@ def _temperature_from_metadata(metadata: list[str]) -> float | None:
     return float(match.group(1).replace(",", ".")) if match else None
 
 
-def header_mismatches(preview: CalorimetryPreview, *, temperature_c: float | None,
-                      experiment_name: str, mass_mg: float | None) -> tuple[str, ...]:
-    """Where the file's header disagrees with the experiment it is imported into.
+@dataclass(frozen=True)
+class HeaderCheck:
+    """How a file's header compares with the experiment it is imported into.
 
-    Compared when both sides are known: the isothermal temperature (more than 0.5 °C
-    apart), the sample name (no word of three or more letters in common with the
-    experiment's name), and the sample mass (more than 1 % apart from the mass stored
-    for the experiment). Tolerances: common practice for a calibrated DSC and balance.
+    ``conflicts`` contradict the experiment (ask before importing); ``notes`` are worth a
+    look but common between instruments and notebooks (shown, not asked about).
     """
-    found = []
-    if preview.temperature_c is not None and temperature_c is not None and \
-            abs(preview.temperature_c - temperature_c) > 0.5:
-        found.append(f"the file is an isotherm at {preview.temperature_c:g} °C, the experiment's "
-                     f"Tc is {temperature_c:g} °C")
+
+    conflicts: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+
+
+def _temperature_in_name(name: str) -> float | None:
+    """A temperature written in a sample name ("Tc 127 C", "127°C"), °C."""
+    match = re.search(r"(-?\d+(?:[.,]\d+)?)\s*°?\s*C\b", name)
+    return float(match.group(1).replace(",", ".")) if match else None
+
+
+def check_header(preview: CalorimetryPreview, *, temperature_c: float | None,
+                 experiment_name: str, mass_mg: float | None) -> HeaderCheck:
+    """Compare the file's header with the experiment, where both sides are known.
+
+    Conflicts: the isothermal temperature of a header line, or one written in the sample
+    name, more than 0.5 °C from the experiment's Tc; a sample mass more than 1 % from the
+    one stored for the experiment. Note: a sample name with no word of three or more
+    letters in common with the experiment's name. Tolerances: common practice for a
+    calibrated DSC and balance.
+    """
+    conflicts, notes = [], []
+    file_tc = preview.temperature_c
+    if file_tc is None and preview.sample_name:
+        file_tc = _temperature_in_name(preview.sample_name)
+    if file_tc is not None and temperature_c is not None and abs(file_tc - temperature_c) > 0.5:
+        conflicts.append(f"the file is an isotherm at {file_tc:g} °C, the experiment's Tc is "
+                         f"{temperature_c:g} °C")
+    if preview.mass_mg and mass_mg and abs(preview.mass_mg - mass_mg) > 0.01 * mass_mg:
+        conflicts.append(f"the file gives a sample mass of {preview.mass_mg:g} mg, the experiment "
+                         f"has {mass_mg:g} mg")
     if preview.sample_name and experiment_name:
         words = lambda text: {w.casefold() for w in re.findall(r"[^\W\d_]{3,}", text)}
         if not words(preview.sample_name) & words(experiment_name):
-            found.append(f"the file's sample is “{preview.sample_name}”, the experiment is "
+            notes.append(f"the file's sample is “{preview.sample_name}”, the experiment is "
                          f"“{experiment_name}”")
-    if preview.mass_mg and mass_mg and abs(preview.mass_mg - mass_mg) > 0.01 * mass_mg:
-        found.append(f"the file gives a sample mass of {preview.mass_mg:g} mg, the experiment "
-                     f"has {mass_mg:g} mg")
-    return tuple(found)
+    return HeaderCheck(tuple(conflicts), tuple(notes))
 
 
 def sniff_calorimetry_file(path, *, max_rows: int = 8) -> CalorimetryPreview:

@@ -15,8 +15,8 @@ Two forms of ln G(T) are fitted jointly to all measured radii by non-linear leas
 (no numerical differentiation of the radii):
 
 * a penalised cubic B-spline of ln G in T (second-difference penalty; Eilers & Marx 1996,
-  Statistical Science 11, 89), the smoothing weight chosen by generalised cross-validation
-  (Craven & Wahba 1979, Numerische Mathematik 31, 377); its 95 % band is the Bayesian
+  Statistical Science 11, 89), the smoothing weight chosen by cross-validation with whole
+  spherulites left out (Rice & Silverman 1991, J. R. Stat. Soc. B 53, 233); its 95 % band is the Bayesian
   posterior band σ²(JᵀJ + λP)⁻¹ (Wahba 1983, J. R. Stat. Soc. B 45, 133), which also
   covers the smoothing bias on average. See docs/sources.md, section "Temperature
   programmes and non-isothermal growth".
@@ -40,15 +40,15 @@ from analysis.kinetics.avrami import FitFailure
 from analysis.kinetics.lauritzen_hoffman import R_J_PER_MOL_K, LHConstants, lh_coordinates
 from analysis.kinetics.temperature_programme import TemperatureProgramme
 
-__all__ = ["RadiusTrack", "RampGrowth", "RampLHFit", "TrackFit", "fit_ramp_growth",
-           "tracks_from_result", "RAMP_STATUSES"]
+__all__ = ["RadiusTrack", "RampGrowth", "RampLHFit", "TrackFit", "fit_ramp_growth", "growth_integral"]
 
-#: Spherulite statuses whose free-growth radii enter the ramp fit. "nonlinear" is what a
-#: straight-cone test says of every spherulite on a ramp, so it is expected here.
-RAMP_STATUSES = ("ok", "nonlinear")
 _MIN_TRACK_POINTS = 3
 _GRID_STEP_K = 0.5  # spacing of the reported temperatures
 _LAMBDAS = 10.0 ** np.arange(-3.0, 5.0, 1.0)
+_CV_FOLDS = 5
+_OUTLIER_ROUNDS = 4
+_OUTLIER_SIGMAS = 5.0  # a radius this many robust SDs off the joint fit is an outlier
+_TRACK_RMS_FACTOR = 3.0  # a spherulite this many times the typical RMS off does not follow G(T)
 
 
 @dataclass(frozen=True)
@@ -108,27 +108,30 @@ class RampGrowth:
 # ---------------------------------------------------------------- the growth integral
 @dataclass(frozen=True)
 class _Grid:
-    """Fine time grid over the data, the temperature on it and where the data sit in it."""
+    """Fine time grid over the data and the temperature on it."""
 
     time_s: np.ndarray
     temperature_c: np.ndarray
-    left: np.ndarray  # index of the grid interval holding each data time
-    frac: np.ndarray  # position inside that interval, 0..1
 
-    def at_data(self, values: np.ndarray) -> np.ndarray:
-        """Linear interpolation of grid values (first axis) at the data times."""
-        lo, hi = values[self.left], values[self.left + 1]
-        f = self.frac.reshape((-1,) + (1,) * (values.ndim - 1))
-        return lo + f * (hi - lo)
+    def locate(self, times: np.ndarray):
+        """(interval index, position 0..1) of each time in the grid."""
+        step = self.time_s[1] - self.time_s[0]
+        pos = np.clip((times - self.time_s[0]) / step, 0.0, self.time_s.size - 1 - 1e-9)
+        left = np.minimum(pos.astype(int), self.time_s.size - 2)
+        return left, pos - left
 
 
-def _grid(programme: TemperatureProgramme, times: np.ndarray, step_s: float) -> _Grid:
-    t0, t1 = float(times.min()), float(times.max())
+def _at(values: np.ndarray, where) -> np.ndarray:
+    """Linear interpolation of grid values (first axis) at located times."""
+    left, frac = where
+    lo, hi = values[left], values[left + 1]
+    return lo + frac.reshape((-1,) + (1,) * (values.ndim - 1)) * (hi - lo)
+
+
+def _grid(programme: TemperatureProgramme, t0: float, t1: float, step_s: float) -> _Grid:
     n = int(np.clip(math.ceil((t1 - t0) / step_s), 200, 40_000)) + 1
     grid = np.linspace(t0, t1, n)
-    pos = np.clip((times - t0) / (grid[1] - grid[0]), 0.0, n - 1 - 1e-9)
-    left = np.minimum(pos.astype(int), n - 2)
-    return _Grid(grid, programme.temperature_at(grid), left, pos - left)
+    return _Grid(grid, programme.temperature_at(grid))
 
 
 def _cumulative(values: np.ndarray, time_s: np.ndarray) -> np.ndarray:
@@ -148,55 +151,61 @@ def growth_integral(time_s, programme: TemperatureProgramme, growth_um_per_min) 
 
 
 class _Model:
-    """R = S(t) − c_track with ln G(T) (µm/s) = basis(T) · β + offset(T)."""
+    """Radius R = S(t) − c_track, with ln G(T) (µm/s) = basis(T) · β + offset(T)."""
 
-    def __init__(self, grid: _Grid, basis: np.ndarray, offset: np.ndarray, track_of: np.ndarray,
-                 radius: np.ndarray, n_tracks: int, penalty: np.ndarray | None):
-        self.grid, self.basis, self.offset = grid, basis, offset
-        self.track_of, self.radius, self.n_tracks = track_of, radius, n_tracks
+    def __init__(self, grid: _Grid, basis: np.ndarray, offset: np.ndarray, data: "_Data",
+                 penalty: np.ndarray | None):
+        self.grid, self.basis, self.offset, self.data = grid, basis, offset, data
+        self.track_of, self.radius = data.track_of, data.value
+        self.n_tracks = int(data.track_of.max()) + 1
         self.n_beta = basis.shape[1]
         self.penalty = penalty  # (rows, n_beta) difference matrix, or None
+        self.where = grid.locate(data.time_s)
 
     def split(self, params):
         return params[:self.n_beta], params[self.n_beta:]
 
-    def s_and_jac(self, beta):
+    def growth_coordinate(self, beta):
+        """S at the data times (µm) and its derivatives with respect to β."""
         g = np.exp(self.basis @ beta + self.offset)
         s = _cumulative(g, self.grid.time_s)
         ds = _cumulative(g[:, None] * self.basis, self.grid.time_s)
-        return self.grid.at_data(s), self.grid.at_data(ds)
+        return _at(s, self.where), _at(ds, self.where)
+
+    def predict(self, params):
+        beta, c = self.split(params)
+        return self.growth_coordinate(beta)[0] - c[self.track_of]
+
+    def offsets(self, beta) -> np.ndarray:
+        """The least-squares offset of every track for given β (R is linear in c)."""
+        s, _ = self.growth_coordinate(beta)
+        return np.bincount(self.track_of, s - self.radius) / np.bincount(self.track_of)
 
     def residuals(self, params, lam):
-        beta, c = self.split(params)
-        s, _ = self.s_and_jac(beta)
-        r = s - c[self.track_of] - self.radius
+        r = self.predict(params) - self.radius
         if self.penalty is None:
             return r
-        return np.concatenate([r, math.sqrt(lam) * (self.penalty @ beta)])
+        return np.concatenate([r, math.sqrt(lam) * (self.penalty @ self.split(params)[0])])
 
-    def data_jacobian(self, beta):
-        _, ds = self.s_and_jac(beta)
+    def data_jacobian(self, params):
+        _, ds = self.growth_coordinate(self.split(params)[0])
         dc = np.zeros((ds.shape[0], self.n_tracks))
         dc[np.arange(ds.shape[0]), self.track_of] = -1.0
         return np.hstack([ds, dc])
 
     def jacobian(self, params, lam):
-        beta, _ = self.split(params)
-        jac = self.data_jacobian(beta)
+        jac = self.data_jacobian(params)
         if self.penalty is None:
             return jac
         pen = np.zeros((self.penalty.shape[0], jac.shape[1]))
         pen[:, :self.n_beta] = math.sqrt(lam) * self.penalty
         return np.vstack([jac, pen])
 
-    def start(self, tracks_t, tracks_r, g0_um_per_s: float):
+    def start(self, g0_um_per_s: float):
         """β for a constant G (least squares through the basis), offsets from it."""
         target = math.log(max(g0_um_per_s, 1e-9)) - self.offset
         beta, *_ = np.linalg.lstsq(self.basis, target, rcond=None)
-        s, _ = self.s_and_jac(beta)
-        c = np.array([np.mean(s[self.track_of == k] - self.radius[self.track_of == k])
-                      for k in range(self.n_tracks)])
-        return np.concatenate([beta, c])
+        return np.concatenate([beta, self.offsets(beta)])
 
     def fit(self, start, lam):
         return optimize.least_squares(self.residuals, start, jac=self.jacobian, args=(lam,),
@@ -209,23 +218,23 @@ class _Model:
         return h
 
 
-# ---------------------------------------------------------------- public
-def tracks_from_result(result, *, time_offset_s: float = 0.0, statuses=RAMP_STATUSES) -> list[RadiusTrack]:
-    """Free-growth radii of the usable spherulites of an ExperimentResult.
+@dataclass(frozen=True)
+class _Data:
+    """All tracks' points, flattened."""
 
-    ``time_offset_s`` turns the result's times into recording-clock times (the
-    experiment's isothermal start; 0 for a ramp experiment).
-    """
-    status = {s.id: s.status for s in result.spherulites}
-    tracks = []
-    for series in result.radii:
-        if status.get(series.id) not in statuses:
-            continue
-        used = np.asarray(series.used, bool) & np.isfinite(series.radius_um)
-        if np.count_nonzero(used) >= _MIN_TRACK_POINTS:
-            tracks.append(RadiusTrack(series.id, np.asarray(series.time_s)[used] + time_offset_s,
-                                      np.asarray(series.radius_um)[used]))
-    return tracks
+    time_s: np.ndarray
+    value: np.ndarray
+    track_of: np.ndarray
+
+    @classmethod
+    def of(cls, tracks) -> "_Data":
+        return cls(np.concatenate([t.time_s for t in tracks]), np.concatenate([t.radius_um for t in tracks]),
+                   np.concatenate([np.full(t.time_s.size, k) for k, t in enumerate(tracks)]))
+
+    def subset(self, keep: np.ndarray) -> "_Data":
+        """The kept points, tracks renumbered from 0."""
+        _, local = np.unique(self.track_of[keep], return_inverse=True)
+        return _Data(self.time_s[keep], self.value[keep], local.ravel())
 
 
 def _spline_basis(temperature_c, lo, hi, n_segments):
@@ -239,47 +248,144 @@ def _difference_matrix(n: int, order: int = 2) -> np.ndarray:
     return np.diff(np.eye(n), n=order, axis=0)
 
 
-def _data(tracks):
-    time = np.concatenate([t.time_s for t in tracks])
-    radius = np.concatenate([t.radius_um for t in tracks])
-    track_of = np.concatenate([np.full(t.time_s.size, k) for k, t in enumerate(tracks)])
-    return time, radius, track_of
-
-
-def _rough_rate_um_per_s(tracks) -> float:
-    slopes = [np.polyfit(t.time_s, t.radius_um, 1)[0] for t in tracks]
-    return float(np.median(np.clip(slopes, 1e-6, None)))
-
-
+# ---------------------------------------------------------------- the spline fit
 def _edf(model, jac_data, lam) -> float:
     h = model.penalised_hessian(jac_data, lam)
     return float(np.trace(np.linalg.solve(h, jac_data.T @ jac_data)))
 
 
+def _folds(n_tracks: int) -> list[np.ndarray]:
+    """Spherulites dealt round-robin into at most _CV_FOLDS groups (deterministic)."""
+    k = min(_CV_FOLDS, n_tracks)
+    return [np.arange(i, n_tracks, k) for i in range(k)]
+
+
+def _held_out_error(model, start, lam, held) -> float:
+    """Squared error on the spherulites ``held`` of a fit made without them; their own
+    offsets (unknown birth) are fitted to the held-out radii with G(T) fixed."""
+    train = ~np.isin(model.track_of, held)
+    sub = _Model(model.grid, model.basis, model.offset, model.data.subset(train), model.penalty)
+    keep_tracks = np.setdiff1d(np.arange(model.n_tracks), held)
+    fit = sub.fit(np.concatenate([start[:model.n_beta], start[model.n_beta:][keep_tracks]]), lam)
+    test = _Model(model.grid, model.basis, model.offset, model.data.subset(~train), None)
+    beta = fit.x[:model.n_beta]
+    return float(np.sum((test.predict(np.concatenate([beta, test.offsets(beta)])) - test.radius) ** 2))
+
+
 def _spline_fit(model, start):
-    """The GCV-best smoothing weight; returns (fit, lam, jac_data, sigma2)."""
-    best = None
-    guess = start
+    """The smoothing weight with the lowest cross-validated error, spherulites left out a
+    fold at a time (radii of one spherulite are correlated, so leaving out single radii,
+    as generalised cross-validation does, would under-smooth); (fit, lam, Jacobian, σ²)."""
+    folds = _folds(model.n_tracks)
+    best, guess = None, start
     n = model.radius.size
     for lam in _LAMBDAS:
         fit = model.fit(guess, lam)
         guess = fit.x
-        jac = model.data_jacobian(model.split(fit.x)[0])
-        rss = float(np.sum(fit.fun[:n] ** 2))
-        edf = _edf(model, jac, lam)
-        gcv = n * rss / max(n - edf, 1.0) ** 2
-        if best is None or gcv < best[0]:
-            best = (gcv, fit, lam, jac, rss / max(n - edf, 1.0))
-    return best[1:]
+        score = sum(_held_out_error(model, fit.x, lam, held) for held in folds) if len(folds) > 1 else 0.0
+        if best is None or score < best[0]:
+            best = (score, fit, lam)
+    _, fit, lam = best
+    jac = model.data_jacobian(fit.x)
+    rss = float(np.sum(fit.fun[:n] ** 2))
+    return fit, lam, jac, rss / max(n - _edf(model, jac, lam), 1.0)
 
 
-def _band(model, fit, lam, jac, sigma2, basis_report):
-    cov = sigma2 * np.linalg.pinv(model.penalised_hessian(jac, lam))
-    beta = model.split(fit.x)[0]
-    log_g = basis_report @ beta
-    sd = np.sqrt(np.maximum(np.einsum("ij,jk,ik->i", basis_report, cov[:model.n_beta, :model.n_beta],
-                                      basis_report), 0.0))
-    return log_g, sd
+@dataclass(frozen=True)
+class _SplineStage:
+    model: _Model
+    fit: object
+    lam: float
+    jac: np.ndarray
+    sigma2: float
+    lo: float
+    hi: float
+    n_segments: int
+    rate_um_per_s: float
+
+
+def _spline_stage(programme, data: _Data, time_step_s):
+    """One penalised-spline fit of the given points."""
+    grid = _grid(programme, float(data.time_s.min()), float(data.time_s.max()), time_step_s)
+    lo, hi = float(grid.temperature_c.min()), float(grid.temperature_c.max())
+    if hi - lo < 1.0:
+        return FitFailure(f"the run spans only {hi - lo:.2f} K while spherulites grow: no G(T)")
+    n_segments = int(np.clip(round(hi - lo), 4, 30))
+    model = _Model(grid, _spline_basis(grid.temperature_c, lo, hi, n_segments), np.zeros(grid.time_s.size),
+                   data, _difference_matrix(n_segments + 3))
+    slopes = []
+    for k in range(model.n_tracks):
+        mine = data.track_of == k
+        span = np.ptp(data.time_s[mine])
+        slopes.append(np.ptp(data.value[mine]) / span if span > 0 else 0.0)
+    rate = float(np.median(np.clip(slopes, 1e-6, None)))
+    fit, lam, jac, sigma2 = _spline_fit(model, model.start(rate))
+    return _SplineStage(model, fit, lam, jac, sigma2, lo, hi, n_segments, rate)
+
+
+def _clustered_meat(jac, residual, groups) -> np.ndarray:
+    """Σ_g J_gᵀ r_g r_gᵀ J_g over the groups g (labels 0..m−1), times m/(m − 1)
+    (Liang & Zeger 1986, Biometrika 73, 13)."""
+    m = int(groups.max()) + 1
+    per_group = np.zeros((m, jac.shape[1]))
+    np.add.at(per_group, groups, jac * residual[:, None])
+    return per_group.T @ per_group * m / max(m - 1, 1)
+
+
+def _two_way_meat(jac, residual, track_of, time_s) -> np.ndarray:
+    """Clustered by spherulite (Liang & Zeger 1986) plus a frame random effect.
+
+    A spherulite's radii share its centre error; all radii of one frame share that frame's
+    exposure (flicker, noise in the threshold crossing), an error common to every
+    spherulite at that moment that no amount of spherulites averages away. Its variance
+    σ_f² is the part of the per-frame mean residual's variance beyond what independent
+    errors give (a method-of-moments variance component, Searle, Casella & McCulloch 1992,
+    Variance Components, ch. 3 `# from memory`); the frame term is σ_f² Σ_f s_f s_fᵀ with
+    s_f the summed Jacobian rows of frame f.
+    """
+    _, frame_of = np.unique(np.round(time_s, 6), return_inverse=True)
+    frame_of = frame_of.ravel()
+    n_frames = int(frame_of.max()) + 1
+    counts = np.bincount(frame_of, minlength=n_frames)
+    frame_mean = np.bincount(frame_of, residual, minlength=n_frames) / np.maximum(counts, 1)
+    within = float(np.sum((residual - frame_mean[frame_of]) ** 2)) / max(residual.size - n_frames, 1)
+    sigma_f2 = max(float(np.mean(frame_mean ** 2 - within / np.maximum(counts, 1))), 0.0)
+    summed = np.zeros((n_frames, jac.shape[1]))
+    np.add.at(summed, frame_of, jac)
+    return _clustered_meat(jac, residual, track_of) + sigma_f2 * (summed.T @ summed)
+
+
+def _band(stage, basis_report):
+    """ln G (µm/s) and its standard error at the report temperatures.
+
+    Bayesian band of a penalised spline, H⁻¹(σ²JᵀJ + σ²λPᵀP)H⁻¹ = σ²H⁻¹ with
+    H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by one that
+    lets radii of a spherulite, and radii of a frame, err together (:func:`_two_way_meat`);
+    the penalty part keeps the allowance for the smoothing bias. Never narrower than the
+    independent-error band.
+    """
+    model = stage.model
+    meat = _two_way_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.data.time_s)
+    prior = np.zeros_like(meat)
+    if model.penalty is not None:
+        prior[:model.n_beta, :model.n_beta] = stage.sigma2 * stage.lam * (model.penalty.T @ model.penalty)
+    bread = np.linalg.pinv(model.penalised_hessian(stage.jac, stage.lam))
+    cov = bread @ (meat + prior) @ bread
+    naive = stage.sigma2 * bread  # never claim more than the independent-error band
+    beta = model.split(stage.fit.x)[0]
+    nb = model.n_beta
+    var = np.maximum(np.einsum("ij,jk,ik->i", basis_report, cov[:nb, :nb], basis_report),
+                     np.einsum("ij,jk,ik->i", basis_report, naive[:nb, :nb], basis_report))
+    return basis_report @ beta, np.sqrt(np.maximum(var, 0.0))
+
+
+def _outliers(residual: np.ndarray, track_of: np.ndarray) -> np.ndarray:
+    """Points far off the joint fit, and every point of a spherulite that is far off as a whole."""
+    sigma = 1.4826 * float(np.median(np.abs(residual))) + 1e-12
+    out = np.abs(residual) > _OUTLIER_SIGMAS * sigma
+    rms = np.sqrt(np.bincount(track_of, residual ** 2) / np.bincount(track_of))
+    bad_track = rms > _TRACK_RMS_FACTOR * float(np.median(rms))
+    return out | bad_track[track_of]
 
 
 def _coverage(tracks, programme, temps):
@@ -292,21 +398,39 @@ def _coverage(tracks, programme, temps):
     return counts
 
 
-def _births(model, fit, grid, programme):
-    """Time and temperature where each track's modelled radius is zero (None before the grid)."""
-    beta, offsets = model.split(fit.x)
-    s = _cumulative(np.exp(model.basis @ beta + model.offset), grid.time_s)
+def _births(stage, programme):
+    """Time and temperature where each track's modelled radius is zero.
+
+    Before the first data, ln G is continued linearly in T from the edge of the fitted
+    range (a short extrapolation: the first radii are small). None when the birth lies
+    before the programme starts.
+    """
+    model = stage.model
+    beta, offsets = model.split(stage.fit.x)
+    grid = model.grid
+    start = max(float(programme.time_s[0]), float(grid.time_s[0]) - float(np.ptp(grid.time_s)) - 60.0)
+    early = np.linspace(start, float(grid.time_s[0]), 2001)
+    t_all = np.concatenate([early[:-1], grid.time_s])
+    temps = programme.temperature_at(t_all)
+    edges = np.array([stage.lo, stage.lo + 0.25, stage.hi - 0.25, stage.hi])
+    log_edges = _spline_basis(edges, stage.lo, stage.hi, stage.n_segments) @ beta
+    slope_lo, slope_hi = (log_edges[1] - log_edges[0]) / 0.25, (log_edges[3] - log_edges[2]) / 0.25
+    log_g = _spline_basis(temps, stage.lo, stage.hi, stage.n_segments) @ beta
+    log_g = np.where(temps < stage.lo, log_edges[0] + slope_lo * (temps - stage.lo), log_g)
+    log_g = np.where(temps > stage.hi, log_edges[3] + slope_hi * (temps - stage.hi), log_g)
+    s = _cumulative(np.exp(log_g), t_all)
+    s = s - s[early.size - 1] + np.arange(s.size) * 1e-12  # S = 0 at the grid start, as in the model
     out = []
     for c in offsets:
-        if c < s[0] or c > s[-1]:
+        if c < s[0]:
             out.append((None, None))
             continue
-        t = float(np.interp(c, s + np.arange(s.size) * 1e-12, grid.time_s))
+        t = float(np.interp(c, s, t_all))
         out.append((t, float(programme.temperature_at(t))))
     return out
 
 
-def _lh_fit(tracks, programme, grid, constants, time, radius, track_of, start_rate):
+def _lh_fit(grid, constants, data: _Data, start_rate):
     """Direct Lauritzen-Hoffman fit of all radii: (RampLHFit | FitFailure)."""
     t_inf_k = constants.t_inf + 273.15
     temp_k = grid.temperature_c + 273.15
@@ -314,68 +438,97 @@ def _lh_fit(tracks, programme, grid, constants, time, radius, track_of, start_ra
         return FitFailure("the run leaves (T_inf, Tm0): no Lauritzen-Hoffman fit")
     x, _ = lh_coordinates(grid.temperature_c, np.ones_like(temp_k), constants)
     offset = -constants.u_star_j_per_mol / (R_J_PER_MOL_K * (temp_k - t_inf_k)) - math.log(60.0)
-    model = _Model(grid, np.column_stack([np.ones_like(x), -x]), offset, track_of, radius,
-                   len(tracks), None)
-    start = model.start(None, None, start_rate)
-    start[1] = 4e5  # any sensible Kg; ln G0 then follows
+    model = _Model(grid, np.column_stack([np.ones_like(x), -x]), offset, data, None)
+    start = model.start(start_rate)
+    start[1] = 4e5  # any sensible Kg; ln G0 then follows from the typical rate
     start[0] = math.log(start_rate) + 4e5 * float(np.median(x)) - float(np.median(offset))
-    try:
-        fit = model.fit(start, 0.0)
-    except (ValueError, np.linalg.LinAlgError) as err:
-        return FitFailure(f"Lauritzen-Hoffman fit failed: {err}")
-    n = radius.size
-    dof = max(n - fit.x.size, 1)
-    jac = model.data_jacobian(fit.x[:2])
-    cov = np.linalg.pinv(jac.T @ jac) * float(np.sum(fit.fun ** 2)) / dof
-    kg_ci = float(stats.t.ppf(0.975, dof) * math.sqrt(max(cov[1, 1], 0.0)))
+    fit = model.fit(start, 0.0)
+    dof = max(data.value.size - fit.x.size, 1)
+    jac = model.data_jacobian(fit.x)
+    bread = np.linalg.pinv(jac.T @ jac)
+    naive = bread * float(np.sum(fit.fun ** 2)) / dof
+    clustered = bread @ _two_way_meat(jac, fit.fun, data.track_of, data.time_s) @ bread
+    # spherulites are the independent units: t quantile on their number, clustered variance
+    kg_ci = float(stats.t.ppf(0.975, max(model.n_tracks - 1, 1)) *
+                  math.sqrt(max(clustered[1, 1], naive[1, 1], 0.0)))
     return RampLHFit(float(fit.x[1]), kg_ci, float(math.exp(fit.x[0])), constants,
                      float(math.sqrt(np.mean(fit.fun ** 2))))
 
 
+# ---------------------------------------------------------------- public
 def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHConstants | None = None,
                     time_step_s: float = 0.25) -> RampGrowth | FitFailure:
-    """G(T) from the radii of all spherulites of one run on a temperature programme.
+    """G(T) from the growth data of all spherulites of one run on a temperature programme.
 
     Parameters
     ----------
     tracks : sequence of RadiusTrack
-        Free-growth radii (µm) at recording-clock times (s), at least 3 per spherulite.
+        Radii (µm) at recording-clock times (s), at least 3 per spherulite.
     programme : TemperatureProgramme
         Sample temperature on the recording clock; must cover the data.
     constants : LHConstants, optional
         Tm0, Tg, U*, T∞ for the direct Lauritzen-Hoffman fit (skipped without them).
     time_step_s : float
         Step of the integration grid, s.
+
+    Points far off the joint fit (more than 5 robust standard deviations), and spherulites
+    whose data miss it by more than 3 times the typical spherulite's scatter (a merged or
+    mis-split territory), are left out and named in ``warnings``; the fit is then repeated.
     """
     tracks = [t for t in tracks if t.time_s.size >= _MIN_TRACK_POINTS]
     if len(tracks) < 2:
         return FitFailure(f"{len(tracks)} spherulite(s) with {_MIN_TRACK_POINTS}+ free-growth radii; "
                           "need at least 2")
-    time, radius, track_of = _data(tracks)
-    programme.require_coverage(float(time.min()), float(time.max()))
-    grid = _grid(programme, time, time_step_s)
-    lo, hi = float(grid.temperature_c.min()), float(grid.temperature_c.max())
-    if hi - lo < 1.0:
-        return FitFailure(f"the run spans only {hi - lo:.2f} K while spherulites grow: no G(T)")
-    n_segments = int(np.clip(round(hi - lo), 4, 30))
-    model = _Model(grid, _spline_basis(grid.temperature_c, lo, hi, n_segments), np.zeros(grid.time_s.size),
-                   track_of, radius, len(tracks), _difference_matrix(n_segments + 3))
-    rate = _rough_rate_um_per_s(tracks)
-    fit, lam, jac, sigma2 = _spline_fit(model, model.start(None, None, rate))
-    temps = np.arange(math.ceil(lo / _GRID_STEP_K) * _GRID_STEP_K, hi + 1e-9, _GRID_STEP_K)
-    log_g, sd = _band(model, fit, lam, jac, sigma2, _spline_basis(temps, lo, hi, n_segments))
-    z = stats.norm.ppf(0.975)
+    data = _Data.of(tracks)
+    programme.require_coverage(float(data.time_s.min()), float(data.time_s.max()))
+    keep = np.ones(data.value.size, bool)
+    for round_number in range(_OUTLIER_ROUNDS):
+        counts = np.bincount(data.track_of[keep], minlength=len(tracks))
+        keep &= counts[data.track_of] >= _MIN_TRACK_POINTS
+        if np.count_nonzero(counts >= _MIN_TRACK_POINTS) < 2:
+            return FitFailure("fewer than 2 spherulites follow a common growth rate")
+        kept = data.subset(keep)
+        stage = _spline_stage(programme, kept, time_step_s)
+        if isinstance(stage, FitFailure):
+            return stage
+        bad = _outliers(stage.fit.fun[:kept.value.size], kept.track_of)
+        if not bad.any() or round_number == _OUTLIER_ROUNDS - 1:  # keep matches the last fit
+            break
+        keep[np.flatnonzero(keep)[bad]] = False
+    return _ramp_growth(tracks, programme, constants, data, keep, stage)
+
+
+def _ramp_growth(tracks, programme, constants, data, keep, stage):
+    temps = np.arange(math.ceil(stage.lo / _GRID_STEP_K) * _GRID_STEP_K, stage.hi + 1e-9, _GRID_STEP_K)
+    log_g, sd = _band(stage, _spline_basis(temps, stage.lo, stage.hi, stage.n_segments))
+    # spherulites are the independent units of a clustered variance: t quantile on their
+    # number less one (Bell & McCaffrey 2002, Survey Methodology 28, 169, `# from memory`)
+    z = stats.t.ppf(0.975, max(stage.model.n_tracks - 1, 1))
     to_min = math.log(60.0)
-    fitted = radius + fit.fun[:radius.size]
-    births = _births(model, fit, grid, programme)
-    track_fits = tuple(TrackFit(t.id, t.time_s, t.radius_um, fitted[track_of == k], *births[k])
-                       for k, t in enumerate(tracks))
-    lh = (_lh_fit(tracks, programme, grid, constants, time, radius, track_of, rate)
-          if constants is not None else FitFailure("no Lauritzen-Hoffman constants given"))
+    used = [k for k in range(len(tracks)) if np.any(keep & (data.track_of == k))]
+    fitted = np.full(data.value.size, np.nan)
+    fitted[keep] = stage.model.predict(stage.fit.x)
+    births = _births(stage, programme)
+    track_fits = tuple(TrackFit(tracks[k].id, tracks[k].time_s, tracks[k].radius_um,
+                                fitted[data.track_of == k], *births[j]) for j, k in enumerate(used))
+    lh = FitFailure("no Lauritzen-Hoffman constants given")
+    if constants is not None:
+        lh = _lh_fit(stage.model.grid, constants, data.subset(keep), stage.rate_um_per_s)
+    return RampGrowth(temps, np.exp(log_g + to_min), np.exp(log_g - z * sd + to_min),
+                      np.exp(log_g + z * sd + to_min), _coverage([tracks[k] for k in used], programme, temps),
+                      track_fits, lh, float(stage.lam), float(math.sqrt(stage.sigma2)),
+                      int(np.count_nonzero(keep)), tuple(_warnings(tracks, used, keep, stage.fit)))
+
+
+def _warnings(tracks, used, keep, fit) -> list[str]:
     warnings = []
+    lost = [str(t.id) for k, t in enumerate(tracks) if k not in used]
+    if lost:
+        warnings.append(f"spherulite(s) {', '.join(lost)} left out of G(T): their growth does not "
+                        "follow the common rate (merged or split territories?)")
+    n_out = int(np.count_nonzero(~keep))
+    if n_out:
+        warnings.append(f"{n_out} of {keep.size} points left out of G(T) as outliers")
     if fit.status <= 0:
         warnings.append(f"the G(T) fit did not converge ({fit.message})")
-    return RampGrowth(temps, np.exp(log_g + to_min), np.exp(log_g - z * sd + to_min),
-                      np.exp(log_g + z * sd + to_min), _coverage(tracks, programme, temps),
-                      track_fits, lh, float(lam), float(math.sqrt(sigma2)), int(radius.size),
-                      tuple(warnings))
+    return warnings

@@ -32,15 +32,16 @@ from pathlib import Path
 import numpy as np
 
 from analysis.errors import InputError
+from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["TemperatureProgramme", "ProgrammeSegment", "parse_programme", "programme_from_segments",
+           "programme_of_source",
            "read_temperature_log", "apply_sensor_lag", "MAX_GAP_FACTOR"]
 
 #: A gap longer than this many median sampling intervals (and longer than 10 s) is refused:
 #: the log lost samples and T(t) across the gap would be a guess (common practice).
 MAX_GAP_FACTOR = 10.0
 _MIN_GAP_S = 10.0
-_MAX_LOG_BYTES = 200 * 1024 * 1024
 _DELIMITERS = ("\t", ";", ",", " ")
 _TIME_FACTORS_S = {"s": 1.0, "sec": 1.0, "second": 1.0, "seconds": 1.0, "ms": 1e-3,
                    "min": 60.0, "minute": 60.0, "minutes": 60.0, "h": 3600.0, "hr": 3600.0}
@@ -85,20 +86,21 @@ class TemperatureProgramme:
                 f"span {first_s:.1f}..{last_s:.1f} s (check the clock offset)", self.path)
 
     def rate_k_per_min(self, time_s) -> np.ndarray:
-        """dT/dt of the sample, K/min (central differences of the piecewise-linear curve)."""
+        """dT/dt of the sample, K/min (central differences over ±5 log samples, which
+        averages the log's rounding and noise)."""
         t = np.asarray(time_s, dtype=float)
-        h = 0.5 * max(float(np.median(np.diff(self.time_s))), 1e-3)
+        h = 5.0 * max(float(np.median(np.diff(self.time_s))), 1e-3)
         return (self.temperature_at(t + h) - self.temperature_at(t - h)) / (2 * h) * 60.0
 
 
 # ---------------------------------------------------------------- the lag
-def apply_sensor_lag(time_s, block_c, lag_s: float) -> np.ndarray:
+def apply_sensor_lag(time_s, block_c, lag_s: float, *, start: str = "steady") -> np.ndarray:
     """Sample temperature (°C) from the block temperature through a first-order lag.
 
     Exact for a block temperature linear between samples: over a step h with slope s,
-    y(t+h) = u(t+h) − τ s + (y(t) − u(t) + τ s) e^(−h/τ). The start is taken as the
+    y(t+h) = u(t+h) − τ s + (y(t) − u(t) + τ s) e^(−h/τ). ``start``: "steady" takes the
     steady state of the first slope (y = u − τ s), so a log that begins mid-ramp has no
-    artificial transient.
+    artificial transient; "rest" starts at the block temperature (a hold before).
     """
     t, u = np.asarray(time_s, float), np.asarray(block_c, float)
     if lag_s <= 0 or t.size < 2:
@@ -107,7 +109,7 @@ def apply_sensor_lag(time_s, block_c, lag_s: float) -> np.ndarray:
     slope = np.diff(u) / h
     head = min(slope.size, max(3, int(math.ceil(3 * lag_s / float(np.median(h))))))
     y = np.empty_like(u)
-    y[0] = u[0] - lag_s * float(np.median(slope[:head]))
+    y[0] = u[0] - (lag_s * float(np.median(slope[:head])) if start == "steady" else 0.0)
     decay = np.exp(-h / lag_s)
     for i in range(h.size):  # a short recursion: one step per log sample
         y[i + 1] = u[i + 1] - lag_s * slope[i] + (y[i] - u[i] + lag_s * slope[i]) * decay[i]
@@ -157,7 +159,7 @@ def programme_from_segments(start_c: float, segments, *, start_s: float = 0.0, l
     times.append(last)
     temps.append(temps[-1])
     t, block = _dense(np.array(times), np.array(temps), lag_s)
-    return TemperatureProgramme(t, apply_sensor_lag(t, block, lag_s), "typed", None, float(lag_s),
+    return TemperatureProgramme(t, apply_sensor_lag(t, block, lag_s, start="rest"), "typed", None, float(lag_s),
                                 float(start_s))
 
 
@@ -201,25 +203,8 @@ def parse_programme(text: str) -> tuple[float, tuple[ProgrammeSegment, ...]]:
 
 
 # ---------------------------------------------------------------- the log
-def _read_text(path: Path) -> str:
-    try:
-        if not path.is_file():
-            raise InputError("temperature log is not a regular file", path)
-        if path.stat().st_size > _MAX_LOG_BYTES:
-            raise InputError(f"temperature log is larger than {_MAX_LOG_BYTES // 2**20} MB", path)
-        raw = path.read_bytes()
-    except OSError as err:
-        raise InputError(f"cannot read the temperature log ({err.strerror or err})", path) from None
-    for encoding in ("utf-8-sig", "cp1252"):
-        try:
-            return raw.decode(encoding)
-        except UnicodeDecodeError:
-            continue
-    raise InputError("temperature log is neither UTF-8 nor Windows-1252 text", path)
-
-
-def _split(line: str, delimiter: str) -> list[str]:
-    return line.split() if delimiter == " " else [f.strip().strip('"') for f in line.split(delimiter)]
+def _split(line: str, delimiter: str, line_no: int | None = None, path=None) -> list[str]:
+    return [f.strip().strip('"') for f in split_fields(line, delimiter, line_no=line_no, path=path)]
 
 
 def _is_number(text: str) -> bool:
@@ -312,7 +297,7 @@ def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit
     path = Path(path)
     if not (math.isfinite(clock_offset_s) and math.isfinite(lag_s) and lag_s >= 0):
         raise InputError("clock offset must be finite and the sensor lag non-negative", path)
-    lines = [(no, text) for no, text in enumerate(_read_text(path).splitlines(), start=1)
+    lines = [(no, text) for no, text in enumerate(read_text(path, "temperature log").splitlines(), start=1)
              if text.strip() and not text.lstrip().startswith("#")]
     if not lines:
         raise InputError("temperature log is empty", path)
@@ -337,14 +322,14 @@ def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit
 def _values(body, delimiter, width, t_index, c_index, path):
     times, temps = np.empty(len(body)), np.empty(len(body))
     for k, (line_no, text) in enumerate(body):
-        fields = _split(text, delimiter)
-        if len(fields) != width:
-            raise InputError(f"line {line_no}: {len(fields)} fields where the log has {width}", path)
+        fields = _split(text, delimiter, line_no, path)
+        check_field_count(fields, width, line_no=line_no, line=text, path=path, delimiter=delimiter)
         for role, index, out in (("time", t_index, times), ("temperature", c_index, temps)):
             try:
                 value = float(fields[index])
             except ValueError:
-                raise InputError(f"line {line_no}: {role} {fields[index]!r} is not a number", path) from None
+                raise InputError(f"line {line_no}: {role} {excerpt(fields[index])} is not a number",
+                                 path) from None
             if not math.isfinite(value):
                 raise InputError(f"line {line_no}: {role} is NaN or infinite", path)
             out[k] = value
@@ -366,3 +351,17 @@ def _check_times(times: np.ndarray, line_numbers: list[int], path) -> None:
         i = int(gaps[0]) + 1
         raise InputError(f"line {line_numbers[i]}: a gap of {steps[i - 1]:.1f} s in the log "
                          f"(usual sampling {np.median(steps):.2f} s)", path)
+
+
+def programme_of_source(source) -> TemperatureProgramme:
+    """The programme a project's ``TemperatureSource`` describes: its log (columns, units,
+    clock offset and lag as stored) or its typed programme."""
+    if source.log_file:
+        return read_temperature_log(source.log_file, time_col=source.time_col,
+                                    temperature_col=source.temperature_col, time_unit=source.time_unit,
+                                    temperature_unit=source.temperature_unit,
+                                    clock_offset_s=source.clock_offset_s, lag_s=source.lag_s)
+    if source.programme:
+        start, segments = parse_programme(source.programme)
+        return programme_from_segments(start, segments, start_s=source.clock_offset_s, lag_s=source.lag_s)
+    raise InputError("a ramp experiment needs a temperature log or a typed programme")

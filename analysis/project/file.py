@@ -38,17 +38,25 @@ from analysis import __version__
 from analysis.edits import edit_to_dict
 from analysis.errors import InputError
 from analysis.outputs import remove_stale_temporaries
-from analysis.project.model import CalorimetrySource, Experiment, Project, new_project, now_stamp
+from analysis.project.model import (
+    CalorimetrySource,
+    Experiment,
+    Project,
+    TemperatureSource,
+    new_project,
+    now_stamp,
+)
 from analysis.project.reading import project_from_document
 from analysis.textio import read_text
 from analysis.units import write_json_atomic
 
 __all__ = ["FORMAT", "SCHEMA_VERSION", "SUFFIX", "MIGRATIONS", "CalorimetrySource", "Experiment",
+           "TemperatureSource",
            "Project", "new_project", "open_experiment_stack", "load_project", "project_from_dict",
            "parse_project_json", "migrate", "project_to_dict", "save_project"]
 
 FORMAT = "spherokin-project"
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 SUFFIX = ".spherokin.json"
 
 #: Edit kinds that name a detection (their records carry ``id`` from schema 2 on).
@@ -109,11 +117,26 @@ def _v2_settings_named_as_the_analysis_reads_them(document: dict) -> dict:
     return document
 
 
+def _v3_experiments_have_a_kind(document: dict) -> dict:
+    """Schema 3 -> 4: an experiment is of kind "isothermal" (one Tc) or "ramp" (a
+    temperature programme, with a stage log or typed programme in ``temperature_source``).
+
+    Every schema-3 experiment was isothermal. The version is bumped so that an older
+    reader refuses a ramp experiment instead of analysing it as if it had one Tc.
+    """
+    for experiment in document.get("experiments") or []:
+        if isinstance(experiment, dict):
+            experiment.setdefault("kind", "isothermal")
+            experiment.setdefault("temperature_source", None)
+    return document
+
+
 #: Step migrations: ``MIGRATIONS[v]`` turns a schema-v document into schema v+1.
 #: Each function carries a docstring saying why the format changed.
 MIGRATIONS: dict[int, Callable[[dict], dict]] = {
     1: _v1_edits_name_their_detection,
     2: _v2_settings_named_as_the_analysis_reads_them,
+    3: _v3_experiments_have_a_kind,
 }
 
 
@@ -271,8 +294,19 @@ def _experiment_to_dict(e: Experiment, base: Path) -> dict:
         "geometry": e.geometry,
         "mode_override": e.mode_override,
         "calorimetry": calorimetry,
+        "kind": e.kind,
+        "temperature_source": _temperature_source_to_dict(e.temperature_source, base),
         "edits": [edit_to_dict(edit) for edit in e.edits],
     }
+
+
+def _temperature_source_to_dict(source, base: Path) -> dict | None:
+    if source is None:
+        return None
+    out = dict(source.__dict__)
+    if source.log_file:
+        out["log_file"] = _relative(source.log_file, base)
+    return out
 
 
 def save_project(project: Project, path) -> Project:

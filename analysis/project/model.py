@@ -35,8 +35,28 @@ class CalorimetrySource:
 
 
 @dataclass(frozen=True)
+class TemperatureSource:
+    """The temperature of a ramp experiment: a stage log, or a typed block programme.
+
+    Times of the log (or the programme's start) plus ``clock_offset_s`` are on the
+    recording clock; ``lag_s`` is the film's first-order lag behind the stage sensor.
+    Read it with ``analysis.kinetics.temperature_programme.programme_of_source``.
+    """
+
+    log_file: str | None = None  # absolute in memory; stored relative to the project file
+    programme: str | None = None  # "START, RATE:END, hold:SECONDS, ..."
+    time_col: str | int | None = None
+    temperature_col: str | int | None = None
+    time_unit: str | None = None
+    temperature_unit: str | None = None
+    clock_offset_s: float = 0.0
+    lag_s: float = 0.0
+
+
+@dataclass(frozen=True)
 class Experiment:
-    """One isothermal crystallization: a stack at one Tc and how to analyse it."""
+    """One crystallization run: a stack at one Tc (kind "isothermal") or along a
+    temperature programme (kind "ramp"), and how to analyse it."""
 
     name: str
     stack_path: str  # absolute in memory; stored relative to the project file
@@ -52,6 +72,8 @@ class Experiment:
     calorimetry: CalorimetrySource | None = None
     geometry: str = DEFAULT_GEOMETRY
     mode_override: str | None = None
+    kind: str = "isothermal"
+    temperature_source: TemperatureSource | None = None
 
 
 @dataclass(frozen=True)

@@ -12,13 +12,14 @@ from typing import Any
 
 from analysis.edits import edit_from_dict
 from analysis.errors import InputError
-from analysis.project.model import CalorimetrySource, Experiment, Project
+from analysis.project.model import CalorimetrySource, Experiment, Project, TemperatureSource
 from analysis.settings import (
     CALORIMETRY_SPECS,
     EXPERIMENT_SPECS,
     FRAME_TIME_SPEC,
     HW_PAIRS_KEY,
     SERIES_SPECS,
+    TEMPERATURE_SOURCE_SPECS,
     AnalysisSettings,
     Place,
     Spec,
@@ -30,7 +31,9 @@ from analysis.settings import (
 
 #: Top-level keys besides ``experiments`` and ``series``.
 _PROJECT_TEXT_KEYS = ("format", "schema_version", "app_version", "created", "modified")
-_EXPERIMENT_OTHER_KEYS = ("name", "stack", "notes", "times_s", "settings", "edits", "calorimetry")
+_EXPERIMENT_OTHER_KEYS = ("name", "stack", "notes", "times_s", "settings", "edits", "calorimetry",
+                          "temperature_source")
+_TEMPERATURE_SOURCE_OTHER_KEYS = ("log_file", "time_col", "temperature_col")
 _CALORIMETRY_OTHER_KEYS = ("file", "time_col", "heat_flow_col", "window")
 #: Most frames a stored frame-time list may hold (a week at 1 frame/s is 6e5).
 MAX_FRAME_TIMES = 10_000_000
@@ -95,8 +98,26 @@ def _experiment(d: Any, position: int, base: Path, project: Place) -> Experiment
                                             section="settings"),
         edits=tuple(edit_from_dict(e, path=project.path) for e in edits),
         calorimetry=_calorimetry(d.get("calorimetry"), base, place.within("calorimetry")),
+        temperature_source=_temperature_source(d.get("temperature_source"), base,
+                                               place.within("temperature_source")),
         **values,
     )
+
+
+def _temperature_source(d: Any, base: Path, place: Place) -> TemperatureSource | None:
+    if d is None:
+        return None
+    if not isinstance(d, dict):
+        raise place.error("", f"must be an object, got {type(d).__name__}")
+    _refuse_unknown(d, (*_TEMPERATURE_SOURCE_OTHER_KEYS, *(s.key for s in TEMPERATURE_SOURCE_SPECS)), place)
+    values = _checked(d, TEMPERATURE_SOURCE_SPECS, place)
+    log_file = _text(d.get("log_file"), "log_file", place, optional=True)
+    if not log_file and not values.get("programme"):
+        raise place.error("log_file", "is missing: a ramp needs a temperature log or a typed programme")
+    return TemperatureSource(log_file=None if not log_file else _resolve(log_file, base),
+                             time_col=_column(d.get("time_col"), "time_col", place),
+                             temperature_col=_column(d.get("temperature_col"), "temperature_col", place),
+                             **values)
 
 
 def _calorimetry(d: Any, base: Path, place: Place) -> CalorimetrySource | None:

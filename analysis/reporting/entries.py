@@ -30,8 +30,9 @@ from analysis.kinetics.lauritzen_hoffman import LHConstants
 from analysis.outputs import clean_text
 from analysis.reporting.tables import ReportEntry
 
-__all__ = ["calorimetry_source", "experiment_calorimetry", "experiment_entry",
-           "lauritzen_hoffman_inputs", "material_for", "report_entry", "series_constants"]
+__all__ = ["RAMP_POINT_STEP_K", "calorimetry_source", "experiment_calorimetry", "experiment_entry",
+           "lauritzen_hoffman_inputs", "lauritzen_hoffman_sources", "material_for", "report_entry",
+           "series_constants"]
 
 
 def _analyze_source(source):
@@ -72,13 +73,13 @@ def experiment_calorimetry(experiment, project_material: str | None, analyze=Non
 
 
 def experiment_entry(experiment, result, calorimetry=None,
-                     calorimetry_problem: str | None = None) -> ReportEntry:
+                     calorimetry_problem: str | None = None, ramp=None) -> ReportEntry:
     """The entry of an analysed experiment: its name (control characters removed), result,
     the experiment's geometry, mode override, Tc and film thickness (the result's where the
     experiment sets none), and the given calorimetry result."""
     return ReportEntry(clean_text(experiment.name), result, experiment.geometry, experiment.mode_override,
                        calorimetry, calorimetry_problem, temperature_c=experiment.temperature_c,
-                       thickness_um=experiment.thickness_um)
+                       thickness_um=experiment.thickness_um, ramp=ramp)
 
 
 def report_entry(experiment, result, project_material: str | None, analyze=None) -> ReportEntry:
@@ -115,13 +116,39 @@ def series_constants(series: dict | None, material: str | None, path=None) -> tu
     return LHConstants(float(tm0), float(tg), **optional), note
 
 
-def lauritzen_hoffman_inputs(entries) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
-    """Tc (°C), pooled G (µm/min) and its 95 % half-width of the entries that have both a
-    temperature and a positive G; the half-widths are None unless every one is known and
-    positive (the fit is then weighted by them)."""
-    usable = [e for e in entries if e.temperature_c is not None and e.result.growth_rate.value]
-    tc = np.array([e.temperature_c for e in usable], dtype=float)
-    g = np.array([e.result.growth_rate.value for e in usable], dtype=float)
-    half = [e.growth_rate_ci95_half_width for e in usable]
+#: Spacing of the points a ramp's smooth G(T) gives the Tc-series fit, K.
+RAMP_POINT_STEP_K = 2.0
+
+
+def _lh_rows(entries, include_ramps: bool) -> list[tuple]:
+    """(Tc, G, half-width or None, source) of every point the Tc-series fit takes."""
+    from analysis.kinetics.ramp import ramp_points
+
+    rows = [(e.temperature_c, e.result.growth_rate.value, e.growth_rate_ci95_half_width, "isothermal")
+            for e in entries if e.ramp is None and e.temperature_c is not None and e.result.growth_rate.value]
+    for e in entries:
+        if include_ramps and e.ramp is not None and e.ramp.growth:
+            rows += [(float(t), float(g), float(h), f"ramp: {e.name}")
+                     for t, g, h in zip(*ramp_points(e.ramp.growth, step_k=RAMP_POINT_STEP_K))]
+    return rows
+
+
+def lauritzen_hoffman_inputs(entries, *, include_ramps: bool = False
+                             ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """Tc (°C), pooled G (µm/min) and its 95 % half-width of the isothermal entries that have
+    both a temperature and a positive G; the half-widths are None unless every one is known
+    and positive (the fit is then weighted by them). With ``include_ramps`` every ramp
+    entry's smooth G(T) adds a point every RAMP_POINT_STEP_K kelvin (its band's half-width);
+    those points are not independent of each other (one smooth curve)."""
+    rows = _lh_rows(entries, include_ramps)
+    tc = np.array([r[0] for r in rows], dtype=float)
+    g = np.array([r[1] for r in rows], dtype=float)
+    half = [r[2] for r in rows]
     ci = None if any(h is None or h <= 0 for h in half) else np.array(half, dtype=float)
     return tc, g, ci
+
+
+def lauritzen_hoffman_sources(entries, *, include_ramps: bool = False) -> list[str]:
+    """Where each point of :func:`lauritzen_hoffman_inputs` comes from ("isothermal" or
+    "ramp: <experiment>"), in the same order."""
+    return [r[3] for r in _lh_rows(entries, include_ramps)]

@@ -73,8 +73,11 @@ def growth_rate_figure(entries):
     return fig
 
 
-def lauritzen_hoffman_figure(lh):
-    """ln G + U*/(R(T - T_inf)) against 1/(T dT f), fitted regime lines and the break."""
+def lauritzen_hoffman_figure(lh, sources=None):
+    """ln G + U*/(R(T - T_inf)) against 1/(T dT f), fitted regime lines and the break.
+
+    ``sources``: one label per point; points whose label starts with "ramp" are drawn
+    as open diamonds (smooth G(T) of a ramp), the others as filled circles."""
     from analysis.kinetics.lauritzen_hoffman import lh_coordinates
 
     fig, ax = _figure()
@@ -83,8 +86,13 @@ def lauritzen_hoffman_figure(lh):
     yerr = None
     if lh.ci95_um_per_min is not None:
         yerr = lh.ci95_um_per_min / lh.g_um_per_min
-    ax.errorbar(x * scale, y, yerr=yerr, fmt="o", ms=3.5, color="0.15", elinewidth=0.7, capsize=2,
-                label="data")
+    ramp = np.array([str(s).startswith("ramp") for s in sources]) if sources is not None and \
+        len(sources) == x.size else np.zeros(x.size, bool)
+    for mask, marker, face, label in ((~ramp, "o", "0.15", "isothermal"), (ramp, "D", "none", "ramp")):
+        if mask.any():
+            ax.errorbar(x[mask] * scale, y[mask], yerr=None if yerr is None else yerr[mask], fmt=marker,
+                        ms=3.5, color="0.15", mfc=face, elinewidth=0.7, capsize=2,
+                        label=label if ramp.any() else "data")
     for i, regime in enumerate(lh.regimes):
         t = np.linspace(regime.t_low_c, regime.t_high_c, 50)
         xs, y0 = lh_coordinates(t, np.ones_like(t), lh.constants)

@@ -21,7 +21,7 @@ from ``analysis.reporting.entries``, which the application's pages use too.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -36,10 +36,19 @@ from analysis.kinetics.lauritzen_hoffman import (
 )
 from analysis.progress import Progress, run_to_completion, scaled
 from analysis.settings import HW_PAIRS_KEY
+
+#: Series flag that adds the ramps' G(T) to the Lauritzen-Hoffman fit.
+RAMPS_IN_LH_KEY = "lh_include_ramps"
 from analysis.reporting import figures
 from analysis.kinetics.prediction import film_avrami_fit, film_conversion
-from analysis.reporting.entries import lauritzen_hoffman_inputs, report_entry, series_constants
+from analysis.reporting.entries import (
+    lauritzen_hoffman_inputs,
+    lauritzen_hoffman_sources,
+    report_entry,
+    series_constants,
+)
 from analysis.reporting.tables import (
+    Table,
     comparison_table,
     growth_vs_temperature_table,
     write_csv,
@@ -47,7 +56,7 @@ from analysis.reporting.tables import (
 )
 from analysis.units import write_json_atomic
 
-__all__ = ["HW_PAIRS_KEY", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
+__all__ = ["HW_PAIRS_KEY", "RAMPS_IN_LH_KEY", "ramp_of_experiment", "ReportSummary", "build_report", "checked_hoffman_weeks_pairs",
            "project_entries_iter", "report_project", "report_project_iter"]
 
 
@@ -59,11 +68,11 @@ class ReportSummary:
     problems: tuple[str, ...] = field(default=())
 
 
-def _lauritzen_hoffman(entries, constants, material, problems):
+def _lauritzen_hoffman(entries, constants, material, problems, include_ramps=False):
     if constants is None:
         problems.append("Lauritzen-Hoffman fit skipped: no Tm0 and Tg for the series")
         return None
-    tc, g, ci = lauritzen_hoffman_inputs(entries)
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include_ramps)
     if np.unique(tc).size < 3:
         problems.append("Lauritzen-Hoffman fit skipped: fewer than 3 temperatures with a growth rate")
         return None
@@ -90,7 +99,7 @@ def _avrami_curves(entries):
     return micro, dsc
 
 
-def _write_figures(entries, lh, out: Path) -> list[Path]:
+def _write_figures(entries, lh, out: Path, sources=None) -> list[Path]:
     micro, dsc = _avrami_curves(entries)
     made = [
         ("growth_rate_vs_temperature", figures.growth_rate_figure(entries)),
@@ -99,7 +108,7 @@ def _write_figures(entries, lh, out: Path) -> list[Path]:
         ("conversion_comparison", figures.conversion_comparison_figure(entries)),
     ]
     if lh is not None:
-        made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh)))
+        made.append(("lauritzen_hoffman", figures.lauritzen_hoffman_figure(lh, sources)))
     paths = []
     for stem, fig in made:
         paths.extend(figures.save_figure(fig, out / stem))
@@ -126,33 +135,80 @@ def _hoffman_weeks(pairs, out: Path, problems: list) -> list[Path]:
 
 def build_report(entries, out_dir, *, constants: LHConstants | None = None,
                  material: str | None = None, problems=(),
-                 hoffman_weeks_pairs=None) -> ReportSummary:
+                 hoffman_weeks_pairs=None, include_ramps: bool = False) -> ReportSummary:
     """Write every table, fit and figure for ready entries (see module doc).
 
     ``hoffman_weeks_pairs``: optional [(Tc, Tm), ...] in deg C for ``hoffman_weeks.json``.
+    Entries of ramp experiments write their own files, prefixed ``ramp_<name>_``; with
+    ``include_ramps`` their G(T) also enters the Lauritzen-Hoffman fit (points listed with
+    their source in ``lauritzen_hoffman_points.csv``).
     """
     entries = list(entries)
     if not entries:
         raise InputError("the project has no analysable experiment; nothing to report")
     with staged_outputs(out_dir) as stage:
         files, lh, problems = _write_report_files(entries, stage, constants, material,
-                                                  list(problems), hoffman_weeks_pairs)
+                                                  list(problems), hoffman_weeks_pairs, include_ramps)
     out = Path(out_dir)
     return ReportSummary(str(out), tuple(str(out / Path(f).name) for f in files), lh, tuple(problems))
 
 
-def _write_report_files(entries, out: Path, constants, material, problems, hoffman_weeks_pairs):
+def _write_report_files(entries, out: Path, constants, material, problems, hoffman_weeks_pairs,
+                        include_ramps=False):
+    files = _write_ramps(entries, out)
+    lh = _lauritzen_hoffman(entries, constants, material, problems, include_ramps)
+    sources = lauritzen_hoffman_sources(entries, include_ramps=include_ramps)
+    entries = [e for e in entries if e.ramp is None]  # a ramp has no single Tc for these tables
     growth, comparison = growth_vs_temperature_table(entries), comparison_table(entries)
-    files = [write_csv(growth, out / "growth_vs_temperature.csv"),
-             write_csv(comparison, out / "kinetics_comparison.csv"),
-             write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
-                        out / "growth_vs_temperature.xlsx")]
-    lh = _lauritzen_hoffman(entries, constants, material, problems)
+    files += [write_csv(growth, out / "growth_vs_temperature.csv"),
+              write_csv(comparison, out / "kinetics_comparison.csv"),
+              write_xlsx({"growth_vs_temperature": growth, "kinetics_comparison": comparison},
+                         out / "growth_vs_temperature.xlsx")]
     if lh is not None:
         files.append(write_secondary_nucleation(lh, out))
-    files.extend(_write_figures(entries, lh, out))
+        if include_ramps:
+            files.append(write_csv(_lh_points_table(lh, sources), out / "lauritzen_hoffman_points.csv"))
+    files.extend(_write_figures(entries, lh, out, sources))
     files.extend(_hoffman_weeks(hoffman_weeks_pairs, out, problems))
     return files, lh, problems
+
+
+def _lh_points_table(lh, sources) -> Table:
+    """The points of the Tc-series fit with their source (isothermal or which ramp)."""
+    ci = lh.ci95_um_per_min if lh.ci95_um_per_min is not None else [None] * len(lh.tc_c)
+    rows = [[float(t), float(g), None if c is None else float(c), src]
+            for t, g, c, src in zip(lh.tc_c, lh.g_um_per_min, ci, sources)]
+    return Table(["temperature_c", "growth_rate_um_per_min", "ci95_um_per_min", "source"], rows)
+
+
+def _write_ramps(entries, out: Path) -> list[Path]:
+    """Each ramp experiment's G(T), N(T), ramp.json and figures, prefixed by its name."""
+    from analysis.reporting.ramp_outputs import write_ramp_outputs
+
+    files = []
+    for e in entries:
+        if e.ramp is not None:
+            prefix = f"ramp_{_file_stem(e.name)}_"
+            files += [out / name for name in write_ramp_outputs(e.ramp, out, prefix=prefix)]
+    return files
+
+
+def _file_stem(name: str) -> str:
+    stem = "".join(c if c.isalnum() or c in "-_" else "_" for c in name).strip("_")
+    return stem[:60] or "experiment"
+
+
+def ramp_of_experiment(experiment, analysis, project):
+    """The ramp analysis of an experiment of kind "ramp" (InputError without a usable
+    temperature source); the series' LH constants give the direct Kg fit."""
+    from analysis.kinetics.ramp import analyze_ramp
+    from analysis.kinetics.temperature_programme import programme_of_source
+
+    if experiment.temperature_source is None:
+        raise InputError("a ramp experiment needs a temperature log or a typed programme")
+    constants, _ = series_constants(project.series, project.material, project.path)
+    return analyze_ramp(analysis, programme_of_source(experiment.temperature_source), constants=constants,
+                        time_offset_s=experiment.isothermal_start_s or 0.0)
 
 
 def project_entries_iter(project):
@@ -169,6 +225,12 @@ def project_entries_iter(project):
             problems.append(f"{exp.name}: skipped ({err})")
             continue
         entry = report_entry(exp, analysis.result, project.material)
+        if exp.kind == "ramp":
+            try:
+                entry = replace(entry, ramp=ramp_of_experiment(exp, analysis, project))
+            except InputError as err:
+                problems.append(f"{exp.name}: skipped ({err})")
+                continue
         if entry.calorimetry_problem:
             problems.append(f"{exp.name}: calorimetry skipped ({entry.calorimetry_problem})")
         entries.append(entry)
@@ -209,7 +271,8 @@ def report_project_iter(project, out_dir):
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, out_dir, constants=constants, material=project.material,
                            problems=problems,
-                           hoffman_weeks_pairs=pairs)
+                           hoffman_weeks_pairs=pairs,
+                           include_ramps=bool((project.series or {}).get(RAMPS_IN_LH_KEY, False)))
     yield Progress("writing report", 1.0)
     return summary
 

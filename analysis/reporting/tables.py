@@ -65,6 +65,7 @@ class ReportEntry:
     calorimetry_problem: str | None = None
     temperature_c: float | None = None
     thickness_um: float | None = None
+    ramp: object | None = None  # kinetics.ramp.RampAnalysis for an experiment of kind "ramp"
 
     def __post_init__(self):
         if self.temperature_c is None:
@@ -85,8 +86,7 @@ class ReportEntry:
     @property
     def growth_rate_ci95_half_width(self) -> float | None:
         """Half the width of the pooled G's 95 % interval, µm/min (None if unknown)."""
-        g = self.result.growth_rate
-        return None if g.ci95_low is None or g.ci95_high is None else (g.ci95_high - g.ci95_low) / 2.0
+        return self.result.growth_rate.ci95_half_width
 
     def prediction_inputs(self, geometry: str | None = None) -> PredictionInputs:
         """What enters this entry's prediction (``geometry`` defaults to the entry's)."""

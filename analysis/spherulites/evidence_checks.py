@@ -80,13 +80,14 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
                 f"±{uncertainty:.0f} px: it cannot be placed inside or outside")
     if fit.n_levels < rules.reject_min_levels:
         return f"grows over only {fit.n_levels} frames (at least {rules.reject_min_levels} needed)"
+    if sph.status == "nonlinear":
+        return ""  # its radius is not linear in time (a ramp, diffusion): the cone's slope is no G
     if math.isfinite(slope) and abs(slope / fit.slope_s_per_px - 1) > rules.reject_max_slope_deviation:
         return (f"grows at {100 * (slope / fit.slope_s_per_px - 1):+.0f} % of the field's growth rate: "
                 "not a spherulite at this temperature (dust, a bubble or noise)")
     floor = max(typical, 0.25 * interval_s) if math.isfinite(typical) else 0.25 * interval_s
-    # A curved r(t) (status nonlinear, from its own radius series) leaves large cone residuals too.
     short_lived = fit.n_levels < 2 * rules.reject_min_levels
-    if short_lived and sph.status != "nonlinear" and ev.residual_s > rules.reject_residual_ratio * floor:
+    if short_lived and ev.residual_s > rules.reject_residual_ratio * floor:
         return (f"its pixels do not follow one growing front (residuals {ev.residual_s / floor:.1f}× "
                 "the field's typical)")
     return ""
@@ -99,11 +100,11 @@ def _phantom_check(k, sph, ev: Evidence, items, interval_s: float):
     ``phantom_margin_intervals`` frame intervals after its fitted nucleation time, its
     'cone' is the seam where fronts met, not a nucleus."""
     fit = ev.fit
-    if not fit.ok or sph.status == "rejected" or not ev.automatic or ev.user_included:
+    if not fit.ok or sph.status in ("rejected", "nonlinear") or not ev.automatic or ev.user_included:
         return sph
     margin = heuristics.current().phantom_margin_intervals * interval_s
     for j, (other, oe) in enumerate(items):
-        if j == k or not oe.fit.ok or other.status == "rejected":
+        if j == k or not oe.fit.ok or other.status in ("rejected", "nonlinear"):
             continue
         reached = oe.fit.t0_s + oe.fit.slope_s_per_px * math.hypot(fit.x_px - oe.fit.x_px, fit.y_px - oe.fit.y_px)
         if reached < fit.t0_s + margin:
@@ -116,7 +117,7 @@ def _phantom_check(k, sph, ev: Evidence, items, interval_s: float):
 def _duplicates(items, interval_s: float) -> dict[int, int]:
     """{id: id of the stronger twin} for fitted detections describing the same front."""
     rules = heuristics.current()
-    fitted = [(s, e) for s, e in items if e.fit.ok and s.status != "rejected" and e.x.size]
+    fitted = [(s, e) for s, e in items if e.fit.ok and s.status not in ("rejected", "nonlinear") and e.x.size]
     twin = {}
     for i, (a, ea) in enumerate(fitted):
         for b, eb in fitted[i + 1:]:

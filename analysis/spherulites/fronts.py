@@ -111,3 +111,40 @@ def _row_nanmedian(values: np.ndarray) -> np.ndarray:
     rows = np.arange(values.shape[0])
     low, high = np.maximum((count - 1) // 2, 0), np.maximum(count // 2, 0)
     return 0.5 * (ordered[rows, low] + ordered[rows, high])
+
+
+def area_radii(x, y, frame_index, labels: np.ndarray, label: int, cx: float, cy: float,
+               n_frames: int, *, n_sectors: int = 36, margin_px: float = 2.0,
+               min_free_sectors: int = 3) -> np.ndarray:
+    """Radius per frame (px, NaN where not measured) from the crystallised *area* per sector.
+
+    In a sector of angle Δθ a front at radius R encloses Δθ R²/2 pixels, so each free
+    sector gives R = sqrt(2 n / Δθ) from its count n of pixels crystalline by the frame;
+    the frame's radius is the median over sectors still growing freely (as in
+    :func:`front_radii`). The farthest pixel of a sector falls short of the front by
+    about 1/(R Δθ) px, a bias that shrinks as R grows and so reads as extra growth;
+    a pixel count has no such bias, and the median ignores the sectors along the
+    extinction cross, whose pixels are found late.
+    """
+    frames = np.asarray(frame_index, dtype=int)
+    dx, dy = np.asarray(x, float) - cx, np.asarray(y, float) - cy
+    inside = (frames >= 0) & (frames < n_frames)
+    frames, dx, dy = frames[inside], dx[inside], dy[inside]
+    radius = np.full(n_frames, np.nan)
+    if frames.size == 0:
+        return radius
+    dist = np.hypot(dx, dy)
+    sector = _sector_of(dx, dy, n_sectors)
+    blocked = blocked_distance(labels, label, cx, cy, n_sectors=n_sectors, reach_px=float(dist.max()) + 3.0)
+    reach = np.full((n_frames, n_sectors), np.nan)
+    np.fmax.at(reach, (frames, sector), dist)
+    reach = np.fmax.accumulate(reach, axis=0)
+    count = np.zeros((n_frames, n_sectors))
+    np.add.at(count, (frames, sector), 1.0)
+    equivalent = np.sqrt(2.0 * np.cumsum(count, axis=0) / (2 * np.pi / n_sectors))
+    free = reach < (blocked[None, :] - margin_px)
+    counted = np.where(free & (count.cumsum(axis=0) > 0), equivalent, np.nan)
+    enough = np.sum(np.isfinite(counted), axis=1) >= min_free_sectors
+    if enough.any():
+        radius[enough] = _row_nanmedian(counted[enough])
+    return radius

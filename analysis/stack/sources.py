@@ -170,6 +170,41 @@ def _natural_key(name: str):
     return [int(part) if part.isdigit() else part.lower() for part in re.split(r"(\d+)", name)]
 
 
+#: Largest single image of a folder stack that is decoded (8192 x 8192 px). Its size is
+#: read from the PNG or TIFF header first, so a small file declaring a huge image is
+#: refused before any memory is taken; larger frames belong in a TIFF stack, whose
+#: analysis is checked against the memory budget (analysis.stack.budget).
+MAX_FOLDER_FRAME_PIXELS = 2**26
+_PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+
+
+def _declared_pixels(file: Path) -> tuple[int, int] | None:
+    """(width, height) from a PNG or TIFF header without decoding; None for other formats."""
+    suffix = file.suffix.lower()
+    if suffix == ".png":
+        with open(file, "rb") as stream:
+            head = stream.read(24)
+        if len(head) == 24 and head.startswith(_PNG_SIGNATURE) and head[12:16] == b"IHDR":
+            return int.from_bytes(head[16:20], "big"), int.from_bytes(head[20:24], "big")
+        return None
+    if suffix in TIFF_SUFFIXES:
+        try:
+            with tifffile.TiffFile(file) as tif:
+                page = tif.pages[0]
+                return int(page.imagewidth), int(page.imagelength)
+        except Exception:  # unreadable: the decoder's own error names it
+            return None
+    return None
+
+
+def _check_declared_size(file: Path) -> None:
+    size = _declared_pixels(file)
+    if size is not None and size[0] * size[1] > MAX_FOLDER_FRAME_PIXELS:
+        raise InputError(f"image of {size[0]} x {size[1]} px is larger than the "
+                         f"{MAX_FOLDER_FRAME_PIXELS / 1e6:.0f} Mpx limit for one frame of a "
+                         "folder (save large frames as a TIFF stack)", file)
+
+
 class FolderSource:
     """A folder of single-frame images in natural sort order (frame2 before frame10)."""
 
@@ -203,6 +238,7 @@ class FolderSource:
             self.read(self.count - 1)
 
     def _read_file(self, file: Path) -> np.ndarray:
+        _check_declared_size(file)
         try:
             if file.suffix.lower() in TIFF_SUFFIXES:
                 frame = tifffile.imread(file, key=0)

@@ -154,7 +154,7 @@ def growth_clock(params: RampParams, stack: StackParams, end_s: float) -> Growth
     start = min(params.programme_start_s, 0.0)
     t = np.arange(start, end_s + _STEP_S, _STEP_S)
     block = block_programme(params, end_s)
-    film = apply_sensor_lag(t, block.temperature_at(t), params.lag_s)
+    film = apply_sensor_lag(t, block.temperature_at(t), params.lag_s, start="rest")
     g_px_per_s = true_growth_rate(params, film) / 60.0 / stack.um_per_px
     s = np.concatenate([[0.0], np.cumsum(0.5 * (g_px_per_s[1:] + g_px_per_s[:-1]) * np.diff(t))])
     s += np.arange(s.size) * 1e-12  # strictly increasing for the inverse

@@ -25,6 +25,8 @@ from typing import Any
 
 from PySide6.QtCore import QObject, QTimer, Signal
 
+from app.core.errors import failure_line
+
 SIDE_SUFFIX = ".autosave"
 AUTOSAVE_INTERVAL_MS = 60_000
 
@@ -148,8 +150,8 @@ class Autosaver(QObject):
         try:
             target.parent.mkdir(parents=True, exist_ok=True)
             save_project(self._model.project, target)
-        except Exception as exc:  # autosave must never disturb the user's session
-            self.autosave_failed.emit(f"{target}: autosave failed ({exc})")
+        except Exception as exc:  # autosave must never disturb the session; a bug is logged
+            self.autosave_failed.emit(f"{target}: autosave failed ({failure_line(exc, 'autosave')})")
             return None
         if self._written is not None and self._written != target:
             self._written.unlink(missing_ok=True)

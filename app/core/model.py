@@ -14,7 +14,7 @@ from __future__ import annotations
 import dataclasses
 import os
 from dataclasses import dataclass
-from typing import Any, Iterable
+from typing import TYPE_CHECKING, Any, Iterable
 
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
@@ -25,6 +25,10 @@ from app.core.commands import (
     ReplaceExperimentCommand,
     ReplaceProjectFieldsCommand,
 )
+from app.core.engine import AnalysisEngine, PipelineEngine
+
+if TYPE_CHECKING:
+    from analysis.spherulites.pipeline import Analysis
 
 #: Experiment fields that do not change what the frame pass computes.
 _NON_RECIPE_FIELDS = {"name", "notes", "edits", "calorimetry", "mode_override"}
@@ -44,7 +48,7 @@ STATUS_CANCELLED = "cancelled"
 class AnalysisEntry:
     """What the model knows about the analysis of one experiment."""
 
-    analysis: Any = None  # analysis.spherulites.pipeline.Analysis, edits applied
+    analysis: Analysis | None = None  # edits applied
     status: str = STATUS_NOT_RUN
     message: str = ""  # the error of a failed run, or a progress stage
 
@@ -79,9 +83,13 @@ class ProjectModel(QObject):
     dirty_changed = Signal(bool)
     path_changed = Signal(str)
     problem_reported = Signal(str, str)  # title, one-line message (shown in a dialog)
+    error_raised = Signal(str, object)  # title, the exception (app.core.errors chooses the dialog)
 
-    def __init__(self, project: Any = None, parent: QObject | None = None):
+    def __init__(self, project: Any = None, parent: QObject | None = None, *,
+                 engine: AnalysisEngine | None = None):
         super().__init__(parent)
+        #: The analysis behind the model (and its runner): the seam tests replace.
+        self.engine: AnalysisEngine = engine or PipelineEngine()
         self.undo_stack = QUndoStack(self)
         self.undo_stack.cleanChanged.connect(self._on_clean_changed)
         self._project = project if project is not None else new_empty_project()
@@ -110,7 +118,7 @@ class ProjectModel(QObject):
     def experiments(self) -> tuple:
         return tuple(self._project.experiments)
 
-    def analysis(self, index: int) -> Any:
+    def analysis(self, index: int) -> Analysis | None:
         """The cached ``Analysis`` of experiment ``index`` (edits applied), or None."""
         return self._entries[index].analysis
 
@@ -232,17 +240,15 @@ class ProjectModel(QObject):
         entry.status, entry.message = status, message
         self.status_changed.emit(index)
 
-    def set_analysis(self, index: int, analysis: Any, analysed: Any) -> None:
+    def set_analysis(self, index: int, analysis: Analysis, analysed: Any) -> None:
         """Store a finished analysis of ``analysed`` (the experiment as it was at start).
 
         Edits made while the analysis ran are applied now; a recipe changed in the
         meantime marks the result out of date rather than discarding it.
         """
-        from analysis.spherulites.pipeline import apply_edits
-
         current = self.experiment(index)
         if tuple(analysed.edits) != tuple(current.edits):
-            analysis = apply_edits(analysis, tuple(current.edits))
+            analysis = self.engine.apply_edits(analysis, tuple(current.edits))
         entry = self._entries[index]
         entry.analysis = analysis
         stale = recipe_of(analysed) != recipe_of(current)
@@ -312,14 +318,12 @@ class ProjectModel(QObject):
         self.analysis_updated.emit(index)
 
     def _reapply_edits(self, index: int, experiment: Any) -> None:
-        from analysis.spherulites.pipeline import apply_edits
-
         entry = self._entries[index]
         try:
-            entry.analysis = apply_edits(entry.analysis, tuple(experiment.edits))
-        except Exception as exc:  # the edit list is kept; only the refresh failed
-            entry.status, entry.message = STATUS_FAILED, str(exc)
-            self.problem_reported.emit("Could not apply the edits", f"{experiment.name}: {exc}")
+            entry.analysis = self.engine.apply_edits(entry.analysis, tuple(experiment.edits))
+        except Exception as exc:  # the edit list is kept; only the refresh failed (bad input or bug:
+            entry.status, entry.message = STATUS_FAILED, str(exc)  # the error dialog tells which)
+            self.error_raised.emit(f"Could not apply the edits of {experiment.name}", exc)
 
     def _insert_experiment(self, index: int, experiment: Any, entry: Any) -> None:
         experiments = list(self._project.experiments)

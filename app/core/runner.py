@@ -12,15 +12,11 @@ from typing import Any, Iterable
 from PySide6.QtCore import QObject, QThreadPool, Signal
 
 from app.core import model as m
+from app.core.engine import AnalysisEngine
+from app.core.errors import failure_line, one_line
 from app.core.worker import GeneratorWorker
 
 PROGRESS_INTERVAL_S = 0.05
-
-
-def _analyze_experiment_iter(experiment: Any):
-    from analysis.spherulites.pipeline import analyze_experiment_iter
-
-    return analyze_experiment_iter(experiment)
 
 
 class AnalysisRunner(QObject):
@@ -29,13 +25,15 @@ class AnalysisRunner(QObject):
     progressed = Signal(int, object)  # experiment index, analysis.progress.Progress
     experiment_finished = Signal(int)
     experiment_failed = Signal(int, str)  # index, one-line message
+    experiment_errored = Signal(int, object)  # index, the exception (for app.core.errors)
     all_finished = Signal()
     busy_changed = Signal(bool)
 
     def __init__(self, model: "m.ProjectModel", pool: QThreadPool | None = None,
-                 parent: QObject | None = None):
+                 parent: QObject | None = None, *, engine: AnalysisEngine | None = None):
         super().__init__(parent)
         self._model = model
+        self._engine: AnalysisEngine = engine or model.engine
         self._pool = pool or QThreadPool.globalInstance()
         self._queue: list[int] = []
         self._worker: GeneratorWorker | None = None
@@ -82,17 +80,20 @@ class AnalysisRunner(QObject):
         return self._worker.wait(timeout_s) if self._worker is not None else True
 
     def run_sync(self, indices: Iterable[int]) -> list[str]:
-        """Analyse in the calling thread (screenshots, scripts): returns error lines."""
+        """Analyse in the calling thread (screenshots, scripts): returns error lines.
+
+        A bug (anything but bad input) is logged with its traceback, and its line says so.
+        """
         from analysis.progress import run_to_completion
 
         problems = []
         for index in indices:
             experiment = self._model.experiment(index)
             try:
-                analysis = run_to_completion(_analyze_experiment_iter(experiment))
-            except Exception as exc:
-                self._model.set_status(index, m.STATUS_FAILED, str(exc))
-                problems.append(f"{experiment.name}: {exc}")
+                analysis = run_to_completion(self._engine.analyze_iter(experiment))
+            except Exception as exc:  # reported either way; a bug is logged as one
+                self._model.set_status(index, m.STATUS_FAILED, one_line(exc))
+                problems.append(f"{experiment.name}: {failure_line(exc, 'analysis')}")
                 continue
             self._model.set_analysis(index, analysis, experiment)
         return problems
@@ -109,7 +110,7 @@ class AnalysisRunner(QObject):
         self._running_index, self._running_experiment = index, experiment
         self._last_stage, self._last_emit_s = None, 0.0
         self._model.set_status(index, m.STATUS_RUNNING, "starting")
-        worker = GeneratorWorker(lambda: _analyze_experiment_iter(experiment))
+        worker = GeneratorWorker(lambda: self._engine.analyze_iter(experiment))
         worker.signals.yielded.connect(self._on_progress)
         worker.signals.returned.connect(self._on_returned)
         worker.signals.errored.connect(self._on_errored)
@@ -135,7 +136,7 @@ class AnalysisRunner(QObject):
             return
         try:
             self._model.set_analysis(index, analysis, self._running_experiment)
-        except Exception as exc:
+        except Exception as exc:  # replaying edits made during the run failed: same report
             self._on_errored(exc)
             return
         self.experiment_finished.emit(index)
@@ -144,8 +145,9 @@ class AnalysisRunner(QObject):
         index = self._running_index
         if index < 0:
             return
-        self._model.set_status(index, m.STATUS_FAILED, str(exc))
-        self.experiment_failed.emit(index, f"{self._model.experiment(index).name}: {exc}")
+        self._model.set_status(index, m.STATUS_FAILED, one_line(exc))
+        self.experiment_failed.emit(index, f"{self._model.experiment(index).name}: {one_line(exc)}")
+        self.experiment_errored.emit(index, exc)
 
     def _on_aborted(self) -> None:
         if self._running_index >= 0:
@@ -177,3 +179,4 @@ class AnalysisRunner(QObject):
         if self._running_index >= first:
             self._running_index += count
         self._queue = [i + count if i >= first else i for i in self._queue]
+

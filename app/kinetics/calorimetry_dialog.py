@@ -20,7 +20,12 @@ import os
 from PySide6 import QtCore, QtWidgets
 
 from analysis.errors import InputError
-from analysis.kinetics.calorimetry import analyze_source, header_mismatches, sniff_calorimetry_file
+from analysis.kinetics.calorimetry import (
+    HeaderCheck,
+    analyze_source,
+    check_header,
+    sniff_calorimetry_file,
+)
 from analysis.kinetics.materials import list_materials
 from analysis.project.file import CalorimetrySource
 
@@ -40,9 +45,10 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         self._current = current if current is not None and current.file == self.path else None
         self._instrument = current  # lag, exotherm and material carry over to a new file
         self._source: CalorimetrySource | None = None
-        self.mismatches = () if experiment is None else header_mismatches(
+        self.header = HeaderCheck() if experiment is None else check_header(
             self.preview, temperature_c=experiment.temperature_c, experiment_name=experiment.name,
             mass_mg=current.mass_mg if current is not None else None)
+        self.mismatches = self.header.conflicts
         self._build()
         self._fill_from(self._current)
 
@@ -70,13 +76,14 @@ class CalorimetryMappingDialog(QtWidgets.QDialog):
         buttons.rejected.connect(self.reject)
         layout = QtWidgets.QVBoxLayout(self)
         layout.addWidget(about)
+        said = self.header.conflicts + self.header.notes
         self.mismatch_note = QtWidgets.QLabel(
-            "<b>The file's header differs from this experiment:</b> " + "; ".join(self.mismatches)
-            + ". Check that this is the right file." if self.mismatches else "")
+            "<b>The file's header differs from this experiment:</b> " + "; ".join(said)
+            + ". Check that this is the right file." if said else "")
         self.mismatch_note.setObjectName("mismatch_note")
         self.mismatch_note.setWordWrap(True)
         self.mismatch_note.setStyleSheet("color: #9a3412;")
-        self.mismatch_note.setVisible(bool(self.mismatches))
+        self.mismatch_note.setVisible(bool(said))
         layout.addWidget(self.mismatch_note)
         layout.addWidget(QtWidgets.QLabel("Lines above the data"))
         layout.addWidget(self.metadata)

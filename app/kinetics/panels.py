@@ -37,7 +37,7 @@ class PredictionPanel(FormPanel):
         ("density_volumetric", "N_V = N_A / h", "density_volumetric"),
         ("density_used", "N in the prediction", "density_used"),
         ("rate", "Ṅ (rate)", "nucleation_rate"),
-        ("growth_rate", "G (95 % CI)", "growth_rate"),
+        ("growth_rate", "Growth rate G", "growth_rate"),
         ("spherulites_in_pooled_g", COUNTS["spherulites_in_pooled_g"][0], "spherulites_in_pooled_g"),
         ("n", "predicted n", "predicted_k"),
         ("k", "predicted k", "predicted_k"),
@@ -74,8 +74,7 @@ class PredictionPanel(FormPanel):
                  if value is not None]
         self.form.set("rate", "; ".join(rates) or f"{DASH} (not measured)")
         g = result.growth_rate
-        ci = None if g.ci95_high is None or g.value is None else g.ci95_high - g.value
-        self.form.set("growth_rate", fmt_pm(g.value, ci, 'µm/min'))
+        self.form.set("growth_rate", fmt_pm(g.value, g.ci95_half_width, "µm/min"))
         for key, value in result.counts().items():
             if key in self.form.values:
                 self.form.set(key, str(value))

@@ -66,13 +66,13 @@ class KineticsPlots(QtWidgets.QWidget):
         self._build_items()
         grid = QtWidgets.QGridLayout(self)
         grid.setContentsMargins(0, 0, 0, 0)
-        grid.addWidget(titled_plot(self, "Heat flow, baseline and limits (drag the band)",
-                               self.heat_flow, "heat_flow"), 0, 0)
+        grid.addWidget(titled_plot(self, "Heat flow and baseline", self.heat_flow, "heat_flow",
+                                   "Heat flow, baseline and limits (drag the band)"), 0, 0)
         grid.addWidget(titled_plot(self, "Relative crystallinity X(t)", self.conversion, "conversion"), 0, 1)
-        grid.addWidget(titled_plot(self, "Avrami plot (drag the shaded fit window)",
-                               self.avrami, "avrami_plot"), 1, 0)
-        grid.addWidget(titled_plot(self, "Microscopy prediction against calorimetry",
-                               self.comparison, "comparison"), 1, 1)
+        grid.addWidget(titled_plot(self, "Avrami plot", self.avrami, "avrami_plot",
+                                   "Avrami plot (drag the shaded fit window)"), 1, 0)
+        grid.addWidget(titled_plot(self, "Prediction vs calorimetry", self.comparison, "comparison",
+                                   "Microscopy prediction against calorimetry"), 1, 1)
 
     def _build_items(self) -> None:
         hf = self.heat_flow.getPlotItem()

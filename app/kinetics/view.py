@@ -24,12 +24,22 @@ from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel
 from app.kinetics.plots import KineticsPlots
-from app.widgets.formatting import DASH, fmt, k_unit
+from app.widgets.formatting import DASH, fmt, fmt_pm, k_unit
 from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
 
 DEFAULT_WINDOW = DEFAULT_FIT_WINDOW  # the common 3-20 % guideline
+
+
+def window_action_text(window) -> str:
+    """The menu entry that resets the fit window, showing the window in use now."""
+    span = lambda w: f"{w[0] * 100:.3g}-{w[1] * 100:.3g} %"
+    reset = f"Reset fit window to {span(DEFAULT_WINDOW)}"
+    if window is None:
+        return reset
+    now = span(window)
+    return reset + (" (in use)" if tuple(window) == DEFAULT_WINDOW else f" (now {now})")
 GEOMETRIES = (("bulk-3d", "bulk sample (3-D spheres)"), ("film-2d", "thin film (2-D discs)"))
 MODES = ((None, "as found by the analysis"), ("athermal", "athermal (predetermined)"),
          ("thermal", "thermal (sporadic)"), ("mixed", "mixed"))
@@ -90,15 +100,17 @@ class KineticsView(LazyPage):
             self.mode.addItem(text, key)
         self.mode.activated.connect(self._mode_chosen)
         self.actions = []
-        for name, text, handler in (
-                ("import_action", "Import calorimetry isotherm…", self.import_calorimetry),
-                ("remap_action", "Column mapping…", self.edit_mapping),
-                ("auto_baseline_action", "Automatic baseline", self.reset_baseline),
-                ("default_window_action", "Fit window 3-20 %", self.reset_window),
-                ("remove_action", "Remove isotherm", self.remove_calorimetry),
-                ("export_action", "Export all figures…", self.export_figures),
-                ("help_action", "Kinetics help and safety", lambda: show_help("cautions"))):
+        for name, text, short, handler in (  # short: the toolbar label (menus show the text)
+                ("import_action", "Import calorimetry isotherm…", "Import DSC…",
+                 self.import_calorimetry),
+                ("remap_action", "Column mapping…", "Columns…", self.edit_mapping),
+                ("auto_baseline_action", "Automatic baseline", "Auto baseline", self.reset_baseline),
+                ("default_window_action", window_action_text(None), "Window 3-20 %", self.reset_window),
+                ("remove_action", "Remove isotherm", "Remove DSC", self.remove_calorimetry),
+                ("export_action", "Export all figures…", "Export…", self.export_figures),
+                ("help_action", "Kinetics help and safety", "Help", lambda: show_help("cautions"))):
             action = QtGui.QAction(text, self)
+            action.setIconText(short)
             action.triggered.connect(lambda _checked=False, h=handler: h())
             setattr(self, name, action)
             self.actions.append(action)
@@ -160,6 +172,8 @@ class KineticsView(LazyPage):
         for action in (self.remap_action, self.auto_baseline_action, self.default_window_action,
                        self.remove_action):
             action.setEnabled(has_source)
+        self.default_window_action.setText(
+            window_action_text(experiment.calorimetry.window if has_source else None))
         if not has_experiment:
             self.prediction.clear("No experiment: add a stack to the project.")
             self._show_calorimetry(None, None)
@@ -240,7 +254,7 @@ class KineticsView(LazyPage):
         form.set("enthalpy", fmt(result.enthalpy_j_per_g, "J/g"))
         form.set("crystallinity", DASH if result.crystallinity is None else f"{result.crystallinity:.1%}")
         form.set("window", f"{result.window[0]:.1%} – {result.window[1]:.1%}")
-        form.set("n", f"{fit.n:.3f}" + ("" if fit.n_ci95 is None else f" ± {fit.n_ci95:.2g}") if fit else DASH)
+        form.set("n", fmt_pm(fit.n, fit.n_ci95) if fit else DASH)
         form.set("k", fmt(fit.k_per_min_n, k_unit(fit.n)) if fit else DASH)
         form.set("t_half", f"{fmt(fit.t_half_min if fit else None, 'min')} / "
                            f"{fmt(result.t_half_measured_min, 'min')}")

@@ -34,22 +34,15 @@ from analysis.errors import InputError
 from analysis.kinetics.prediction import film_avrami_fit, predict_from_result
 from analysis.results import COUNTS
 from app.core import model as m
-from app.microscopy.overlays import STATUS_WORDS, status_colour
+from app.microscopy.overlays import STATUS_WORDS
+from app.microscopy.spherulite_table import SpherulitesTable
+from app.widgets.formatting import fmt, fmt_interval, fmt_pm, k_unit
 
-SPHERULITE_COLUMNS = ("id", "x (px)", "y (px)", "t0 (s)", "G (µm/min)", "CI95 ±", "R²",
-                      "points", "status", "source", "confidence", "reason")
 UNAPPLIED_COLOUR = "#ffb0b0"
 
 
 def _num(value: Any, fmt: str = ".3g", unit: str = "") -> str:
     return "—" if value is None else f"{value:{fmt}}{unit}"
-
-
-def spherulite_row(s: Any) -> tuple[str, ...]:
-    return (str(s.id), f"{s.x_px:.1f}", f"{s.y_px:.1f}", _num(s.nucleation_time_s, ".1f"),
-            _num(s.growth_rate_um_per_min), _num(s.growth_rate_ci95_um_per_min, ".2g"),
-            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source,
-            _num(getattr(s, "confidence", None), ".2f"), getattr(s, "reason", "") or "")
 
 
 def spherulite_html(s: Any, um_per_px: float | None, free_radii: int | None = None) -> str:
@@ -61,9 +54,7 @@ def spherulite_html(s: Any, um_per_px: float | None, free_radii: int | None = No
         ("Centre", where),
         ("Nucleation time", _num(s.nucleation_time_s, ".1f", " s from reaching Tc")),
         ("First seen", _num(s.first_seen_s, ".1f", " s")),
-        ("Growth rate G", _num(s.growth_rate_um_per_min, ".3g", " µm/min")
-         + ("" if s.growth_rate_ci95_um_per_min is None
-            else f" ± {s.growth_rate_ci95_um_per_min:.2g} (95 %)")),
+        ("Growth rate G", fmt_pm(s.growth_rate_um_per_min, s.growth_rate_ci95_um_per_min, "µm/min")),
         ("R² of the cone fit", _num(s.r2, ".4f")),
         ("Frames in the cone fit", str(s.n_points)),
         ("Free-growth radii", "—" if free_radii is None else str(free_radii)),
@@ -71,8 +62,6 @@ def spherulite_html(s: Any, um_per_px: float | None, free_radii: int | None = No
         ("Source", s.source),
         ("Confidence", _num(getattr(s, "confidence", None), ".2f") + " (0-1, from its evidence)"),
     ]
-    if getattr(s, "reason", ""):
-        rows.append(("Reason", s.reason))
     return _table_html(f"Spherulite {s.id}", rows)
 
 
@@ -103,15 +92,13 @@ def _predicted(result: Any, experiment: Any):
 
 def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     g, nuc = result.growth_rate, result.nucleation
-    ci = "" if g.ci95_low is None else f" (95 % CI {g.ci95_low:.3g} – {g.ci95_high:.3g})"
     counts = result.counts()
     rows = [("Frames", str(result.frames)),
             *((COUNTS[key][0], str(value)) for key, value in counts.items()),
-            ("Pooled G", _num(g.value, ".3g", " µm/min") + ci),
+            ("Pooled G", fmt_interval(g.value, g.ci95_low, g.ci95_high, "µm/min")),
             ("Nucleation mode", nuc.mode or "—"),
-            ("Density", _num(nuc.density_per_mm2, ".3g", " mm⁻²") + " | "
-             + _num(nuc.density_per_mm3, ".3g", " mm⁻³")),
-            ("Nucleation rate", _num(nuc.rate_per_mm2_per_min, ".3g", " mm⁻² min⁻¹")),
+            ("Density", fmt(nuc.density_per_mm2, "mm⁻²") + " | " + fmt(nuc.density_per_mm3, "mm⁻³")),
+            ("Nucleation rate", fmt(nuc.rate_per_mm2_per_min, "mm⁻² min⁻¹")),
             ("Induction time", _num(nuc.induction_time_s, ".1f", " s"))]
     if nuc.mode_test:
         rows.append(("Mode test", nuc.mode_test))
@@ -122,8 +109,8 @@ def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
     for label, avrami in (("Avrami, film X(t)", film_avrami_fit(result)),
                           (f"Avrami, predicted {experiment.geometry}", _predicted(result, experiment))):
         if avrami:
-            rows.append((label, f"n = {avrami.n:.2f}, k = {_num(avrami.k_per_min_n)} min⁻ⁿ, "
-                                f"t½ = {_num(avrami.t_half_min, '.3g')} min"))
+            rows.append((label, f"k = {fmt(avrami.k_per_min_n, k_unit(avrami.n))}, "
+                                f"t½ = {fmt(avrami.t_half_min, 'min')}"))
     return rows
 
 
@@ -149,21 +136,6 @@ def _table_html(title: str, rows: list[tuple[str, str]]) -> str:
     return f"<h3 style='margin:2px 0'>{title}</h3><table>{cells}</table>"
 
 
-class SortableItem(QTableWidgetItem):
-    """Sorts numbers as numbers ('—' last), words as words."""
-
-    def _key(self) -> tuple:
-        try:
-            return (0, float(self.text()), "")
-        except ValueError:
-            return (1, 0.0, self.text())
-
-    def __lt__(self, other: QTableWidgetItem) -> bool:
-        if isinstance(other, SortableItem):
-            return self._key() < other._key()
-        return super().__lt__(other)
-
-
 class DetailsPanel(QTabWidget):
     """Summary / Spherulites / Edits tabs for the current experiment."""
 
@@ -171,15 +143,7 @@ class DetailsPanel(QTabWidget):
         super().__init__(parent)
         self._model = model
         self.summary = QTextBrowser()
-        self.table = QTableWidget(0, len(SPHERULITE_COLUMNS))
-        self.table.setHorizontalHeaderLabels(SPHERULITE_COLUMNS)
-        self.table.setSelectionBehavior(QAbstractItemView.SelectRows)
-        self.table.setSelectionMode(QAbstractItemView.SingleSelection)
-        self.table.setEditTriggers(QAbstractItemView.NoEditTriggers)
-        self.table.verticalHeader().setVisible(False)
-        self.table.horizontalHeader().setSortIndicator(0, Qt.AscendingOrder)
-        self.table.itemSelectionChanged.connect(self._on_table_selected)
-        self.show_rejected = False
+        self.table = SpherulitesTable(model)
         self.addTab(self.summary, "Summary")
         self.addTab(self.table, "Spherulites")
         self.addTab(self._build_edits_tab(), "Edits")
@@ -228,43 +192,23 @@ class DetailsPanel(QTabWidget):
                                                  self._model.status(index),
                                                  self._model.status_message(index)))
 
+    def set_show_rejected(self, shown: bool) -> None:
+        """List the rejected candidates in the table too (hidden by default)."""
+        self.table.set_show_rejected(shown)
+
     def refresh(self) -> None:
         index = self._model.current_index
         if index < 0:
             self.summary.setHtml("<p>No experiment. Add stacks with File ▸ Add stacks, "
                                  "or drop TIFF files, folders or videos on the window.</p>")
-            self.table.setRowCount(0)
+            self.table.fill(None)
             self.edits_list.clear()
             self.edits_note.setText("")
             return
         result = self._model.result(index)
         self._show_summary(index)
-        self._fill_table(result)
+        self.table.fill(result)
         self._fill_edits(index, result)
-
-    def set_show_rejected(self, shown: bool) -> None:
-        """List the rejected candidates in the table too (hidden by default)."""
-        self.show_rejected = bool(shown)
-        if self._model.current_index >= 0:
-            self._fill_table(self._model.result(self._model.current_index))
-
-    def _fill_table(self, result: Any) -> None:
-        spherulites = () if result is None else tuple(
-            s for s in result.spherulites if self.show_rejected or s.status != "rejected")
-        self.table.blockSignals(True)
-        self.table.setSortingEnabled(False)  # fill first, then let the user's sort apply
-        self.table.setRowCount(len(spherulites))
-        for row, s in enumerate(spherulites):
-            for column, text in enumerate(spherulite_row(s)):
-                item = SortableItem(text)
-                if column == 8:
-                    item.setForeground(QBrush(status_colour(s.status)))
-                self.table.setItem(row, column, item)
-        self.table.setSortingEnabled(True)
-        for row in range(self.table.rowCount()):
-            if self.table.item(row, 0).text() == str(self._model.selected_id):
-                self.table.selectRow(row)
-        self.table.blockSignals(False)
 
     def _fill_edits(self, index: int, result: Any) -> None:
         edits = self._model.experiment(index).edits
@@ -291,16 +235,3 @@ class DetailsPanel(QTabWidget):
         item = self.edits_list.currentItem()
         if item is not None and self._model.current_index >= 0:
             self._model.remove_edit(self._model.current_index, item.data(Qt.UserRole))
-
-    def _on_table_selected(self) -> None:
-        rows = {i.row() for i in self.table.selectedIndexes()}
-        if rows:
-            self._model.select_spherulite(int(self.table.item(min(rows), 0).text()))
-
-
-if __name__ == "__main__":  # pragma: no cover - quick look
-    import sys
-
-    from app.widgets.preview import run_alone
-
-    sys.exit(run_alone(DetailsPanel, sys.argv, size=(500, 500)))

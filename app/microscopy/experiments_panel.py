@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (
 )
 
 from analysis.results import COUNTS
+from app.widgets.formatting import DASH, fmt_pm
 from app.core import model as m
 
 COLUMNS = ("Experiment", "Tc (°C)", COUNTS["spherulites_detected"][0], "G (µm/min)", "Status")
@@ -39,14 +40,10 @@ STATUS_TINTS = {
 
 
 def format_growth_rate(result: Any) -> str:
-    """'12.4 ± 0.8' (95 % CI half-width) or '—' when there is no pooled G."""
+    """'12.4 ± 0.8 (95 % CI)' or '—' when there is no pooled G (the column names the unit)."""
     if result is None or result.growth_rate.value is None:
-        return "—"
-    rate = result.growth_rate
-    if rate.ci95_low is None or rate.ci95_high is None:
-        return f"{rate.value:.3g}"
-    half = (rate.ci95_high - rate.ci95_low) / 2.0
-    return f"{rate.value:.3g} ± {half:.2g}"
+        return DASH
+    return fmt_pm(result.growth_rate.value, result.growth_rate.ci95_half_width)
 
 
 def row_values(model: "m.ProjectModel", index: int) -> tuple[str, ...]:

@@ -23,9 +23,12 @@ class FrameRangeDialog(QDialog):
         self.first = QSpinBox(minimum=1, maximum=max(1, frame_count), value=current_frame + 1)
         self.last = QSpinBox(minimum=1, maximum=max(1, frame_count), value=current_frame + 1)
         self.whole = QRadioButton("the whole experiment (focus loss, temperature overshoot)")
-        self.one = QRadioButton(f"spherulite {selected_id} only")
+        self.one = QRadioButton(f"spherulite #{selected_id} only" if selected_id >= 0
+                                else "one spherulite (select it first)")
         self.one.setEnabled(selected_id >= 0)
-        (self.one if selected_id >= 0 else self.whole).setChecked(True)
+        # The whole experiment unless the user picks the selected spherulite: a selection
+        # left over from earlier must not silently narrow the edit.
+        self.whole.setChecked(True)
         form = QFormLayout()
         form.addRow("First frame", self.first)
         form.addRow("Last frame", self.last)

@@ -60,7 +60,7 @@ def _plot(title: str, y_label: str) -> pg.PlotWidget:
     item = widget.getPlotItem()
     item.setTitle(title, color=FOREGROUND, size="10pt")
     item.setLabel("left", y_label, color=FOREGROUND)
-    item.setLabel("bottom", "time from reaching Tc (s)", color=FOREGROUND)
+    item.setLabel("bottom", "t from reaching Tc (s)", color=FOREGROUND)
     item.showGrid(x=True, y=True, alpha=0.15)
     item.setMenuEnabled(False)
     return widget
@@ -73,11 +73,12 @@ class PlotsPanel(QWidget):
         super().__init__(parent)
         self._model = model
         self.splitter = QSplitter(Qt.Vertical)
-        self.radius_plot = _plot("Radius of each spherulite", "radius (µm)")
+        # Short titles: they must fit the panel's width on a 1280-pixel screen.
+        self.radius_plot = _plot("Radii r(t)", "radius (µm)")
         self.count_plot = _plot(COUNTS["nuclei_counted"][0], "count")
         self.count_plot.setToolTip(f"{COUNTS['nuclei_counted'][0]}: {COUNTS['nuclei_counted'][1]}, "
                                    "against their nucleation time")
-        self.fraction_plot = _plot("Crystallized area fraction X(t)", "X")
+        self.fraction_plot = _plot("Area fraction X(t)", "X")
         for plot in (self.radius_plot, self.count_plot, self.fraction_plot):
             self.splitter.addWidget(plot)
         self.splitter.setSizes([500, 250, 250])

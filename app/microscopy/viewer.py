@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QLabel,
     QMenu,
+    QPushButton,
     QSizePolicy,
     QSlider,
     QToolButton,
@@ -28,7 +29,10 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from analysis.errors import InputError
 from app.core import model as m
+from app.core.errors import failure_line
+from app.core.ramp_inputs import RAMPS
 from app.microscopy.annotations import ViewAnnotations, format_clock
 from app.microscopy.frame_cache import FrameCache, auto_levels
 from app.microscopy.overlays import (
@@ -60,6 +64,7 @@ class StackViewer(QWidget):
 
     frame_changed = Signal(int)
     image_clicked = Signal(float, float)  # x_px (column), y_px (row) on frame 0's grid
+    locate_requested = Signal()  # the stack file is missing: the user wants to point to it
 
     def __init__(self, model: "m.ProjectModel", parent: QWidget | None = None):
         super().__init__(parent)
@@ -70,6 +75,7 @@ class StackViewer(QWidget):
         self._times_s: np.ndarray | None = None
         self._um_per_px: float | None = None
         self.show_rejected = False  # rejected candidates are hidden until asked for
+        self._programme = None  # TemperatureProgramme of a ramp experiment
         self._build()
         model.selection_changed.connect(self._on_selection_changed)
         model.analysis_updated.connect(self._on_analysis_updated)
@@ -92,14 +98,23 @@ class StackViewer(QWidget):
         self._banner.setWordWrap(True)
         self._banner.setStyleSheet("background:#5a4300; color:#ffe9a8; padding:4px;")
         self._banner.hide()
+        self.locate_button = QPushButton("Locate file…")
+        self.locate_button.setObjectName("locate_stack")
+        self.locate_button.setToolTip("Point to the stack file where it is now (one undo step)")
+        self.locate_button.clicked.connect(self.locate_requested)
+        self.locate_button.hide()
+        banner = QHBoxLayout()
+        banner.addWidget(self._banner, 1)
+        banner.addWidget(self.locate_button)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.setSpacing(2)
-        layout.addWidget(self._banner)
+        layout.addLayout(banner)
         layout.addLayout(self._build_display_row())
         layout.addWidget(status_legend())
         layout.addWidget(self._graphics, 1)
         layout.addLayout(self._build_time_row())
+        layout.addWidget(self._build_temperature_strip())
         self._play_timer = QTimer(self)
         self._play_timer.timeout.connect(self._advance)
 
@@ -158,6 +173,26 @@ class StackViewer(QWidget):
         row.addWidget(self.readout)
         return row
 
+    def _build_temperature_strip(self) -> pg.PlotWidget:
+        """The film temperature of a ramp experiment against the recording time, with the
+        current frame marked (hidden for isothermal experiments)."""
+        strip = pg.PlotWidget(background="#ffffff")
+        strip.setFixedHeight(96)
+        item = strip.getPlotItem()
+        item.setLabel("left", "T", units="°C")
+        item.setLabel("bottom", "recording time", units="s")
+        item.showGrid(x=True, y=True, alpha=0.25)
+        item.setMenuEnabled(False)
+        strip.setMouseEnabled(x=False, y=False)
+        self._temperature_curve = item.plot([], [], pen=pg.mkPen("#b03a2e", width=1.6))
+        self._frame_marker = pg.InfiniteLine(angle=90, movable=False, pen=pg.mkPen("#1b4f72", width=1.2))
+        item.addItem(self._frame_marker)
+        strip.setToolTip("Film temperature from the experiment's stage log or typed programme "
+                         "(lag-corrected); the blue line is the frame shown")
+        strip.hide()
+        self.temperature_strip = strip
+        return strip
+
     # ---------------------------------------------------------------- public
     @property
     def frame(self) -> int:
@@ -180,8 +215,10 @@ class StackViewer(QWidget):
         self._index, self._cache, self._times_s, self._um_per_px = index, None, None, None
         self.image_item.clear()
         problems = []
+        self.locate_button.hide()
         if index >= 0:
             problems = self._open_stack(index)
+        problems += self._load_programme(index)
         self._show_problems(problems)
         count = self.frame_count()
         self.slider.blockSignals(True)
@@ -271,8 +308,9 @@ class StackViewer(QWidget):
         experiment = self._model.experiment(index)
         try:
             stack = self._model.frame_stack(index)
-        except Exception as exc:
-            return [f"Cannot read the stack of {experiment.name}: {exc}"]
+        except Exception as exc:  # listed on the page; a bug is logged as one
+            self.locate_button.show()
+            return [f"Cannot read the stack of {experiment.name}: {failure_line(exc, 'reading frames')}"]
         self._cache = FrameCache(stack)
         self._cache.set_grey(self.grey_box.isChecked())
         self._times_s = None if stack.times_s is None else np.asarray(stack.times_s, float)
@@ -286,6 +324,24 @@ class StackViewer(QWidget):
             problems.append(f"{experiment.name}: no frame times. Set the frame interval "
                             "or the times in Properties.")
         return problems
+
+    def _load_programme(self, index: int) -> list[str]:
+        """Show the temperature strip for a ramp experiment; problems for the banner."""
+        self._programme = None
+        self.temperature_strip.hide()
+        if index < 0:
+            return []
+        experiment = self._model.experiment(index)
+        programme, problem = RAMPS.programme(experiment)
+        if problem:
+            return [f"{experiment.name}: temperature log not usable: {problem}"]
+        if programme is None or self._times_s is None:
+            return []
+        self._programme = programme
+        t = np.linspace(float(self._times_s[0]), float(self._times_s[-1]), 400)
+        self._temperature_curve.setData(t, programme.temperature_at(t))
+        self.temperature_strip.show()
+        return []
 
     def _show_problems(self, problems: list[str]) -> None:
         self._banner.setText("\n".join(problems))
@@ -312,6 +368,10 @@ class StackViewer(QWidget):
     def _update_readout(self, frame: int, time_s: float | None) -> None:
         count = self.frame_count()
         clock = "t unknown" if time_s is None else f"t = {format_clock(time_s)} ({time_s:.1f} s)"
+        if self._programme is not None and self._times_s is not None:
+            recording_s = float(self._times_s[frame])
+            self._frame_marker.setValue(recording_s)
+            clock += f"   T = {float(self._programme.temperature_at(recording_s)):.1f} °C"
         self.readout.setText(f"frame {frame + 1} / {count}   {clock}")
         self.readout.setToolTip("Time is counted from the moment the sample reached Tc "
                                 "(the experiment's isothermal start)")
@@ -376,7 +436,7 @@ class StackViewer(QWidget):
             return
         try:
             same_stack = self._cache is not None and self._model.frame_stack(index) is self._cache.stack
-        except Exception:
+        except InputError:  # an unreadable stack is reported when the frames load
             same_stack = False
         if same_stack:
             return

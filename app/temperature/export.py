@@ -14,8 +14,8 @@ from dataclasses import dataclass
 from PySide6 import QtCore, QtWidgets
 
 from analysis.progress import Progress, scaled
-from analysis.reporting.entries import report_entry, series_constants
-from analysis.reporting.report import HW_PAIRS_KEY, build_report, project_entries_iter
+from analysis.reporting.entries import experiment_entry, report_entry, series_constants
+from analysis.reporting.report import HW_PAIRS_KEY, RAMPS_IN_LH_KEY, build_report, project_entries_iter
 from analysis.reporting.tables import (
     comparison_table,
     growth_vs_temperature_table,
@@ -23,12 +23,14 @@ from analysis.reporting.tables import (
     write_xlsx,
 )
 from analysis.results import COUNTS
+from app.core.ramp_inputs import RAMPS
 
 #: Display names for the table's columns (the files keep the snake_case names).
 DISPLAY_NAMES = {
     "experiment": "experiment", "temperature_c": "Tc (°C)", "growth_rate_um_per_min": "G (µm/min)",
-    "growth_rate_ci95_low_um_per_min": "G 95 % low (µm/min)",
-    "growth_rate_ci95_high_um_per_min": "G 95 % high (µm/min)", **{key: label for key, (label, _what) in COUNTS.items()},
+    "growth_rate_ci95_low_um_per_min": "G 95 % CI low (µm/min)",
+    "growth_rate_ci95_high_um_per_min": "G 95 % CI high (µm/min)",
+    **{key: label for key, (label, _what) in COUNTS.items()},
     "nucleation_mode": "mode", "nucleus_density_per_mm2": "N_A (mm⁻²)",
     "nucleus_density_per_mm3": "N_V (mm⁻³)", "nucleation_rate_per_mm2_per_min": "Ṅ_A (mm⁻² min⁻¹)",
     "nucleation_rate_per_mm3_per_min": "Ṅ_V (mm⁻³ min⁻¹)", "predicted_geometry": "geometry",
@@ -41,11 +43,29 @@ DISPLAY_NAMES = {
 
 
 def report_entries(model, cache) -> list:
-    """One ``ReportEntry`` per analysed experiment (``analysis.reporting.entries.report_entry``,
-    the calorimetry through the page's cache)."""
+    """One ``ReportEntry`` per analysed isothermal experiment (``analysis.reporting.entries.
+    report_entry``, the calorimetry through the page's cache); ramps: :func:`ramp_entries`."""
     material = model.project.material
     return [report_entry(experiment, model.result(i), material, cache.analyze)
-            for i, experiment in enumerate(model.experiments()) if model.result(i) is not None]
+            for i, experiment in enumerate(model.experiments())
+            if model.result(i) is not None and experiment.kind != "ramp"]
+
+
+def ramp_entries(model) -> tuple[list, list[str]]:
+    """(entries of the analysed ramp experiments with their G(T), "name: problem" lines for
+    those without one); the ramp analysis is ``analysis.kinetics.ramp.analyze_ramp``, cached."""
+    project = model.project
+    constants, _ = series_constants(project.series, project.material)
+    entries, problems = [], []
+    for i, experiment in enumerate(model.experiments()):
+        if experiment.kind != "ramp" or model.analysis(i) is None:
+            continue
+        ramp, problem = RAMPS.ramp(experiment, model.analysis(i), constants)
+        if ramp is None or not ramp.growth:
+            problems.append(f"{experiment.name}: no G(T) ({problem or ramp.growth.reason})")
+            continue
+        entries.append(experiment_entry(experiment, model.result(i), ramp=ramp))
+    return entries, problems
 
 
 def table_rows(entries) -> tuple[list[str], list[list]]:
@@ -88,8 +108,10 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
     Runs in the worker thread; touches only the frozen snapshot.
     """
     project = snapshot.project
-    missing = tuple(e for e, r in zip(project.experiments, snapshot.results) if r is None)
-    ready = [(e, r) for e, r in zip(project.experiments, snapshot.results) if r is not None]
+    # ramps are analysed here again: their G(T) needs the arrival map, which results lack
+    redo = [r is None or e.kind == "ramp" for e, r in zip(project.experiments, snapshot.results)]
+    missing = tuple(e for e, again in zip(project.experiments, redo) if again)
+    ready = [(e, r) for e, r, again in zip(project.experiments, snapshot.results, redo) if not again]
     entries, problems = [], []
     if missing:
         sub_project = dataclasses.replace(project, experiments=missing)
@@ -103,7 +125,8 @@ def report_iter(snapshot: ReportSnapshot, folder: str):
     constants, note = series_constants(project.series, project.material)
     yield Progress("writing report", 0.9, note)
     summary = build_report(entries, folder, constants=constants, material=project.material,
-                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY))
+                           problems=problems, hoffman_weeks_pairs=(project.series or {}).get(HW_PAIRS_KEY),
+                           include_ramps=bool((project.series or {}).get(RAMPS_IN_LH_KEY, False)))
     yield Progress("writing report", 1.0)
     return summary
 

@@ -14,7 +14,7 @@ from PySide6 import QtCore, QtWidgets
 from analysis.kinetics.materials import list_materials
 from analysis.reporting.report import HW_PAIRS_KEY
 from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K, t_inf_default_c
-from app.widgets.formatting import DASH, fmt
+from app.widgets.formatting import DASH, fmt, fmt_pm
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
@@ -150,7 +150,7 @@ class ConstantsForm(QtWidgets.QGroupBox):
 class LHResults(FormPanel):
     TITLE = "Lauritzen-Hoffman fit"
     ROWS = [
-        ("kg", "Kg (95 % CI)", "kg"),
+        ("kg", "Kg", "kg"),
         ("g0", "G0", "lauritzen_hoffman"),
         ("regimes", "regimes", "regimes"),
         ("ratio", "slope ratio (theory 2)", "regimes"),
@@ -180,8 +180,7 @@ class LHResults(FormPanel):
 
 
 def _kg(regime) -> str:
-    ci = "" if regime.kg_ci95 is None else f" ± {fmt(regime.kg_ci95, '', 2)}"
-    return f"{fmt(regime.kg_k2)}{ci} K²"
+    return fmt_pm(regime.kg_k2, regime.kg_ci95, "K²")
 
 
 class HoffmanWeeksHelper(QtWidgets.QGroupBox):

@@ -17,7 +17,12 @@ from analysis.kinetics.lauritzen_hoffman import (
     lh_coordinates,
     lh_growth_rate,
 )
-from analysis.reporting.entries import lauritzen_hoffman_inputs, series_constants
+from analysis.reporting.entries import (
+    lauritzen_hoffman_inputs,
+    lauritzen_hoffman_sources,
+    series_constants,
+)
+from analysis.reporting.report import RAMPS_IN_LH_KEY
 from app.temperature.lauritzen_hoffman import HW_KEY
 
 
@@ -59,13 +64,16 @@ def column(points, name: str) -> np.ndarray:
 
 def lh_fit(entries, series: dict, material: str | None):
     """(``fit_lauritzen_hoffman`` over the entries with a Tc and a growth rate, where the
-    constants came from) with the constants and inputs the report uses
-    (``analysis.reporting.entries``); InputError when Tm0 or Tg is unknown."""
+    constants came from, the source of each point) with the constants and inputs the report
+    uses (``analysis.reporting.entries``; ramp entries add their G(T) when the series flag
+    ``lh_include_ramps`` is set); InputError when Tm0 or Tg is unknown."""
     constants, note = series_constants(series, material)
     if constants is None:
         raise InputError(note)
-    tc, g, ci = lauritzen_hoffman_inputs(entries)
-    return fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material), note
+    include = bool(series.get(RAMPS_IN_LH_KEY, False))
+    tc, g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include)
+    sources = lauritzen_hoffman_sources(entries, include_ramps=include)
+    return fit_lauritzen_hoffman(tc, g, ci, constants=constants, material=material), note, sources
 
 
 def lh_display(fit, points: int = 60):

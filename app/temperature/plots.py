@@ -53,14 +53,18 @@ class TemperaturePlots(QtWidgets.QWidget):
         self.measured_half = _log_points(self.half_time, "calorimetry", COLOURS["measured"], "s")
         self.lh_points = self.lh.getPlotItem().plot([], [], pen=None, symbol="o", symbolSize=8,
                                                     symbolBrush=COLOURS["signal"], name="experiments")
+        self.lh_ramp_points = self.lh.getPlotItem().plot([], [], pen=None, symbol="d", symbolSize=8,
+                                                         symbolBrush=None, symbolPen=pg.mkPen("#b03a2e", width=1.4),
+                                                         name="ramp G(T)")
         self._lh_items: list = []
+        self._ramp_items: list = []
         grid = QtWidgets.QGridLayout(self)
         grid.setContentsMargins(0, 0, 0, 0)
         grid.addWidget(titled_plot(self, "Growth rate against Tc", self.growth, "growth_vs_tc"), 0, 0)
         grid.addWidget(titled_plot(self, "Nucleation density against Tc", self.density, "density_vs_tc"), 0, 1)
         grid.addWidget(titled_plot(self, "Half-time against Tc", self.half_time, "half_time_vs_tc"), 1, 0)
-        grid.addWidget(titled_plot(self, "Lauritzen-Hoffman plot (regimes shaded)", self.lh,
-                               "lauritzen_hoffman"), 1, 1)
+        grid.addWidget(titled_plot(self, "Lauritzen-Hoffman plot", self.lh, "lauritzen_hoffman",
+                                   "Lauritzen-Hoffman plot (regimes shaded)"), 1, 1)
 
     def show_growth(self, tc, g, ci95) -> None:
         tc, g, ci = _finite(tc, g, np.where(np.isfinite(np.asarray(ci95, float)), ci95, 0.0))
@@ -70,6 +74,24 @@ class TemperaturePlots(QtWidgets.QWidget):
         low = np.log10(g) - np.log10(np.clip(g - ci, g * 1e-3, None))
         high = np.log10(g + ci) - np.log10(g)
         self.growth_errors.setData(x=tc, y=np.log10(g), top=high, bottom=low)
+
+    def show_ramps(self, curves) -> None:
+        """Each ramp's G(T) as a line with its 95 % band; ``curves``: (name, RampGrowth) pairs."""
+        item = self.growth.getPlotItem()
+        for old in self._ramp_items:
+            item.removeItem(old)
+        self._ramp_items = []
+        for k, (name, g) in enumerate(curves):
+            colour = ("#b03a2e", "#7d3c98", "#117a65", "#a04000")[k % 4]
+            low = item.plot(g.temperature_c, g.ci95_low, pen=pg.mkPen(colour, width=0.5))
+            high = item.plot(g.temperature_c, g.ci95_high, pen=pg.mkPen(colour, width=0.5))
+            band = pg.FillBetweenItem(low, high, brush=pg.mkBrush(pg.mkColor(colour).red(),
+                                                                   pg.mkColor(colour).green(),
+                                                                   pg.mkColor(colour).blue(), 50))
+            item.addItem(band)
+            line = item.plot(g.temperature_c, g.growth_rate_um_per_min, pen=pg.mkPen(colour, width=2),
+                             name=f"{name} (ramp, 95 % band)")
+            self._ramp_items += [low, high, band, line]
 
     def show_growth_fit(self, tc_grid, g_fit) -> None:
         if tc_grid is None:
@@ -85,13 +107,17 @@ class TemperaturePlots(QtWidgets.QWidget):
         self.predicted_half.setData(*_positive(tc, predicted))
         self.measured_half.setData(*_positive(tc, measured))
 
-    def show_lh(self, x, y, lines, regimes) -> None:
-        """Points (x in K⁻², y), fit lines [(x_ends, y_ends)], regimes [(name, x_low, x_high)]."""
+    def show_lh(self, x, y, lines, regimes, from_ramp=None) -> None:
+        """Points (x in K⁻², y), fit lines [(x_ends, y_ends)], regimes [(name, x_low, x_high)];
+        ``from_ramp`` marks the points taken from ramps' G(T) (open diamonds)."""
         item = self.lh.getPlotItem()
         for old in self._lh_items:
             item.removeItem(old)
         self._lh_items = []
-        self.lh_points.setData(*_finite(np.asarray(x, float) * LH_X_SCALE, y))
+        x, y = np.asarray(x, float), np.asarray(y, float)
+        ramp = np.zeros(x.size, bool) if from_ramp is None else np.asarray(from_ramp, bool)
+        self.lh_points.setData(*_finite(x[~ramp] * LH_X_SCALE, y[~ramp]))
+        self.lh_ramp_points.setData(*_finite(x[ramp] * LH_X_SCALE, y[ramp]))
         for x_ends, y_ends in lines:
             line = item.plot(np.asarray(x_ends) * LH_X_SCALE, y_ends, pen=pg.mkPen(COLOURS["fit"], width=2))
             self._lh_items.append(line)

@@ -40,6 +40,7 @@ class TemperatureView(LazyPage):
         self.calorimetry = CalorimetryCache()
         self.points: list = []
         self.entries: list = []  # analysis.reporting.tables.ReportEntry, project order
+        self.ramps: list = []  # entries of ramp experiments with their G(T)
         self.fit = None
         self.report_job = temperature_export.ReportJob(self)
         self._build()
@@ -61,6 +62,10 @@ class TemperatureView(LazyPage):
         self.constants.series_edited.connect(self._series_edited)
         self.constants.material_chosen.connect(self._material_chosen)
         self.lh_results = LHResults(self)
+        self.include_ramps = QtWidgets.QCheckBox("Include ramp experiments' G(T) in the fit")
+        self.include_ramps.setToolTip("Adds a point every 2 K of each ramp's smooth G(T) (open diamonds "
+                                      "on the Lauritzen-Hoffman plot) beside the isothermal points")
+        self.include_ramps.toggled.connect(self._include_ramps_toggled)
         self.hw = HoffmanWeeksHelper(self)
         self.hw.pairs_edited.connect(self._pairs_edited)
         self.hw.tm0_adopted.connect(self._tm0_adopted)
@@ -84,7 +89,7 @@ class TemperatureView(LazyPage):
         left.addWidget(table_box)
         left.addWidget(self.plots)
         left.setSizes([260, 700])
-        scroll = scroll_column((self.constants, self.lh_results, self.hw))
+        scroll = scroll_column((self.constants, self.include_ramps, self.lh_results, self.hw))
         self.split = split = QtWidgets.QSplitter()
         split.addWidget(left)
         split.addWidget(scroll)
@@ -102,17 +107,23 @@ class TemperatureView(LazyPage):
             lambda ok, detail: self.report_status.setText(("Report: " if ok else "Report not written: ") + detail))
 
     def _make_actions(self) -> list:
-        table = [
-            ("Copy table", self.table.copy_to_clipboard, "Copy the table as tab-separated text"),
-            ("Export CSV…", lambda: self.export_table("csv"), "Save the table as CSV (units in headers)"),
-            ("Export XLSX…", lambda: self.export_table("xlsx"), "Save the table as an Excel workbook"),
-            ("Write report…", self.write_report, "Tables, fits and figures for every experiment"),
-            ("Export all figures…", self.export_figures, "Every plot of this page as PNG and SVG"),
-            ("Help and safety", lambda: show_help("lauritzen_hoffman"), "What each number means"),
+        table = [  # menu text, toolbar label (short enough for a 1280-pixel window), handler, tip
+            ("Copy table", "Copy", self.table.copy_to_clipboard, "Copy the table as tab-separated text"),
+            ("Export CSV…", "CSV…", lambda: self.export_table("csv"),
+             "Save the table as CSV (units in headers)"),
+            ("Export XLSX…", "XLSX…", lambda: self.export_table("xlsx"),
+             "Save the table as an Excel workbook"),
+            ("Write report…", "Report…", self.write_report,
+             "Tables, fits and figures for every experiment"),
+            ("Export all figures…", "Figures…", self.export_figures,
+             "Every plot of this page as PNG and SVG"),
+            ("Help and safety", "Help", lambda: show_help("lauritzen_hoffman"),
+             "What each number means"),
         ]
         actions = []
-        for text, handler, tip in table:
+        for text, short, handler, tip in table:
             action = QtGui.QAction(text, self)
+            action.setIconText(short)
             action.setToolTip(tip)
             action.triggered.connect(lambda _checked=False, h=handler: h())
             actions.append(action)
@@ -135,15 +146,23 @@ class TemperatureView(LazyPage):
         self.hw.fill(logic.hw_pairs(project.series))
         self._show_hw()
         self.entries = temperature_export.report_entries(self.model, self.calorimetry)
+        self.ramps, ramp_problems = temperature_export.ramp_entries(self.model)
         self.points = logic.points_from(self.entries)
         header, rows = temperature_export.table_rows(self.entries)
         self.table.set_rows(header, rows)
-        missing = self.model.experiment_count() - len(rows)
-        self.empty_note.setVisible(missing > 0)
-        self.empty_note.setText(f"{missing} of {self.model.experiment_count()} experiments have no "
-                                "microscopy result yet: run their analysis to include them.")
+        self.include_ramps.blockSignals(True)
+        self.include_ramps.setChecked(bool(project.series.get(logic.RAMPS_IN_LH_KEY)))
+        self.include_ramps.setEnabled(bool(self.ramps))
+        self.include_ramps.blockSignals(False)
+        isothermal = sum(e.kind != "ramp" for e in self.model.experiments())
+        missing = isothermal - len(rows)
+        notes = ([f"{missing} of {isothermal} isothermal experiments have no microscopy result yet: "
+                  "run their analysis to include them."] if missing > 0 else []) + ramp_problems
+        self.empty_note.setVisible(bool(notes))
+        self.empty_note.setText(" ".join(notes))
         tc = logic.column(self.points, "temperature_c")
         self.plots.show_growth(tc, logic.column(self.points, "growth_rate"), logic.column(self.points, "growth_ci95"))
+        self.plots.show_ramps([(e.name, e.ramp.growth) for e in self.ramps])
         self.plots.show_density(tc, logic.column(self.points, "density_areal"),
                                 logic.column(self.points, "density_volumetric"))
         self.plots.show_half_times(tc, logic.column(self.points, "predicted_t_half_min"),
@@ -153,7 +172,7 @@ class TemperatureView(LazyPage):
     def _show_lh(self) -> None:
         project = self.model.project
         try:
-            self.fit, note = logic.lh_fit(self.entries, project.series, project.material)
+            self.fit, note, sources = logic.lh_fit(self.entries + self.ramps, project.series, project.material)
         except InputError as error:
             self.fit = None
             self.lh_results.clear(f"No Lauritzen-Hoffman fit: {error.problem}")
@@ -163,7 +182,7 @@ class TemperatureView(LazyPage):
         self.lh_results.show_fit(self.fit)
         if "material table" in note:  # say where constants not set by the user came from
             self.lh_results.message.setText("; ".join([note, *self.fit.warnings]))
-        self.plots.show_lh(*logic.lh_display(self.fit))
+        self.plots.show_lh(*logic.lh_display(self.fit), [s.startswith("ramp") for s in sources])
         self.plots.show_growth_fit(*logic.growth_curve(self.fit))
 
     def _show_hw(self) -> None:
@@ -186,6 +205,11 @@ class TemperatureView(LazyPage):
     # ---------------------------------------------------------------- edits (one undo entry each)
     def _series_edited(self, series: dict, text: str) -> None:
         self.model.set_project_fields(text=text, series=series)
+
+    def _include_ramps_toggled(self, on: bool) -> None:
+        series = {**self.model.project.series, logic.RAMPS_IN_LH_KEY: bool(on)}
+        self.model.set_project_fields(text=("Include" if on else "Leave out") + " ramps in the fit",
+                                      series=series)
 
     def _material_chosen(self, name) -> None:
         series = dict(self.model.project.series)

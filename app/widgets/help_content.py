@@ -52,6 +52,20 @@ TOPICS: tuple[HelpTopic, ...] = (
         _LH_PAPERS[1:2] + (_FILM_REVIEW,),
     ),
     HelpTopic(
+        "ramp_growth", "Growth rate over a temperature range (ramp or step run)",
+        "While the stage cools, heats or steps through holds, every front advances at the rate of "
+        "the film's current temperature. One joint fit of all spherulites' radii gives G(T) as a "
+        "smooth curve (a penalised spline of ln G in T) with a 95 % band, Kg and G0 fitted directly "
+        "to all radii, and nuclei counted against the temperature of their birth.",
+        "R(t) = ∫ G(T(t')) dt' from the birth;   film: τ·dT_film/dt = T_sensor − T_film",
+        "The log's clock offset and the film's lag behind the stage sensor must be right: at "
+        "10 K/min a 1 s error shifts T by 0.17 K, several per cent of G where G is steep. Only "
+        "fronts before impingement count; radii below 4 px are not used. Neighbouring "
+        "temperatures of the curve are not independent points.",
+        _LH_PAPERS[:1] + ("P.H.C. Eilers and B.D. Marx, Statistical Science 11, 89 (1996) "
+                          "(penalised splines)",),
+    ),
+    HelpTopic(
         "density_areal", "Nucleation density N_A (per mm²)",
         "Number of spherulite centres per unit area of the analysed field, counted by the centre "
         "position so that spherulites cut by the border are neither lost nor counted twice.",
@@ -287,6 +301,9 @@ CAUTIONS: tuple[str, ...] = (
     "programme unattended.",
     "Dry solvent-cast films fully before melting them: residual solvent is flammable and its bubbles "
     "spoil growth-rate measurements.",
+    "Ramp and step programmes drive the stage on their own: check the programme's end and limit "
+    "temperatures before starting it, and stay with the stage until it is back at a safe "
+    "temperature.",
 )
 
 

@@ -223,12 +223,17 @@ def add_export_button(parent: QtWidgets.QWidget, plot: pg.PlotWidget, suggested_
     return button
 
 
-def titled_plot(parent, title: str, plot: pg.PlotWidget, name: str) -> QtWidgets.QWidget:
-    """A plot under a one-line title with its "Export…" button (``name``: file name)."""
+def titled_plot(parent, title: str, plot: pg.PlotWidget, name: str,
+                tip: str = "") -> QtWidgets.QWidget:
+    """A plot under a one-line title with its "Export…" button (``name``: file name).
+
+    Keep ``title`` short enough for a 1280-pixel-wide window; ``tip`` (the tooltip, default
+    the title) can say more, e.g. what can be dragged.
+    """
     box = QtWidgets.QWidget(parent)
     header = QtWidgets.QHBoxLayout()
     label = QtWidgets.QLabel(f"<b>{title}</b>")
-    label.setToolTip(title)
+    label.setToolTip(tip or title)
     label.setSizePolicy(QtWidgets.QSizePolicy.Policy.Ignored, QtWidgets.QSizePolicy.Policy.Preferred)
     header.addWidget(label, 1)
     header.addWidget(add_export_button(box, plot, name))

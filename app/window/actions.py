@@ -25,24 +25,29 @@ class ActionSpec:
     group: str | None = None
     tip: str = ""
     argument: str | int | None = None  # passed to the handler, e.g. the tool name
+    short: str = ""  # the toolbar button's label, when shorter than the menu text
 
 
-def _tool(name: str, text: str, shortcut: str, tip: str) -> ActionSpec:
+def _tool(name: str, text: str, shortcut: str, tip: str, short: str) -> ActionSpec:
     """A checkable correction tool; all tools share one handler and one exclusive group."""
     return ActionSpec(f"tool_{name}", text, "set_tool", "Tools", shortcut, "tools", True, "tool",
-                      tip, argument=name)
+                      tip, argument=name, short=short)
 
 
 K = QKeySequence.StandardKey
 
 ACTIONS: tuple[ActionSpec, ...] = (
-    ActionSpec("new", "&New project", "new_project", "File", K.New, "file"),
-    ActionSpec("open", "&Open project…", "open_project_dialog", "File", K.Open, "file"),
+    ActionSpec("new", "&New project", "new_project", "File", K.New, "file", short="New"),
+    ActionSpec("open", "&Open project…", "open_project_dialog", "File", K.Open, "file",
+               short="Open"),
     ActionSpec("save", "&Save", "save_project", "File", K.Save, "file"),
     ActionSpec("save_as", "Save &as…", "save_project_as", "File", "Ctrl+Shift+S"),
     ActionSpec("add_stacks", "Add &stacks…", "add_stacks_dialog", "File", "Ctrl+I", "file",
-               tip="Add TIFF stacks or videos, one experiment each (or drop them on the window)"),
+               tip="Add TIFF stacks or videos, one experiment each (or drop them on the window)",
+               short="Add stacks"),
     ActionSpec("add_folder", "Add a &folder of frames…", "add_folder_dialog", "File"),
+    ActionSpec("locate_stack", "&Locate stack file…", "locate_stack", "File",
+               tip="Point the current experiment to its stack where the file is now"),
     ActionSpec("quit", "&Quit", "close", "File", K.Quit),
     ActionSpec("undo", "&Undo", "undo", "Edit", K.Undo),
     ActionSpec("redo", "&Redo", "redo", "Edit", "Ctrl+Shift+Z"),
@@ -50,20 +55,29 @@ ACTIONS: tuple[ActionSpec, ...] = (
                tip="Tc, µm per pixel, frame times, isothermal start, thickness, notes"),
     ActionSpec("calibrate", "&Calibrate from a stage micrometer…", "calibrate", "Edit", "Ctrl+K"),
     ActionSpec("remove_experiment", "Remove e&xperiment", "remove_experiment", "Edit"),
-    ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis"),
-    ActionSpec("run_all", "Analyse &all experiments", "run_all", "Analysis", "Shift+F5", "analysis"),
-    ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis"),
-    _tool("select", "&Select", "S", "Click a spherulite to select it"),
-    _tool("add", "&Add nucleus", "N", "Click where a nucleus was missed"),
-    _tool("delete", "&Delete detection", "D", "Click a false detection (dust, bubble) to remove it"),
-    _tool("merge", "&Merge two", "M", "Click the detection to keep, then the one to merge into it"),
-    _tool("move", "Mo&ve centre", "C", "Click a detection, then its true centre"),
+    ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis",
+               short="Analyse"),
+    ActionSpec("run_all", "Analyse &all experiments", "run_all", "Analysis", "Shift+F5", "analysis",
+               short="Analyse all"),
+    ActionSpec("cancel", "&Cancel analysis", "cancel_analysis", "Analysis", "Ctrl+.", "analysis",
+               short="Cancel"),
+    ActionSpec("analysis_settings", "Analysis &settings…", "edit_analysis_settings", "Analysis",
+               "Ctrl+Shift+A", tip="Detection and fit settings of this experiment; applying them "
+                                   "analyses it again (one undo step)"),
+    _tool("select", "&Select", "S", "Click a spherulite to select it", "Select"),
+    _tool("add", "&Add nucleus", "N", "Click where a nucleus was missed", "Add"),
+    _tool("delete", "&Delete detection", "D", "Click a false detection (dust, bubble) to remove it",
+          "Delete"),
+    _tool("merge", "&Merge two", "M", "Click the detection to keep, then the one to merge into it",
+          "Merge"),
+    _tool("move", "Mo&ve centre", "C", "Click a detection, then its true centre", "Move"),
     _tool("exclude", "E&xclude / include", "E",
-          "Click a spherulite to leave it out of (or put it back into) the statistics"),
+          "Click a spherulite to leave it out of (or put it back into) the statistics", "Exclude"),
     ActionSpec("cancel_gesture", "Cancel the &gesture", "cancel_gesture", "Tools", "Esc",
                tip="Forget the first click of a merge or a centre move"),
     ActionSpec("ignore_frames", "&Ignore frames…", "ignore_frames", "Tools", "I", "tools",
-               tip="Ignore a frame range for the selected spherulite or the whole experiment"),
+               tip="Ignore a frame range for the selected spherulite or the whole experiment",
+               short="Ignore frames"),
     ActionSpec("next_doubtful", "Next &doubtful detection", "review_step", "Tools", "J", argument=1,
                tip="Jump to the next detection whose evidence is weakest, zoomed, in the frame "
                    "where it is best judged"),
@@ -79,6 +93,11 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),
     ActionSpec("next_frame", "&Next frame", "next_frame", "View", "."),
     ActionSpec("previous_frame", "P&revious frame", "previous_frame", "View", ","),
+    ActionSpec("spherulite_table", "Spherulites &table", "show_spherulite_table", "View",
+               "Ctrl+T", tip="Every detection with all its columns, as a wide tab beside the "
+               "image"),
+    ActionSpec("reset_layout", "Reset &layout", "reset_layout", "View",
+               tip="Panels, toolbars and splitters back to where they start"),
     ActionSpec("help", "&Help and cautions", "show_help_panel", "Help", K.HelpContents,
                tip="What each number means, how it is computed, and hot-stage cautions"),
     ActionSpec("about", "&About spherokin", "show_about", "Help"),
@@ -100,6 +119,8 @@ def build_actions(window: Any) -> dict[str, QAction]:
         action.setToolTip(tip)
         action.setStatusTip(tip)
         action.setCheckable(spec.checkable)
+        if spec.short:
+            action.setIconText(spec.short)
         if spec.group:
             groups.setdefault(spec.group, QActionGroup(window)).addAction(action)
         handler = getattr(window, spec.handler)

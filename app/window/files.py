@@ -12,10 +12,13 @@ from pathlib import Path
 
 from PySide6.QtWidgets import QFileDialog, QMessageBox
 
+from analysis.errors import InputError
 from app.core.autosave import compare_with_project, find_recoverable, keep_aside, load_recovered
 from app.core.project_lock import ProjectLock, live_lock_owner
+from app.core.errors import one_line
 from app.microscopy.calibration import CalibrationDialog
 from app.window.properties_dialog import PropertiesDialog, stack_note
+from app.window.settings_dialog import AnalysisSettingsDialog
 from app.window.stack_import import experiments_from_paths, is_stack_path
 
 PROJECT_FILTER = "spherokin projects (*.spherokin.json);;All files (*)"
@@ -52,8 +55,8 @@ class WindowFilesMixin:
             from analysis.project.file import load_project
 
             project = load_project(path)
-        except Exception as exc:
-            self.show_problem("Cannot open the project", str(exc))
+        except Exception as exc:  # bad file: one line; a bug: the internal-error dialog
+            self.show_error("Cannot open the project", exc)
             return False
         self.autosaver.discard()
         self.model.replace_project(project)
@@ -113,7 +116,7 @@ class WindowFilesMixin:
         try:
             saved = self.model.save(path)
         except Exception as exc:  # the project stays in memory, still marked unsaved
-            self.show_problem("Could not save", f"{path}: {exc}")
+            self.show_error("Could not save", exc)
             return False
         old_side.unlink(missing_ok=True)
         self.hold_project_lock(saved)
@@ -208,14 +211,47 @@ class WindowFilesMixin:
     def edit_properties(self) -> None:
         self.edit_properties_of(self.model.current_index)
 
+    def edit_analysis_settings(self) -> None:
+        """Edit the current experiment's analysis settings; applying them analyses it again."""
+        index = self.model.current_index
+        if index < 0:
+            return
+        choice = self.ask_analysis_settings(index)
+        if choice is not None:
+            self.apply_analysis_settings(index, *choice)
+
+    def ask_analysis_settings(self, index: int):
+        """(settings, to_all) from the dialog, or None when cancelled (tests replace this)."""
+        experiment = self.model.experiment(index)
+        dialog = AnalysisSettingsDialog(experiment.name, experiment.settings,
+                                        several=self.model.experiment_count() > 1, parent=self)
+        if not dialog.exec():
+            return None
+        return dialog.settings(), dialog.apply_to_all.isChecked()
+
+    def apply_analysis_settings(self, index: int, settings, to_all: bool = False) -> None:
+        """Store ``settings`` on one (or every) experiment as ONE undo step, then analyse
+        the experiments whose settings changed."""
+        targets = range(self.model.experiment_count()) if to_all else [index]
+        changed = [i for i in targets if self.model.experiment(i).settings != settings]
+        if not changed:
+            return
+        stack = self.model.undo_stack
+        stack.beginMacro("Analysis settings of " + (
+            "every experiment" if to_all else self.model.experiment(index).name))
+        for i in changed:
+            self.model.set_experiment_properties(i, settings=settings)
+        stack.endMacro()
+        self.runner.run(changed)
+
     def edit_properties_of(self, index: int) -> None:
         if index < 0:
             return
         experiment = self.model.experiment(index)
         try:
             note = stack_note(self.model.frame_stack(index))
-        except Exception as exc:
-            note = f"The stack cannot be read: {exc}"
+        except InputError as exc:
+            note = f"The stack cannot be read: {one_line(exc)}"
         dialog = PropertiesDialog(experiment, note, self)
         if dialog.exec():
             changes = dialog.changes()
@@ -240,7 +276,7 @@ class WindowFilesMixin:
         try:
             image = self._calibration_image(path, index)
         except Exception as exc:
-            self.show_problem("Cannot read the image", str(exc))
+            self.show_error("Cannot read the image", exc)
             return
         dialog = CalibrationDialog(image, Path(path).name if path else "current frame",
                                    self.model.experiment_count() > 1, self,
@@ -257,6 +293,25 @@ class WindowFilesMixin:
         from_frame = box.addButton("Frame shown", QMessageBox.AcceptRole)
         box.exec()
         return {from_file: "file", from_frame: "frame"}.get(box.clickedButton())
+
+    def locate_stack(self) -> None:
+        """Point the current experiment to its stack where it is now (one undo step)."""
+        index = self.model.current_index
+        if index < 0:
+            return
+        experiment = self.model.experiment(index)
+        missing = Path(experiment.stack_path)
+        start = str(missing.parent if missing.parent.is_dir() else self._last_folder())
+        if missing.suffix:
+            path, _ = QFileDialog.getOpenFileName(self, f"Where is {missing.name} now?", start,
+                                                  STACK_FILTER)
+        else:  # a folder of frames
+            path = QFileDialog.getExistingDirectory(self, f"Where is the folder {missing.name} now?",
+                                                    start)
+        if path:
+            self.model.set_experiment_properties(
+                index, text=f"Locate the stack of {experiment.name}",
+                stack_path=str(Path(path).resolve()))
 
     def _calibration_image(self, path: str, index: int):
         if path:
@@ -334,8 +389,11 @@ class WindowFilesMixin:
         """Load the autosave; on failure it is kept and the message says where."""
         try:
             project = load_recovered(item)
-        except Exception as exc:
-            self.show_problem("Cannot recover", f"{exc}\nThe autosave is kept at {item.autosave_path}.")
+        except InputError as exc:
+            self.show_problem("Cannot recover", f"{one_line(exc)}\nThe autosave is kept at {item.autosave_path}.")
+            return False
+        except Exception as exc:  # a bug: logged, internal-error dialog; the autosave is kept too
+            self.show_error("Cannot recover", exc)
             return False
         self.model.replace_project(project, recovered=True)
         self.hold_project_lock(project.path)

@@ -89,6 +89,11 @@ def dispose(app: Any, window: Any) -> None:
 
 
 def _render(app: Any, window: Any, project: str | None, out: str, view: str | None) -> int:
+    from app.window.views import PAGE_VIEWS
+
+    if len(window.optional_views) != len(PAGE_VIEWS):  # already logged with its traceback
+        print(f"spherokin gui: internal error: {window.problems_shown[-1]}", file=sys.stderr)
+        return 1
     if project and not window.open_project_path(project, ask=False, read_only=True):
         print(window.problems_shown[-1], file=sys.stderr)
         return 2
@@ -132,7 +137,10 @@ def present_interesting_frame(window: Any) -> None:
 def _interactive(app: Any, project: str | None, view: str | None) -> int:
     from app.window.main_window import MainWindow, show_first_run_notice
 
+    from app.core.errors import install_excepthook
+
     window = MainWindow()
+    install_excepthook(lambda: window)  # a bug in a slot: logged and shown, never lost
     window.show()
     show_first_run_notice(window)
     if not window.offer_recovery() and project:

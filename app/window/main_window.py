@@ -9,12 +9,11 @@ Project commands (new/open/save, stacks, recovery) are in :mod:`app.window.files
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 from typing import Any
 
 import shiboken6
-from PySide6.QtCore import QSettings, QStandardPaths, Qt, QTimer
+from PySide6.QtCore import QSettings, QStandardPaths, Qt
 from PySide6.QtWidgets import (
     QDockWidget,
     QHBoxLayout,
@@ -28,11 +27,13 @@ from PySide6.QtWidgets import (
     QScrollArea,
     QSplitter,
     QStackedWidget,
+    QTabWidget,
     QUndoView,
     QWidget,
 )
 
 from app.core.autosave import Autosaver
+from app.core.errors import report_error
 from app.core.model import STATUS_RUNNING, STATUS_STALE, ProjectModel
 from app.core.runner import AnalysisRunner
 from app.microscopy.details_panel import DetailsPanel
@@ -43,9 +44,11 @@ from app.microscopy.review import ReviewQueue
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
 from app.widgets.help_guide import register_shortcuts
+from app.microscopy.spherulite_table import SpherulitesTable
 from app.window import actions as act
+from app.window import layout
 from app.window.files import WindowFilesMixin
-from app.window.views import build_optional_views
+from app.window.views import build_views
 
 APP_NAME = "spherokin"
 CAUTION = ("Hot-stage work: the stage and slides are hot enough to burn, and polymer "
@@ -101,13 +104,13 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_status_bar()
         self._add_view_menus()
         self.experiments_panel.setContextMenuPolicy(Qt.ActionsContextMenu)
-        for key in ("run", "properties", "calibrate", "remove_experiment"):
+        for key in ("run", "properties", "analysis_settings", "calibrate", "remove_experiment"):
             self.experiments_panel.addAction(self.actions_by_id[key])
         self.build_recent_menu()
         self._connect()
         self.actions_by_id["tool_select"].setChecked(True)
         self.setAcceptDrops(True)
-        self.resize(1600, 1000)
+        layout.fit_to_screen(self)
         if remember_layout:
             self._restore_layout()
         self._refresh_title()
@@ -122,15 +125,21 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.viewer_splitter.addWidget(self.viewer)
         self.viewer_splitter.addWidget(self.plots)
         self.viewer_splitter.setSizes([1000, 520])
+        self.wide_table = SpherulitesTable(self.model, follow_model=True)
+        self.microscopy_tabs = QTabWidget()
+        self.microscopy_tabs.setObjectName("microscopyTabs")
+        self.microscopy_tabs.setDocumentMode(True)
+        self.microscopy_tabs.addTab(self.viewer_splitter, "Image")
+        self.microscopy_tabs.addTab(self.wide_table, "Spherulites table")
         self.rail = QListWidget()
         self.rail.setObjectName("viewRail")
         self.rail.setStyleSheet(RAIL_STYLE)
         self.rail.setFixedWidth(104)
         self.pages = QStackedWidget()
         self.view_names: list[str] = []
-        self._add_page("viewer", "Microscopy", self.viewer_splitter,
+        self._add_page("viewer", "Microscopy", self.microscopy_tabs,
                        "Frames of the current experiment with the detections")
-        self.optional_views = build_optional_views(self.model, self._report_view_problem)
+        self.optional_views = build_views(self.model, self.show_error)
         for spec, widget in self.optional_views:
             self._add_page(spec.name, spec.title, _scrollable(widget), spec.tooltip)
         self.rail.currentRowChanged.connect(self._on_rail_changed)
@@ -176,8 +185,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         first_show = not self._docks_sized
         self._docks_sized = True
         if first_show and not (self.remember_layout and self.settings.value("window/state")):
-            self.resizeDocks([self.docks["experiments"], self.docks["details"]], [400, 330],
-                             Qt.Horizontal)
+            self.resizeDocks([self.docks["experiments"], self.docks["details"]],
+                             layout.dock_widths(self), Qt.Horizontal)
         if not first_show:
             return
         splitter = self.settings.value("window/viewer_splitter") if self.remember_layout else None
@@ -185,7 +194,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
             self.viewer_splitter.restoreState(splitter)
         else:
             total = max(600, self.viewer_splitter.width())
-            self.viewer_splitter.setSizes([int(total * 0.6), int(total * 0.4)])
+            share = layout.IMAGE_SHARE
+            self.viewer_splitter.setSizes([int(total * share), int(total * (1 - share))])
 
     def _build_status_bar(self) -> None:
         bar = self.statusBar()
@@ -221,6 +231,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         model.dirty_changed.connect(lambda _d: self._refresh_title())
         model.path_changed.connect(lambda _p: self._refresh_title())
         model.problem_reported.connect(self.show_problem)
+        model.error_raised.connect(self.show_error)
         model.selection_changed.connect(lambda *_: self._refresh_actions())
         model.analysis_updated.connect(lambda _i: self._refresh_unapplied())
         model.status_changed.connect(lambda _i: self._refresh_unapplied())
@@ -232,9 +243,11 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.viewer.frame_changed.connect(lambda _f: self.plots.set_time(self.viewer.time_from_start_s()))
         self.tools.hint_changed.connect(self.hint_label.setText)
         self.review.message.connect(self.hint_label.setText)
+        self.viewer.locate_requested.connect(self.locate_stack)
         self.runner.progressed.connect(self._on_progress)
         self.runner.busy_changed.connect(self._on_busy_changed)
-        self.runner.experiment_failed.connect(lambda _i, text: self.show_problem("Analysis failed", text))
+        self.runner.experiment_errored.connect(
+            lambda i, exc: self.show_error(f"Analysis of {self.model.experiment(i).name} failed", exc))
         self.autosaver.autosaved.connect(lambda p: self.statusBar().showMessage(f"Autosaved to {p}", 4000))
         self.autosaver.autosave_failed.connect(lambda t: self.statusBar().showMessage(t, 8000))
         stack = model.undo_stack
@@ -256,6 +269,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _on_rail_changed(self, row: int) -> None:
         self._show_microscopy_docks(row == 0)
+        if hasattr(self, "toolbars"):
+            layout.show_page_tools(self, row == 0)
         self.pages.setCurrentIndex(row)
         page = self.pages.widget(row)
         page = page.widget() if isinstance(page, QScrollArea) else page
@@ -279,12 +294,6 @@ class MainWindow(WindowFilesMixin, QMainWindow):
             self.docks["details"].raise_()
             self._hidden_docks = None
 
-    def _report_view_problem(self, text: str) -> None:
-        """An optional view failed to load: keep going, but say so (stderr, status bar)."""
-        self.problems_shown.append(text)
-        print(text, file=sys.stderr)
-        QTimer.singleShot(0, lambda: self.statusBar().showMessage(f"View not loaded: {text}", 15000))
-
     # ---------------------------------------------------------------- state display
     def _refresh_title(self) -> None:
         path = self.model.path
@@ -294,7 +303,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _refresh_actions(self) -> None:
         has_experiment = self.model.current_index >= 0
-        for key in ("properties", "calibrate", "remove_experiment", "run", "ignore_frames"):
+        for key in ("properties", "analysis_settings", "calibrate", "remove_experiment", "run",
+                    "ignore_frames"):
             self.actions_by_id[key].setEnabled(has_experiment)
         self.actions_by_id["run_all"].setEnabled(self.model.experiment_count() > 0)
         self.actions_by_id["cancel"].setEnabled(self.runner.is_busy())
@@ -312,6 +322,10 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         if index >= 0 and self.model.status(index) == STATUS_STALE:
             notes.append("results out of date — analyse again (F5)")
         self.unapplied_label.setText("   ".join(notes))
+
+    def show_error(self, title: str, exc: BaseException) -> None:
+        """Bad input: a one-line warning; a bug: the internal-error dialog with the log's path."""
+        self.problems_shown.append(report_error(self, title, exc))
 
     def show_problem(self, title: str, text: str) -> None:
         """A non-blocking warning dialog (the work continues behind it)."""
@@ -369,6 +383,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
     def set_show_rejected(self, shown: bool) -> None:
         self.viewer.set_show_rejected(shown)
         self.details.set_show_rejected(shown)
+        self.wide_table.set_show_rejected(shown)
 
     def ignore_frames(self) -> None:
         index = self.model.current_index
@@ -412,6 +427,14 @@ class MainWindow(WindowFilesMixin, QMainWindow):
                           f"<p><b>Caution.</b> {CAUTION}</p>")
 
     # ---------------------------------------------------------------- layout and closing
+    def reset_layout(self) -> None:
+        layout.reset_layout(self)
+
+    def show_spherulite_table(self) -> None:
+        """The spherulites table as a wide tab beside the image."""
+        self.show_view(self.view_names[0])
+        self.microscopy_tabs.setCurrentWidget(self.wide_table)
+
     def _restore_layout(self) -> None:
         geometry = self.settings.value("window/geometry")
         state = self.settings.value("window/state")

@@ -11,6 +11,8 @@ import re
 from pathlib import Path
 from typing import Any, Iterable
 
+from app.core.errors import failure_line
+
 STACK_SUFFIXES = {".tif", ".tiff", ".avi", ".mp4", ".mov", ".mkv", ".m4v", ".wmv"}
 _TEMPERATURE = re.compile(r"(?<![\d.])(\d{2,3}(?:[.,p]\d+)?)\s*(?:°\s*C|deg\s*C|C)(?![a-z])",
                           re.IGNORECASE)
@@ -46,7 +48,7 @@ def experiments_from_paths(paths: Iterable[str | Path]) -> tuple[list, list[str]
     for path in paths:
         try:
             experiments.append(experiment_for(path))
-        except Exception as exc:  # InputError names the file; anything else: add it
-            text = str(exc)
+        except Exception as exc:  # listed; a bug is logged as one (app.core.errors)
+            text = failure_line(exc, "adding stacks")
             problems.append(text if str(path) in text else f"{path}: {text}")
     return experiments, problems

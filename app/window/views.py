@@ -1,17 +1,22 @@
-"""The registry of main views shown in the window's view rail.
+"""The registry of the pages shown in the window's view rail.
 
-The microscopy view ("viewer") is always present. Optional views live in their own
-modules and are built with the shared :class:`app.core.model.ProjectModel`; a module that is
-not installed is simply not shown, one that fails to import is reported (never hidden).
-``spherokin gui --view NAME`` selects a view by its registry name.
+The microscopy page ("viewer") is built by the window itself; the other pages live in
+their own packages and are built here with the shared :class:`app.core.model.ProjectModel`.
+Every page is part of the product: one that fails to import or to build is an internal
+error, reported through :mod:`app.core.errors` (traceback logged, dialog shown), never a
+page that silently goes missing. ``spherokin gui --view NAME`` selects a page by name.
 """
 
 from __future__ import annotations
 
 import importlib
-import sys
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Callable
+
+from PySide6.QtWidgets import QWidget
+
+if TYPE_CHECKING:
+    from app.core.model import ProjectModel
 
 
 @dataclass(frozen=True)
@@ -25,7 +30,7 @@ class ViewSpec:
     tooltip: str = ""
 
 
-OPTIONAL_VIEWS = (
+PAGE_VIEWS = (
     ViewSpec("kinetics", "Kinetics", "app.kinetics.view", "KineticsView",
              "Avrami kinetics of the current experiment, with calorimetry"),
     ViewSpec("temperature", "Tc series", "app.temperature.view", "TemperatureView",
@@ -33,38 +38,32 @@ OPTIONAL_VIEWS = (
 )
 
 
-def find_view_class(spec: ViewSpec) -> tuple[Any, str]:
-    """Import ``spec``'s widget class: (class, "") or (None, reason it is unavailable).
+class ViewBuildError(RuntimeError):
+    """A page could not be imported or built (the cause is chained)."""
 
-    A missing module gives (None, "") so the rail hides it quietly; any other import
-    failure returns the error text so the window can report it.
-    """
+
+def find_view_class(spec: ViewSpec) -> type:
+    """Import ``spec``'s widget class; :class:`ViewBuildError` (cause chained) when it cannot."""
     try:
         module = importlib.import_module(spec.module)
-    except ModuleNotFoundError as exc:
-        if exc.name == spec.module:
-            return None, ""
-        return None, f"{spec.module}: {exc}"
-    except Exception as exc:  # a broken optional view must not stop the application
-        return None, f"{spec.module}: {type(exc).__name__}: {exc}"
+    except Exception as exc:  # re-raised with the page named; the cause keeps its traceback
+        raise ViewBuildError(f"the {spec.title} page ({spec.module}) cannot be imported: "
+                             f"{type(exc).__name__}: {exc}") from exc
     cls = getattr(module, spec.class_name, None)
     if cls is None:
-        return None, f"{spec.module} has no {spec.class_name}"
-    return cls, ""
+        raise ViewBuildError(f"the {spec.title} page: {spec.module} has no {spec.class_name}")
+    return cls
 
 
-def build_optional_views(model: Any, report: Callable[[str], None] | None = None) -> list:
-    """Instantiate every available optional view: a list of (spec, widget)."""
+def build_views(model: ProjectModel, report: Callable[[str, BaseException], None]) -> list:
+    """Build every page: a list of (spec, widget). A page that fails is passed to ``report``
+    (title, exception) and left out, so the rest of the window still works."""
     built = []
-    for spec in OPTIONAL_VIEWS:
-        cls, problem = find_view_class(spec)
-        if cls is None:
-            if problem:
-                (report or (lambda text: print(text, file=sys.stderr)))(problem)
-            continue
+    for spec in PAGE_VIEWS:
         try:
-            built.append((spec, cls(model)))
-        except Exception as exc:
-            (report or (lambda text: print(text, file=sys.stderr)))(
-                f"{spec.module}: could not build {spec.class_name}: {exc}")
+            widget: QWidget = find_view_class(spec)(model)
+        except Exception as exc:  # reported as an internal error by the caller, never hidden
+            report(f"The {spec.title} page could not be built", exc)
+            continue
+        built.append((spec, widget))
     return built

@@ -88,7 +88,13 @@ def inputs(tmp_path_factory) -> Path:
     tifffile.imwrite(d / "two_channels.tif", np.zeros((4, 2, 32, 32), np.uint8), imagej=True,
                      metadata={"axes": "TCYX"})
     tifffile.imwrite(d / "odd_axes.tif", np.zeros((4, 32, 32, 5), np.uint8),
-                     metadata={"axes": "TYXQ"})
+                     photometric="minisblack", metadata={"axes": "TYXQ"})
+    import cv2
+
+    (d / "png_bombs").mkdir()
+    ok, png = cv2.imencode(".png", np.zeros((9000, 9000), np.uint8), [cv2.IMWRITE_PNG_COMPRESSION, 9])
+    for name in ("f1.png", "f2.png"):  # 80 kB each, 81 Mpx declared
+        (d / "png_bombs" / name).write_bytes(png.tobytes())
     (d / "noise.avi").write_bytes(np.random.default_rng(0).bytes(200_000))
     (d / "deep.spherokin.json").write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
     (d / "bigint.spherokin.json").write_text(
@@ -113,6 +119,7 @@ CASES = {
     "tiff bomb analyze": (["analyze", "bomb.tif", "--out", "o", "--um-per-px", "1",
                            "--interval-s", "1"], {}, 2, "--memory-budget-mb"),
     "tiff bomb info": (["info", "bomb.tif"], {}, 0, None),
+    "png bombs in a folder": (["analyze", "png_bombs", "--out", "o"], {}, 2, "Mpx limit"),
     "deep json": (["report", "deep.spherokin.json", "--out", "o"], {}, 2, "nested"),
     "huge integer": (["report", "bigint.spherokin.json", "--out", "o"], {}, 2, "4300 digits"),
     "decimal comma row": (["lauritzen-hoffman", "comma.csv", "--out", "o", *LH], {}, 2,
@@ -138,7 +145,7 @@ CASES = {
     "unknown project material": (["report", "material.spherokin.json", "--out", "o"], {}, 2,
                                  "unknown material"),
     "malformed Hoffman-Weeks pair": (["report", "hw.spherokin.json", "--out", "o"], {}, 2,
-                                     "hoffman_weeks_pairs entry 2"),
+                                     "hoffman_weeks_pairs"),
     "two channels": (["info", "two_channels.tif"], {}, 2, "2 channels"),
     "odd axes": (["info", "odd_axes.tif"], {}, 2, "TYXQ"),
     "garbage video": (["info", "noise.avi"], {}, 2, "noise.avi"),
@@ -262,7 +269,8 @@ def test_memory_budget_from_option_or_environment(tmp_path, monkeypatch):
     from analysis.stack.frames import open_stack
 
     path = tmp_path / "small.tif"
-    tifffile.imwrite(path, np.zeros((4, 64, 64), np.uint8), metadata={"axes": "TYX"})
+    tifffile.imwrite(path, np.zeros((4, 64, 64), np.uint8), photometric="minisblack",
+                     metadata={"axes": "TYX"})
     stack = open_stack(path, um_per_px=1.0, interval_s=1.0)
     check_memory_budget(stack, 1000)  # ~200 MB needed
     with pytest.raises(InputError, match="--memory-budget-mb") as info:

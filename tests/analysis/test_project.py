@@ -136,3 +136,32 @@ def test_saved_file_keeps_normal_permissions(tmp_path):
     target.chmod(0o640)
     save_project(Project(), target)
     assert stat.S_IMODE(target.stat().st_mode) == 0o640
+
+
+FIXTURE_V3 = Path(__file__).parent / "fixtures" / "project_v3.spherokin.json"
+
+
+def test_frozen_v3_fixture_loads_as_isothermal_experiments(tmp_path):
+    shutil.copy(FIXTURE_V3, tmp_path / "p.spherokin.json")
+    project = load_project(tmp_path / "p.spherokin.json")
+    (experiment,) = project.experiments
+    assert experiment.kind == "isothermal" and experiment.temperature_source is None
+    assert experiment.isothermal_start_s == 12.5 and {e.kind for e in experiment.edits} == set(E.EDIT_KINDS)
+
+
+def test_a_ramp_experiment_round_trips_with_its_log_relative(tmp_path):
+    from analysis.project.file import TemperatureSource
+
+    source = TemperatureSource(log_file=str(tmp_path / "logs" / "stage.csv"), time_col="Time (s)",
+                               clock_offset_s=-120.0, lag_s=5.0)
+    ramp = Experiment(name="cooling 5 K/min", stack_path=str(tmp_path / "ramp" / "stack.tif"), kind="ramp",
+                      temperature_source=source)
+    save_project(Project(experiments=(ramp,)), tmp_path / "p.spherokin.json")
+    document = json.loads((tmp_path / "p.spherokin.json").read_text())
+    stored = document["experiments"][0]
+    assert stored["kind"] == "ramp" and stored["temperature_source"]["log_file"] == "logs/stage.csv"
+    assert load_project(tmp_path / "p.spherokin.json").experiments == (ramp,)
+    stored["kind"] = "quench"
+    (tmp_path / "bad.spherokin.json").write_text(json.dumps(document))
+    with pytest.raises(InputError, match="kind must be one of isothermal, ramp"):
+        load_project(tmp_path / "bad.spherokin.json")

@@ -5,6 +5,7 @@ point checked here is that nothing absurd or unknown gets through, and nothing i
 """
 
 import copy
+import dataclasses
 import json
 import shutil
 from pathlib import Path
@@ -110,7 +111,9 @@ def test_a_bad_value_is_one_line_naming_file_experiment_and_key(tmp_path, change
     (lambda d: d["series"].update(u_star_j_per_mol=1e300), "series.u_star_j_per_mol", "1e+300"),
     (lambda d: d["series"].update(tg_c=200.0), "series.tg_c", "below tm0_c"),
     (lambda d: d["series"].update(t_inf_c=0.0), "series.t_inf_c", "below tg_c"),
-    (lambda d: d["series"].update(hoffman_weeks_pairs=[[124.0]]), "series.hoffman_weeks_pairs", "[124.0]"),
+    (lambda d: d["series"].update(hoffman_weeks_pairs=[[124.0, 160.0], [124.0]]),
+     "series.hoffman_weeks_pairs entry 2", "[124.0]"),
+    (lambda d: d["series"].update(hoffman_weeks_pairs=[["x", 160.0]]), "series.hoffman_weeks_pairs entry 1", "'x'"),
     (lambda d: d.update(material=3), "material", "int"),
 ])
 def test_a_bad_series_value_names_file_and_key(tmp_path, change, key, shown):
@@ -182,7 +185,8 @@ def test_one_default_geometry_everywhere():
 
     assert DEFAULT_GEOMETRY == "bulk-3d"  # summary.json's prediction is the one DSC compares with
     assert Experiment("a", "s.tif").geometry == DEFAULT_GEOMETRY
-    assert ReportEntry("a", None).geometry == DEFAULT_GEOMETRY
+    entry_default = next(f.default for f in dataclasses.fields(ReportEntry) if f.name == "geometry")
+    assert entry_default == DEFAULT_GEOMETRY
     for function in (predict_model_from_result, prediction_inputs, analyze_arrival_iter):
         assert _default(function, "geometry") == DEFAULT_GEOMETRY
     args = build_parser("analyze").parse_args(["analyze", "s.tif", "--out", "o"])

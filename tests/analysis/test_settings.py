@@ -50,8 +50,8 @@ def test_strict_parsing_rules():
 def test_t_inf_default_is_tg_minus_30_k():
     from analysis.kinetics.lauritzen_hoffman import LHConstants
 
-    # T∞ = Tg − 30 K with U* = 1500 cal/mol (Suzuki & Kovacs 1970, Polymer J. 1, 82;
-    # Hoffman, Davis & Lauritzen 1976, Treatise on Solid State Chemistry vol. 3) # from memory
+    # T∞ = Tg − 30 K with U* = 1500 cal/mol (Suzuki & Kovacs 1970; Hoffman, Davis &
+    # Lauritzen 1976; docs/sources.md §2.2)  # from memory
     assert t_inf_default_c(-10.0) == pytest.approx(-40.0)
     assert LHConstants(185.0, -10.0).t_inf == pytest.approx(-40.0)
     assert LHConstants(185.0, -10.0).u_star_j_per_mol == pytest.approx(1500 * 4.184, abs=10)

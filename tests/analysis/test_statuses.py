@@ -41,7 +41,8 @@ def test_classify_names_the_number_that_decided(changes, status, words):
 
 
 def test_nucleation_before_the_start_is_noted_only_beyond_its_interval():
-    # 95 % CI from the t distribution (Student 1908, Biometrika 6, 1): t(0.975, 20) = 2.086
+    # 95 % CI from the t distribution (Student 1908, Biometrika 6, 1; from memory, see
+    # docs/sources.md): t(0.975, 20) = 2.086
     assert statuses.early_nucleation_note(-11.0, 2.0, 20).startswith(
         "nucleated before the isothermal start: t0 = -11 ± 4 s")
     assert statuses.early_nucleation_note(-3.0, 2.0, 20) == ""  # -3 + 4.2 > 0: within the CI

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from analysis.kinetics.calorimetry import header_mismatches, sniff_calorimetry_file
+from analysis.kinetics.calorimetry import check_header, sniff_calorimetry_file
 from analysis.project.file import CalorimetrySource, Experiment
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 
@@ -29,12 +29,20 @@ def test_header_temperature_sample_and_mass_are_compared():
     preview = sniff_calorimetry_file(FILE_127)
     assert (preview.sample_name, preview.temperature_c, preview.mass_mg) == (
         "Orvessa PN-12, Tc 127 C", 127.0, 5.0)
-    assert header_mismatches(preview, temperature_c=127.0, experiment_name="Orvessa PN-12, 127 °C",
-                             mass_mg=5.0) == ()
-    found = header_mismatches(preview, temperature_c=124.0, experiment_name="Lumeth QX 124",
-                              mass_mg=4.2)
-    assert len(found) == 3 and "127 °C" in found[0] and "Lumeth" in found[1] and "4.2 mg" in found[2]
-    assert header_mismatches(preview, temperature_c=None, experiment_name="", mass_mg=None) == ()
+    same = check_header(preview, temperature_c=127.0, experiment_name="Orvessa PN-12, 127 °C",
+                        mass_mg=5.0)
+    assert same.conflicts == () and same.notes == ()
+    found = check_header(preview, temperature_c=124.0, experiment_name="Lumeth QX 124", mass_mg=4.2)
+    assert len(found.conflicts) == 2 and "127 °C" in found.conflicts[0] and "4.2 mg" in found.conflicts[1]
+    assert len(found.notes) == 1 and "Lumeth" in found.notes[0]  # shown, not asked about
+    unknown = check_header(preview, temperature_c=None, experiment_name="", mass_mg=None)
+    assert unknown.conflicts == () and unknown.notes == ()
+
+
+def test_a_temperature_in_the_sample_name_counts_when_the_header_has_no_line():
+    preview = dataclasses.replace(sniff_calorimetry_file(FILE_127), temperature_c=None)
+    found = check_header(preview, temperature_c=124.0, experiment_name="Orvessa", mass_mg=None)
+    assert found.conflicts == ("the file is an isotherm at 127 °C, the experiment's Tc is 124 °C",)
 
 
 def test_a_file_at_another_temperature_is_asked_about_and_the_lag_is_kept(qtbot, experiment_124):

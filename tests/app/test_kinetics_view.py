@@ -243,7 +243,9 @@ def test_default_window_action_restores_the_guideline_window(view, isotherm_csv)
 
     _import(view, isotherm_csv[0])
     default_n = view.calorimetry_panel.form.text("n")
+    assert view.default_window_action.text() == "Reset fit window to 3-20 % (in use)"
     view.plots.window_region.setRegion((x_to_avrami_y(0.1), x_to_avrami_y(0.5)))
+    assert view.default_window_action.text() == "Reset fit window to 3-20 % (now 10-50 %)"
     view.default_window_action.trigger()
     assert view.model.experiment(0).calorimetry.window == (0.03, 0.20)
     assert view.calorimetry_panel.form.text("n") == default_n

@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import json
-import sys
 
-import fake_pipeline
 import pytest
+from fake_pipeline import FakeEngine
 
 from analysis.errors import InputError
 from analysis.edits import (
@@ -22,17 +21,16 @@ from app.core import model as m
 
 
 @pytest.fixture
-def fake(monkeypatch):
-    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
-    return fake_pipeline
+def fake():
+    return FakeEngine()
 
 
 @pytest.fixture
 def shared(qapp, fake, small_project):
-    model = m.ProjectModel(small_project)
+    model = m.ProjectModel(small_project, engine=fake)
     for i in range(model.experiment_count()):
         experiment = model.experiment(i)
-        model.set_analysis(i, run_to_completion(fake.analyze_experiment_iter(experiment)), experiment)
+        model.set_analysis(i, run_to_completion(fake.analyze_iter(experiment)), experiment)
     return model
 
 
@@ -73,7 +71,7 @@ def test_reanalysis_replays_edits(shared, fake):
     shared.push_edit(0, AddNucleus(30.0, 5.0))
     shared.push_edit(0, ExcludeSpherulite(24.0, 20.0))
     experiment = shared.experiment(0)
-    shared.set_analysis(0, run_to_completion(fake.analyze_experiment_iter(experiment)), experiment)
+    shared.set_analysis(0, run_to_completion(fake.analyze_iter(experiment)), experiment)
     statuses = {(s.x_px, s.y_px): (s.status, s.source) for s in shared.result(0).spherulites}
     assert statuses[(30.0, 5.0)] == ("ok", "manual")
     assert statuses[(24.0, 20.0)] == ("excluded", "auto")
@@ -82,7 +80,7 @@ def test_reanalysis_replays_edits(shared, fake):
 def test_edit_made_while_analysis_ran_is_applied_to_its_result(shared, fake):
     started = shared.experiment(0)
     shared.push_edit(0, AddNucleus(50.0, 50.0))
-    shared.set_analysis(0, run_to_completion(fake.analyze_experiment_iter(started)), started)
+    shared.set_analysis(0, run_to_completion(fake.analyze_iter(started)), started)
     assert any(s.source == "manual" for s in shared.result(0).spherulites)
     assert shared.status(0) == m.STATUS_DONE
 

@@ -13,25 +13,25 @@ import subprocess
 import sys
 import time
 
-import fake_pipeline
 import pytest
+from fake_pipeline import FakeEngine
 from PySide6.QtCore import QSettings
 
 from analysis.edits import AddNucleus
 from analysis.project.file import project_to_dict, save_project
 from app.core.autosave import compare_with_project, find_recoverable, side_path_for
+from app.core.model import ProjectModel
 from app.core.project_lock import ProjectLock, live_lock_owner, lock_path_for
 from app.window.main_window import MainWindow
 
 
 @pytest.fixture
-def fresh_window(qtbot, tmp_path, monkeypatch):
+def fresh_window(qtbot, tmp_path):
     """A new window after a 'crash'; its recovery answers are scripted per test."""
-    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
-
     def make(answer="recover"):
         settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-        window = MainWindow(settings=settings, recovery_dir=str(tmp_path / "recovery"))
+        window = MainWindow(ProjectModel(engine=FakeEngine()), settings=settings,
+                            recovery_dir=str(tmp_path / "recovery"))
         window.ask_unsaved_changes = lambda: "discard"
         window.asked = []
         window.ask_recover = lambda item, comparison=None: window.asked.append(comparison) or answer

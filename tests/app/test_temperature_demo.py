@@ -26,6 +26,9 @@ def test_demo_series_table_fit_and_xlsx(qtbot, demo_project_path, tmp_path):
     view.resize(1600, 1000)
     view.show()
     assert view.table.proxy.rowCount() == 5 and not view.empty_note.isVisible()
+    (ramp,) = view.ramps  # the demo's cooling run: its G(T) is drawn beside the points
+    growth = ramp.ramp.growth
+    assert growth.temperature_c.min() < 125 < growth.temperature_c.max()
     assert len(view.fit.regimes) == 1
     assert view.fit.overall.kg_k2 == pytest.approx(4.6e5, rel=0.05)
     measured = [p.measured_t_half_min for p in view.points]

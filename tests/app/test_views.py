@@ -1,25 +1,27 @@
-"""The view registry: missing optional views are skipped, broken ones are reported."""
+"""The page registry: every page is built; one that cannot be is an internal error."""
 
 from __future__ import annotations
 
 import sys
 import types
 
-from app.window.views import ViewSpec, build_optional_views, find_view_class
+import pytest
+
+from app.window.views import PAGE_VIEWS, ViewBuildError, ViewSpec, build_views, find_view_class
 
 
-def test_missing_module_is_skipped_quietly():
-    assert find_view_class(ViewSpec("x", "X", "app.no_such_view_module", "View")) == (None, "")
+def test_a_missing_page_module_is_an_error_not_a_hidden_page():
+    with pytest.raises(ViewBuildError, match="X page .*cannot be imported: ModuleNotFoundError"):
+        find_view_class(ViewSpec("x", "X", "app.no_such_view_module", "View"))
 
 
-def test_broken_or_incomplete_module_is_reported(monkeypatch):
-    broken = types.ModuleType("app.broken_view_for_test")
-    monkeypatch.setitem(sys.modules, "app.broken_view_for_test", broken)
-    cls, problem = find_view_class(ViewSpec("b", "B", "app.broken_view_for_test", "View"))
-    assert cls is None and "has no View" in problem
+def test_an_incomplete_module_is_an_error(monkeypatch):
+    monkeypatch.setitem(sys.modules, "app.broken_view_for_test", types.ModuleType("app.broken_view_for_test"))
+    with pytest.raises(ViewBuildError, match="has no View"):
+        find_view_class(ViewSpec("b", "B", "app.broken_view_for_test", "View"))
 
 
-def test_available_view_is_built_with_the_model(monkeypatch):
+def test_every_page_is_built_with_the_model(monkeypatch):
     module = types.ModuleType("app.sample_view_for_test")
 
     class View:
@@ -28,7 +30,28 @@ def test_available_view_is_built_with_the_model(monkeypatch):
 
     module.View = View
     monkeypatch.setitem(sys.modules, "app.sample_view_for_test", module)
-    monkeypatch.setattr("app.window.views.OPTIONAL_VIEWS",
-                        (ViewSpec("s", "S", "app.sample_view_for_test", "View"),))
-    ((spec, widget),) = build_optional_views("the model")
-    assert spec.name == "s" and widget.model == "the model"
+    monkeypatch.setattr("app.window.views.PAGE_VIEWS", (ViewSpec("s", "S", "app.sample_view_for_test", "View"),))
+    reported = []
+    ((spec, widget),) = build_views("the model", lambda title, exc: reported.append(exc))
+    assert spec.name == "s" and widget.model == "the model" and reported == []
+
+
+def test_a_page_that_fails_to_build_is_reported_with_its_exception(monkeypatch):
+    module = types.ModuleType("app.failing_view_for_test")
+
+    class View:
+        def __init__(self, model):
+            raise KeyError("missing widget")
+
+    module.View = View
+    monkeypatch.setitem(sys.modules, "app.failing_view_for_test", module)
+    monkeypatch.setattr("app.window.views.PAGE_VIEWS", (ViewSpec("f", "F", "app.failing_view_for_test", "View"),))
+    reported = []
+    assert build_views("the model", lambda title, exc: reported.append((title, exc))) == []
+    ((title, exc),) = reported
+    assert "F page could not be built" in title and isinstance(exc, KeyError)
+
+
+def test_the_product_pages_import():
+    for spec in PAGE_VIEWS:
+        assert find_view_class(spec).__name__ == spec.class_name

@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-import sys
 import threading
 
-import fake_pipeline
 import pytest
+from fake_pipeline import FakeEngine
 
 from analysis.edits import AddNucleus
 from analysis.progress import Progress
@@ -62,12 +61,12 @@ def test_worker_abort_stops_between_yields(qtbot):
 
 
 @pytest.fixture
-def fake(monkeypatch):
-    monkeypatch.setitem(sys.modules, "analysis.spherulites.pipeline", fake_pipeline)
+def fake():
+    return FakeEngine()
 
 
 def test_runner_fills_results_per_experiment(qtbot, fake, small_project):
-    model = m.ProjectModel(small_project)
+    model = m.ProjectModel(small_project, engine=fake)
     runner = AnalysisRunner(model)
     finished = []
     runner.experiment_finished.connect(finished.append)
@@ -79,7 +78,7 @@ def test_runner_fills_results_per_experiment(qtbot, fake, small_project):
 
 
 def test_runner_cancel_marks_queue_cancelled(qtbot, fake, small_project):
-    model = m.ProjectModel(small_project)
+    model = m.ProjectModel(small_project, engine=fake)
     runner = AnalysisRunner(model)
     with qtbot.waitSignal(runner.all_finished, timeout=10000):
         runner.run_all()
@@ -88,7 +87,7 @@ def test_runner_cancel_marks_queue_cancelled(qtbot, fake, small_project):
 
 
 def test_autosave_writes_side_file_and_recovers_edits(qapp, fake, small_project, tmp_path):
-    model = m.ProjectModel(small_project)
+    model = m.ProjectModel(small_project, engine=fake)
     saver = Autosaver(model, tmp_path / "recovery", interval_ms=10_000_000)
     assert saver.autosave_if_dirty() is None  # clean: nothing written
     model.push_edit(0, AddNucleus(7.0, 9.0))

@@ -1,0 +1,26 @@
+"""One way to write numbers, uncertainties, powers of ten and units in the application."""
+
+from __future__ import annotations
+
+from app.widgets.formatting import DASH, fmt, fmt_interval, fmt_pm, k_unit
+
+
+def test_numbers_and_powers_of_ten():
+    assert fmt(32.14, "µm/min") == "32.1 µm/min"
+    assert fmt(4.6e5, "mm⁻²") == "4.6 × 10⁵ mm⁻²"
+    assert fmt(4.6e-5) == "4.6 × 10⁻⁵"
+    assert fmt(None, "s") == DASH and fmt(float("nan")) == DASH
+    # below 10⁴ but more digits than three figures can show plainly: never "4.58e+03"
+    assert fmt(4580.0, "mm⁻³") == "4.58 × 10³ mm⁻³" and fmt(999.4) == "999"
+
+
+def test_uncertainty_is_the_95_ci_half_width_and_shares_the_power_of_ten():
+    assert fmt_pm(32.14, 1.23, "µm/min") == "32.1 ± 1.2 µm/min (95 % CI)"
+    assert fmt_pm(4.6e5, 3.4e2, "mm⁻²") == "(4.6 ± 0.0034) × 10⁵ mm⁻² (95 % CI)"
+    assert fmt_pm(2.5, None) == "2.5"
+    assert fmt_interval(12.0, 11.0, 13.5, "µm/min") == "12 µm/min (95 % CI 11 – 13.5)"
+
+
+def test_avrami_k_states_its_n():
+    assert fmt(4.6e-5, k_unit(3.0)) == "4.6 × 10⁻⁵ min⁻ⁿ, n = 3.00"
+    assert k_unit(None) == DASH
