@@ -206,8 +206,10 @@ def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evid
     y, x = np.divmod(chosen, ctx.shape[1])
     t = ctx.fit_arrival.ravel()[chosen]
     scale = growth.residual_scale_s(fit, x, y, t) if fit.ok and chosen.size else float("nan")
+    seeds = np.concatenate(det.seeds) if det.seeds else np.zeros(0, np.int64)
+    early = bool(seeds.size) and bool(ctx.at_start.ravel()[seeds].any())
     return evidence_checks.Evidence(fit, scale, x, y, t, user_included=det.excluded is False,
-                                    automatic=det.source == "auto")
+                                    automatic=det.source == "auto", in_first_frame=early)
 
 
 # ---------------------------------------------------------------- whole result

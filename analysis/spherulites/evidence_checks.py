@@ -38,6 +38,7 @@ class Evidence:
     t: np.ndarray
     user_included: bool        # the user forced it to count (an ``include`` edit)
     automatic: bool            # found by the analysis, not added by hand
+    in_first_frame: bool = False  # its marker lies in crystal already present in the first frame
 
 
 def _field_slope(items) -> float:
@@ -66,6 +67,8 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
     """Why this candidate is not a spherulite, or '' when its evidence holds."""
     rules = heuristics.current()
     fit = ev.fit
+    if not fit.ok and ev.in_first_frame:
+        return ""  # grew before the record began: no evidence either way, so review, not reject
     if not fit.ok:
         where = "at the edge of the field, " if sph.status == "edge" else ""
         return f"no growing front {where}could be fitted ({fit.reason})"
