@@ -16,10 +16,11 @@ Two forms of ln G(T) are fitted jointly to all measured radii by non-linear leas
 
 * a penalised cubic B-spline of ln G in T (second-difference penalty; Eilers & Marx 1996,
   Statistical Science 11, 89), the smoothing weight chosen by cross-validation with whole
-  spherulites left out (Rice & Silverman 1991, J. R. Stat. Soc. B 53, 233); its 95 % band is the Bayesian
-  posterior band σ²(JᵀJ + λP)⁻¹ (Wahba 1983, J. R. Stat. Soc. B 45, 133), which also
-  covers the smoothing bias on average. See docs/sources.md, section "Temperature
-  programmes and non-isothermal growth".
+  spherulites left out (Rice & Silverman 1991, J. R. Stat. Soc. B 53, 233); its 95 % band
+  is the Bayesian band of a penalised spline (Wahba 1983, J. R. Stat. Soc. B 45, 133) with
+  the data part allowing for errors shared by a spherulite's radii and by a frame's radii
+  (:func:`_band`). See docs/sources.md, section "Temperature programmes and
+  non-isothermal growth".
 * the Lauritzen-Hoffman form ln G = ln G0 − U*/(R(T − T∞)) − Kg/(T ΔT f) (docs/sources.md
   §2.1) with the series' constants: Kg and G0 straight from all radii at once.
 

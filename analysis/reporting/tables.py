@@ -68,6 +68,8 @@ class ReportEntry:
     ramp: object | None = None  # kinetics.ramp.RampAnalysis for an experiment of kind "ramp"
 
     def __post_init__(self):
+        if self.result is None:  # an entry not analysed yet: nothing to take from a result
+            return
         if self.temperature_c is None:
             object.__setattr__(self, "temperature_c", self.result.temperature_c)
         if not self.thickness_um:

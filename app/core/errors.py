@@ -36,6 +36,7 @@ LOG_NAME = "spherokin-errors.log"
 MAX_LINE_CHARS = 300
 #: Every message shown, newest last (title, text): what tests and ``--screenshot`` read.
 shown_messages: list[tuple[str, str]] = []
+_parentless: list[QMessageBox] = []
 
 
 def is_user_problem(exc: BaseException) -> bool:
@@ -115,6 +116,9 @@ def show_message(parent: QWidget | None, title: str, text: str, *, internal: boo
     box = QMessageBox(icon, title, text, QMessageBox.Ok, parent)
     box.setAttribute(Qt.WA_DeleteOnClose)
     box.setTextInteractionFlags(Qt.TextSelectableByMouse)  # the log path can be copied
+    if parent is None:  # nothing owns it (no window yet): keep it alive until it is closed
+        _parentless.append(box)
+        box.finished.connect(lambda _result: _parentless.remove(box))
     box.open()
 
 

@@ -71,7 +71,9 @@ class TemperatureView(LazyPage):
         self.hw.tm0_adopted.connect(self._tm0_adopted)
         self.actions = self._make_actions()
         bar = QtWidgets.QHBoxLayout()
-        bar.addWidget(QtWidgets.QLabel("<b>Growth rate against crystallization temperature</b>"))
+        title = QtWidgets.QLabel("<b>G against Tc</b>")  # short: the toolbar needs the room at 1280 px
+        title.setToolTip("Growth rate against crystallization temperature, one row per experiment")
+        bar.addWidget(title)
         bar.addStretch(1)
         toolbar = QtWidgets.QToolBar(self)  # folds into a "»" menu when the window is narrow
         toolbar.setToolButtonStyle(QtCore.Qt.ToolButtonStyle.ToolButtonTextOnly)

@@ -79,7 +79,7 @@ def guide_html() -> str:
     viewer = "".join(f"<p>{html.escape(p)}</p>" for p in _VIEWER)
     tools = "".join(f"<li><b>{html.escape(n)}</b>: {html.escape(t)}</li>" for n, t in _TOOLS)
     statuses = "".join(
-        f"<tr><td><b>{html.escape(s.name)}</b></td><td>{html.escape(s.meaning)}"
+        f"<tr><td><b>{html.escape(s.name)}</b></td><td>{html.escape(s.meaning)}."
         + (f" <i>Decided by: {html.escape(s.threshold)}.</i>" if s.threshold else "")
         + "</td></tr>" for s in STATUSES.values())
     keys = "".join(f"<tr><td><code>{html.escape(k)}</code></td><td>{html.escape(t)}</td></tr>"

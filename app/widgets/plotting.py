@@ -22,6 +22,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from PySide6.QtSvg import QSvgGenerator
 
 from analysis.units import write_bytes_atomic
+from app.widgets.formatting import fmt
 
 #: Logical figure size (points at 120 per inch) and the PNG resolution.
 #: Line colours shared by every page's plots.
@@ -48,11 +49,12 @@ class DecadeAxis(pg.AxisItem):
     """Logarithmic axis labelled at 1, 2 and 5 times a power of ten only (no crowding)."""
 
     def logTickStrings(self, values, scale, spacing):
-        labels = super().logTickStrings(values, scale, spacing)
+        """Labels written by the application's one number rule (``20``, ``5 × 10⁴``)."""
         keep = []
-        for value, label in zip(values, labels):
+        for value in values:
             mantissa = 10 ** (float(value) % 1.0)
-            keep.append(label if min(abs(mantissa - m) for m in (1, 2, 5, 10)) < 0.05 else "")
+            tick = min(abs(mantissa - m) for m in (1, 2, 5, 10)) < 0.05
+            keep.append(fmt(float(10 ** float(value) * scale), digits=2) if tick else "")
         return keep
 
 

@@ -42,6 +42,11 @@ def test_a_bug_gets_the_internal_error_dialog_with_the_log_path(qapp, log_dir, c
     logged = log.read_text()
     assert "Traceback (most recent call last)" in logged and "Could not save" in logged
     assert "Traceback (most recent call last)" in capsys.readouterr().err
+    from PySide6.QtWidgets import QApplication, QMessageBox
+
+    (box,) = [w for w in QApplication.topLevelWidgets() if isinstance(w, QMessageBox) and w.text() == text]
+    assert box.isVisible()  # a dialog without a window to own it stays up until closed
+    box.done(0)
 
 
 def test_runner_reports_each_kind_through_the_seam(qtbot, log_dir, small_project):

@@ -9,6 +9,7 @@ def test_numbers_and_powers_of_ten():
     assert fmt(32.14, "µm/min") == "32.1 µm/min"
     assert fmt(4.6e5, "mm⁻²") == "4.6 × 10⁵ mm⁻²"
     assert fmt(4.6e-5) == "4.6 × 10⁻⁵"
+    assert fmt(5000.0, digits=2) == "5 × 10³" and fmt(0.00215) == "0.00215"
     assert fmt(None, "s") == DASH and fmt(float("nan")) == DASH
     # below 10⁴ but more digits than three figures can show plainly: never "4.58e+03"
     assert fmt(4580.0, "mm⁻³") == "4.58 × 10³ mm⁻³" and fmt(999.4) == "999"
@@ -24,3 +25,11 @@ def test_uncertainty_is_the_95_ci_half_width_and_shares_the_power_of_ten():
 def test_avrami_k_states_its_n():
     assert fmt(4.6e-5, k_unit(3.0)) == "4.6 × 10⁻⁵ min⁻ⁿ, n = 3.00"
     assert k_unit(None) == DASH
+
+
+def test_logarithmic_axes_use_the_same_rule(qapp):
+    from app.widgets.plotting import DecadeAxis
+
+    axis = DecadeAxis("left")
+    assert axis.logTickStrings([0.0, 1.30103, 1.5, 3.69897, 4.69897, -3.69897], 1.0, 1.0) == [
+        "1", "20", "", "5 × 10³", "5 × 10⁴", "2 × 10⁻⁴"]

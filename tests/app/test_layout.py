@@ -8,6 +8,7 @@ import shutil
 import pytest
 from fake_pipeline import FakeEngine
 from PySide6.QtCore import QSettings
+from PySide6.QtWidgets import QToolBar
 
 from app.core.model import ProjectModel
 from app.microscopy.frame_range_dialog import FrameRangeDialog
@@ -31,8 +32,9 @@ def window(qtbot, tmp_path, small_project):
 
 
 def _cut(window) -> list[str]:
-    """Toolbar actions hidden behind an overflow arrow."""
-    return [a.text() for bar in window.toolbars.values() if bar.isVisible() for a in bar.actions()
+    """Toolbar actions (the window's and the shown page's) hidden behind an overflow arrow."""
+    return [a.text() for bar in window.findChildren(QToolBar) if bar.isVisible()
+            for a in bar.actions()
             if bar.widgetForAction(a) is not None and not bar.widgetForAction(a).isVisible()]
 
 
@@ -49,6 +51,9 @@ def test_every_tool_shows_at_1280_by_760_and_only_on_the_microscopy_page(window,
     window.show_view("kinetics")
     assert not tools.isVisible() and not window.actions_by_id["tool_add"].isVisible()
     assert window.hint_label.text() == "" and _cut(window) == []
+    window.show_view("temperature")
+    qtbot.wait(10)
+    assert _cut(window) == []
     window.show_view("viewer")
     assert tools.isVisible() and window.hint_label.text()
 
