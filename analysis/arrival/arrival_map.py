@@ -53,6 +53,7 @@ from analysis.arrival.tracking import DONE, MELT, PassState, retire_all, step_fr
 from analysis import heuristics
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion
+from analysis.results import ImageQuality
 from analysis.settings import ArrivalSettings  # described once, with ranges and help
 
 __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
@@ -113,7 +114,7 @@ class ArrivalMap:
     slowness_s_per_px: float
     channel: str
     before_start_s: np.ndarray
-    image_quality: Any = None  # analysis.results.ImageQuality, when measured
+    image_quality: ImageQuality | None = None  # when measured
 
     @property
     def crystalline_fraction(self) -> np.ndarray:
