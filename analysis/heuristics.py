@@ -55,6 +55,31 @@ class DetectionHeuristics:
     frame0_front_fraction: float = _h(
         0.5, "The edge of a frame-0 crystal is where its evidence falls to this fraction of "
         "the local peak: a soft front is half-way at its centre (symmetry of the front).")
+    # ---- smoothing chosen from the measured image quality (analysis.arrival.quality)
+    target_smoothed_snr: float = _h(
+        13.0, "The evidence smoothing is widened until the median crystal pixel (half the bright "
+        "quadrants' contrast) stands this many smoothed-noise sigmas above the melt: the "
+        "threshold sits about 6.5 sigmas up (ten robust spreads of the folded melt evidence) "
+        "and the brighter half of the crystal, at least twice that, is timed without "
+        "threshold bias (tuned on stress seeds 1-3 between 10 and 16).")
+    max_adaptive_smoothing_px: float = _h(
+        3.5, "Largest Gaussian sigma the adaptive smoothing may choose, px: wider smoothing "
+        "merges nuclei closer than about three sigma and rounds the cone apex.")
+    speck_area_factor: float = _h(
+        1.0, "Isolated crystalline patches smaller than this many smoothing-kernel areas "
+        "pi (2 sigma)^2 are noise: one smoothed noise blob covers about that area.")
+    # ---- image-quality verdicts (analysis.arrival.quality)
+    poor_snr: float = _h(
+        1.0, "Below this crystal/melt contrast per melt-noise sigma (one pixel, one frame) "
+        "even the widest smoothing cannot separate crystal from melt reliably; the "
+        "recording is too poor for automatic counting (common practice).")
+    poor_unresolved_fraction: float = _h(
+        0.6, "When more than this fraction of the crystallised field has no measured arrival "
+        "time, the nuclei cannot be counted automatically: between crossed polarizers the "
+        "extinction arms alone, always inferred, cover up to about 40 % (common practice).")
+    uneven_illumination: float = _h(
+        0.5, "Brightness falling by more than this fraction across the field is reported as "
+        "uneven illumination worth correcting at the microscope (common practice).")
     # ---- timing and registration (analysis.arrival.arrival_map)
     reliable_contrast_thresholds: float = _h(
         2.5, "A pixel whose plateau evidence exceeds this many thresholds was detected "
@@ -104,6 +129,41 @@ class DetectionHeuristics:
     min_radius_px: float = _h(
         3.0, "Radii below this are limited by the pixel grid and stay out of the linearity "
         "test, px.")
+    # ---- evidence-based rejection and confidence (analysis.spherulites.evidence_checks)
+    reject_min_levels: int = _h(
+        5, "A candidate whose cone is fitted on fewer distinct frames than this has no growth "
+        "history of its own: a four-parameter cone needs at least one more level than "
+        "parameters to leave a residual at all.")
+    reject_max_slope_deviation: float = _h(
+        0.5, "A candidate whose growth rate differs from the field's by more than this relative "
+        "amount does not grow like a spherulite at this temperature (one growth rate per "
+        "temperature, Lauritzen & Hoffman 1960; generous for noisy fits).")
+    reject_residual_ratio: float = _h(
+        3.0, "A short-lived candidate (fewer than twice reject_min_levels frames) whose robust "
+        "residual scale exceeds this multiple of the field's typical one does not follow one "
+        "growing front: a noise island or the seam between fronts. A long-lived one is more "
+        "likely two merged nuclei and goes to review instead (common practice).")
+    edge_centre_uncertainty: float = _h(
+        0.5, "A spherulite entering from outside is reported only when the 95 % uncertainty of "
+        "its fitted centre is below this fraction of the centre's distance outside the field "
+        "(and at least edge_centre_floor_px): a short arc locates its centre no better "
+        "(common practice).")
+    edge_centre_floor_px: float = _h(
+        5.0, "Smallest centre uncertainty always accepted for a spherulite entering from "
+        "outside, px (a few pixels: the precision of an inside centre).")
+    phantom_margin_intervals: float = _h(
+        1.0, "A nucleus must have been in melt for at least this many frame intervals before "
+        "another front reached its centre to be told apart from that front (one timing "
+        "quantum; a nucleus born inside crystal is a phantom, Avrami 1939, J. Chem. Phys. 7, 1103).")
+    same_centre_px: float = _h(
+        2.0, "Two fitted centres closer than this are the same within pixel precision (a pair "
+        "of real nuclei this close cannot be told apart), px.")
+    duplicate_agreement_intervals: float = _h(
+        1.0, "Two cones whose arrival times over their pixels differ by less than this many "
+        "frame intervals (median) describe the same front: the timing quantum.")
+    doubtful_confidence: float = _h(
+        0.6, "Detections whose confidence is below this are offered for review first "
+        "(common practice).")
 
 
 DEFAULT = DetectionHeuristics()

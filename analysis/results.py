@@ -16,7 +16,8 @@ import numpy as np
 from analysis.edits import Edit
 
 #: Spherulite statuses are defined, with their thresholds and reasons, in
-#: ``analysis.spherulites.statuses``. Only ``ok`` spherulites enter the pooled growth rate.
+#: ``analysis.spherulites.statuses``. Only ``ok`` spherulites enter the pooled growth rate;
+#: ``rejected`` candidates count nowhere (see ``reason``).
 SOURCES = ("auto", "manual")
 NUCLEATION_MODES = ("athermal", "thermal", "mixed")
 
@@ -27,7 +28,7 @@ COUNTS: dict[str, tuple[str, str]] = {
     "spherulites_detected": (
         "Spherulites detected",
         "every spherulite the analysis reports, found automatically or added by hand "
-        "(deleted and merged detections not), whatever its status"),
+        "(deleted and merged detections and rejected candidates not), whatever its status"),
     "nuclei_counted": (
         "Nuclei counted",
         "nuclei whose centre lies inside the field, with a nucleation time, not cut by the "
@@ -58,6 +59,7 @@ class Spherulite:
     reason: str = ""  # why this status, with the numbers that decided it; notes such as
     #                   nucleation before the isothermal start
     growth_rate_se_um_per_min: float | None = None  # standard error of the cone fit's G
+    confidence: float | None = None  # 0..1 from the evidence (analysis.spherulites.evidence_checks)
 
     def radius_um_at(self, time_s: float) -> float | None:
         """Radius of the fitted front at ``time_s`` (0 before nucleation), in µm."""
@@ -146,6 +148,51 @@ class AvramiParameters:
 
 
 @dataclass(frozen=True)
+class ImageQuality:
+    """What the recording allowed, measured from the recording itself.
+
+    Attributes
+    ----------
+    noise : float
+        Temporal noise of the melt, fraction of the data's full scale (per pixel, one frame).
+    crystal_noise : float | None
+        The same for crystalline pixels of the last frames (larger with shot noise; a dark
+        melt clipped at zero shows less noise than the crystal); None when too few.
+    contrast : float | None
+        Typical crystal/melt difference (median over crystalline pixels of the last frame),
+        fraction of full scale; None when nothing crystallised.
+    snr : float | None
+        ``contrast`` over the larger of the two noises: the signal-to-noise ratio of one
+        pixel in one frame.
+    smoothing_px : float
+        Gaussian sigma (px) chosen from ``snr`` for the evidence (wider when noisier).
+    unresolved_fraction : float | None
+        Fraction of the crystallised field whose arrival time was not measured but
+        inferred (extinction wedges, pixels too faint to time); None when none crystallised.
+    blur_px : float | None
+        Gaussian sigma (px) of the crystal/melt edge beyond the smoothing applied
+        (defocus and front softness together); None when it could not be measured.
+    illumination_unevenness : float | None
+        1 − (5th / 95th percentile) of the slowly varying brightness across the field.
+    verdict : str
+        One sentence in plain language; says so when the recording is too poor for
+        automatic counting.
+    too_poor : bool
+    """
+
+    noise: float
+    crystal_noise: float | None
+    contrast: float | None
+    snr: float | None
+    smoothing_px: float
+    unresolved_fraction: float | None
+    blur_px: float | None
+    illumination_unevenness: float | None
+    verdict: str
+    too_poor: bool
+
+
+@dataclass(frozen=True)
 class ExperimentResult:
     """Everything the analysis of one stack found, with the user's edits applied."""
 
@@ -164,10 +211,11 @@ class ExperimentResult:
     unapplied_edits: tuple[Edit, ...] = ()
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+    image_quality: ImageQuality | None = None
 
     def counts(self) -> dict[str, int]:
         """The :data:`COUNTS` of this result, by key."""
-        return {"spherulites_detected": len(self.spherulites),
+        return {"spherulites_detected": sum(1 for s in self.spherulites if s.status != "rejected"),
                 "nuclei_counted": int(self.nucleation.count),
                 "spherulites_in_pooled_g": int(self.growth_rate.n)}
 

@@ -41,6 +41,7 @@ import cv2
 import numpy as np
 
 from analysis.arrival import evidence as segment
+from analysis.arrival import quality
 from analysis.arrival.registration import (
     AUTO_WARP_TOLERANCE_PX,
     DriftTracker,
@@ -52,6 +53,7 @@ from analysis.arrival.tracking import DONE, MELT, PassState, retire_all, step_fr
 from analysis import heuristics
 from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion
+from analysis.results import ImageQuality
 from analysis.settings import ArrivalSettings  # described once, with ranges and help
 
 __all__ = ["ArrivalSettings", "ArrivalMap", "arrival_map_iter", "arrival_map"]
@@ -112,6 +114,7 @@ class ArrivalMap:
     slowness_s_per_px: float
     channel: str
     before_start_s: np.ndarray
+    image_quality: ImageQuality | None = None  # when measured
 
     @property
     def crystalline_fraction(self) -> np.ndarray:
@@ -163,7 +166,9 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
     raw1 = _checked_frame(next(frames), stack, settings.start_frame + 1)
     mode = segment.resolve_channel_mode(settings.channel, raw0)
     first, second = segment.working_image(raw0, mode), segment.working_image(raw1, mode)
-    model, threshold, at_start = _set_up(first, second, settings, mode, integer_data=raw0.dtype.kind in "ui")
+    last = _last_frames(stack, settings.start_frame, mode)
+    model, threshold, at_start, probe = _set_up(first, second, last, settings, mode,
+                                                integer_data=raw0.dtype.kind in "ui", full_scale=_full_scale(raw0))
     state = PassState(first.shape[:2], n, settings)
     state.gate[:] = threshold
     state.threshold = threshold
@@ -192,11 +197,12 @@ def arrival_map_iter(stack, *, settings: ArrivalSettings = ArrivalSettings()
         state.shifts[k] = _frame_shift(state, drift, diff, model, at_start, k)
         specimen = segment.evidence_from_difference(diff, model, _applied_shift(state.shifts[k], settings.registration))
         step_frame(state, specimen.ravel(), k, times, threshold)
+        probe.keep_front(state, specimen, k)
         yield Progress(_STAGE, (k + 1) / n, f"frame {k + 1} of {n}")
     retire_all(state, times, threshold)
     if drift is not None:
         _regrid_unseen_drift(state, at_start, times[0])
-    return _finish(state, times, um_per_px, threshold, at_start, model, mode)
+    return _finish(state, times, um_per_px, threshold, at_start, model, mode, probe)
 
 
 def arrival_map(stack, *, settings: ArrivalSettings = ArrivalSettings(), on_progress=None) -> ArrivalMap:
@@ -214,11 +220,50 @@ def _checked_frame(frame, stack, index) -> np.ndarray:
     return frame
 
 
-def _set_up(first, second, settings, mode, *, integer_data):
-    """Melt model, detection threshold and frame-0 crystals from the first two frames."""
+def _last_frames(stack, start_frame, mode):
+    """The last two frames (working images) when the stack can be read out of order, else None."""
+    if not hasattr(stack, "__getitem__") or len(stack) - start_frame < 4:
+        return None
+    return tuple(segment.working_image(_checked_frame(stack[len(stack) - k], stack, len(stack) - k), mode)
+                 for k in (2, 1))
+
+
+class _QualityProbe:
+    """What the image-quality block needs from the pass: the contrast measured before it,
+    and the evidence of one frame whose front crosses the field (for the edge blur)."""
+
+    def __init__(self, contrast, crystal_noise, full_scale):
+        self.contrast, self.crystal_noise, self.full_scale = contrast, crystal_noise, full_scale
+        self.front_frame, self.front_evidence = None, None
+
+    def keep_front(self, state, specimen, k):
+        if k % 2:
+            return  # every other frame is plenty, and halves the cost
+        crystalline = np.count_nonzero(state.status) / state.status.size
+        if 0.15 <= crystalline <= 0.6:
+            self.front_frame, self.front_evidence = k, specimen.copy()
+
+
+def _full_scale(frame) -> float:
+    """Full scale of the data: the integer type's maximum (a 12-bit camera stored in 16 bits
+    reads as a sixteenth of it), or the largest value of float data."""
+    return float(np.iinfo(frame.dtype).max) if frame.dtype.kind in "ui" else max(float(np.max(frame)), 1e-12)
+
+
+def _set_up(first, second, last, settings, mode, *, integer_data, full_scale):
+    """Melt model (its smoothing chosen from the measured signal-to-noise ratio),
+    detection threshold and frame-0 crystals from the first two frames and the last."""
     noise = segment.temporal_noise(first, second, integer_data=integer_data)
+    contrast, crystal_last, crystal_noise = None, None, None
+    if last is not None:
+        contrast, crystal_last = quality.crystal_contrast(last[1], first, noise)
+        crystal_noise = quality.crystal_noise(last[0], last[1], crystal_last, integer_data=integer_data)
+    # The noise that matters is the larger: a dark melt clipped at zero shows less than the crystal.
+    snr = None if contrast is None else contrast * float(np.mean(noise)) / max(
+        float(np.mean(noise)), crystal_noise or 0.0)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
-                              smoothing_px=settings.smoothing_px)
+                              smoothing_px=quality.smoothing_for(snr, settings.smoothing_px))
+    probe = _QualityProbe(contrast, crystal_noise, full_scale)
     ones = np.ones(model.channels, np.float32)
     trial = segment.evidence(second, model, ones)
     provisional = segment.evidence_threshold(trial[::2, ::2], settings.sensitivity)
@@ -228,7 +273,7 @@ def _set_up(first, second, settings, mode, *, integer_data):
     trial[model.blind] = 0.0
     melt = ~(at_start | model.blind) & (trial < provisional)
     threshold = segment.evidence_threshold(trial[melt][::3], settings.sensitivity)
-    return model, threshold, at_start
+    return model, threshold, at_start, probe
 
 
 def _update_reference(model, total, count, image, gain, still_melt):
@@ -312,11 +357,12 @@ def _applied_shift(shift, mode):
 
 
 
-def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> ArrivalMap:
+def _finish(state, times, um_per_px, threshold, at_start, model, mode, probe) -> ArrivalMap:
     shape = state.shape
     arrival = state.arrival.reshape(shape).astype(np.float32)
     contrast = state.contrast.reshape(shape)
-    arrival = _drop_specks(arrival, state.settings.min_size_px)
+    blob_px = heuristics.current().speck_area_factor * math.pi * (2.0 * model.smoothing_px) ** 2
+    arrival = _drop_specks(arrival, max(state.settings.min_size_px, int(round(blob_px))))
     unusable = _unusable(model.blind, state.shifts)
     filled = np.zeros(shape, bool)
     reliable = np.isfinite(arrival) & ~at_start & (contrast >= heuristics.current().reliable_contrast_thresholds * threshold)
@@ -334,12 +380,35 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode) -> Arriva
     index = np.searchsorted(times, arrival.astype(np.float64), side="left").astype(np.int32)
     index = np.where(np.isfinite(arrival), np.minimum(index, times.size - 1), _NEVER).astype(np.int32)
     index[unusable] = _UNUSABLE
+    crystallised = np.isfinite(arrival) & ~at_start & ~unusable
+    image_quality = _image_quality(probe, model, arrival, contrast, times, slowness, crystallised, filled,
+                                   at_start)
     return ArrivalMap(
         arrival_s=arrival, frame_index=index, crystalline_at_start=at_start & ~unusable,
         shifts_px=state.shifts, times_s=times, um_per_px=um_per_px, unusable=unusable,
         filled=filled, contrast=contrast, evidence_threshold=float(threshold),
         slowness_s_per_px=slowness, channel=mode, before_start_s=before_start,
+        image_quality=image_quality,
     )
+
+
+def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised, filled, at_start):
+    """The image-quality block (analysis.arrival.quality.measure) of a finished pass."""
+    blur = None
+    if probe.front_evidence is not None:
+        measured = np.where(filled, np.nan, arrival)
+        blur = quality.edge_blur_px(probe.front_evidence.reshape(arrival.shape), plateau, measured,
+                                    float(times[probe.front_frame]), slowness, model.smoothing_px)
+    noise_dn = float(np.mean(model.noise))
+    level = model.level if model.level.ndim == 2 else model.level.sum(axis=2)
+    # The melt shows the lamp directly (block means beat its noise even when it is dim);
+    # a black melt carries no measurable illumination.
+    melt = ~(model.blind | at_start)
+    uneven = quality.unevenness(level, melt) if np.median(level[melt]) >= 0.25 * noise_dn * model.channels else None
+    return quality.measure(noise_dn=noise_dn, crystal_noise_dn=probe.crystal_noise, full_scale=probe.full_scale,
+                           contrast_noise_units=probe.contrast,
+                           smoothing_px=model.smoothing_px, crystallised=crystallised, inferred=filled,
+                           blur_px=blur, illumination_unevenness=uneven)
 
 
 def _extrapolated_before_start(arrival, reliable, at_start, slowness):

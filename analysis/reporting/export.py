@@ -19,7 +19,7 @@ from analysis.outputs import clean_text, staged_outputs
 
 SPHERULITE_COLUMNS = ("id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                       "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                      "status", "source", "reason")
+                      "status", "source", "reason", "confidence")
 RADII_COLUMNS = ("id", "time_s", "radius_um", "free_fraction")
 
 # Overlay colours (BGR): our own palette, chosen to read on grey and on colour images.
@@ -56,8 +56,8 @@ def spherulite_rows(result) -> list[list[str]]:
         numbers = [s.id, s.x_px, s.y_px, s.x_px * um, s.y_px * um, s.nucleation_time_s,
                    s.first_seen_s, s.growth_rate_um_per_min, s.growth_rate_ci95_um_per_min,
                    s.r2, s.n_points]
-        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source),
-                                                         _cell(s.reason)])
+        rows.append([_number_cell(v) for v in numbers] + [_cell(s.status), _cell(s.source), _cell(s.reason),
+                                                          _number_cell(s.confidence)])
     return rows
 
 
@@ -137,8 +137,22 @@ def summary_dict(result, geometry: str, *, seed: int = DEFAULT_SEED) -> dict[str
         "avrami_film": _avrami_dict(film_avrami_fit(result)),
         "avrami_predicted": {"geometry": geometry, **_avrami_dict(_predicted(result, geometry)),
                              **_interval_keys(intervals)},
+        "image_quality": image_quality_dict(result.image_quality),
         "resampling": {"seed": seed, "resamples": None if intervals is None else intervals.resamples},
     })
+
+
+def image_quality_dict(quality) -> dict[str, Any] | None:
+    """The ``image_quality`` object of summary.json (None when not measured)."""
+    if quality is None:
+        return None
+    return {"noise_fraction_of_full_scale": quality.noise,
+            "crystal_noise_fraction_of_full_scale": quality.crystal_noise,
+            "contrast_fraction_of_full_scale": quality.contrast,
+            "signal_to_noise": quality.snr, "smoothing_px": quality.smoothing_px,
+            "unresolved_fraction": quality.unresolved_fraction, "blur_px": quality.blur_px,
+            "illumination_unevenness": quality.illumination_unevenness,
+            "too_poor_for_automatic_counting": bool(quality.too_poor), "verdict": quality.verdict}
 
 
 def _display_image(frame: np.ndarray) -> np.ndarray:

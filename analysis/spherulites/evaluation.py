@@ -21,7 +21,7 @@ from analysis.results import (
     RadiusSeries,
     Spherulite,
 )
-from analysis.spherulites import growth, nuclei, statuses
+from analysis.spherulites import evidence_checks, growth, nuclei, statuses
 from analysis.spherulites.fronts import blocked_distance, front_radii
 from analysis.spherulites.nucleation import (
     MeltExposure,
@@ -197,7 +197,19 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
         r2=float(fit.r2) if fit.ok and np.isfinite(fit.r2) else None,
         n_points=int(fit.n_levels), status=verdict.status, source=det.source,
         reason=verdict.reason, growth_rate_se_um_per_min=_growth_se(fit, ctx.um_per_px))
-    return sph, series, fit
+    return sph, series, fit, _evidence(ctx, det, fit, pix, band, spans, settings)
+
+
+def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evidence:
+    """The pixels and residuals a detection's fit rests on (see evidence_checks)."""
+    chosen = fit_pixels(ctx, pix, band, spans, settings)
+    y, x = np.divmod(chosen, ctx.shape[1])
+    t = ctx.fit_arrival.ravel()[chosen]
+    scale = growth.residual_scale_s(fit, x, y, t) if fit.ok and chosen.size else float("nan")
+    seeds = np.concatenate(det.seeds) if det.seeds else np.zeros(0, np.int64)
+    early = bool(seeds.size) and bool(ctx.at_start.ravel()[seeds].any())
+    return evidence_checks.Evidence(fit, scale, x, y, t, user_included=det.excluded is False,
+                                    automatic=det.source == "auto", in_first_frame=early)
 
 
 def _growth_se(fit, um_per_px) -> float | None:
@@ -263,15 +275,17 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
     band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
-    spherulites, radii, fits = [], [], []
+    spherulites, radii, fits, evidence = [], [], [], []
     for det in dets:
         if det.deleted or det.merged:
             continue
-        sph, series, fit = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
-                                       global_spans, settings, provisional.get(det.id))
+        sph, series, fit, ev = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
+                                           global_spans, settings, provisional.get(det.id))
         spherulites.append(sph)
         radii.append(series)
         fits.append(fit)
+        evidence.append(ev)
+    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
     pooled, pooled_text = _pooled(ctx, spherulites, fits, radii)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation = _nucleation(ctx, spherulites, fits, time_s, fraction)
@@ -329,7 +343,7 @@ def _counted(spherulites, fits, shape) -> list:
     g_med = float(np.median(g_ok)) if g_ok else None
     out = []
     for s, f in zip(spherulites, fits):
-        if s.status == "edge" or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
+        if s.status in ("edge", "rejected") or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
             continue
         if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
                                          abs(s.growth_rate_um_per_min / g_med - 1) > tolerance):

@@ -306,6 +306,10 @@ def _with_edits(arrival, ctx, settings, edits) -> Analysis:
     if result is None:
         dets, spans, unapplied = replay(ctx, edits, settings)
         result = result_of(ctx, dets, spans, unapplied, settings)
+    quality = getattr(arrival, "image_quality", None)
+    if quality is not None:
+        warnings = result.warnings + ((quality.verdict,) if quality.too_poor else ())
+        result = dataclasses.replace(result, image_quality=quality, warnings=warnings)
     return Analysis(arrival, result, settings, edits, ctx)
 
 

@@ -42,6 +42,11 @@ STATUSES: dict[str, Status] = {s.name: s for s in (
            "is significant and the slope changes by more than the minimum over the record",
            "nonlinear_alpha (F-test) and nonlinear_min_change (relative slope change)"),
     Status("excluded", "left out of the statistics by you (Exclude tool)", "your edit"),
+    Status("rejected", "a candidate without the evidence of a growing spherulite (no cone, too "
+           "few frames, a growth rate or residuals unlike those of the field, a centre that cannot be "
+           "placed, a seam between fronts, a second piece of another front): listed only on "
+           "request, counted nowhere; Include promotes it",
+           "the evidence checks of analysis.spherulites.evidence_checks (analysis.heuristics)"),
 )}
 
 

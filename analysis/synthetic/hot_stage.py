@@ -34,7 +34,7 @@ from scipy import optimize
 from scipy.spatial import cKDTree
 
 from analysis.errors import InputError
-from analysis.synthetic import optics
+from analysis.synthetic import camera, optics
 from analysis.synthetic.dsc import (
     DscIsotherm,
     simulate_dsc_isotherm,
@@ -98,6 +98,19 @@ class StackParams:
     photons_full_scale: float = _p(4000.0, "photons at full scale for shot noise (0: none)", lo=0.0)
     bit_depth: int = _p(8, "bits per sample", choices=(8, 16))
     jpeg_quality: int = _p(0, "JPEG round trip of every frame at this quality (0: none)", lo=0, hi=100)
+    # camera effects (analysis.synthetic.camera), all off by default
+    exact_poisson: bool = _p(False, "draw shot noise from a Poisson law instead of its Gaussian approximation")
+    gain_fpn: float = _p(0.0, "per-pixel gain spread (fixed-pattern noise), fraction", lo=0.0, hi=0.5)
+    row_column_noise: float = _p(0.0, "row and column offset noise per frame, fraction of full scale",
+                                 lo=0.0, hi=0.5)
+    defocus_blur_px: float = _p(0.0, "defocus blur, Gaussian sigma in px (0: in focus)", lo=0.0, hi=20.0)
+    illumination_gradient: float = _p(0.0, "light falling linearly across the field by this fraction",
+                                      lo=0.0, hi=0.95)
+    gradient_angle_deg: float = _p(0.0, "direction of the illumination fall, degrees from the x axis")
+    lamp_warmup: float = _p(0.0, "lamp output this fraction low at the start, warming up over the run",
+                            lo=0.0, hi=0.9)
+    lamp_warmup_tau_s: float = _p(200.0, "time constant of the lamp warm-up, s", lo=0.0, open_lo=True)
+    bubbles: int = _p(0, "gas bubbles in the film (no crystal inside, a bright rim)", lo=0, hi=1000)
     seed: int = _p(0, "random seed", lo=0)
 
 
@@ -352,8 +365,17 @@ def simulate_stack(params: StackParams, *, nuclei=None) -> SyntheticStack:
     origin = (-kinetics.pad_px, -kinetics.pad_px)
     crystal = optics.crystal_appearance(kinetics.owner_pad, kinetics.centres_yx, origin, params, rng)
     melt = np.asarray(optics.melt_colour(params), np.float32)
-    sensor = optics.sensor_transmission((params.height_px, params.width_px), params, rng)
+    field_shape = (params.height_px, params.width_px)
+    sensor = optics.sensor_transmission(field_shape, params, rng)
+    sensor = sensor * camera.illumination_gradient(field_shape, params) * camera.sensor_gain_pattern(
+        field_shape, params)
     gain = 1.0 + params.flicker * np.random.default_rng([params.seed, 4]).standard_normal(params.n_frames)
+    gain = gain * camera.lamp_levels(times, params)
+    solid, rim = camera.bubble_maps(kinetics.owner_pad.shape, params)
+    if params.retardation_plate:
+        solid, rim = solid[..., None], rim[..., None]
+    crystal = melt + (crystal - melt) * solid + rim if params.bubbles else crystal
+    melt = melt + rim if params.bubbles else melt
     return SyntheticStack(
         params=params, kinetics=kinetics, times_s=times, drift_px=drift_path_px(params),
         area_fraction=kinetics.area_fraction(times - params.isothermal_start_s),

@@ -11,7 +11,9 @@ angular noise pattern, refined with every octave of radius so that fibrils branc
 per spherulite.
 
 Camera (fixed to the sensor): uneven illumination, dust and scratches, a global flicker,
-Gaussian read noise and shot noise, 8/16-bit quantization, optional JPEG round trip.
+Gaussian read noise and shot noise, 8/16-bit quantization, optional JPEG round trip; the
+further effects of :mod:`analysis.synthetic.camera` (fixed-pattern and row/column noise,
+defocus, illumination gradient, lamp warm-up, bubbles, exact Poisson noise).
 """
 
 from __future__ import annotations
@@ -23,6 +25,8 @@ from typing import Any, Iterator
 import cv2
 import numpy as np
 from scipy import ndimage
+
+from analysis.synthetic import camera
 
 _FIBRIL_ROOT_SAMPLES = 48  # fibrils around a young spherulite
 _FIBRIL_PX = 2.5  # arc length of one texture sample, px (a fibril spans a few samples)
@@ -284,10 +288,15 @@ class SyntheticStack:
         np.clip(crystal, 0.0, 1.0, out=crystal)
         if self.contrast.ndim == 3:
             crystal = crystal[..., None]
-        image = self._shifted(self.melt + crystal * self.contrast, self.drift_px[index])
+        image = camera.defocus(self._shifted(self.melt + crystal * self.contrast, self.drift_px[index]), p)
         image *= self.sensor
         image *= self.gain[index]
-        noisy = add_noise(image, p, np.random.default_rng([p.seed, 2, index]))
+        noise_rng = np.random.default_rng([p.seed, 2, index])
+        noisy = camera.poisson_gaussian_noise(image, p, noise_rng) if p.exact_poisson and \
+            p.photons_full_scale > 0 else add_noise(image, p, noise_rng)
+        offsets = camera.row_column_offsets(noisy.shape[:2], p, index)
+        if offsets is not None:
+            noisy += offsets if noisy.ndim == 2 else offsets[..., None]
         return quantize(noisy, p)
 
     def frames(self, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:

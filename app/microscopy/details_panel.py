@@ -16,14 +16,11 @@ from typing import Any
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QBrush, QColor
 from PySide6.QtWidgets import (
-    QAbstractItemView,
     QHBoxLayout,
     QLabel,
     QListWidget,
     QListWidgetItem,
     QPushButton,
-    QTableWidget,
-    QTableWidgetItem,
     QTabWidget,
     QTextBrowser,
     QVBoxLayout,
@@ -60,6 +57,7 @@ def spherulite_html(s: Any, um_per_px: float | None, free_radii: int | None = No
         ("Free-growth radii", "—" if free_radii is None else str(free_radii)),
         ("Status", f"{s.status}: {s.reason or STATUS_WORDS.get(s.status, '')}"),
         ("Source", s.source),
+        ("Confidence", _num(getattr(s, "confidence", None), ".2f") + " (0-1, from its evidence)"),
     ]
     return _table_html(f"Spherulite {s.id}", rows)
 
@@ -101,12 +99,32 @@ def _result_rows(result: Any, experiment: Any) -> list[tuple[str, str]]:
             ("Induction time", _num(nuc.induction_time_s, ".1f", " s"))]
     if nuc.mode_test:
         rows.append(("Mode test", nuc.mode_test))
+    rejected = sum(1 for s in result.spherulites if s.status == "rejected")
+    if rejected:
+        rows.append(("Rejected candidates", f"{rejected}, not counted (View ▸ Show rejected candidates)"))
+    rows += quality_rows(getattr(result, "image_quality", None))
     for label, avrami in (("Avrami, film X(t)", film_avrami_fit(result)),
                           (f"Avrami, predicted {experiment.geometry}", _predicted(result, experiment))):
         if avrami:
             rows.append((label, f"k = {fmt(avrami.k_per_min_n, k_unit(avrami.n))}, "
                                 f"t½ = {fmt(avrami.t_half_min, 'min')}"))
     return rows
+
+
+def quality_rows(quality: Any) -> list[tuple[str, str]]:
+    """The image-quality block (measured from the recording) as summary rows."""
+    if quality is None:
+        return []
+    return [("Image quality", quality.verdict),
+            ("Signal-to-noise", _num(quality.snr, ".2g", " per pixel and frame")
+             + f" (noise {quality.noise:.1%} of full scale"
+             + ("" if quality.contrast is None else f", contrast {quality.contrast:.1%}") + ")"),
+            ("Smoothing chosen", f"{quality.smoothing_px:.2g} px"),
+            ("Not timed", _num(None if quality.unresolved_fraction is None else 100 * quality.unresolved_fraction,
+                               ".0f", " % of the crystallised field (inferred from the growth)")),
+            ("Edge blur", _num(quality.blur_px, ".2g", " px")),
+            ("Uneven illumination", _num(None if quality.illumination_unevenness is None
+                                         else 100 * quality.illumination_unevenness, ".0f", " % fall"))]
 
 
 def _table_html(title: str, rows: list[tuple[str, str]]) -> str:
@@ -170,6 +188,10 @@ class DetailsPanel(QTabWidget):
             self.summary.setHtml(experiment_html(self._model.experiment(index), result,
                                                  self._model.status(index),
                                                  self._model.status_message(index)))
+
+    def set_show_rejected(self, shown: bool) -> None:
+        """List the rejected candidates in the table too (hidden by default)."""
+        self.table.set_show_rejected(shown)
 
     def refresh(self) -> None:
         index = self._model.current_index

@@ -26,6 +26,7 @@ STATUS_COLOURS = {
     "few-points": "#c9a7ff",  # lilac
     "nonlinear": "#ff6f91",   # rose
     "excluded": "#b8c0c8",    # pewter, drawn dashed
+    "rejected": "#8a7f72",    # driftwood, shown only on request
 }
 SELECTED_COLOUR = "#ffffff"
 HALO = QColor(10, 12, 20, 190)
@@ -49,12 +50,13 @@ class OverlayMark:
     spherulite: Any
 
 
-def marks_from_result(result: Any) -> list[OverlayMark]:
+def marks_from_result(result: Any, *, show_rejected: bool = False) -> list[OverlayMark]:
+    """Marks of a result's detections; rejected candidates only when asked for."""
     if result is None:
         return []
     return [
         OverlayMark(s.id, s.x_px, s.y_px, s.status, s.source == "manual", s)
-        for s in result.spherulites
+        for s in result.spherulites if show_rejected or s.status != "rejected"
     ]
 
 
@@ -133,7 +135,7 @@ class OverlayLayer:
         self._root = pg.ItemGroup()
         view_box.addItem(self._root, ignoreBounds=True)
         self._fronts = {s: _HaloPath(self._root, status_colour(s), 1.6,
-                                     Qt.DashLine if s == "excluded" else Qt.SolidLine)
+                                     Qt.DashLine if s in ("excluded", "rejected") else Qt.SolidLine)
                         for s in STATUS_COLOURS}
         self._selected = _HaloPath(self._root, QColor(SELECTED_COLOUR), 2.6)
         self._centres = {s: _HaloPath(self._root, status_colour(s), 1.4) for s in STATUS_COLOURS}

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QTableWidget, QTab
 from app.microscopy.overlays import status_colour
 
 SPHERULITE_COLUMNS = ("id", "x (px)", "y (px)", "t0 (s)", "G (µm/min)", "± 95 % CI (µm/min)",
-                      "R² (cone fit)", "frames in fit", "status", "source", "reason")
+                      "R² (cone fit)", "frames in fit", "status", "source", "confidence", "reason")
 STATUS_COLUMN = SPHERULITE_COLUMNS.index("status")
 
 
@@ -28,7 +28,8 @@ def spherulite_row(s: Any) -> tuple[str, ...]:
     """The table cells of one spherulite (numbers plain, so they sort and copy as numbers)."""
     return (str(s.id), f"{s.x_px:.1f}", f"{s.y_px:.1f}", _num(s.nucleation_time_s, ".1f"),
             _num(s.growth_rate_um_per_min), _num(s.growth_rate_ci95_um_per_min, ".2g"),
-            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source, getattr(s, "reason", ""))
+            _num(s.r2, ".3f"), str(s.n_points), s.status, s.source,
+            _num(getattr(s, "confidence", None), ".2f"), getattr(s, "reason", ""))
 
 
 class SortableItem(QTableWidgetItem):
@@ -52,6 +53,7 @@ class SpherulitesTable(QTableWidget):
     def __init__(self, model: Any, parent: QWidget | None = None, *, follow_model: bool = False):
         super().__init__(0, len(SPHERULITE_COLUMNS), parent)
         self._model = model
+        self.show_rejected = False  # rejected candidates are listed only on request
         self.setHorizontalHeaderLabels(SPHERULITE_COLUMNS)
         self.setSelectionBehavior(QAbstractItemView.SelectRows)
         self.setSelectionMode(QAbstractItemView.SingleSelection)
@@ -72,8 +74,13 @@ class SpherulitesTable(QTableWidget):
         index = self._model.current_index
         self.fill(None if index < 0 else self._model.result(index))
 
+    def set_show_rejected(self, shown: bool) -> None:
+        self.show_rejected = bool(shown)
+        self.refresh()
+
     def fill(self, result: Any) -> None:
-        spherulites = () if result is None else result.spherulites
+        spherulites = () if result is None else tuple(
+            s for s in result.spherulites if self.show_rejected or s.status != "rejected")
         self.blockSignals(True)
         self.setSortingEnabled(False)  # fill first, then let the user's sort apply
         self.setRowCount(len(spherulites))

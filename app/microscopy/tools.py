@@ -125,7 +125,7 @@ class ToolController(QObject):
         elif self.tool == "delete":
             self._model.push_edit(index, DeleteDetection(target.x_px, target.y_px, id=target.id))
         elif self.tool == "exclude":
-            cls = IncludeSpherulite if target.status == "excluded" else ExcludeSpherulite
+            cls = IncludeSpherulite if target.status in ("excluded", "rejected") else ExcludeSpherulite
             self._model.push_edit(index, cls(target.x_px, target.y_px, id=target.id))
         elif self._first is None:  # merge / move: first click
             self._model.select_spherulite(target.id)  # (a selection change resets _first)
@@ -141,13 +141,14 @@ class ToolController(QObject):
 
     def _pick(self, x_px: float, y_px: float) -> Any:
         result = self._model.result(self._model.current_index)
-        if result is None or not result.spherulites:
+        shown = [s for s in (result.spherulites if result is not None else ())
+                 if s.status != "rejected" or getattr(self._viewer, "show_rejected", False)]
+        if not shown:
             return None
         scale = self._viewer.view_box.viewPixelSize()[0] or 1.0
         tolerance = max(2.0, PICK_SCREEN_PX * scale)
         time_s = self._viewer.time_from_start_s()
         radii = None
         if time_s is not None and result.um_per_px:
-            radii = np.array([(s.radius_um_at(time_s) or 0.0) / result.um_per_px
-                              for s in result.spherulites])
-        return pick_spherulite(list(result.spherulites), x_px, y_px, tolerance, radii)
+            radii = np.array([(s.radius_um_at(time_s) or 0.0) / result.um_per_px for s in shown])
+        return pick_spherulite(shown, x_px, y_px, tolerance, radii)

@@ -74,6 +74,7 @@ class StackViewer(QWidget):
         self._frame = 0
         self._times_s: np.ndarray | None = None
         self._um_per_px: float | None = None
+        self.show_rejected = False  # rejected candidates are hidden until asked for
         self._programme = None  # TemperatureProgramme of a ramp experiment
         self._build()
         model.selection_changed.connect(self._on_selection_changed)
@@ -255,6 +256,27 @@ class StackViewer(QWidget):
         self._update_overlay_frame(frame)
         self.frame_changed.emit(frame)
 
+    def set_show_rejected(self, shown: bool) -> None:
+        """Show or hide the rejected candidates (hidden by default)."""
+        self.show_rejected = bool(shown)
+        self._refresh_marks()
+        if self._cache is not None:
+            self._update_overlay_frame(self._frame)
+
+    def focus_on(self, x_px: float, y_px: float, frame: int, half_width_px: float) -> None:
+        """Show ``frame`` zoomed on a square of ±``half_width_px`` around (x, y) on frame 0's
+        grid (moved with the specimen's drift in that frame)."""
+        if self._cache is None:
+            return
+        self.set_frame(frame)
+        analysis = self._model.analysis(self._index)
+        shifts = getattr(getattr(analysis, "arrival", None), "shifts_px", None)
+        dy, dx = (float(v) for v in shifts[self._frame]) if shifts is not None and self._frame < len(shifts) \
+            else (0.0, 0.0)
+        half = max(float(half_width_px), 20.0)
+        self.view_box.setRange(xRange=(x_px + dx - half, x_px + dx + half),
+                               yRange=(y_px + dy - half, y_px + dy + half), padding=0.0)
+
     def set_overlay_visible(self, name: str, visible: bool) -> None:
         if name == "scale":
             self.annotations.show_scale_bar = visible
@@ -328,7 +350,8 @@ class StackViewer(QWidget):
     def _refresh_marks(self) -> None:
         result = self._model.result(self._index) if self._index >= 0 else None
         territories = result.extra.get("territories") if result is not None else None
-        self.overlay.set_marks(marks_from_result(result), self._model.selected_id, territories)
+        self.overlay.set_marks(marks_from_result(result, show_rejected=self.show_rejected),
+                               self._model.selected_id, territories)
 
     def _update_overlay_frame(self, frame: int) -> None:
         time_s = self.time_from_start_s(frame)

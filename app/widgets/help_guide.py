@@ -27,6 +27,16 @@ _VIEWER = (
     "frames in the cone fit and the free-growth radii, and the status with its reason.",
     "The Spherulites tab lists every detection; open it as a wide tab beside the viewer "
     "(View menu) to see all columns.",
+    "Candidates the analysis rejected (no growing front, a growth rate unlike the field, a "
+    "centre that cannot be placed...) are hidden; View ▸ Show rejected candidates (Shift+R) "
+    "lists and draws them, dashed, with their reasons. Every detection has a confidence "
+    "between 0 and 1 from its evidence: frames of growth, fit residuals, agreement with the "
+    "field's growth rate, precision of its nucleation time, closeness to another nucleus and to "
+    "the edge.",
+    "Review queue: J and K go to the next and previous doubtful detection (lowest confidence "
+    "first), zoomed, in the frame where its front is half-way to its nearest neighbour. A "
+    "accepts it (counts it; promotes a rejected candidate), X rejects it (deletes it as "
+    "false), Shift+N splits it (click the second nucleus). Each is one undo step.",
 )
 
 _TOOLS = (

@@ -24,7 +24,7 @@ class ActionSpec:
     checkable: bool = False
     group: str | None = None
     tip: str = ""
-    argument: str | None = None  # passed to the handler, e.g. the tool name
+    argument: str | int | None = None  # passed to the handler, e.g. the tool name
     short: str = ""  # the toolbar button's label, when shorter than the menu text
 
 
@@ -78,6 +78,18 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("ignore_frames", "&Ignore frames…", "ignore_frames", "Tools", "I", "tools",
                tip="Ignore a frame range for the selected spherulite or the whole experiment",
                short="Ignore frames"),
+    ActionSpec("next_doubtful", "Next &doubtful detection", "review_step", "Tools", "J", argument=1,
+               tip="Jump to the next detection whose evidence is weakest, zoomed, in the frame "
+                   "where it is best judged"),
+    ActionSpec("previous_doubtful", "Previous doubtful detection", "review_step", "Tools", "K", argument=-1),
+    ActionSpec("accept_detection", "&Accept the detection", "review_accept", "Tools", "A",
+               tip="Count the selected detection (promotes a rejected candidate); one undo step"),
+    ActionSpec("reject_detection", "Re&ject the detection", "review_reject", "Tools", "X",
+               tip="Delete the selected detection as false (dust, bubble, noise); one undo step"),
+    ActionSpec("split_detection", "S&plit the detection", "review_split", "Tools", "Shift+N",
+               tip="Click the second nucleus inside the selected detection"),
+    ActionSpec("show_rejected", "Show &rejected candidates", "set_show_rejected", "View", "Shift+R",
+               checkable=True, tip="Show the candidates the analysis rejected, with their reasons"),
     ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),
     ActionSpec("next_frame", "&Next frame", "next_frame", "View", "."),
     ActionSpec("previous_frame", "P&revious frame", "previous_frame", "View", ","),
@@ -113,7 +125,9 @@ def build_actions(window: Any) -> dict[str, QAction]:
             groups.setdefault(spec.group, QActionGroup(window)).addAction(action)
         handler = getattr(window, spec.handler)
         arguments = () if spec.argument is None else (spec.argument,)
-        if spec.checkable:
+        if spec.checkable and spec.group is None:  # an on/off switch: the handler gets the state
+            action.toggled.connect(lambda on, h=handler: h(on))
+        elif spec.checkable:
             action.toggled.connect(lambda on, h=handler, a=arguments: on and h(*a))
         else:
             action.triggered.connect(lambda _checked=False, h=handler, a=arguments: h(*a))

@@ -40,6 +40,7 @@ from app.microscopy.details_panel import DetailsPanel
 from app.microscopy.experiments_panel import ExperimentsPanel
 from app.microscopy.frame_range_dialog import FrameRangeDialog
 from app.microscopy.plots_panel import PlotsPanel
+from app.microscopy.review import ReviewQueue
 from app.microscopy.tools import ToolController
 from app.microscopy.viewer import StackViewer
 from app.widgets.help_guide import register_shortcuts
@@ -95,6 +96,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_central()
         self._build_docks()
         self.tools = ToolController(self.model, self.viewer, self)
+        self.review = ReviewQueue(self.model, self.viewer, self.tools, self)
         self.actions_by_id = act.build_actions(self)
         register_shortcuts(act.shortcut_rows(self.actions_by_id))  # listed in Help
         self.menus = act.populate_menus(self, self.actions_by_id)
@@ -240,6 +242,7 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self.experiments_panel.properties_requested.connect(self.edit_properties_of)
         self.viewer.frame_changed.connect(lambda _f: self.plots.set_time(self.viewer.time_from_start_s()))
         self.tools.hint_changed.connect(self.hint_label.setText)
+        self.review.message.connect(self.hint_label.setText)
         self.viewer.locate_requested.connect(self.locate_stack)
         self.runner.progressed.connect(self._on_progress)
         self.runner.busy_changed.connect(self._on_busy_changed)
@@ -361,6 +364,26 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def cancel_gesture(self) -> None:
         self.tools.cancel_gesture()
+
+    def review_step(self, delta: int) -> None:
+        self.show_view("viewer")
+        self.review.step(delta)
+
+    def review_accept(self) -> None:
+        self.review.accept()
+
+    def review_reject(self) -> None:
+        self.review.reject()
+
+    def review_split(self) -> None:
+        self.review.split()
+        if self.tools.tool == "add":
+            self.actions_by_id["tool_add"].setChecked(True)
+
+    def set_show_rejected(self, shown: bool) -> None:
+        self.viewer.set_show_rejected(shown)
+        self.details.set_show_rejected(shown)
+        self.wide_table.set_show_rejected(shown)
 
     def ignore_frames(self) -> None:
         index = self.model.current_index

@@ -33,7 +33,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
         rows = list(csv.reader(fh))
     assert rows[0] == ["id", "x_px", "y_px", "x_um", "y_um", "nucleation_time_s", "first_seen_s",
                        "growth_rate_um_per_min", "growth_rate_ci95_um_per_min", "r2", "n_points",
-                       "status", "source", "reason"]
+                       "status", "source", "reason", "confidence"]
     assert len(rows) == 1 + len(result.spherulites)
     assert float(rows[1][3]) == pytest.approx(float(rows[1][1]) * 1.25)
     with open(tmp_path / "radii.csv", newline="") as fh:
@@ -43,7 +43,7 @@ def test_csv_columns_and_json_schema_follow_the_design(result, tmp_path):
     assert list(summary) == ["schema", "stack", "frames", "um_per_px", "interval_s", "temperature_c",
                              "thickness_um", "spherulites_detected", "growth_rate_um_per_min",
                              "nucleation", "area_fraction", "avrami_film", "avrami_predicted",
-                             "resampling"]
+                             "image_quality", "resampling"]
     assert summary["schema"] == 2
     assert summary["spherulites_detected"] == len(result.spherulites)
     assert list(summary["growth_rate_um_per_min"]) == ["value", "ci95_low", "ci95_high",
@@ -74,7 +74,7 @@ def test_text_cells_that_look_like_formulas_are_escaped(result, tmp_path):
                                   geometry="film-2d")
     with open(tmp_path / "spherulites.csv", newline="") as fh:
         row = list(csv.reader(fh))[1]
-    assert row[-3:] == ["'=cmd()", "'@x", "'-1+2"]
+    assert row[-4:-1] == ["'=cmd()", "'@x", "'-1+2"]
 
 
 def test_overlay_is_drawn_at_the_field_size(result, tmp_path):

@@ -19,7 +19,7 @@ BASE = dict(excluded=None, fit_ok=True, fit_reason="", marker_on_border=False, c
 
 
 def test_every_status_has_one_entry_with_a_meaning():
-    assert list(statuses.STATUSES) == ["ok", "edge", "few-points", "nonlinear", "excluded"]
+    assert list(statuses.STATUSES) == ["ok", "edge", "few-points", "nonlinear", "excluded", "rejected"]
     assert all(s.meaning for s in statuses.STATUSES.values())
     assert [s.name for s in statuses.STATUSES.values() if s.pooled] == ["ok"]
 

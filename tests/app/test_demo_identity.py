@@ -139,6 +139,8 @@ def test_report_files_and_summary_json_agree_with_the_analysis(demo):
     sheet = list(book["growth_vs_temperature"].values)
     xlsx = {row[0]: dict(zip(sheet[0], row)) for row in sheet[1:]}
     assert set(growth_csv) == set(xlsx) == set(truth) == set(summaries)
+    # the fixture's project holds the isothermal experiments only: no ramp files, no ramp rows
+    assert not list(report_dir.glob("ramp_*"))
     for name, t in truth.items():
         row, cells, summary = growth_csv[name], xlsx[name], summaries[name]
         pairs = {"temperature_c": "temperature_c", "growth_rate_um_per_min": "g",

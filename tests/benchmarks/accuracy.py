@@ -8,7 +8,8 @@ Prints one table per input path:
   (what a perfect segmentation would record). It isolates the growth analysis.
 
 Columns: recall and precision of nuclei inside the field (matched within
-max(3 µm, 2 px); detections flagged ``edge`` are not in-field claims), median and 90th percentile of |G error| over matched ``ok``
+max(3 µm, 2 px); detections flagged ``edge`` are not in-field claims, and ``rejected``
+candidates are no claims at all), median and 90th percentile of |G error| over matched ``ok``
 spherulites, pooled G error (median over seeds), median and 90th percentile of the
 nucleation-time error in frame intervals, density error (median over seeds), nucleation
 mode correct (seeds), coverage of the per-spherulite 95 % G interval.
@@ -95,7 +96,7 @@ def score(sim, result):
     h, w = p.height_px, p.width_px
     tol = max(3.0 / p.um_per_px, 2.0)
     det = [s for s in result.spherulites if -0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5
-           and s.status != "edge"]
+           and s.status not in ("edge", "rejected")]
     matched_true, matched_det, g_err, t_err, covered = set(), 0, [], [], []
     g_true = p.growth_rate_um_per_min
     pairs = sorted((float(np.hypot(tx - s.x_px, ty - s.y_px)), i, k)

@@ -1,0 +1,64 @@
+"""Evidence-based rejection of candidates, confidence and the review order."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from analysis.results import Spherulite
+from analysis.spherulites import evidence_checks as checks
+from analysis.spherulites.growth import fit_cone
+
+SHAPE = (200, 200)
+
+
+def _cone_pixels(cx, cy, slope, t0=0.0, half=25, noise=0.0, seed=0):
+    yy, xx = np.mgrid[int(cy) - half:int(cy) + half, int(cx) - half:int(cx) + half]
+    x, y = xx.ravel().astype(float), yy.ravel().astype(float)
+    t = t0 + slope * np.hypot(x - cx, y - cy) + np.random.default_rng(seed).normal(0, noise, x.size)
+    t = np.round(t / 10.0) * 10.0  # frame times, 10 s apart
+    return x, y, t
+
+
+def _candidate(k, cx, cy, slope, *, noise=0.5, status="ok", included=False, automatic=True):
+    x, y, t = _cone_pixels(cx, cy, slope, noise=noise, seed=k)
+    fit = fit_cone(x, y, t, np.round(t / 10.0), start_xy=(cx + 1, cy - 1), f_scale_s=5.0, field_shape=SHAPE)
+    resid = float(1.4826 * np.median(np.abs(t - (fit.t0_s + fit.slope_s_per_px * np.hypot(x - fit.x_px, y - fit.y_px)))))
+    sph = Spherulite(k, fit.x_px, fit.y_px, fit.t0_s, 0.0, 60.0 / fit.slope_s_per_px, 0.1, fit.r2,
+                     fit.n_levels, status)
+    return sph, checks.Evidence(fit, resid, x, y, t, user_included=included, automatic=automatic)
+
+
+def test_a_candidate_growing_far_from_the_field_rate_is_rejected_with_a_reason():
+    items = [_candidate(1, 50, 50, 2.0), _candidate(2, 150, 50, 2.0), _candidate(3, 50, 150, 2.0),
+             _candidate(4, 150, 150, 6.0)]  # three times slower: dust or noise, not a spherulite
+    judged = checks.judge([s for s, _ in items], [e for _, e in items], interval_s=10.0, shape=SHAPE)
+    assert [s.status for s in judged] == ["ok", "ok", "ok", "rejected"]
+    assert "growth rate" in judged[3].reason
+    assert judged[3].confidence == 0.0
+    assert all(0.3 < s.confidence <= 1.0 for s in judged[:3])
+    noisy = _candidate(5, 100, 100, 2.0, noise=6.0)
+    again = checks.judge([s for s, _ in items[:3]] + [noisy[0]], [e for _, e in items[:3]] + [noisy[1]],
+                         interval_s=10.0, shape=SHAPE)
+    assert again[3].confidence < min(s.confidence for s in again[:3])
+
+
+def test_the_user_can_overrule_a_rejection_and_manual_nuclei_are_never_rejected():
+    items = [_candidate(1, 50, 50, 2.0), _candidate(2, 150, 50, 2.0), _candidate(3, 100, 100, 2.0),
+             _candidate(4, 150, 150, 6.0, included=True), _candidate(5, 50, 150, 6.0, automatic=False)]
+    judged = checks.judge([s for s, _ in items], [e for _, e in items], interval_s=10.0, shape=SHAPE)
+    assert [s.status for s in judged] == ["ok"] * 5
+
+
+def test_doubtful_detections_come_first_in_the_review_order():
+    spherulites = [Spherulite(k, 10.0 * k, 5.0, 0.0, 0.0, 10.0, 1.0, 0.9, 10, status, confidence=c)
+                   for k, (status, c) in enumerate([("ok", 0.9), ("ok", 0.2), ("few-points", 0.4),
+                                                    ("rejected", 0.0), ("edge", 0.55)], start=1)]
+    assert checks.review_order(spherulites) == [2, 3, 5]
+    assert checks.review_order(spherulites, include_rejected=True) == [2, 3, 5, 4]
+
+
+def test_best_frame_shows_the_front_half_way_to_its_neighbour():
+    times = np.arange(0.0, 600.0, 10.0)
+    sph = Spherulite(1, 50.0, 50.0, 100.0, 110.0, 30.0, 0.5, 0.99, 20, "ok")
+    frame = checks.best_frame(sph, times, 0.0, nearest_px=80.0, slope_s_per_px=2.0)
+    assert times[frame] == 180.0  # 100 s + 40 px × 2 s/px
