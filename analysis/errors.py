@@ -26,5 +26,7 @@ class InputError(ValueError):
 
 
 def _one_line(text: str) -> str:
-    """``text`` with every control character shown as its escape, so it stays one line."""
-    return _CONTROL.sub(lambda m: repr(m.group())[1:-1], str(text))
+    """``text`` on one line: line breaks and tabs become spaces, other control characters
+    are shown as their escapes."""
+    text = re.sub(r"[\r\n\t]+", " ", str(text))
+    return _CONTROL.sub(lambda m: repr(m.group())[1:-1], text)
