@@ -24,13 +24,20 @@ from pathlib import Path
 
 from analysis.errors import InputError
 
-__all__ = ["STAGING_PREFIX", "clean_text", "prepare_output_file", "prepare_output_folder",
+__all__ = ["STAGING_PREFIX", "clean_text", "file_stem", "prepare_output_file", "prepare_output_folder",
            "remove_stale_temporaries", "staged_outputs"]
 
 STAGING_PREFIX = ".spherokin-staging-"
 #: Temporaries younger than this may belong to a save running in another window.
 STALE_AFTER_S = 60.0
 _CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
+
+
+def file_stem(name: str, *, max_chars: int = 60) -> str:
+    """A file-name-safe version of an experiment or project name (ASCII letters, digits,
+    ``._-``; every other run of characters becomes one ``_``), at most ``max_chars`` long."""
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "_", name)[:max_chars].strip("._")
+    return stem or "experiment"
 
 
 def clean_text(value: str) -> str:

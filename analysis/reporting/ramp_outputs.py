@@ -4,7 +4,6 @@ ramp.json, and the figures growth_radii (R(t) with the fit) and growth_vs_temper
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
@@ -13,6 +12,7 @@ import numpy as np
 from analysis.errors import InputError
 from analysis.reporting.figures import _PALETTE, _figure, _message, save_figure
 from analysis.reporting.tables import Table, write_csv, write_xlsx
+from analysis.units import write_json_atomic
 
 __all__ = ["GROWTH_COLUMNS", "NUCLEATION_COLUMNS", "growth_table", "nucleation_table", "ramp_summary",
            "radii_figure", "growth_figure", "write_ramp_outputs"]
@@ -99,16 +99,6 @@ def growth_figure(growth, isothermal=None):
     return fig
 
 
-def _finite(value):
-    """NaN and infinities become null (JSON has neither), recursively."""
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_finite(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
 
 def write_ramp_outputs(ramp, out_dir, *, prefix: str = "") -> list[str]:
     """Write every ramp file into ``out_dir`` (names start with ``prefix``); returns their names."""
@@ -122,8 +112,7 @@ def write_ramp_outputs(ramp, out_dir, *, prefix: str = "") -> list[str]:
         for name, table in tables.items():
             written.append(write_csv(table, out / f"{prefix}{name}.csv").name)
         written.append(write_xlsx(tables, out / f"{prefix}growth_vs_temperature.xlsx").name)
-        (out / f"{prefix}ramp.json").write_text(json.dumps(_finite(ramp_summary(ramp)), indent=2, allow_nan=False) + "\n",
-                                       encoding="utf-8")
+        write_json_atomic(out / f"{prefix}ramp.json", ramp_summary(ramp))
         written.append(f"{prefix}ramp.json")
         for stem, fig in (("growth_radii", radii_figure(ramp.growth, ramp.programme)),
                           ("growth_vs_temperature", growth_figure(ramp.growth))):

@@ -28,7 +28,7 @@ import numpy as np
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED
-from analysis.outputs import prepare_output_folder, staged_outputs
+from analysis.outputs import file_stem, prepare_output_folder, staged_outputs
 from analysis.project.model import resampling_seed, stage_uncertainty_k
 from analysis.kinetics.lauritzen_hoffman import (
     LHConstants,
@@ -180,14 +180,10 @@ def _write_ramps(entries, out: Path) -> list[Path]:
     files = []
     for e in entries:
         if e.ramp is not None:
-            prefix = f"ramp_{_file_stem(e.name)}_"
+            prefix = f"ramp_{file_stem(e.name)}_"
             files += [out / name for name in write_ramp_outputs(e.ramp, out, prefix=prefix)]
     return files
 
-
-def _file_stem(name: str) -> str:
-    stem = "".join(c if c.isalnum() or c in "-_" else "_" for c in name).strip("_")
-    return stem[:60] or "experiment"
 
 
 def ramp_of_experiment(experiment, analysis, project):

@@ -8,7 +8,6 @@ this module caches it. Which inputs an experiment uses is decided in
 from __future__ import annotations
 
 import os
-import re
 from collections import OrderedDict
 
 from analysis.errors import InputError
@@ -41,9 +40,3 @@ class CalorimetryCache:
 def _trim(cache: OrderedDict, size: int) -> None:
     while len(cache) > size:
         cache.popitem(last=False)
-
-
-def file_stem(name: str) -> str:
-    """A file-name-safe version of an experiment name."""
-    stem = re.sub(r"[^A-Za-z0-9._-]+", "_", name).strip("._")
-    return stem or "experiment"

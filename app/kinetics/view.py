@@ -17,9 +17,10 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
+from analysis.outputs import file_stem
 from analysis.reporting.entries import calorimetry_source
 from analysis.settings import DEFAULT_FIT_WINDOW
-from app.core.kinetics_inputs import CalorimetryCache, file_stem
+from app.core.kinetics_inputs import CalorimetryCache
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel

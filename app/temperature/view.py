@@ -15,7 +15,8 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
-from app.core.kinetics_inputs import CalorimetryCache, file_stem
+from analysis.outputs import file_stem
+from app.core.kinetics_inputs import CalorimetryCache
 from app.temperature import export as temperature_export
 from app.temperature import logic
 from app.temperature.lauritzen_hoffman import (

@@ -282,3 +282,11 @@ def test_memory_budget_from_option_or_environment(tmp_path, monkeypatch):
     monkeypatch.setenv(MEMORY_BUDGET_ENV, "plenty")
     with pytest.raises(InputError, match="not a number"):
         check_memory_budget(stack)
+
+
+def test_file_stems_are_safe_names_for_every_writer():
+    from analysis.outputs import file_stem
+
+    assert file_stem("Orvessa PN-12, cooling 5 K/min") == "Orvessa_PN-12_cooling_5_K_min"
+    assert file_stem("../../etc/passwd\x00\n") == "etc_passwd"
+    assert file_stem("...") == "experiment" and len(file_stem("x" * 500)) == 60
