@@ -449,15 +449,20 @@ def residual_scale_s(fit: ConeFit, x, y, t) -> float:
     return float(1.4826 * np.median(np.abs(resid - np.median(resid))))
 
 
-def _two_cone_residuals(p, x, y, t):
+def _two_cone_residuals(p, x, y, t, n_bound=0):
+    """Model minus measured arrival; the last ``n_bound`` pixels only bound the arrival
+    from above (``t`` is the bound there): they count only where the model exceeds it."""
     a = p[2] + p[6] * np.hypot(x - p[0], y - p[1])
     b = p[5] + p[6] * np.hypot(x - p[3], y - p[4])
-    return np.minimum(a, b) - t
+    resid = np.minimum(a, b) - t
+    if n_bound:
+        resid[-n_bound:] = np.maximum(resid[-n_bound:], 0.0)
+    return resid
 
 
-def _two_cone_jacobian(p, x, y, t):
+def _two_cone_jacobian(p, x, y, t, n_bound=0):
     """Analytic Jacobian of :func:`_two_cone_residuals`: each pixel depends on the
-    parameters of the cone that reaches it first."""
+    parameters of the cone that reaches it first (bound pixels only when violated)."""
     ra = np.maximum(np.hypot(x - p[0], y - p[1]), 1e-9)
     rb = np.maximum(np.hypot(x - p[3], y - p[4]), 1e-9)
     first_a = p[2] + p[6] * ra <= p[5] + p[6] * rb
@@ -469,21 +474,46 @@ def _two_cone_jacobian(p, x, y, t):
     jac[:, 4] = np.where(first_a, 0.0, -p[6] * (y - p[4]) / rb)
     jac[:, 5] = ~first_a
     jac[:, 6] = np.where(first_a, ra, rb)
+    if n_bound:
+        inactive = _two_cone_residuals(p, x[-n_bound:], y[-n_bound:], t[-n_bound:], n_bound) <= 0
+        jac[-n_bound:][inactive] = 0.0
     return jac
 
 
-def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s: float):
+def bound_violation_s(fit: ConeFit, x, y, limit_s: float) -> np.ndarray:
+    """How far (s) a cone's arrival exceeds ``limit_s`` at pixels known to have
+    crystallised by then (e.g. crystalline in the first frame); 0 where it does not."""
+    model = fit.t0_s + fit.slope_s_per_px * np.hypot(np.asarray(x, float) - fit.x_px,
+                                                     np.asarray(y, float) - fit.y_px)
+    return np.maximum(model - limit_s, 0.0)
+
+
+def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s: float,
+                  bound=None, start_t0_s: float | None = None):
     """Two cones with a common slope (same G), t = min(cone a, cone b), robust fit.
 
     Used to test whether one territory actually holds two nuclei that were never
     separated (overlapping already in the first frame, or closer than the flooding
-    resolves). Returns (params [xa, ya, t0a, xb, yb, t0b, s], soft-L1 cost).
+    resolves). ``bound`` = (x, y, limit_s): pixels known to have crystallised by
+    ``limit_s`` (a crystal present in the first frame), which count only where the model
+    arrives later. ``start_t0_s``: starting nucleation time of both cones (default: just
+    before the earliest pixels). Returns (params [xa, ya, t0a, xb, yb, t0b, s], soft-L1
+    cost over measured and bound pixels).
     """
     x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
     t0 = float(np.percentile(t, 1)) - slope_s_per_px
+    n_bound = 0
+    if bound is not None and len(bound[0]):
+        bx, by = np.asarray(bound[0], float), np.asarray(bound[1], float)
+        n_bound = bx.size
+        x, y = np.concatenate([x, bx]), np.concatenate([y, by])
+        t = np.concatenate([t, np.full(n_bound, float(bound[2]))])
+        t0 = min(t0, float(bound[2]) - slope_s_per_px)
+    if start_t0_s is not None:
+        t0 = float(start_t0_s)
     x0 = np.array([start_a[0], start_a[1], t0, start_b[0], start_b[1], t0, slope_s_per_px])
     lo = [-np.inf, -np.inf, -np.inf, -np.inf, -np.inf, -np.inf, 1e-9]
-    fit = optimize.least_squares(_two_cone_residuals, x0, jac=_two_cone_jacobian, args=(x, y, t),
-                                 loss="soft_l1",
+    fit = optimize.least_squares(_two_cone_residuals, x0, jac=_two_cone_jacobian,
+                                 args=(x, y, t, n_bound), loss="soft_l1",
                                  f_scale=f_scale_s, bounds=(lo, [np.inf] * 7), max_nfev=200)
-    return fit.x, soft_l1_cost(_two_cone_residuals(fit.x, x, y, t), f_scale_s)
+    return fit.x, soft_l1_cost(_two_cone_residuals(fit.x, x, y, t, n_bound), f_scale_s)

@@ -269,8 +269,41 @@ def _axis_ends(x, y) -> tuple[np.ndarray, np.ndarray]:
 
 
 def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
-                     start_region=None):
-    """Two apexes (x, y) when one territory's pixels are better explained by two cones.
+                     start_region=None, start_time_s: float | None = None):
+    """Two apexes (x, y) when one territory's pixels are better explained by two cones
+    (see :func:`split_cones`), else None."""
+    params = split_cones(x, y, t, fit, slope_s_per_px=slope_s_per_px, f_scale_s=f_scale_s,
+                         start_region=start_region, start_time_s=start_time_s)
+    if params is None:
+        return None
+    return (float(params[0]), float(params[1])), (float(params[3]), float(params[4]))
+
+
+def two_cone_arrival(params, x, y) -> np.ndarray:
+    """Arrival time (s) at pixels (x, y) of the pair of cones ``params`` (see
+    :func:`split_cones`): the earlier of the two, as in a Johnson-Mehl cell."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    return np.minimum(params[2] + params[6] * np.hypot(x - params[0], y - params[1]),
+                      params[5] + params[6] * np.hypot(x - params[3], y - params[4]))
+
+
+def region_outline(x, y) -> tuple[np.ndarray, np.ndarray]:
+    """Pixels (x, y) of a pixel set that have a 4-neighbour outside it."""
+    x, y = np.asarray(x, int), np.asarray(y, int)
+    if x.size == 0:
+        return x, y
+    mask = np.zeros((np.ptp(y) + 3, np.ptp(x) + 3), np.uint8)
+    mask[y - y.min() + 1, x - x.min() + 1] = 1
+    inner = cv2.erode(mask, np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8))
+    edge = (mask > 0) & (inner == 0)
+    ey, ex = np.nonzero(edge)
+    return ex + x.min() - 1, ey + y.min() - 1
+
+
+def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_region=None,
+                start_time_s: float | None = None):
+    """Parameters [xa, ya, t0a, xb, yb, t0b, s] of two cones (px, s, s/px) when one
+    territory's pixels are better explained by two cones than by ``fit``, else None.
 
     The two-cone model (common slope) starts from the ends of the principal axis of the
     territory's earliest 15 % of pixels, and also of ``start_region`` (x, y) when given
@@ -280,8 +313,18 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     at least 15 % of the pixels first (5 % when the cost falls below a quarter: a
     cluster present in the first frame shows little of its inner cones), and the common
     slope is within 25 % of the field's mean slope. Returns None otherwise.
+
+    With ``start_time_s`` (the first frame's time), the outline of ``start_region`` enters
+    both costs as a bound: each of its pixels had crystallised by then, so a model that
+    reaches it later pays the delay. The shape of a crystal present at the start is
+    evidence too: a single cone predicts a disc, two merged nuclei a lobed outline.
     """
-    from analysis.spherulites.growth import cone_residuals, fit_two_cones, soft_l1_cost
+    from analysis.spherulites.growth import (
+        bound_violation_s,
+        cone_residuals,
+        fit_two_cones,
+        soft_l1_cost,
+    )
 
     rules = heuristics.current()
     x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
@@ -291,9 +334,17 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     starts = [_axis_ends(x[early], y[early])]
     if start_region is not None and len(start_region[0]) >= 5:
         starts.append(_axis_ends(*start_region))
-    params, cost2 = min((fit_two_cones(x, y, t, a, b, fit.slope_s_per_px, f_scale_s=f_scale_s)
-                         for a, b in starts), key=lambda pc: pc[1])
+    bound = None
+    if start_time_s is not None and start_region is not None and len(start_region[0]):
+        bound = (*region_outline(*start_region), float(start_time_s))
+    # Nuclei present at the start are usually as old as the single cone says (athermal).
+    t0_starts = [None] if bound is None else [None, fit.t0_s]
+    params, cost2 = min((fit_two_cones(x, y, t, a, b, fit.slope_s_per_px, f_scale_s=f_scale_s,
+                                       bound=bound, start_t0_s=t0)
+                         for a, b in starts for t0 in t0_starts), key=lambda pc: pc[1])
     cost1 = soft_l1_cost(cone_residuals(fit, x, y, t), f_scale_s)
+    if bound is not None:
+        cost1 += soft_l1_cost(bound_violation_s(fit, bound[0], bound[1], bound[2]), f_scale_s)
     a, b = params[0:2], params[3:5]
     nearer_a = (params[2] + params[6] * np.hypot(x - a[0], y - a[1])) <= \
         (params[5] + params[6] * np.hypot(x - b[0], y - b[1]))
@@ -303,7 +354,7 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     balanced = least <= share <= 1.0 - least
     if (cost2 < rules.split_cost_ratio * cost1 and np.hypot(*(a - b)) >= rules.split_min_separation_px
             and balanced and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
-        return (float(a[0]), float(a[1])), (float(b[0]), float(b[1]))
+        return np.asarray(params, float)
     return None
 
 

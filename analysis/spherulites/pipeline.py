@@ -179,7 +179,9 @@ def _with_missed_nuclei(ctx: Context, settings) -> Context:
 def _split_pixels(ctx, result, fits, groups, settings) -> dict:
     """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
     scale above 1.5 times the field's typical one, non-linear growth, or a slope more
-    than 25 % off the field's mean."""
+    than 25 % off the field's mean. A crystal present in the first frame must also lie
+    inside the cone's disc at that time: its outline's excess arrival joins the residuals
+    (nuclei.split_cones)."""
     band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
     data, scales = {}, {}
     for sph in result.spherulites:
@@ -193,6 +195,12 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
         t = ctx.fit_arrival.ravel()[pix]
         scales[sph.id] = growth.residual_scale_s(fit, x, y, t)
         data[sph.id] = (x, y, t, fit, sph.status)
+        rows, cols = np.divmod(groups[sph.id], ctx.shape[1])
+        frame_0 = ctx.at_start[rows, cols]
+        if np.any(frame_0):
+            ox, oy = nuclei.region_outline(cols[frame_0], rows[frame_0])
+            excess = growth.bound_violation_s(fit, ox, oy, float(ctx.times_s[0]))
+            scales[sph.id] = max(scales[sph.id], float(1.4826 * np.median(excess)))
     if not scales:
         return {}
     rules = heuristics.current()
@@ -204,24 +212,30 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
-    """Give two markers to territories that hold two nuclei (nuclei.split_candidates).
+    """Give two markers to territories that hold two nuclei (nuclei.split_cones).
 
-    A split inside a crystal present in frame 0 is undone when either half then has no
-    cone fit: its apex was placed where no measured front can confirm it.
+    Inside a crystal present in frame 0 the working map holds only a bound on the
+    arrival (no front was seen there), so the split also redraws it from the two fitted
+    cones: each apex becomes a minimum and the flooding follows the Johnson-Mehl
+    boundary between them, which a later round can split again (clusters of three). A
+    split inside such a crystal is undone when either half then has no cone fit: its
+    apex was placed where no measured front can confirm it.
     """
     result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
+    work = ctx.work.copy()
     next_id = ctx.markers.xy_px.shape[0] + 1
-    splits = []  # (spots, marker values replaced) per split
+    splits = []  # (spots, marker values replaced, relief pixels redrawn) per split
     for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
         rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         frame_0 = ctx.at_start[rows, cols]
-        apexes = nuclei.split_candidates(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
-                                         f_scale_s=0.5 * ctx.interval_s,
-                                         start_region=(cols[frame_0], rows[frame_0]))
-        if apexes is None:
+        cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
+                                   f_scale_s=0.5 * ctx.interval_s,
+                                   start_region=(cols[frame_0], rows[frame_0]),
+                                   start_time_s=float(ctx.times_s[0]))
+        if cones is None:
             continue
-        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in apexes]
+        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in (cones[0:2], cones[3:5])]
         spots = [(rows[k], cols[k]) for k in seeds]
         # A marker in the way that never gave a cone fit was a fragment of this nucleus.
         others = {int(labels[r, c]) for r, c in spots} - {0, det_id}
@@ -231,13 +245,16 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         labels[spots[0]] = det_id
         labels[spots[1]] = next_id
         next_id += 1
-        splits.append((spots, [det_id, *others]))
+        redrawn = (rows[frame_0], cols[frame_0])
+        work[redrawn] = np.minimum(nuclei.two_cone_arrival(cones, redrawn[1], redrawn[0]),
+                                   ctx.times_s[0])
+        splits.append((spots, [det_id, *others], redrawn))
     if not splits:
         return ctx
-    split_ctx = _with_marker_labels(ctx, labels)
+    split_ctx = _with_marker_labels(dataclasses.replace(ctx, work=work), labels)
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
-    for spots, replaced in splits:
+    for spots, replaced, redrawn in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
         if all(split_fits[k].ok for k in ids) or not any(ctx.at_start[spot] for spot in spots):
             continue
@@ -245,8 +262,9 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
             labels[spot] = 0
         original = np.isin(ctx.markers.labels, replaced)
         labels[original] = ctx.markers.labels[original]
+        work[redrawn] = ctx.work[redrawn]
         undone = True
-    return _with_marker_labels(ctx, labels) if undone else split_ctx
+    return _with_marker_labels(dataclasses.replace(ctx, work=work), labels) if undone else split_ctx
 
 
 def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
