@@ -34,6 +34,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from accuracy import BASE, CONDITIONS, score, visible_truth  # noqa: E402
 
+from analysis import heuristics  # noqa: E402
 from analysis.spherulites.pipeline import analyze, analyze_arrival  # noqa: E402
 from analysis.synthetic import hot_stage as synthetic  # noqa: E402
 
@@ -106,7 +107,15 @@ def main() -> int:
     parser.add_argument("--conditions", help="comma-separated substrings of condition names")
     parser.add_argument("--cache", type=Path, help="folder for arrival maps (reused when present)")
     parser.add_argument("--quiet", action="store_true", help="only the per-condition summary")
+    parser.add_argument("--heuristic", action="append", default=[], metavar="NAME=VALUE",
+                        help="override a detection heuristic (analysis.heuristics)")
     args = parser.parse_args()
+    changes = {k: float(v) for k, v in (item.split("=", 1) for item in args.heuristic)}
+    with heuristics.overridden(**changes):
+        return run(args)
+
+
+def run(args) -> int:
     chosen = {k: v for k, v in CONDITIONS.items()
               if not args.conditions or any(c in k for c in args.conditions.split(","))}
     with tempfile.TemporaryDirectory() as workdir:
