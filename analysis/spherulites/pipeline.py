@@ -219,7 +219,9 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     cones: each apex becomes a minimum and the flooding follows the Johnson-Mehl
     boundary between them, which a later round can split again (clusters of three). A
     split inside such a crystal is undone when either half then has no cone fit: its
-    apex was placed where no measured front can confirm it.
+    apex was placed where no measured front can confirm it. Any split is undone when a
+    half's own fit lands on another detection's apex (within the split separation): the
+    extra cone was explaining a neighbour's pixels, not a nucleus of its own.
     """
     result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
@@ -254,9 +256,12 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     split_ctx = _with_marker_labels(dataclasses.replace(ctx, work=work), labels)
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
+    apexes = {k: (f.x_px, f.y_px) for k, f in split_fits.items() if f.ok}
     for spots, replaced, redrawn in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
-        if all(split_fits[k].ok for k in ids) or not any(ctx.at_start[spot] for spot in spots):
+        duplicate = any(_duplicates(apexes, k) for k in ids)
+        if not duplicate and (all(split_fits[k].ok for k in ids)
+                              or not any(ctx.at_start[spot] for spot in spots)):
             continue
         for spot in spots:
             labels[spot] = 0
@@ -265,6 +270,15 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         work[redrawn] = ctx.work[redrawn]
         undone = True
     return _with_marker_labels(dataclasses.replace(ctx, work=work), labels) if undone else split_ctx
+
+
+def _duplicates(apexes: dict, label: int) -> bool:
+    """The fitted apex of ``label`` lies within the split separation of another's."""
+    if label not in apexes:
+        return False
+    here = np.asarray(apexes[label])
+    near = heuristics.current().split_min_separation_px
+    return any(np.hypot(*(here - xy)) < near for k, xy in apexes.items() if k != label)
 
 
 def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
