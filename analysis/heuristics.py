@@ -92,7 +92,14 @@ class DetectionHeuristics:
     missed_deficit_intervals: float = _h(
         1.5, "A region that crystallises this many frame intervals earlier than every fitted "
         "cone predicts holds a nucleus of its own: one interval is the timing quantum, half "
-        "more allows for timing noise.")
+        "more allows for timing noise. The most a deficit must reach; see "
+        "missed_deficit_sigmas.")
+    missed_deficit_sigmas: float = _h(
+        4.0, "A deficit also counts once it exceeds this many robust standard deviations of "
+        "the field's arrival residuals about the fitted cones (common practice): when "
+        "arrivals are resolved within a frame, a nucleus born just ahead of a front leads "
+        "it by less than one interval. On arrivals at frame times (uniform error of ±half "
+        "an interval) it equals missed_deficit_intervals.")
     missed_slope_tolerance: float = _h(
         0.25, "A missed nucleus's own cone must grow within this relative difference of the "
         "field's mean slope: one temperature, one growth rate (Lauritzen & Hoffman 1960, "

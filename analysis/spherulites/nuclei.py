@@ -216,6 +216,19 @@ def snap_to_minimum(work: np.ndarray, x_px: float, y_px: float, radius_px: float
     return int(yy.ravel()[k]), int(xx.ravel()[k])
 
 
+def deficit_threshold_s(residuals_s: np.ndarray, interval_s: float) -> float:
+    """Least lead (s) over the fitted cones that marks a region as a nucleus of its own:
+    ``missed_deficit_sigmas`` robust standard deviations (1.4826 MAD) of the residuals,
+    at most ``missed_deficit_intervals`` frame intervals."""
+    rules = heuristics.current()
+    cap = rules.missed_deficit_intervals * interval_s
+    residuals_s = np.asarray(residuals_s, float)
+    if residuals_s.size < 10:
+        return cap
+    scale = 1.4826 * float(np.median(np.abs(residuals_s - np.median(residuals_s))))
+    return min(cap, rules.missed_deficit_sigmas * scale) if scale > 0 else cap
+
+
 def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarray, *,
                   frames: np.ndarray, interval_s: float, slope_s_per_px: float,
                   existing_xy: np.ndarray, min_area_px: int = 30) -> list[tuple[int, int]]:
@@ -225,7 +238,9 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
     only: the arrival map rises from it, but it is not a regional minimum (the
     neighbour's side is lower), so no marker finds it. Its pixels, however, crystallise
     earlier than any fitted cone predicts. Connected regions where the measured arrival
-    precedes the fitted model (``model_s``) by more than 1.5 frame intervals and that
+    precedes the fitted model (``model_s``) by more than 1.5 frame intervals, or by more
+    than 4 robust standard deviations of the residuals about the model when those are
+    smaller (arrivals resolved within a frame), and that
     hold ``min_area_px`` pixels are fitted with their own cone; the region becomes a
     nucleus when that fit converges with a slope within 25 % of the field's mean slope
     and an apex within 3 px of the region and more than 3 px from every known nucleus.
@@ -239,7 +254,7 @@ def missed_nuclei(arrival_s: np.ndarray, measured: np.ndarray, model_s: np.ndarr
     usable = measured & np.isfinite(model_s) & np.isfinite(arrival_s)
     deficit = np.zeros(arrival_s.shape)
     np.subtract(model_s, arrival_s, out=deficit, where=usable)
-    mask = (deficit > rules.missed_deficit_intervals * interval_s).astype(np.uint8)
+    mask = (deficit > deficit_threshold_s(deficit[usable], interval_s)).astype(np.uint8)
     count, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
     seeds = []
     for k in range(1, count):
