@@ -517,3 +517,64 @@ def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s
                                  args=(x, y, t, n_bound), loss="soft_l1",
                                  f_scale=f_scale_s, bounds=(lo, [np.inf] * 7), max_nfev=200)
     return fit.x, soft_l1_cost(_two_cone_residuals(fit.x, x, y, t, n_bound), f_scale_s)
+
+
+def _cones_arrival(p, x, y):
+    """Arrival of k cones p = [x1, y1, t01, ..., xk, yk, t0k, s] at (x, y) and which is first."""
+    k = (p.size - 1) // 3
+    each = np.stack([p[3 * i + 2] + p[-1] * np.hypot(x - p[3 * i], y - p[3 * i + 1]) for i in range(k)])
+    first = np.argmin(each, axis=0)
+    return each[first, np.arange(x.size)], first
+
+
+def _cones_residuals(p, x, y, t, n_bound=0):
+    resid = _cones_arrival(p, x, y)[0] - t
+    if n_bound:
+        resid[-n_bound:] = np.maximum(resid[-n_bound:], 0.0)
+    return resid
+
+
+def _cones_jacobian(p, x, y, t, n_bound=0):
+    k = (p.size - 1) // 3
+    model, first = _cones_arrival(p, x, y)
+    cx, cy = p[0:3 * k:3][first], p[1:3 * k:3][first]
+    r = np.maximum(np.hypot(x - cx, y - cy), 1e-9)
+    jac = np.zeros((x.size, p.size))
+    rows = np.arange(x.size)
+    jac[rows, 3 * first] = -p[-1] * (x - cx) / r
+    jac[rows, 3 * first + 1] = -p[-1] * (y - cy) / r
+    jac[rows, 3 * first + 2] = 1.0
+    jac[:, -1] = r
+    if n_bound:
+        inactive = model[-n_bound:] - t[-n_bound:] <= 0
+        jac[-n_bound:][inactive] = 0.0
+    return jac
+
+
+def fit_cones(x, y, t, starts_xy, slope_s_per_px: float, *, f_scale_s: float, start_t0_s: float,
+              bound=None):
+    """k cones with a common slope (same G), t = min over the cones, robust fit.
+
+    The k-nucleus generalisation of :func:`fit_two_cones` for a crystal present in the
+    first frame that may hold several nuclei (Johnson-Mehl cells: Johnson & Mehl 1939,
+    Trans. AIME 135, 416). ``starts_xy``: (k, 2) starting apexes, px; ``bound`` as in
+    :func:`fit_two_cones`. Returns (params [x1, y1, t01, ..., xk, yk, t0k, s], soft-L1
+    cost over measured and bound pixels, index of the first cone at each measured and
+    bound pixel).
+    """
+    x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
+    n_bound = 0
+    if bound is not None and len(bound[0]):
+        n_bound = len(bound[0])
+        x = np.concatenate([x, np.asarray(bound[0], float)])
+        y = np.concatenate([y, np.asarray(bound[1], float)])
+        t = np.concatenate([t, np.full(n_bound, float(bound[2]))])
+    starts = np.asarray(starts_xy, float).reshape(-1, 2)
+    x0 = np.concatenate([np.column_stack([starts, np.full(len(starts), start_t0_s)]).ravel(),
+                         [slope_s_per_px]])
+    lo = [-np.inf] * (x0.size - 1) + [1e-9]
+    fit = optimize.least_squares(_cones_residuals, x0, jac=_cones_jacobian, args=(x, y, t, n_bound),
+                                 loss="soft_l1", f_scale=f_scale_s, bounds=(lo, [np.inf] * x0.size),
+                                 max_nfev=200)
+    cost = soft_l1_cost(_cones_residuals(fit.x, x, y, t, n_bound), f_scale_s)
+    return fit.x, cost, _cones_arrival(fit.x, x, y)[1]

@@ -294,14 +294,6 @@ def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
     return (float(params[0]), float(params[1])), (float(params[3]), float(params[4]))
 
 
-def two_cone_arrival(params, x, y) -> np.ndarray:
-    """Arrival time (s) at pixels (x, y) of the pair of cones ``params`` (see
-    :func:`split_cones`): the earlier of the two, as in a Johnson-Mehl cell."""
-    x, y = np.asarray(x, float), np.asarray(y, float)
-    return np.minimum(params[2] + params[6] * np.hypot(x - params[0], y - params[1]),
-                      params[5] + params[6] * np.hypot(x - params[3], y - params[4]))
-
-
 def region_outline(x, y) -> tuple[np.ndarray, np.ndarray]:
     """Pixels (x, y) of a pixel set that have a 4-neighbour outside it."""
     x, y = np.asarray(x, int), np.asarray(y, int)
@@ -371,6 +363,59 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
             and balanced and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
         return np.asarray(params, float)
     return None
+
+
+def cluster_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_region,
+                  start_time_s: float, max_nuclei: int = 6):
+    """Cones [x1, y1, t01, ..., xk, yk, t0k, s] (k >= 2) of the nuclei inside a crystal
+    present in the first frame, or None when one cone explains it.
+
+    A crystal already there at the first frame may hold several merged nuclei; only its
+    outline (a bound: crystalline by ``start_time_s``) and the fronts measured around it
+    tell them apart. Models of k = 2, 3, ... cones with a common slope are fitted from
+    k-means centres of ``start_region`` (x, y) (deterministic seed); a model with more
+    nuclei replaces the best so far only when it buys the gain a two-nucleus split must
+    (robust cost below ``split_cost_ratio`` of that model's; fits of k and k + 1 cones
+    can land in poorer local optima than k + 2, so every k is tried), the apexes stay
+    ``split_min_separation_px`` apart, every cone is first over at least
+    ``split_min_share_lopsided`` of the pixels and the slope stays within
+    ``split_slope_tolerance`` of the field's: a penalised model comparison.
+    """
+    from scipy.cluster.vq import kmeans2
+
+    from analysis.spherulites.growth import bound_violation_s, cone_residuals, fit_cones, soft_l1_cost
+
+    rules = heuristics.current()
+    sx, sy = (np.asarray(a, float) for a in start_region)
+    if sx.size < 20:
+        return None
+    ox, oy = region_outline(sx, sy)
+    bound = (ox, oy, float(start_time_s))
+    best, cost = None, soft_l1_cost(cone_residuals(fit, x, y, t), f_scale_s) + \
+        soft_l1_cost(bound_violation_s(fit, ox, oy, start_time_s), f_scale_s)
+    points = np.column_stack([sx, sy])
+    for k in range(2, max_nuclei + 1):
+        if points.shape[0] < 10 * k:
+            break
+        centres, _ = kmeans2(points, k, seed=0, minit="++")
+        params, cost_k, first = fit_cones(x, y, t, centres, fit.slope_s_per_px, f_scale_s=f_scale_s,
+                                          start_t0_s=fit.t0_s, bound=bound)
+        apexes = params[:-1].reshape(-1, 3)[:, :2]
+        gaps = np.hypot(*(apexes[:, None, :] - apexes[None, :, :]).transpose(2, 0, 1))
+        shares = np.bincount(first, minlength=k) / first.size
+        if (cost_k < rules.split_cost_ratio * cost
+                and gaps[np.triu_indices(k, 1)].min() >= rules.split_min_separation_px
+                and shares.min() >= rules.split_min_share_lopsided
+                and abs(params[-1] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
+            best, cost = params, cost_k
+    return best
+
+
+def cones_arrival(params, x, y) -> np.ndarray:
+    """Arrival time (s) at (x, y) of the cones ``params`` (see :func:`cluster_cones`)."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    cones = np.asarray(params[:-1], float).reshape(-1, 3)
+    return np.min([t0 + params[-1] * np.hypot(x - cx, y - cy) for cx, cy, t0 in cones], axis=0)
 
 
 def boundary_band(labels: np.ndarray, band: int) -> np.ndarray:

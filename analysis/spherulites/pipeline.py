@@ -231,24 +231,37 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
         rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         frame_0 = ctx.at_start[rows, cols]
-        cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
-                                   f_scale_s=0.5 * ctx.interval_s,
-                                   start_region=(cols[frame_0], rows[frame_0]),
-                                   start_time_s=float(ctx.times_s[0]))
+        start_region = (cols[frame_0], rows[frame_0])
+        if np.count_nonzero(frame_0) >= 20:
+            cones = nuclei.cluster_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
+                                         f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
+                                         start_time_s=float(ctx.times_s[0]))
+        else:
+            cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
+                                       f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
+                                       start_time_s=float(ctx.times_s[0]))
         if cones is None:
             continue
-        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in (cones[0:2], cones[3:5])]
+        apexes = np.asarray(cones[:-1]).reshape(-1, 3)[:, :2]
+        # A cone on another detection's apex is that detection, reaching into this territory.
+        known = np.array([(f.x_px, f.y_px) for k, f in fits.items() if k != det_id and f.ok]).reshape(-1, 2)
+        new = [xy for xy in apexes if known.size == 0 or np.hypot(*(known - xy).T).min()
+               >= heuristics.current().split_min_separation_px]
+        if len(new) < 2:
+            continue
+        seeds = [int(np.argmin(np.hypot(cols - ax, rows - ay))) for ax, ay in new]
         spots = [(rows[k], cols[k]) for k in seeds]
         # A marker in the way that never gave a cone fit was a fragment of this nucleus.
         others = {int(labels[r, c]) for r, c in spots} - {0, det_id}
-        if spots[0] == spots[1] or any(k not in fits or fits[k].ok for k in others):
+        if len(set(spots)) < len(spots) or any(k not in fits or fits[k].ok for k in others):
             continue
         labels[np.isin(labels, [det_id, *others])] = 0
         labels[spots[0]] = det_id
-        labels[spots[1]] = next_id
-        next_id += 1
+        for spot in spots[1:]:
+            labels[spot] = next_id
+            next_id += 1
         redrawn = (rows[frame_0], cols[frame_0])
-        work[redrawn] = np.minimum(nuclei.two_cone_arrival(cones, redrawn[1], redrawn[0]),
+        work[redrawn] = np.minimum(nuclei.cones_arrival(cones, redrawn[1], redrawn[0]),
                                    ctx.times_s[0])
         splits.append((spots, [det_id, *others], redrawn))
     if not splits:
