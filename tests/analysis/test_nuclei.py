@@ -135,3 +135,43 @@ def test_estimated_arrivals_inside_first_frame_crystals_give_their_minima():
     assert markers.xy_px.shape[0] == 2
     for cx, cy in centres:
         assert np.min(np.hypot(*(markers.xy_px - [cx, cy]).T)) < 1.5
+
+
+def test_three_nuclei_merged_in_the_first_frame_are_all_found():
+    # Three simultaneous nuclei about 21 px apart, each disc 12 px in radius when the
+    # record starts: one crystal in the first frame, its outline three arcs. The arrival
+    # map is the Johnson-Mehl tessellation of three cones (Johnson & Mehl 1939, Trans.
+    # AIME 135, 416); three cones explain the measured fronts and the outline, one cone
+    # cannot.
+    times = np.arange(0.0, 200.0, 2.0)
+    centres = np.array([[50.0, 40.0], [71.0, 44.0], [58.0, 60.0]])
+    exact = growth.model_arrival_map((100, 110), centres, [-24.0] * 3, 0.5)
+    at_start = exact <= times[0]
+    yy, xx = np.nonzero(~at_start & (exact < 60.0))
+    t = exact[yy, xx]
+    frames = np.searchsorted(times, t)
+    single = growth.fit_cone(xx, yy, t, frames, start_xy=(60.0, 48.0), f_scale_s=1.0)
+    sy, sx = np.nonzero(at_start)
+    cones = nuclei.cluster_cones(xx, yy, t, single, slope_s_per_px=2.0, f_scale_s=1.0,
+                                 start_region=(sx, sy), start_time_s=float(times[0]))
+    assert cones is not None
+    found = cones[:-1].reshape(-1, 3)
+    assert found.shape[0] == 3
+    for cx, cy in centres:
+        assert np.min(np.hypot(found[:, 0] - cx, found[:, 1] - cy)) < 1.0
+    assert np.allclose(found[:, 2], -24.0, atol=1.0)
+
+
+def test_one_crystal_in_the_first_frame_stays_one_nucleus():
+    # A single disc present at the start, its later growth measured with timing noise:
+    # more cones buy no gain, so no cluster is reported.
+    times = np.arange(0.0, 200.0, 2.0)
+    exact = growth.model_arrival_map((100, 100), [[50.0, 50.0]], [-24.0], 0.5)
+    at_start = exact <= times[0]
+    yy, xx = np.nonzero(~at_start & (exact < 60.0))
+    t = exact[yy, xx] + np.random.default_rng(3).normal(0, 0.5, yy.size)
+    frames = np.searchsorted(times, t)
+    single = growth.fit_cone(xx, yy, t, frames, start_xy=(50.0, 50.0), f_scale_s=1.0)
+    sy, sx = np.nonzero(at_start)
+    assert nuclei.cluster_cones(xx, yy, t, single, slope_s_per_px=2.0, f_scale_s=1.0,
+                                start_region=(sx, sy), start_time_s=float(times[0])) is None
