@@ -8,9 +8,13 @@ JCGM 100:2008, GUM 5.1.2). In the Lauritzen-Hoffman fit the same term enters the
 912), and the intervals of Kg, G0, sigma*sigma_e, sigma_e and the regime-break
 temperature come from a parametric bootstrap (Efron & Tibshirani 1993, ch. 6): each
 draw moves every temperature by N(0, u_T) and every G by its own standard error, and
-fits again. Kg and G0 take the bias-correcting basic interval, expanded for the few
-points of a series (:func:`analysis.intervals.expanded_basic_interval`); the break
-temperature the percentile interval of the draws that find a break.
+fits again. The weights are the same in every draw: they define the estimator, and the
+draws alone carry the errors, so the temperature term is not counted twice. Kg and G0
+take the basic interval (:func:`analysis.intervals.basic_interval`), which corrects the
+flattening of the slope by the temperature errors that the draws repeat; it is not
+widened for degrees of freedom, because the draws come from the stated error sizes, not
+from the fit's residuals. The break temperature takes the percentile interval of the
+draws that find a break.
 """
 
 from __future__ import annotations
@@ -26,7 +30,7 @@ from analysis.intervals import (
     Z95,
     Estimate,
     estimate,
-    expanded_basic_interval,
+    basic_interval,
     percentile_interval,
 )
 from analysis.kinetics.lauritzen_hoffman import LHAnalysis, fit_lauritzen_hoffman
@@ -120,9 +124,8 @@ def lh_intervals(lh: LHAnalysis, growth_ci95_um_per_min, stage_uncertainty_k, *,
         except InputError:
             continue
         draws[i] = fit.overall.kg_k2, math.log(fit.overall.g0_um_per_min)
-    n_points = int(lh.tc_c.size)
-    kg = estimate(lh.overall.kg_k2, *expanded_basic_interval(lh.overall.kg_k2, draws[:, 0], n_points, 2))
-    ln_g0 = expanded_basic_interval(math.log(lh.overall.g0_um_per_min), draws[:, 1], n_points, 2)
+    kg = estimate(lh.overall.kg_k2, *basic_interval(lh.overall.kg_k2, draws[:, 0]))
+    ln_g0 = basic_interval(math.log(lh.overall.g0_um_per_min), draws[:, 1])
     g0 = estimate(lh.overall.g0_um_per_min, *(None if v is None else math.exp(v) for v in ln_g0))
     product = _scaled_by_kg(lh.sigma_sigma_e_j2_per_m4, lh.overall.kg_k2, kg)
     sigma_e = _scaled_by_kg(lh.sigma_e_j_m2, lh.overall.kg_k2, kg)

@@ -36,7 +36,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from analysis.kinetics.calorimetry import _noise_sigma, analyze_isotherm  # noqa: E402
+from analysis.kinetics.calorimetry import analyze_isotherm, white_noise_sigma  # noqa: E402
 from analysis.kinetics.calorimetry_import import Isotherm  # noqa: E402
 from analysis.kinetics.calorimetry_intervals import calorimetry_intervals  # noqa: E402
 from analysis.kinetics.lauritzen_hoffman import LHConstants, lh_growth_rate  # noqa: E402
@@ -89,7 +89,7 @@ def dsc_case(seed: int, _workdir: str) -> dict:
     options = {}
     result = analyze_isotherm(iso, **options)
     ci = calorimetry_intervals(iso, result, options, analyze_isotherm=analyze_isotherm,
-                               noise_sigma=_noise_sigma(dsc.heat_flow_mw))
+                               noise_sigma=white_noise_sigma(dsc.heat_flow_mw), seed=seed)
     if ci is None:
         return {}
     return {"calorimetry n": (ci.n.value, ci.n.low, ci.n.high, dsc.n),
