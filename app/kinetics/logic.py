@@ -11,20 +11,46 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from analysis.intervals import DEFAULT_SEED
 from analysis.kinetics.prediction import film_conversion
+from analysis.kinetics.uncertainty import prediction_intervals_steps
+from analysis.progress import scaled
 from analysis.reporting.entries import experiment_entry
 from analysis.reporting.tables import compare_kinetics
 
 
-def entry(result, experiment, calorimetry=None):
+def entry(result, experiment, calorimetry=None, *, seed: int = DEFAULT_SEED, intervals=None):
     """The experiment's ``ReportEntry`` (``analysis.reporting.entries.experiment_entry``):
-    the same prediction, N_V and Tc as the report and the Tc-series page."""
-    return experiment_entry(experiment, result, calorimetry)
+    the same prediction, N_V and Tc as the report and the Tc-series page, resampled with
+    ``seed``. ``intervals``: the (prediction, bulk prediction) intervals already computed by
+    :func:`interval_steps` for the same inputs, so that nothing is resampled again here."""
+    made = experiment_entry(experiment, result, calorimetry, seed=seed)
+    if intervals is not None:
+        # ReportEntry caches these as functools.cached_property values in the instance
+        # dict: filling them is what computing them on first use would have done
+        made.__dict__["prediction_intervals"], made.__dict__["bulk_prediction_intervals"] = intervals
+    return made
+
+
+def interval_steps(result, experiment, *, seed: int):
+    """Generator of the bootstrap intervals of the experiment's prediction (its geometry,
+    and bulk 3-D for the comparison with calorimetry when that differs): yields
+    ``Progress`` and returns (prediction intervals, bulk prediction intervals) as the
+    report computes them (``analysis.kinetics.uncertainty``, same seed, thickness and mode)."""
+    made = experiment_entry(experiment, result, seed=seed)
+    geometries = [made.geometry] + ([] if made.geometry == "bulk-3d" else ["bulk-3d"])
+    found = []
+    for i, geometry in enumerate(geometries):
+        steps = prediction_intervals_steps(result, geometry, made.mode_override, seed=seed,
+                                           thickness_um=made.thickness_um)
+        share = 1.0 / len(geometries)
+        found.append((yield from scaled(steps, i * share, (i + 1) * share)))
+    return found[0], found[-1]
 
 
 def safe_prediction(result, experiment):
     """The experiment's predicted Avrami model, or None when it cannot be predicted."""
-    return None if result is None else entry(result, experiment).prediction
+    return None if result is None else experiment_entry(experiment, result).prediction
 
 
 def predicted_curve(model, calorimetry, points: int = 300):
@@ -59,10 +85,12 @@ def _ratio(measured, predicted) -> str:
     return "—" if measured is None or predicted is None or not predicted else f"{measured / predicted:.2f}"
 
 
-def compare(result, experiment, calorimetry) -> ComparisonView:
+def compare(result, experiment, calorimetry, *, seed: int = DEFAULT_SEED,
+            intervals=None) -> ComparisonView:
     """Bulk prediction against the calorimetry fit (``analysis.reporting.tables.compare_kinetics``):
     table rows (microscopy, calorimetry, calorimetry / microscopy), the note, the curve
-    (``CalorimetryResult.volume_conversion``)."""
+    (``CalorimetryResult.volume_conversion``). ``intervals`` from :func:`interval_steps`;
+    None: the comparison waits for them (it is not resampled on the GUI thread)."""
     from app.widgets.formatting import DASH, fmt, fmt_interval, k_unit
 
     empty = (DASH, DASH, DASH)
@@ -72,7 +100,10 @@ def compare(result, experiment, calorimetry) -> ComparisonView:
     curve_note = f"The plotted calorimetry curve is on a {basis}."
     if result is None:
         return ComparisonView((empty,) * 3, f"No microscopy result to compare with. {curve_note}", (tau, x))
-    c = compare_kinetics(entry(result, experiment, calorimetry))
+    if intervals is None:
+        return ComparisonView((empty,) * 3, f"Waiting for the 95 % intervals of the prediction. {curve_note}",
+                              (tau, x))
+    c = compare_kinetics(entry(result, experiment, calorimetry, seed=seed, intervals=intervals))
     if c is None:
         why = (calorimetry.avrami.reason if not calorimetry.avrami
                else "no bulk prediction from microscopy (see the prediction above)")

@@ -18,11 +18,13 @@ from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
 from analysis.outputs import file_stem
+from analysis.project.model import resampling_seed
 from analysis.reporting.entries import calorimetry_source
 from analysis.settings import DEFAULT_FIT_WINDOW
 from app.core.kinetics_inputs import CalorimetryCache
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
+from app.kinetics.intervals_job import IntervalsJob, intervals_key
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel
 from app.kinetics.plots import KineticsPlots
 from app.widgets.formatting import DASH, fmt, fmt_estimate, k_unit
@@ -55,6 +57,8 @@ class KineticsView(LazyPage):
         self.calorimetry = CalorimetryCache()
         self._reported: set[str] = set()
         self._preview: dict = {}  # live values during a drag, cleared when it ends
+        self.intervals_job = IntervalsJob(self)
+        self.intervals_job.ready.connect(self._intervals_ready)
         self._build()
         for signal in (model.project_replaced, model.project_fields_changed):
             signal.connect(self._rebuild)
@@ -86,6 +90,7 @@ class KineticsView(LazyPage):
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
         layout.addWidget(toolbar)
+        layout.addWidget(self.intervals_job.bar_widget)
         layout.addWidget(split, 1)
 
     def _build_bar(self) -> tuple[QtWidgets.QHBoxLayout, QtWidgets.QToolBar]:
@@ -196,20 +201,43 @@ class KineticsView(LazyPage):
         combo.setCurrentIndex(max(0, index))
         combo.blockSignals(False)
 
+    def _seed(self) -> int:
+        return resampling_seed(self.model.project)
+
+    def _intervals(self, experiment):
+        """The prediction's (own geometry, bulk) intervals if known; else they are being
+        computed in the worker (or were cancelled) and this is None."""
+        result = self.model.result(self.index())
+        if result is None:
+            return None
+        return self.intervals_job.request(result, experiment, self._seed())
+
+    def _intervals_ready(self, key) -> None:
+        experiment = self.experiment()
+        result = self.model.result(self.index())
+        if experiment is not None and result is not None and key == intervals_key(result, experiment, self._seed()):
+            self.refresh()
+
     def _show_prediction(self, experiment):
         result = self.model.result(self.index())
         if result is None:
             self.prediction.clear(f"Microscopy analysis: {self.model.status(self.index())}. Run it "
                                   "to see N, G and the predicted kinetics.")
             return None
-        entry = logic.entry(result, experiment)
+        entry = logic.entry(result, experiment, seed=self._seed())
         self.prediction.show_inputs(entry)
         if entry.prediction is None:
             self.prediction.show_problem(entry.prediction_problem, experiment.geometry,
                                          entry.prediction_inputs().mode)
             return None
+        intervals = self._intervals(experiment)
         self.prediction.show_prediction(entry.prediction, experiment.geometry,
-                                        entry.prediction_intervals)
+                                        None if intervals is None else intervals[0])
+        if intervals is None:
+            self.prediction.problem.setText(
+                "95 % intervals cancelled: “Compute intervals” above resamples them."
+                if self.intervals_job.cancelled(intervals_key(result, experiment, self._seed()))
+                else "95 % intervals: resampling (progress above)…")
         return entry.prediction
 
     # ---------------------------------------------------------------- calorimetry
@@ -232,7 +260,7 @@ class KineticsView(LazyPage):
             self.plots.set_regions(None, None)
             return None
         try:
-            result = self.calorimetry.analyze(source)
+            result = self.calorimetry.analyze(source, seed=self._seed())
         except InputError as error:
             if self._preview:  # mid-drag: say why, but leave the plots and the band alone
                 self.calorimetry_panel.problem.setText(f"Not usable: {error}")
@@ -273,7 +301,9 @@ class KineticsView(LazyPage):
     # ---------------------------------------------------------------- comparison
     def _show_comparison(self, experiment, prediction, calorimetry) -> None:
         result = self.model.result(self.index())
-        comparison = logic.compare(result, experiment, calorimetry)
+        intervals = None if result is None or logic.safe_prediction(result, experiment) is None \
+            else self.intervals_job.intervals(intervals_key(result, experiment, self._seed()))
+        comparison = logic.compare(result, experiment, calorimetry, seed=self._seed(), intervals=intervals)
         self.comparison.clear(comparison.note)
         for row, cells in enumerate(comparison.rows):
             self.comparison.set_row(row, cells)
@@ -311,7 +341,8 @@ class KineticsView(LazyPage):
         source = dataclasses.replace(experiment.calorimetry, **changes)
         try:  # never store a baseline or window the analysis refuses
             self.calorimetry.analyze(calorimetry_source(
-                dataclasses.replace(experiment, calorimetry=source), self.model.project.material))
+                dataclasses.replace(experiment, calorimetry=source), self.model.project.material),
+                seed=self._seed())
         except InputError as error:
             QtWidgets.QMessageBox.warning(self, "Change not applied", str(error))
             self.refresh()
