@@ -210,7 +210,7 @@ class KineticsView(LazyPage):
         result = self.model.result(self.index())
         if result is None:
             return None
-        return self.intervals_job.request(result, experiment, self._seed())
+        return self.intervals_job.request_for(result, experiment, self._seed())
 
     def _intervals_ready(self, key) -> None:
         experiment = self.experiment()
@@ -235,7 +235,7 @@ class KineticsView(LazyPage):
                                         None if intervals is None else intervals[0])
         if intervals is None:
             self.prediction.problem.setText(
-                "95 % intervals cancelled: “Compute intervals” above resamples them."
+                "95 % intervals cancelled: “Compute” above resamples them."
                 if self.intervals_job.cancelled(intervals_key(result, experiment, self._seed()))
                 else "95 % intervals: resampling (progress above)…")
         return entry.prediction
@@ -302,7 +302,7 @@ class KineticsView(LazyPage):
     def _show_comparison(self, experiment, prediction, calorimetry) -> None:
         result = self.model.result(self.index())
         intervals = None if result is None or logic.safe_prediction(result, experiment) is None \
-            else self.intervals_job.intervals(intervals_key(result, experiment, self._seed()))
+            else self.intervals_job.result(intervals_key(result, experiment, self._seed()))
         comparison = logic.compare(result, experiment, calorimetry, seed=self._seed(), intervals=intervals)
         self.comparison.clear(comparison.note)
         for row, cells in enumerate(comparison.rows):

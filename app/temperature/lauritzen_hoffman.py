@@ -14,7 +14,7 @@ from PySide6 import QtCore, QtWidgets
 from analysis.kinetics.materials import list_materials
 from analysis.reporting.report import HW_PAIRS_KEY
 from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K, t_inf_default_c
-from app.widgets.formatting import DASH, fmt, fmt_pm
+from app.widgets.formatting import DASH, fmt, fmt_estimate, fmt_pm
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
@@ -163,24 +163,52 @@ class LHResults(FormPanel):
         self.message = self.problem
         self.add_full_row(self.problem)
 
-    def show_fit(self, fit) -> None:
-        """``fit``: ``analysis.kinetics.lauritzen_hoffman.LHAnalysis``."""
+    def show_fit(self, fit, intervals=None) -> None:
+        """``fit``: ``analysis.kinetics.lauritzen_hoffman.LHAnalysis``; ``intervals``: its
+        ``analysis.kinetics.lh_intervals.LHIntervals`` (None: not known yet, point values
+        only). The intervals are those of the one-line fit; with regimes each regime's Kg
+        keeps the ± of its own line."""
         overall = fit.overall
-        kg = [f"{_kg(r)} ({r.name}, {r.t_low_c:.1f}-{r.t_high_c:.1f} °C)" for r in fit.regimes]
-        self.form.set("kg", "\n".join(kg) if len(fit.regimes) > 1 else _kg(overall))
-        self.form.set("g0", "; ".join(fmt(r.g0_um_per_min, "µm/min") for r in fit.regimes))
-        self.form.set("regimes", "one line suffices" if fit.break_c is None
-                      else f"break at {fit.break_c:.1f} °C")
+        one_line_kg = _kg(overall) if intervals is None else fmt_estimate(intervals.kg_k2, "K²")
+        one_line_g0 = (fmt(overall.g0_um_per_min, "µm/min") if intervals is None
+                       else fmt_estimate(intervals.g0_um_per_min, "µm/min"))
+        if len(fit.regimes) > 1:
+            kg = [f"{_kg(r)} ({r.name}, {r.t_low_c:.1f}-{r.t_high_c:.1f} °C)" for r in fit.regimes]
+            self.form.set("kg", "\n".join(kg + [f"one line: {one_line_kg}"]))
+            g0 = "; ".join(fmt(r.g0_um_per_min, "µm/min") for r in fit.regimes)
+            self.form.set("g0", f"{g0}\none line: {one_line_g0}")
+        else:
+            self.form.set("kg", one_line_kg)
+            self.form.set("g0", one_line_g0)
+        self.form.set("regimes", _regimes_text(fit, intervals))
         self.form.set("ratio", DASH if fit.regime_ratio is None else f"{fit.regime_ratio:.2f}")
-        self.form.set("sigma_sigma_e", fmt(fit.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
-        sigma = DASH if fit.sigma_j_m2 is None else f"{fit.sigma_j_m2 * 1e3:.3g} mJ/m²"
-        sigma_e = DASH if fit.sigma_e_j_m2 is None else f"{fit.sigma_e_j_m2 * 1e3:.3g} mJ/m²"
-        self.form.set("sigma", f"{sigma}, {sigma_e}")
+        if intervals is None:
+            self.form.set("sigma_sigma_e", fmt(fit.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
+            sigma_e = fmt(None if fit.sigma_e_j_m2 is None else fit.sigma_e_j_m2 * 1e3, "mJ/m²")
+        else:
+            self.form.set("sigma_sigma_e", fmt_estimate(intervals.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
+            sigma_e = (DASH if fit.sigma_e_j_m2 is None
+                       else fmt_estimate(intervals.sigma_e_j_m2.scaled(1e3), "mJ/m²"))
+        sigma = fmt(None if fit.sigma_j_m2 is None else fit.sigma_j_m2 * 1e3, "mJ/m²")
+        self.form.set("sigma", f"σ {sigma} (from the material), σe {sigma_e}")
         self.message.setText("; ".join(fit.warnings))
 
 
 def _kg(regime) -> str:
     return fmt_pm(regime.kg_k2, regime.kg_ci95, "K²")
+
+
+def _regimes_text(fit, intervals) -> str:
+    """The break temperature with its interval and how often the draws find a break."""
+    if fit.break_c is None:
+        text = "one line suffices"
+    elif intervals is None:
+        text = f"break at {fmt(fit.break_c, '°C')}"
+    else:
+        text = f"break at {fmt_estimate(intervals.break_c, '°C')}"
+    if intervals is not None and intervals.break_fraction is not None:
+        text += f"\na break in {intervals.break_fraction:.0%} of the resampled series"
+    return text
 
 
 class HoffmanWeeksHelper(QtWidgets.QGroupBox):

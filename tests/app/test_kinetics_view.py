@@ -322,7 +322,7 @@ def test_cancel_stops_the_resampling_and_compute_restarts_it(qtbot, tmp_path, mo
     assert "cancelled" in view.prediction.problem.text()
     assert "95 % CI" not in view.prediction.form.text("k")
     view.refresh()  # a redraw does not start it again behind the user's back
-    assert not job.running and job.button.text() == "Compute intervals"
+    assert not job.running and job.button.text() == "Compute"
     job.button.click()
     assert job.running
     qtbot.waitUntil(lambda: not job.running, timeout=60_000)
