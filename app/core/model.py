@@ -31,7 +31,7 @@ if TYPE_CHECKING:
     from analysis.spherulites.pipeline import Analysis
 
 #: Experiment fields that do not change what the frame pass computes.
-_NON_RECIPE_FIELDS = {"name", "notes", "edits", "calorimetry", "mode_override"}
+_NON_RECIPE_FIELDS = {"name", "notes", "edits", "calorimetry", "mode_override", "stage_uncertainty_k"}
 #: Project fields that commands may change (everything but the experiments and file data).
 PROJECT_FIELDS = ("material", "series")
 

@@ -13,7 +13,14 @@ from PySide6 import QtCore, QtWidgets
 
 from analysis.kinetics.materials import list_materials
 from analysis.reporting.report import HW_PAIRS_KEY
-from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K, t_inf_default_c
+from analysis.settings import (
+    DEFAULT_STAGE_UNCERTAINTY_K,
+    DEFAULT_U_STAR_J_PER_MOL,
+    MAX_STAGE_UNCERTAINTY_K,
+    STAGE_UNCERTAINTY_KEY,
+    T_INF_BELOW_TG_K,
+    t_inf_default_c,
+)
 from app.widgets.formatting import DASH, fmt, fmt_estimate, fmt_pm
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
@@ -24,7 +31,8 @@ TRANSPORT_SETS = {
     "WLF": (17238.0, 51.6),
 }
 HW_KEY = HW_PAIRS_KEY  # the series key the report reads
-_SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞"}
+_SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞",
+            STAGE_UNCERTAINTY_KEY: "stage-temperature uncertainty"}
 
 
 def _spin(name: str, suffix: str, low: float, high: float, decimals: int = 1) -> QtWidgets.QDoubleSpinBox:
@@ -70,8 +78,18 @@ class ConstantsForm(QtWidgets.QGroupBox):
         self.transport.activated.connect(self._transport_chosen)
         self.transport.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
         self.transport.setMinimumContentsLength(10)
+        self.stage_u = QtWidgets.QDoubleSpinBox(objectName=STAGE_UNCERTAINTY_KEY)
+        self.stage_u.setRange(0.0, MAX_STAGE_UNCERTAINTY_K)
+        self.stage_u.setDecimals(2)
+        self.stage_u.setSingleStep(0.1)
+        self.stage_u.setPrefix("± ")
+        self.stage_u.setSuffix(" K")
+        self.stage_u.setKeyboardTracking(False)
+        self.stage_u.setToolTip(f"Standard uncertainty of every Tc of the project (default ±"
+                                f"{DEFAULT_STAGE_UNCERTAINTY_K:g} K, common practice for a calibrated "
+                                "stage); an experiment's Properties can override it")
         for key, spin in (("tm0_c", self.tm0), ("tg_c", self.tg), ("u_star_j_per_mol", self.u_star),
-                          ("t_inf_c", self.t_inf)):
+                          ("t_inf_c", self.t_inf), (STAGE_UNCERTAINTY_KEY, self.stage_u)):
             spin.editingFinished.connect(lambda key=key, spin=spin: self._spin_done(key, spin))
         self.t_inf_auto.toggled.connect(self._auto_toggled)
         form = QtWidgets.QFormLayout(self)
@@ -84,6 +102,7 @@ class ConstantsForm(QtWidgets.QGroupBox):
         t_inf_row.addWidget(self.t_inf_auto)
         form.addRow("T∞", t_inf_row)
         form.addRow("", self.transport)
+        form.addRow("Stage uncertainty", self._with_help(self.stage_u, "intervals"))
         self.series: dict = {}
 
     def _with_help(self, widget, key) -> QtWidgets.QWidget:
@@ -104,6 +123,8 @@ class ConstantsForm(QtWidgets.QGroupBox):
                 value = series.get(key)
                 spin.setValue(NOT_SET if value is None else float(value))
             self.u_star.setValue(float(series.get("u_star_j_per_mol", DEFAULT_U_STAR_J_PER_MOL)))
+            stage_u = series.get(STAGE_UNCERTAINTY_KEY)
+            self.stage_u.setValue(DEFAULT_STAGE_UNCERTAINTY_K if stage_u is None else float(stage_u))
             auto = series.get("t_inf_c") is None
             self.t_inf_auto.setChecked(auto)
             self.t_inf.setEnabled(not auto)
@@ -121,6 +142,10 @@ class ConstantsForm(QtWidgets.QGroupBox):
 
     def _spin_done(self, key: str, spin: QtWidgets.QDoubleSpinBox) -> None:
         value = None if spin.value() <= NOT_SET else round(spin.value(), spin.decimals())
+        if key == STAGE_UNCERTAINTY_KEY:
+            current = self.series.get(key)
+            if value == (DEFAULT_STAGE_UNCERTAINTY_K if current is None else current):
+                return  # the default shown, not changed: nothing to store
         if key == "t_inf_c" and self.t_inf_auto.isChecked():
             return
         if self.series.get(key) != value:

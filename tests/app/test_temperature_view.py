@@ -211,3 +211,19 @@ def test_lh_intervals_resample_in_the_worker_with_the_stored_seed(qtbot, tmp_pat
     assert fmt_estimate(report.sigma_e_j_m2.scaled(1e3), "mJ/m²") in form.text("sigma")
     assert "resampled series" in form.text("regimes")  # how often the draws find a break
     assert "resampling" not in view.lh_results.message.text()
+
+
+def test_stage_uncertainty_of_the_project_is_one_undo_step(view):
+    model, spin = view.model, view.constants.stage_u
+    header = view.table.header()
+    column = header.index("stage_uncertainty_k")
+    assert spin.value() == 0.5 and "stage_uncertainty_k" not in model.project.series  # the default
+    assert {row[column] for row in view.table.shown_rows()} == {"0.5"}
+    _set_spin(spin, 0.5)  # the default confirmed: nothing to undo
+    assert model.undo_stack.count() == 0
+    _set_spin(spin, 1.2)
+    assert model.undo_stack.count() == 1 and model.project.series["stage_uncertainty_k"] == 1.2
+    assert model.undo_stack.undoText() == "Set stage-temperature uncertainty = 1.2 K"
+    assert {row[column] for row in view.table.shown_rows()} == {"1.2"}  # every experiment follows
+    model.undo_stack.undo()
+    assert "stage_uncertainty_k" not in model.project.series and spin.value() == 0.5
