@@ -42,6 +42,7 @@ def test_table_sorts_and_copies_tsv(view):
     assert table.proxy.rowCount() == len(FIXTURE_A)
     header = table.header()
     assert "Tc (°C)" in header and "G (µm/min)" in header and "G 95 % CI low (µm/min)" in header
+    assert "predicted t½ (min) 95 % CI high" not in header and "predicted t½ 95 % CI high (min)" in header
     tc_col, g_col = header.index("Tc (°C)"), header.index("G (µm/min)")
     table.view.sortByColumn(g_col, QtCore.Qt.SortOrder.AscendingOrder)
     rows = table.shown_rows()
@@ -216,7 +217,7 @@ def test_lh_intervals_resample_in_the_worker_with_the_stored_seed(qtbot, tmp_pat
 def test_stage_uncertainty_of_the_project_is_one_undo_step(view):
     model, spin = view.model, view.constants.stage_u
     header = view.table.header()
-    column = header.index("stage_uncertainty_k")
+    column = header.index("stage u_T (K)")
     assert spin.value() == 0.5 and "stage_uncertainty_k" not in model.project.series  # the default
     assert {row[column] for row in view.table.shown_rows()} == {"0.5"}
     _set_spin(spin, 0.5)  # the default confirmed: nothing to undo
