@@ -85,6 +85,21 @@ def _ratio(measured, predicted) -> str:
     return "—" if measured is None or predicted is None or not predicted else f"{measured / predicted:.2f}"
 
 
+def _waiting_for_intervals(made, curve_note: str, curve) -> ComparisonView:
+    """The point values side by side while the prediction's intervals are resampled (the
+    verdict and the ratio's interval need them)."""
+    from app.widgets.formatting import DASH, fmt, k_unit
+
+    predicted, fit = made.bulk_prediction(), made.calorimetry.avrami
+    if predicted is None or not fit:
+        return ComparisonView(((DASH,) * 3,) * 3, f"No comparison yet. {curve_note}", curve)
+    rows = ((f"{predicted.n:.2f}", f"{fit.n:.2f}", _ratio(fit.n, predicted.n)),
+            (fmt(predicted.k_per_min_n, k_unit(predicted.n)), fmt(fit.k_per_min_n, k_unit(fit.n)), DASH),
+            (fmt(predicted.t_half_min), fmt(fit.t_half_min), _ratio(fit.t_half_min, predicted.t_half_min)))
+    return ComparisonView(rows, "Agreement: waiting for the 95 % intervals of the prediction. "
+                          + curve_note, curve)
+
+
 def compare(result, experiment, calorimetry, *, seed: int = DEFAULT_SEED,
             intervals=None) -> ComparisonView:
     """Bulk prediction against the calorimetry fit (``analysis.reporting.tables.compare_kinetics``):
@@ -101,8 +116,7 @@ def compare(result, experiment, calorimetry, *, seed: int = DEFAULT_SEED,
     if result is None:
         return ComparisonView((empty,) * 3, f"No microscopy result to compare with. {curve_note}", (tau, x))
     if intervals is None:
-        return ComparisonView((empty,) * 3, f"Waiting for the 95 % intervals of the prediction. {curve_note}",
-                              (tau, x))
+        return _waiting_for_intervals(entry(result, experiment, calorimetry, seed=seed), curve_note, (tau, x))
     c = compare_kinetics(entry(result, experiment, calorimetry, seed=seed, intervals=intervals))
     if c is None:
         why = (calorimetry.avrami.reason if not calorimetry.avrami
