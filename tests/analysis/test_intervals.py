@@ -264,6 +264,25 @@ def test_a_choice_counts_as_a_rectangular_distribution_about_its_middle():
     assert fixed.variants == 7
 
 
+def test_doubled_noise_doubles_the_noise_part_of_the_calorimetry_interval():
+    # the noise part is 1.96 x the spread of the estimate over records with added noise of
+    # the given level (parametric bootstrap, Efron & Tibshirani 1993, ch. 6): for a statistic
+    # linear in the heat flow, twice the level gives exactly twice the half-width
+    dsc = simulate_dsc_isotherm(noise_mw=0.0, seed=4)
+    iso = Isotherm("run.csv", dsc.time_s / 60.0, dsc.heat_flow_mw, "mW", "t", "q", mass_mg=5.0)
+    result = replace(analyze_isotherm(iso), induction_time_se_min=0.0)
+
+    def linear_analysis(record, **_options):  # no choice moves it; the noise does
+        t_half = 1.0 + float(np.mean(record.heat_flow))
+        return _Analysis(_Fit(3.0, math.log(2.0) / t_half ** 3, t_half))
+
+    result = replace(result, avrami=linear_analysis(iso).avrami)
+    one, two = (calorimetry_intervals(iso, result, {}, analyze_isotherm=linear_analysis,
+                                      noise_sigma=level, seed=5) for level in (0.01, 0.02))
+    assert one.t_half_min.half_width > 0
+    assert two.t_half_min.half_width == pytest.approx(2 * one.t_half_min.half_width, rel=1e-9)
+
+
 def test_white_noise_level_ignores_the_slope_of_a_steep_signal():
     # second differences of white noise have variance 6 sigma^2; a smooth steep peak
     # hardly contributes (robust MAD scale, Hampel 1974, J. Am. Stat. Assoc. 69, 383;
