@@ -58,7 +58,7 @@ from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED
-from analysis.kinetics.calorimetry_intervals import calorimetry_intervals
+from analysis.kinetics.calorimetry_intervals import calorimetry_interval_steps, calorimetry_intervals
 from analysis.units import write_csv_atomic, write_json_atomic
 from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
@@ -473,16 +473,35 @@ def analyze_calorimetry_file(path, *, time_col=None, heat_flow_col=None, time_un
     return replace(result, intervals=found)
 
 
-def analyze_source(source, *, seed: int | None = None) -> CalorimetryResult:
+def _source_arguments(source) -> tuple[dict, dict]:
+    """(how to read the file, how to analyse it) for a ``project.CalorimetrySource``."""
+    read = dict(time_col=source.time_col, heat_flow_col=source.heat_flow_col,
+                time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit)
+    options = dict(exotherm=source.exotherm or "auto", window=source.window or DEFAULT_FIT_WINDOW,
+                   mass_mg=source.mass_mg, material=source.material,
+                   baseline_start_min=source.baseline_start_min,
+                   baseline_end_min=source.baseline_end_min,
+                   lag_s=getattr(source, "lag_s", None) or 0.0)
+    return read, options
+
+
+def analyze_source(source, *, seed: int | None = None, intervals: bool = True) -> CalorimetryResult:
     """Analyse a ``project.CalorimetrySource`` (column mapping, units, window, baseline),
-    with the intervals of n, k and t_half."""
-    return analyze_calorimetry_file(
-        source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
-        time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit,
-        exotherm=source.exotherm or "auto", window=source.window or DEFAULT_FIT_WINDOW,
-        mass_mg=source.mass_mg, material=source.material,
-        baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min,
-        lag_s=getattr(source, "lag_s", None) or 0.0, seed=seed)
+    with the intervals of n, k and t_half unless ``intervals`` is False (then
+    :func:`source_interval_steps` computes them)."""
+    read, options = _source_arguments(source)
+    return analyze_calorimetry_file(source.file, **read, intervals=intervals, seed=seed, **options)
+
+
+def source_interval_steps(source, result: CalorimetryResult, *, seed: int | None = None):
+    """Generator of the intervals of ``result`` = ``analyze_source(source, intervals=False)``
+    (:mod:`analysis.kinetics.calorimetry_intervals`): yields ``Progress``, returns the
+    ``CalorimetryIntervals`` (or None), the same as ``analyze_source`` attaches."""
+    read, options = _source_arguments(source)
+    iso = read_isotherm(source.file, **read)
+    return calorimetry_interval_steps(iso, result, options, analyze_isotherm=analyze_isotherm,
+                                      noise_sigma=white_noise_sigma(iso.heat_flow),
+                                      seed=DEFAULT_SEED if seed is None else seed)
 
 
 # ---------------------------------------------------------------- output and CLI

@@ -44,6 +44,7 @@ import numpy as np
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED, Z95, Estimate
 from analysis.kinetics.avrami import fit_avrami_window
+from analysis.progress import Progress, run_to_completion
 from analysis.settings import DEFAULT_FIT_WINDOW
 
 WINDOWS = (DEFAULT_FIT_WINDOW, (0.02, 0.15), (0.05, 0.30), (0.10, 0.50))
@@ -96,13 +97,14 @@ def _alternatives(result, chosen: dict) -> list[list[dict]]:
     return [lags, _later_end(result), windows, onsets]
 
 
-def _choice_parts(isotherm, central, result, chosen, analyze_isotherm):
+def _choice_parts(isotherm, central, result, chosen, analyze_isotherm, progress):
     """(shift of the centre, variances, analyses) over the choices; each choice spans the
-    chosen analysis and its alternatives."""
+    chosen analysis and its alternatives. A generator: yields ``progress()`` reports."""
     shift, variances, count = np.zeros(3), np.zeros(3), 1
     for options in _alternatives(result, chosen):
         values = [central]
         for option in options:
+            yield progress()
             try:
                 found = _fit_values(analyze_isotherm(isotherm, **{**chosen, **option}))
             except InputError:
@@ -117,10 +119,13 @@ def _choice_parts(isotherm, central, result, chosen, analyze_isotherm):
     return shift, variances, count
 
 
-def _noise_sd(isotherm, chosen, analyze_isotherm, sigma, seed, draws):
+def _noise_sd(isotherm, chosen, analyze_isotherm, sigma, seed, draws, progress):
+    """(standard deviations of n, k, t_half over the noisy re-analyses, their number); a
+    generator yielding ``progress()`` reports."""
     rng = np.random.default_rng(seed)
     noisy = []
     for _ in range(draws):
+        yield progress()
         flow = isotherm.heat_flow + sigma * rng.standard_normal(isotherm.heat_flow.size)
         try:
             noisy.append(_fit_values(analyze_isotherm(replace(isotherm, heat_flow=flow), **chosen)))
@@ -149,13 +154,32 @@ def calorimetry_intervals(isotherm, result, options: dict, *, analyze_isotherm, 
     """Intervals for ``result`` = ``analyze_isotherm(isotherm, **options)``; None without
     a window fit. ``noise_sigma``: the record's white-noise level (heat-flow unit, see
     ``calorimetry.white_noise_sigma``). Choices that cannot be analysed are left out."""
+    return run_to_completion(calorimetry_interval_steps(
+        isotherm, result, options, analyze_isotherm=analyze_isotherm, noise_sigma=noise_sigma,
+        seed=seed, noise_draws=noise_draws))
+
+
+def calorimetry_interval_steps(isotherm, result, options: dict, *, analyze_isotherm,
+                               noise_sigma: float, seed: int = DEFAULT_SEED,
+                               noise_draws: int = NOISE_DRAWS):
+    """:func:`calorimetry_intervals` as a generator: yields ``Progress`` before each
+    re-analysis and returns the intervals (so a worker can report and stop)."""
     central = _fit_values(result)
     if central is None:
         return None
     central = np.array(central, dtype=float)
     chosen = dict(options)
-    shift, variances, count = _choice_parts(isotherm, central, result, chosen, analyze_isotherm)
-    noise_sd, draws = _noise_sd(isotherm, chosen, analyze_isotherm, noise_sigma, seed, noise_draws)
+    total = sum(len(options) for options in _alternatives(result, chosen)) + noise_draws
+    done = iter(range(total + 1))
+
+    def progress() -> Progress:
+        step = next(done)
+        return Progress("re-analysing the isotherm", step / total, f"analysis {step + 1} of {total}")
+
+    shift, variances, count = yield from _choice_parts(isotherm, central, result, chosen,
+                                                       analyze_isotherm, progress)
+    noise_sd, draws = yield from _noise_sd(isotherm, chosen, analyze_isotherm, noise_sigma, seed,
+                                           noise_draws, progress)
     half = Z95 * np.sqrt(variances + noise_sd ** 2)
     n, k, t_half = central
     origin = Z95 * (result.induction_time_se_min or 0.0)

@@ -86,8 +86,8 @@ def _ratio(measured, predicted) -> str:
 
 
 def _waiting_for_intervals(made, curve_note: str, curve) -> ComparisonView:
-    """The point values side by side while the prediction's intervals are resampled (the
-    verdict and the ratio's interval need them)."""
+    """The point values side by side while the intervals are computed (the verdict and the
+    ratio's interval need those of the prediction and of the calorimetry)."""
     from app.widgets.formatting import DASH, fmt, k_unit
 
     predicted, fit = made.bulk_prediction(), made.calorimetry.avrami
@@ -96,7 +96,7 @@ def _waiting_for_intervals(made, curve_note: str, curve) -> ComparisonView:
     rows = ((f"{predicted.n:.2f}", f"{fit.n:.2f}", _ratio(fit.n, predicted.n)),
             (fmt(predicted.k_per_min_n, k_unit(predicted.n)), fmt(fit.k_per_min_n, k_unit(fit.n)), DASH),
             (fmt(predicted.t_half_min), fmt(fit.t_half_min), _ratio(fit.t_half_min, predicted.t_half_min)))
-    return ComparisonView(rows, "Agreement: waiting for the 95 % intervals of the prediction. "
+    return ComparisonView(rows, "Agreement: waiting for the 95 % intervals (progress above). "
                           + curve_note, curve)
 
 

@@ -152,9 +152,20 @@ def test_baseline_drag_is_one_undo_entry(view, isotherm_csv):
     assert view.calorimetry_panel.form.text("enthalpy") == enthalpy
 
 
-def test_comparison_agrees_for_matching_kinetics(view, isotherm_csv):
+def _settle(view, qtbot):
+    """Wait until the intervals computed in the worker have arrived."""
+    qtbot.waitUntil(lambda: not (view.intervals_job.running or view.calorimetry_job.running),
+                    timeout=60_000)
+
+
+def test_comparison_agrees_for_matching_kinetics(view, isotherm_csv, qtbot):
     path, _run = isotherm_csv
     _import(view, path)
+    # the calorimetry intervals come from the worker; the verdict waits for them
+    assert view.calorimetry_job.running and "waiting" in view.comparison.note.text()
+    assert "95 % CI" not in view.calorimetry_panel.form.text("n")
+    _settle(view, qtbot)
+    assert "95 % CI" in view.calorimetry_panel.form.text("n")
     assert view.comparison.note.text().startswith("Agree.")
     assert "volume basis" in view.comparison.note.text()
     ratio = float(view.comparison.cell(2, 2).split()[0])
@@ -170,6 +181,7 @@ def test_comparison_flags_a_tenfold_density(qtbot, tmp_path, isotherm_csv):
     qtbot.addWidget(view)
     view.show()
     _import(view, path)
+    _settle(view, qtbot)
     note = view.comparison.note.text()
     assert "beyond the uncertainty" in note and "slower than predicted" in note
 
@@ -186,16 +198,17 @@ def test_live_drag_updates_numbers_without_an_undo_entry(view, isotherm_csv):
 
     _import(view, isotherm_csv[0])
     model, panel = view.model, view.calorimetry_panel.form
-    before = panel.text("n")
+    shown = lambda: (panel.text("window"), panel.text("k"))  # noqa: E731
+    before = shown()
     region = view.plots.window_region
     region.setRegion((x_to_avrami_y(0.3), x_to_avrami_y(0.8)))  # a finished gesture
-    after = panel.text("n")
+    after = shown()
     model.undo_stack.undo()
     # mid-gesture: the drag reports positions before it ends; only the end pushes a command
     view.plots.window_dragging.emit(0.3, 0.8)
-    assert panel.text("n") == after and model.undo_stack.count() == 2 and model.undo_stack.index() == 1
+    assert shown() == after and model.undo_stack.count() == 2 and model.undo_stack.index() == 1
     view.plots.window_dragged.emit(0.3, 0.8)
-    assert model.undo_stack.index() == 2 and panel.text("n") == after != before
+    assert model.undo_stack.index() == 2 and shown() == after != before
 
 
 def test_baseline_not_bracketing_the_peak_is_refused(view, isotherm_csv, monkeypatch):
