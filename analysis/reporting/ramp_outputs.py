@@ -17,7 +17,8 @@ from analysis.units import write_json_atomic
 __all__ = ["GROWTH_COLUMNS", "NUCLEATION_COLUMNS", "growth_table", "nucleation_table", "ramp_summary",
            "radii_figure", "growth_figure", "write_ramp_outputs"]
 
-GROWTH_COLUMNS = ["temperature_c", "growth_rate_um_per_min", "ci95_low", "ci95_high", "n_spherulites"]
+GROWTH_COLUMNS = ["temperature_c", "growth_rate_um_per_min", "growth_rate_um_per_min_ci95_low",
+                  "growth_rate_um_per_min_ci95_high", "n_spherulites"]
 NUCLEATION_COLUMNS = ["temperature_c", "n_nuclei", "cumulative_per_mm2", "rate_per_mm2_per_min"]
 
 
