@@ -55,8 +55,10 @@ TOPICS: tuple[HelpTopic, ...] = (
         "ramp_growth", "Growth rate over a temperature range (ramp or step run)",
         "While the stage cools, heats or steps through holds, every front advances at the rate of "
         "the film's current temperature. One joint fit of all spherulites' radii gives G(T) as a "
-        "smooth curve (a penalised spline of ln G in T) with a 95 % band, Kg and G0 fitted directly "
-        "to all radii, and nuclei counted against the temperature of their birth.",
+        "smooth curve (a penalised spline of ln G in T) with a 95 % band (it allows for errors a "
+        "frame's radii share and for the choice of smoothing), Kg and G0 fitted directly to all "
+        "radii, and nuclei counted against the temperature of their birth. Choose the kind and the "
+        "stage log or typed programme in Edit → Experiment kind and temperature….",
         "R(t) = ∫ G(T(t')) dt' from the birth;   film: τ·dT_film/dt = T_sensor − T_film",
         "The log's clock offset and the film's lag behind the stage sensor must be right: at "
         "10 K/min a 1 s error shifts T by 0.17 K, several per cent of G where G is steep. Only "
