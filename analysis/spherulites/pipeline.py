@@ -212,12 +212,14 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
-    """Give two markers to territories that hold two nuclei (nuclei.split_cones).
+    """Give markers to territories that hold two nuclei (nuclei.split_cones) or, around a
+    crystal present in frame 0 (at least 20 px of it), two to six (nuclei.cluster_cones).
 
     Inside a crystal present in frame 0 the working map holds only a bound on the
-    arrival (no front was seen there), so the split also redraws it from the two fitted
+    arrival (no front was seen there), so the split also redraws it from the fitted
     cones: each apex becomes a minimum and the flooding follows the Johnson-Mehl
-    boundary between them, which a later round can split again (clusters of three). A
+    boundaries between them, which a later round can split again. A fitted cone on
+    another detection's apex is that detection and gets no marker. A
     split inside such a crystal is undone when either half then has no cone fit: its
     apex was placed where no measured front can confirm it. Any split is undone when a
     half's own fit lands on another detection's apex (within the split separation): the
