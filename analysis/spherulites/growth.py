@@ -575,6 +575,7 @@ def fit_cones(x, y, t, starts_xy, slope_s_per_px: float, *, f_scale_s: float, st
     lo = [-np.inf] * (x0.size - 1) + [1e-9]
     fit = optimize.least_squares(_cones_residuals, x0, jac=_cones_jacobian, args=(x, y, t, n_bound),
                                  loss="soft_l1", f_scale=f_scale_s, bounds=(lo, [np.inf] * x0.size),
+                                 tr_solver="lsmr",  # the dense SVD stalled on these Jacobians
                                  max_nfev=200)
     cost = soft_l1_cost(_cones_residuals(fit.x, x, y, t, n_bound), f_scale_s)
     return fit.x, cost, _cones_arrival(fit.x, x, y)[1]
