@@ -412,7 +412,8 @@ def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised
     return quality.measure(noise_dn=noise_dn, crystal_noise_dn=probe.crystal_noise, full_scale=probe.full_scale,
                            contrast_noise_units=probe.contrast,
                            smoothing_px=model.smoothing_px, crystallised=crystallised, inferred=filled,
-                           blur_px=blur, illumination_unevenness=uneven)
+                           blur_px=blur, illumination_unevenness=uneven,
+                           widest_smoothing_px=model.wide_smoothing_px or None)
 
 
 def _applied_smoothing(model):

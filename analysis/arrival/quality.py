@@ -224,8 +224,10 @@ def edge_blur_px(evidence_frame: np.ndarray, plateau: np.ndarray, arrival_s: np.
 def measure(*, noise_dn: float, crystal_noise_dn: float | None, full_scale: float,
             contrast_noise_units: float | None,
             smoothing_px: float, crystallised: np.ndarray, inferred: np.ndarray,
-            blur_px: float | None, illumination_unevenness: float | None) -> ImageQuality:
-    """The image-quality block of one recording (see :class:`analysis.results.ImageQuality`)."""
+            blur_px: float | None, illumination_unevenness: float | None,
+            widest_smoothing_px: float | None = None) -> ImageQuality:
+    """The image-quality block of one recording (see :class:`analysis.results.ImageQuality`);
+    ``widest_smoothing_px``: the sigma used where the light is dimmest, when wider."""
     rules = heuristics.current()
     noise = noise_dn / full_scale
     contrast = None if contrast_noise_units is None else contrast_noise_units * noise
@@ -246,7 +248,11 @@ def measure(*, noise_dn: float, crystal_noise_dn: float | None, full_scale: floa
                    ". Count by hand, or record with more light, a longer exposure or frame averaging.")
     else:
         verdict = f"Good enough for automatic counting (signal-to-noise {snr:.1f} per pixel"
-        verdict += f", smoothing {smoothing_px:.2g} px)." if smoothing_px > 1.0 else ")."
+        if widest_smoothing_px and widest_smoothing_px > smoothing_px:
+            verdict += (f", smoothing {smoothing_px:.2g} px, up to {widest_smoothing_px:.2g} px where the "
+                        "light is dim).")
+        else:
+            verdict += f", smoothing {smoothing_px:.2g} px)." if smoothing_px > 1.0 else ")."
         if illumination_unevenness is not None and illumination_unevenness > rules.uneven_illumination:
             verdict += (f" The illumination falls by {illumination_unevenness:.0%} across the field;"
                         " centring the lamp would help.")
