@@ -1,6 +1,6 @@
 """The experiments list: one row per crystallization temperature.
 
-Columns: name, Tc, number of spherulites, pooled growth rate G ± CI half-width, and the
+Columns: name, Tc ("ramp" for a temperature programme), number of spherulites, pooled growth rate G ± CI half-width, and the
 analysis status. Selecting a row selects the experiment everywhere; double-click opens
 its properties.
 
@@ -29,6 +29,7 @@ COLUMN_TIPS = ("Name of the experiment (one stack)", "Crystallization temperatur
                f"{COUNTS['spherulites_detected'][0]}: {COUNTS['spherulites_detected'][1]}",
                "Pooled growth rate ± half-width of its 95 % confidence interval",
                "State of the analysis")
+NAME_SHARE = 0.5
 STATUS_TINTS = {
     m.STATUS_DONE: "#7fd8a8",
     m.STATUS_STALE: "#ffcc66",
@@ -48,7 +49,10 @@ def format_growth_rate(result: Any) -> str:
 
 def row_values(model: "m.ProjectModel", index: int) -> tuple[str, ...]:
     experiment, result = model.experiment(index), model.result(index)
-    tc = "—" if experiment.temperature_c is None else f"{experiment.temperature_c:g}"
+    if experiment.kind == "ramp":
+        tc = "ramp"
+    else:
+        tc = DASH if experiment.temperature_c is None else f"{experiment.temperature_c:g}"
     count = "—" if result is None else str(result.counts()["spherulites_detected"])
     status = model.status(index)
     if status == m.STATUS_RUNNING and model.status_message(index):
@@ -74,7 +78,7 @@ class ExperimentsPanel(QTableWidget):
         self.setTextElideMode(Qt.ElideMiddle)
         self.setWordWrap(False)
         header = self.horizontalHeader()
-        header.setSectionResizeMode(0, QHeaderView.Stretch)
+        header.setSectionResizeMode(0, QHeaderView.Interactive)
         for column in range(1, len(COLUMNS)):
             header.setSectionResizeMode(column, QHeaderView.ResizeToContents)
         self.itemSelectionChanged.connect(self._on_rows_selected)
@@ -87,17 +91,31 @@ class ExperimentsPanel(QTableWidget):
         model.selection_changed.connect(self._on_selection_changed)
         self.rebuild()
 
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt override
+        super().resizeEvent(event)
+        self.fit_name_column()
+
+    def fit_name_column(self) -> None:
+        """The name takes what the other columns leave, but never less than
+        NAME_SHARE of the width: Tc must stay in view in a narrow dock (the full name is
+        in the tooltip)."""
+        width = self.viewport().width()
+        others = sum(self.columnWidth(column) for column in range(1, len(COLUMNS)))
+        self.setColumnWidth(0, max(int(width * NAME_SHARE), width - others))
+
     def rebuild(self) -> None:
         self.blockSignals(True)
         self.setRowCount(self._model.experiment_count())
         for row in range(self._model.experiment_count()):
             self._fill_row(row)
         self.blockSignals(False)
+        self.fit_name_column()
         self._on_selection_changed(self._model.current_index, -1)
 
     def refresh_row(self, row: int) -> None:
         if 0 <= row < self.rowCount():
             self._fill_row(row)
+            self.fit_name_column()
 
     def _fill_row(self, row: int) -> None:
         values = row_values(self._model, row)

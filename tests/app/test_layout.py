@@ -71,6 +71,14 @@ def test_reset_layout_brings_every_panel_back(window):
     assert window.settings.value("window/state") is None
 
 
+def test_the_experiments_dock_keeps_tc_in_view_at_its_starting_width(window, qtbot):
+    panel = window.experiments_panel
+    qtbot.waitUntil(lambda: window.width() == 1280)
+    tc_right_edge = panel.columnViewportPosition(1) + panel.columnWidth(1)
+    assert tc_right_edge <= panel.viewport().width()
+    assert panel.item(0, 1).text() == f"{window.model.experiment(0).temperature_c:g}"
+
+
 def test_the_spherulites_table_opens_wide_with_every_column(window):
     window.show_spherulite_table()
     table = window.wide_table
