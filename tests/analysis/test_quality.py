@@ -158,3 +158,20 @@ def test_local_smoothing_keeps_the_melt_noise_even_and_lifts_a_dim_crystal():
     assert plateau[120, 400] == pytest.approx(3.0, rel=0.01)
     # an evenly lit field needs one smoothing: nothing is blended in
     assert evidence.with_local_smoothing(model, np.full(shape, 1.1, np.float32)) is model
+
+
+def test_local_brightness_follows_an_illumination_gradient():
+    # The light a crystal transmits is proportional to the light it receives (a linear
+    # optical path): its brightness map is the illumination, relative to the brightest.
+    rng = np.random.default_rng(2)
+    shape = (256, 512)
+    light = np.linspace(1.0, 0.4, shape[1], dtype=np.float32)[None, :].repeat(shape[0], axis=0)
+    melt = np.zeros(shape, np.float32)
+    last = (100.0 * light + rng.normal(0, 2.0, shape)).astype(np.float32)
+    crystal = np.ones(shape, bool)
+    brightness = quality.local_brightness(last, melt, np.full(1, 2.0, np.float32), crystal)
+    assert brightness[128, 40] == pytest.approx(1.0, abs=0.1)
+    # an upper envelope: a block takes the brightest of its neighbours (a block may lie in
+    # one dark extinction arm), so the map runs about one block (64 px) ahead of the light
+    assert light[128, 470] <= brightness[128, 470] <= light[128, 470] + 0.6 * 100 / 512 + 0.05
+    assert np.all(np.diff(brightness[128, 64:448]) <= 1e-6)  # falls with the light
