@@ -93,20 +93,18 @@ def percentile_interval(samples, level: float = LEVEL) -> tuple[float | None, fl
     return float(low), float(high)
 
 
-def expanded_basic_interval(point: float, samples, n_points: int, n_params: int,
-                            level: float = LEVEL) -> tuple[float | None, float | None]:
+def basic_interval(point: float, samples,
+                   level: float = LEVEL) -> tuple[float | None, float | None]:
     """Basic (reflected-percentile) bootstrap interval 2*point - q(1 - a/2) ..
-    2*point - q(a/2), which removes the bias the resampling reproduces (Efron &
-    Tibshirani 1993, ch. 13), with both halves expanded by sqrt(n / (n - p)): resampling
-    from n points with p fitted parameters understates the spread as the residual
-    variance does without its degrees of freedom (Hesterberg 2015, Am. Stat. 69, 371,
-    for the mean; the regression analogue is used here)."""
+    2*point - q(a/2) (Davison & Hinkley 1997, Bootstrap Methods and their Application,
+    Cambridge, eq. 5.6). Where the estimator is biased, as a slope is flattened by errors
+    in the abscissa, the draws are biased again by about as much, and reflecting them
+    about the estimate moves the interval towards the truth; the percentile interval
+    would move it away."""
     low, high = percentile_interval(samples, level)
-    if low is None or n_points <= n_params:
+    if low is None:
         return None, None
-    factor = math.sqrt(n_points / (n_points - n_params))
-    basic_low, basic_high = 2 * point - high, 2 * point - low
-    return point - factor * (point - basic_low), point + factor * (basic_high - point)
+    return 2 * point - high, 2 * point - low
 
 
 def bootstrap(statistic: Callable[[np.random.Generator], float], rng: np.random.Generator,

@@ -58,7 +58,7 @@ from scipy import integrate, ndimage, optimize, signal, stats
 
 from analysis.errors import InputError
 from analysis.intervals import DEFAULT_SEED
-from analysis.kinetics.calorimetry_intervals import calorimetry_intervals
+from analysis.kinetics.calorimetry_intervals import calorimetry_interval_steps, calorimetry_intervals
 from analysis.units import write_csv_atomic, write_json_atomic
 from analysis.outputs import staged_outputs
 from analysis.kinetics.avrami import (
@@ -178,6 +178,21 @@ def _noise_sigma(y: np.ndarray) -> float:
     return float(np.median(np.abs(np.diff(y))) / (0.6745 * math.sqrt(2.0))) or 1e-12
 
 
+def white_noise_sigma(y) -> float:
+    """White-noise level of a record from its second differences (robust MAD).
+
+    The second difference y[i+1] - 2 y[i] + y[i-1] cancels the local slope of the signal,
+    which on a steep exotherm dominates successive differences, and has variance 6 sigma^2
+    for white noise; the median absolute value / 0.6745 is a robust sigma (Hampel 1974,
+    J. Am. Stat. Assoc. 69, 383). Used where the noise itself matters (the intervals);
+    the detection thresholds keep their own, deliberately conservative, level.
+    """
+    y = np.asarray(y, dtype=float)
+    if y.size < 3:
+        return 1e-12
+    return float(np.median(np.abs(np.diff(y, 2))) / (0.6745 * math.sqrt(6.0))) or 1e-12
+
+
 def _index_at(time_min: np.ndarray, value: float | None, default: int) -> int:
     if value is None:
         return default
@@ -238,13 +253,22 @@ def _baseline_anchors(t, oriented, i_tr, peak, width, sigma, start_min, end_min)
     return _index_at(t, start_min, start), _index_at(t, end_min, end)
 
 
-def _onset_fit(t, x, start_min) -> tuple[float, float | None]:
-    """Induction time: onset t0 of X = 1 - exp(-ln2 ((t - t0)/th)^n) fitted over 2-80 %.
+#: Conversion range of the onset fit (fractions): skips the first per cent, where
+#: instrument lag distorts the shape most.
+ONSET_RANGE = (0.02, 0.80)
 
-    The range skips the first per cent, where instrument lag distorts the shape most.
-    Returns t0 and its standard error from the fit (None when the fit fails).
+
+def _onset_fit(t, x, start_min, onset_range=ONSET_RANGE) -> tuple[float, float | None]:
+    """Induction time: onset t0 of X = 1 - exp(-ln2 ((t - t0)/th)^n) fitted over
+    ``onset_range`` of conversion (default 2-80 %).
+
+    Returns t0 and its standard error (None when the fit fails). X is a running
+    integral, so neighbouring residuals share their errors and the fit's own standard
+    error understates the real one many times over; it is scaled by sqrt((1 + r)/(1 - r))
+    with r the lag-1 autocorrelation of the residuals, the variance inflation of a mean of
+    an AR(1) series (Bayley & Hammersley 1946, Suppl. J. R. Stat. Soc. 8, 184).
     """
-    sel = (x >= 0.02) & (x <= 0.8)
+    sel = (x >= onset_range[0]) & (x <= onset_range[1])
     if np.count_nonzero(sel) < 5:
         return start_min, None
     t_first = float(t[np.argmax(x >= 0.01)])
@@ -259,8 +283,21 @@ def _onset_fit(t, x, start_min) -> tuple[float, float | None]:
         params, cov = optimize.curve_fit(model, t[sel], x[sel], p0=p0, bounds=bounds)
     except (RuntimeError, ValueError):
         return start_min, None
-    se = math.sqrt(cov[2, 2]) if np.isfinite(cov[2, 2]) and cov[2, 2] >= 0 else None
-    return float(params[2]), se
+    if not (np.isfinite(cov[2, 2]) and cov[2, 2] >= 0):
+        return float(params[2]), None
+    residual = x[sel] - model(t[sel], *params)
+    return float(params[2]), math.sqrt(cov[2, 2]) * _ar1_inflation(residual)
+
+
+def _ar1_inflation(residual: np.ndarray) -> float:
+    """sqrt((1 + r) / (1 - r)) for the lag-1 autocorrelation r of the residuals (r <= 0: 1;
+    r capped at 0.999 so that a perfectly smooth residual stays finite)."""
+    centred = residual - residual.mean()
+    denominator = float(np.dot(centred, centred))
+    if centred.size < 3 or denominator <= 0:
+        return 1.0
+    r = min(float(np.dot(centred[1:], centred[:-1])) / denominator, 0.999)
+    return math.sqrt((1 + r) / (1 - r)) if r > 0 else 1.0
 
 
 def _lag_corrected(isotherm: Isotherm, lag_s: float) -> np.ndarray:
@@ -318,12 +355,13 @@ def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=DEFAU
                      baseline: str = "linear", baseline_start_min: float | None = None,
                      baseline_end_min: float | None = None,
                      transient_end_min: float | None = None,
-                     lag_s: float = 0.0) -> CalorimetryResult:
+                     lag_s: float = 0.0, onset_range=ONSET_RANGE) -> CalorimetryResult:
     """Baseline, X(t), induction time, enthalpy and Avrami fits of one isotherm (see module doc).
 
     ``lag_s`` is the instrument's first-order time constant (s, from a calibration such as
     the trailing edge of an indium melting peak); when given, the heat flow is corrected
     q + tau dq/dt before the analysis. 0 (default) means no correction.
+    ``onset_range`` is the conversion range (fractions) of the induction-time fit.
     """
     path, t, q = isotherm.path, isotherm.time_min, _lag_corrected(isotherm, lag_s)
     window = parse_window(window, path)
@@ -354,7 +392,7 @@ def analyze_isotherm(isotherm: Isotherm, *, exotherm: str = "auto", window=DEFAU
     x = np.zeros_like(t)
     x[seg] = cumulative / total
     x[end + 1:] = 1.0
-    t0, t0_se = _onset_fit(t[seg], x[seg], float(t[start]))
+    t0, t0_se = _onset_fit(t[seg], x[seg], float(t[start]), parse_window(onset_range, path))
     return replace(_finish(isotherm, t, q, line, sign, i_tr, start, end, t0, x, total, window,
                            mass_mg, material), induction_time_se_min=t0_se)
 
@@ -430,21 +468,40 @@ def analyze_calorimetry_file(path, *, time_col=None, heat_flow_col=None, time_un
         return result
     seed = DEFAULT_SEED if seed is None else seed
     found = calorimetry_intervals(iso, result, options, analyze_isotherm=analyze_isotherm,
-                                  noise_sigma=_noise_sigma(np.asarray(iso.heat_flow, dtype=float)),
+                                  noise_sigma=white_noise_sigma(iso.heat_flow),
                                   seed=seed)
     return replace(result, intervals=found)
 
 
-def analyze_source(source, *, seed: int | None = None) -> CalorimetryResult:
+def _source_arguments(source) -> tuple[dict, dict]:
+    """(how to read the file, how to analyse it) for a ``project.CalorimetrySource``."""
+    read = dict(time_col=source.time_col, heat_flow_col=source.heat_flow_col,
+                time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit)
+    options = dict(exotherm=source.exotherm or "auto", window=source.window or DEFAULT_FIT_WINDOW,
+                   mass_mg=source.mass_mg, material=source.material,
+                   baseline_start_min=source.baseline_start_min,
+                   baseline_end_min=source.baseline_end_min,
+                   lag_s=getattr(source, "lag_s", None) or 0.0)
+    return read, options
+
+
+def analyze_source(source, *, seed: int | None = None, intervals: bool = True) -> CalorimetryResult:
     """Analyse a ``project.CalorimetrySource`` (column mapping, units, window, baseline),
-    with the intervals of n, k and t_half."""
-    return analyze_calorimetry_file(
-        source.file, time_col=source.time_col, heat_flow_col=source.heat_flow_col,
-        time_unit=source.time_unit, heat_flow_unit=source.heat_flow_unit,
-        exotherm=source.exotherm or "auto", window=source.window or DEFAULT_FIT_WINDOW,
-        mass_mg=source.mass_mg, material=source.material,
-        baseline_start_min=source.baseline_start_min, baseline_end_min=source.baseline_end_min,
-        lag_s=getattr(source, "lag_s", None) or 0.0, seed=seed)
+    with the intervals of n, k and t_half unless ``intervals`` is False (then
+    :func:`source_interval_steps` computes them)."""
+    read, options = _source_arguments(source)
+    return analyze_calorimetry_file(source.file, **read, intervals=intervals, seed=seed, **options)
+
+
+def source_interval_steps(source, result: CalorimetryResult, *, seed: int | None = None):
+    """Generator of the intervals of ``result`` = ``analyze_source(source, intervals=False)``
+    (:mod:`analysis.kinetics.calorimetry_intervals`): yields ``Progress``, returns the
+    ``CalorimetryIntervals`` (or None), the same as ``analyze_source`` attaches."""
+    read, options = _source_arguments(source)
+    iso = read_isotherm(source.file, **read)
+    return calorimetry_interval_steps(iso, result, options, analyze_isotherm=analyze_isotherm,
+                                      noise_sigma=white_noise_sigma(iso.heat_flow),
+                                      seed=DEFAULT_SEED if seed is None else seed)
 
 
 # ---------------------------------------------------------------- output and CLI

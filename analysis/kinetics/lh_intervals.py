@@ -8,9 +8,13 @@ JCGM 100:2008, GUM 5.1.2). In the Lauritzen-Hoffman fit the same term enters the
 912), and the intervals of Kg, G0, sigma*sigma_e, sigma_e and the regime-break
 temperature come from a parametric bootstrap (Efron & Tibshirani 1993, ch. 6): each
 draw moves every temperature by N(0, u_T) and every G by its own standard error, and
-fits again. Kg and G0 take the bias-correcting basic interval, expanded for the few
-points of a series (:func:`analysis.intervals.expanded_basic_interval`); the break
-temperature the percentile interval of the draws that find a break.
+fits again. The weights are the same in every draw: they define the estimator, and the
+draws alone carry the errors, so the temperature term is not counted twice. Kg and G0
+take the basic interval (:func:`analysis.intervals.basic_interval`), which corrects the
+flattening of the slope by the temperature errors that the draws repeat; it is not
+widened for degrees of freedom, because the draws come from the stated error sizes, not
+from the fit's residuals. The break temperature takes the percentile interval of the
+draws that find a break.
 """
 
 from __future__ import annotations
@@ -26,10 +30,11 @@ from analysis.intervals import (
     Z95,
     Estimate,
     estimate,
-    expanded_basic_interval,
+    basic_interval,
     percentile_interval,
 )
 from analysis.kinetics.lauritzen_hoffman import LHAnalysis, fit_lauritzen_hoffman
+from analysis.progress import Progress, run_to_completion
 
 LINE_RESAMPLES = 400
 BREAK_RESAMPLES = 100
@@ -105,6 +110,20 @@ def lh_intervals(lh: LHAnalysis, growth_ci95_um_per_min, stage_uncertainty_k, *,
     (None: the draws move only the temperatures) and ``stage_uncertainty_k`` u_T in K
     (scalar or one per point). Each draw refits with the same weights.
     """
+    return run_to_completion(lh_intervals_steps(
+        lh, growth_ci95_um_per_min, stage_uncertainty_k, seed=seed, resamples=resamples,
+        break_resamples=break_resamples))
+
+
+#: Draws between two progress reports of :func:`lh_intervals_steps`.
+PROGRESS_EVERY = 25
+
+
+def lh_intervals_steps(lh: LHAnalysis, growth_ci95_um_per_min, stage_uncertainty_k, *,
+                       seed: int = DEFAULT_SEED, resamples: int = LINE_RESAMPLES,
+                       break_resamples: int = BREAK_RESAMPLES):
+    """:func:`lh_intervals` as a generator: yields ``Progress`` every PROGRESS_EVERY draws
+    and returns the ``LHIntervals`` (so a worker can report and stop)."""
     rng = np.random.default_rng(seed)
     u_t = np.asarray(stage_uncertainty_k, dtype=float)
     g = lh.g_um_per_min
@@ -112,7 +131,10 @@ def lh_intervals(lh: LHAnalysis, growth_ci95_um_per_min, stage_uncertainty_k, *,
              else np.asarray(growth_ci95_um_per_min, dtype=float) / Z95 / g)
     draws = np.full((resamples, 2), np.nan)
     weights = lh.ci95_um_per_min
+    total = resamples + (break_resamples if lh.aicc_one is not None else 0)
     for i in range(resamples):
+        if i % PROGRESS_EVERY == 0:
+            yield Progress("resampling the fit", i / total, f"draw {i} of {total}")
         tc, g = _draw_inputs(lh, se_ln, u_t, rng)
         try:
             fit = fit_lauritzen_hoffman(tc, g, weights, constants=lh.constants,
@@ -120,13 +142,13 @@ def lh_intervals(lh: LHAnalysis, growth_ci95_um_per_min, stage_uncertainty_k, *,
         except InputError:
             continue
         draws[i] = fit.overall.kg_k2, math.log(fit.overall.g0_um_per_min)
-    n_points = int(lh.tc_c.size)
-    kg = estimate(lh.overall.kg_k2, *expanded_basic_interval(lh.overall.kg_k2, draws[:, 0], n_points, 2))
-    ln_g0 = expanded_basic_interval(math.log(lh.overall.g0_um_per_min), draws[:, 1], n_points, 2)
+    kg = estimate(lh.overall.kg_k2, *basic_interval(lh.overall.kg_k2, draws[:, 0]))
+    ln_g0 = basic_interval(math.log(lh.overall.g0_um_per_min), draws[:, 1])
     g0 = estimate(lh.overall.g0_um_per_min, *(None if v is None else math.exp(v) for v in ln_g0))
     product = _scaled_by_kg(lh.sigma_sigma_e_j2_per_m4, lh.overall.kg_k2, kg)
     sigma_e = _scaled_by_kg(lh.sigma_e_j_m2, lh.overall.kg_k2, kg)
-    brk, fraction = _break_interval(lh, se_ln, u_t, weights, rng, break_resamples)
+    brk, fraction = yield from _break_interval(lh, se_ln, u_t, weights, rng, break_resamples,
+                                               resamples, total)
     return LHIntervals(kg, g0, product, sigma_e, brk, fraction, float(np.max(u_t)) if u_t.size else 0.0,
                        seed, resamples)
 
@@ -139,13 +161,17 @@ def _scaled_by_kg(value, kg_point, kg: Estimate) -> Estimate:
     return Estimate(value, value * kg.low / kg_point, value * kg.high / kg_point)
 
 
-def _break_interval(lh, se_ln, u_t, weights, rng, resamples) -> tuple[Estimate, float | None]:
-    """Interval of the break temperature over the draws that find one; None when the fit
-    has too few temperatures to test for a break."""
+def _break_interval(lh, se_ln, u_t, weights, rng, resamples, done, total):
+    """(interval of the break temperature over the draws that find one, share of the
+    draws that find one; None when the fit has too few temperatures to test for a
+    break), as a generator yielding ``Progress`` (``done`` of ``total`` draws before it)."""
     if lh.aicc_one is None:
         return Estimate(lh.break_c), None
     found = []
-    for _ in range(resamples):
+    for i in range(resamples):
+        if i % PROGRESS_EVERY == 0:
+            yield Progress("resampling the regime break", (done + i) / total,
+                           f"draw {done + i} of {total}")
         tc, g = _draw_inputs(lh, se_ln, u_t, rng)
         try:
             fit = fit_lauritzen_hoffman(tc, g, weights, constants=lh.constants)

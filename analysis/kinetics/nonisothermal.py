@@ -261,35 +261,67 @@ def _folds(n_tracks: int) -> list[np.ndarray]:
     return [np.arange(i, n_tracks, k) for i in range(k)]
 
 
-def _held_out_error(model, start, lam, held) -> float:
-    """Squared error on the spherulites ``held`` of a fit made without them; their own
-    offsets (unknown birth) are fitted to the held-out radii with G(T) fixed."""
+def _held_out_error(model, start, lam, held) -> np.ndarray:
+    """Squared error of each spherulite in ``held`` (an array over all spherulites, zero
+    for the others) under a fit made without them; their own offsets (unknown birth) are
+    fitted to the held-out radii with G(T) fixed."""
     train = ~np.isin(model.track_of, held)
     sub = _Model(model.grid, model.basis, model.offset, model.data.subset(train), model.penalty)
     keep_tracks = np.setdiff1d(np.arange(model.n_tracks), held)
     fit = sub.fit(np.concatenate([start[:model.n_beta], start[model.n_beta:][keep_tracks]]), lam)
     test = _Model(model.grid, model.basis, model.offset, model.data.subset(~train), None)
     beta = fit.x[:model.n_beta]
-    return float(np.sum((test.predict(np.concatenate([beta, test.offsets(beta)])) - test.radius) ** 2))
+    squared = (test.predict(np.concatenate([beta, test.offsets(beta)])) - test.radius) ** 2
+    out = np.zeros(model.n_tracks)
+    out[np.sort(np.asarray(held))] = np.bincount(test.track_of, squared)
+    return out
 
 
-def _spline_fit(model, start):
+@dataclass(frozen=True)
+class _Smoothing:
+    """One smoothing weight's fit: the fit, λ, the data Jacobian and σ²."""
+
+    fit: object
+    lam: float
+    jac: np.ndarray
+    sigma2: float
+
+
+def _spline_fit(model, start) -> tuple[_Smoothing, tuple[_Smoothing, ...]]:
     """The smoothing weight with the lowest cross-validated error, spherulites left out a
     fold at a time (radii of one spherulite are correlated, so leaving out single radii,
-    as generalised cross-validation does, would under-smooth); (fit, lam, Jacobian, σ²)."""
+    as generalised cross-validation does, would under-smooth), and every weight the data
+    cannot tell from it.
+
+    The second are the weights whose cross-validated error exceeds the best by no more
+    than one standard error of the difference (paired over spherulites; the one-standard-
+    error rule, Hastie, Tibshirani & Friedman 2009, The Elements of Statistical Learning,
+    2nd ed., §7.10): with a flat cross-validation curve the choice of λ is itself
+    uncertain, and the band has to cover it (:func:`_band_envelope`).
+    """
     folds = _folds(model.n_tracks)
-    best, guess = None, start
-    n = model.radius.size
+    guess, runs = start, []
     for lam in _LAMBDAS:
         fit = model.fit(guess, lam)
         guess = fit.x
-        score = sum(_held_out_error(model, fit.x, lam, held) for held in folds) if len(folds) > 1 else 0.0
-        if best is None or score < best[0]:
-            best = (score, fit, lam)
-    _, fit, lam = best
+        errors = (sum(_held_out_error(model, fit.x, lam, held) for held in folds) if len(folds) > 1
+                  else np.zeros(model.n_tracks))
+        runs.append((errors, fit, lam))
+    best = min(range(len(runs)), key=lambda k: runs[k][0].sum())
+    plausible = []
+    for k, (errors, fit, lam) in enumerate(runs):
+        diff = errors - runs[best][0]
+        if k == best or diff.sum() <= math.sqrt(diff.size) * float(np.std(diff, ddof=1)):
+            plausible.append(_smoothing(model, fit, lam))
+    chosen = next(p for p in plausible if p.lam == runs[best][2])
+    return chosen, tuple(plausible)
+
+
+def _smoothing(model, fit, lam) -> _Smoothing:
+    n = model.radius.size
     jac = model.data_jacobian(fit.x)
     rss = float(np.sum(fit.fun[:n] ** 2))
-    return fit, lam, jac, rss / max(n - _edf(model, jac, lam), 1.0)
+    return _Smoothing(fit, float(lam), jac, rss / max(n - _edf(model, jac, lam), 1.0))
 
 
 @dataclass(frozen=True)
@@ -303,6 +335,7 @@ class _SplineStage:
     hi: float
     n_segments: int
     rate_um_per_s: float
+    plausible: tuple[_Smoothing, ...] = ()
 
 
 def _spline_stage(programme, data: _Data, time_step_s):
@@ -320,8 +353,9 @@ def _spline_stage(programme, data: _Data, time_step_s):
         span = np.ptp(data.time_s[mine])
         slopes.append(np.ptp(data.value[mine]) / span if span > 0 else 0.0)
     rate = float(np.median(np.clip(slopes, 1e-6, None)))
-    fit, lam, jac, sigma2 = _spline_fit(model, model.start(rate))
-    return _SplineStage(model, fit, lam, jac, sigma2, lo, hi, n_segments, rate)
+    chosen, plausible = _spline_fit(model, model.start(rate))
+    return _SplineStage(model, chosen.fit, chosen.lam, chosen.jac, chosen.sigma2, lo, hi, n_segments, rate,
+                        plausible)
 
 
 def _clustered_meat(jac, residual, groups) -> np.ndarray:
@@ -333,31 +367,62 @@ def _clustered_meat(jac, residual, groups) -> np.ndarray:
     return per_group.T @ per_group * m / max(m - 1, 1)
 
 
-def _two_way_meat(jac, residual, track_of, time_s) -> np.ndarray:
+def _frame_of(time_s) -> np.ndarray:
+    """Frame number (0..F−1) of every point: radii measured at the same moment."""
+    _, frame_of = np.unique(np.round(time_s, 6), return_inverse=True)
+    return frame_of.ravel()
+
+
+def _frame_variance(residual, frame_of, hat) -> float:
+    """σ_f² of an error shared by every radius of one frame, by matching two quadratic
+    forms of the residuals to their expectations (Henderson's method, Searle, Casella &
+    McCulloch 1992, Variance Components, ch. 5 `# from memory`).
+
+    The fitted G(T) absorbs part of any error common to a frame, as many frame-level
+    directions as it has effective parameters, so the spread of the per-frame mean
+    residuals alone underestimates σ_f². With M = I − H (H the hat matrix of the
+    penalised fit, linearised at the optimum) and Z the frame indicator, the residuals
+    have covariance M(σ_f² ZZᵀ + σ² I)Mᵀ; the pooled frame means Q₁ = Σ_f n_f m̄_f² and
+    the total Q₀ = Σ r² then have expectations linear in (σ_f², σ²), solved here.
+    """
+    n_frames = int(frame_of.max()) + 1
+    counts = np.bincount(frame_of, minlength=n_frames).astype(float)
+    z = np.zeros((residual.size, n_frames))
+    z[np.arange(residual.size), frame_of] = 1.0
+    m = np.eye(residual.size) - hat
+    mz = m @ z
+    scale = 1.0 / np.sqrt(counts)[:, None]
+    a = np.array([[np.sum((scale * (z.T @ mz)) ** 2), np.sum((scale * (z.T @ m)) ** 2)],
+                  [np.sum(mz ** 2), np.sum(m ** 2)]])
+    sums = np.bincount(frame_of, residual, minlength=n_frames)
+    q = np.array([np.sum(sums ** 2 / counts), np.sum(residual ** 2)])
+    try:
+        sigma_f2, _ = np.linalg.solve(a, q)
+    except np.linalg.LinAlgError:
+        return 0.0
+    return max(float(sigma_f2), 0.0)
+
+
+def _two_way_meat(jac, residual, track_of, time_s, hat) -> np.ndarray:
     """Clustered by spherulite (Liang & Zeger 1986) plus a frame random effect.
 
     A spherulite's radii share its centre error; all radii of one frame share that frame's
-    exposure (flicker, noise in the threshold crossing), an error common to every
-    spherulite at that moment that no amount of spherulites averages away. Its variance
-    σ_f² is the part of the per-frame mean residual's variance beyond what independent
-    errors give (a method-of-moments variance component, Searle, Casella & McCulloch 1992,
-    Variance Components, ch. 3 `# from memory`); the frame term is σ_f² Σ_f s_f s_fᵀ with
-    s_f the summed Jacobian rows of frame f.
+    exposure (flicker, noise in the threshold crossing, the pixel grid seen by spherulites
+    of the same size), an error common to every spherulite at that moment that no amount
+    of spherulites averages away. Its variance σ_f² comes from :func:`_frame_variance`;
+    the frame term is σ_f² Σ_f s_f s_fᵀ with s_f the summed Jacobian rows of frame f.
+    ``hat``: the (n × n) hat matrix of the fit.
     """
-    _, frame_of = np.unique(np.round(time_s, 6), return_inverse=True)
-    frame_of = frame_of.ravel()
+    frame_of = _frame_of(time_s)
     n_frames = int(frame_of.max()) + 1
-    counts = np.bincount(frame_of, minlength=n_frames)
-    frame_mean = np.bincount(frame_of, residual, minlength=n_frames) / np.maximum(counts, 1)
-    within = float(np.sum((residual - frame_mean[frame_of]) ** 2)) / max(residual.size - n_frames, 1)
-    sigma_f2 = max(float(np.mean(frame_mean ** 2 - within / np.maximum(counts, 1))), 0.0)
+    sigma_f2 = _frame_variance(residual, frame_of, hat)
     summed = np.zeros((n_frames, jac.shape[1]))
     np.add.at(summed, frame_of, jac)
     return _clustered_meat(jac, residual, track_of) + sigma_f2 * (summed.T @ summed)
 
 
-def _band(stage, basis_report):
-    """ln G (µm/s) and its standard error at the report temperatures.
+def _band(model, smoothing: _Smoothing, basis_report):
+    """ln G (µm/s) and its standard error at the report temperatures for one smoothing weight.
 
     Bayesian band of a penalised spline, H⁻¹(σ²JᵀJ + σ²λPᵀP)H⁻¹ = σ²H⁻¹ with
     H = JᵀJ + λPᵀP (Wahba 1983), except that the data part σ²JᵀJ is replaced by one that
@@ -365,19 +430,35 @@ def _band(stage, basis_report):
     the penalty part keeps the allowance for the smoothing bias. Never narrower than the
     independent-error band.
     """
-    model = stage.model
-    meat = _two_way_meat(stage.jac, stage.fit.fun[:model.radius.size], model.track_of, model.data.time_s)
+    jac, lam, sigma2 = smoothing.jac, smoothing.lam, smoothing.sigma2
+    bread = np.linalg.pinv(model.penalised_hessian(jac, lam))
+    meat = _two_way_meat(jac, smoothing.fit.fun[:model.radius.size], model.track_of, model.data.time_s,
+                         jac @ bread @ jac.T)
     prior = np.zeros_like(meat)
     if model.penalty is not None:
-        prior[:model.n_beta, :model.n_beta] = stage.sigma2 * stage.lam * (model.penalty.T @ model.penalty)
-    bread = np.linalg.pinv(model.penalised_hessian(stage.jac, stage.lam))
+        prior[:model.n_beta, :model.n_beta] = sigma2 * lam * (model.penalty.T @ model.penalty)
     cov = bread @ (meat + prior) @ bread
-    naive = stage.sigma2 * bread  # never claim more than the independent-error band
-    beta = model.split(stage.fit.x)[0]
+    naive = sigma2 * bread  # never claim more than the independent-error band
+    beta = model.split(smoothing.fit.x)[0]
     nb = model.n_beta
     var = np.maximum(np.einsum("ij,jk,ik->i", basis_report, cov[:nb, :nb], basis_report),
                      np.einsum("ij,jk,ik->i", basis_report, naive[:nb, :nb], basis_report))
     return basis_report @ beta, np.sqrt(np.maximum(var, 0.0))
+
+
+def _band_envelope(stage, basis_report, z: float):
+    """(ln G, low, high) in ln(µm/s): the estimate at the chosen smoothing weight and the
+    envelope of the ±z·SE bands of every weight the cross-validation cannot tell from it
+    (:func:`_spline_fit`), so that the band allows for the choice of λ."""
+    chosen = _Smoothing(stage.fit, stage.lam, stage.jac, stage.sigma2)
+    log_g, sd = _band(stage.model, chosen, basis_report)
+    low, high = log_g - z * sd, log_g + z * sd
+    for other in stage.plausible:
+        if other.lam == stage.lam:
+            continue
+        other_g, other_sd = _band(stage.model, other, basis_report)
+        low, high = np.minimum(low, other_g - z * other_sd), np.maximum(high, other_g + z * other_sd)
+    return log_g, low, high
 
 
 def _outliers(residual: np.ndarray, track_of: np.ndarray) -> np.ndarray:
@@ -448,7 +529,7 @@ def _lh_fit(grid, constants, data: _Data, start_rate):
     jac = model.data_jacobian(fit.x)
     bread = np.linalg.pinv(jac.T @ jac)
     naive = bread * float(np.sum(fit.fun ** 2)) / dof
-    clustered = bread @ _two_way_meat(jac, fit.fun, data.track_of, data.time_s) @ bread
+    clustered = bread @ _two_way_meat(jac, fit.fun, data.track_of, data.time_s, jac @ bread @ jac.T) @ bread
     # spherulites are the independent units: t quantile on their number, clustered variance
     kg_ci = float(stats.t.ppf(0.975, max(model.n_tracks - 1, 1)) *
                   math.sqrt(max(clustered[1, 1], naive[1, 1], 0.0)))
@@ -501,10 +582,10 @@ def fit_ramp_growth(tracks, programme: TemperatureProgramme, *, constants: LHCon
 
 def _ramp_growth(tracks, programme, constants, data, keep, stage):
     temps = np.arange(math.ceil(stage.lo / _GRID_STEP_K) * _GRID_STEP_K, stage.hi + 1e-9, _GRID_STEP_K)
-    log_g, sd = _band(stage, _spline_basis(temps, stage.lo, stage.hi, stage.n_segments))
     # spherulites are the independent units of a clustered variance: t quantile on their
     # number less one (Bell & McCaffrey 2002, Survey Methodology 28, 169, `# from memory`)
     z = stats.t.ppf(0.975, max(stage.model.n_tracks - 1, 1))
+    log_g, low, high = _band_envelope(stage, _spline_basis(temps, stage.lo, stage.hi, stage.n_segments), z)
     to_min = math.log(60.0)
     used = [k for k in range(len(tracks)) if np.any(keep & (data.track_of == k))]
     fitted = np.full(data.value.size, np.nan)
@@ -515,8 +596,8 @@ def _ramp_growth(tracks, programme, constants, data, keep, stage):
     lh = FitFailure("no Lauritzen-Hoffman constants given")
     if constants is not None:
         lh = _lh_fit(stage.model.grid, constants, data.subset(keep), stage.rate_um_per_s)
-    return RampGrowth(temps, np.exp(log_g + to_min), np.exp(log_g - z * sd + to_min),
-                      np.exp(log_g + z * sd + to_min), _coverage([tracks[k] for k in used], programme, temps),
+    return RampGrowth(temps, np.exp(log_g + to_min), np.exp(low + to_min),
+                      np.exp(high + to_min), _coverage([tracks[k] for k in used], programme, temps),
                       track_fits, lh, float(stage.lam), float(math.sqrt(stage.sigma2)),
                       int(np.count_nonzero(keep)), tuple(_warnings(tracks, used, keep, stage.fit)))
 

@@ -3,14 +3,18 @@
 Each nucleus is dated where its growth model reaches zero radius (the joint G(T) fit of
 :mod:`analysis.kinetics.nonisothermal`; the cone fit's time, or the first sighting, for
 spherulites that did not enter it) and given the sample temperature at that moment.
-N(T) is the cumulative count per mm² of the field; the nucleation rate in a temperature
-bin is the number born in it divided by the untransformed area-time spent in it,
-ΔN / ∫_{T(t) in bin} (1 − X(t)) A dt, because nuclei can only appear in melt
-(docs/sources.md §1.2).
+N(T) is the cumulative count per mm² of the field, accumulated over the temperature bins
+in the order the film first reaches them: hottest first on cooling, coldest first on
+heating, and for a step programme the order of its segments (a hold adds its time to one
+bin). The nucleation rate in a bin is the number born in it divided by the untransformed
+area-time spent in it, ΔN / ∫_{T(t) in bin} (1 − X(t)) A dt, because nuclei can only
+appear in melt (docs/sources.md §1.2); a hold or a slow segment gives its bin more
+area-time, so rates of any programme are comparable.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -22,11 +26,12 @@ __all__ = ["RampNucleation", "nucleation_vs_temperature", "COUNTED_STATUSES"]
 #: Statuses whose nuclei are counted (a nucleus outside the field, or one the user
 #: excluded, is not).
 COUNTED_STATUSES = ("ok", "nonlinear", "few-points")
+_EXPOSURE_STEP_S = 0.05  # time step of the melt area-time integral, s
 
 
 @dataclass(frozen=True)
 class RampNucleation:
-    """Per temperature bin (°C, bin centres, hottest first as the film cools)."""
+    """Per temperature bin (°C, bin centres) in the order the film first reaches them."""
 
     temperature_c: np.ndarray
     n_nuclei: np.ndarray
@@ -34,6 +39,7 @@ class RampNucleation:
     rate_per_mm2_per_min: np.ndarray  # NaN where the bin saw no melt time
     birth_temperature_c: np.ndarray  # one per counted nucleus
     bin_k: float
+    direction: str = "cooling"  # "cooling", "heating" or "mixed": the order of the bins
 
 
 def _birth_times(result, growth, time_offset_s):
@@ -66,7 +72,8 @@ def nucleation_vs_temperature(result, growth, programme: TemperatureProgramme, *
     start = min(float(t_x.min()) if t_x.size else 0.0, float(births.min()) if births.size else 0.0)
     start = max(start, float(programme.time_s[0]))
     end = max(float(t_x.max()) if t_x.size else 0.0, start + 1.0)
-    grid = np.linspace(start, end, 4001)
+    # fine enough that a bin crossed in a few seconds gets its time to about 1 %
+    grid = np.linspace(start, end, int(np.clip(math.ceil((end - start) / _EXPOSURE_STEP_S), 4000, 400_000)) + 1)
     temp = programme.temperature_at(grid)
     melt = 1.0 - np.interp(grid, t_x, x, left=0.0, right=float(x[-1]) if x.size else 0.0) if t_x.size \
         else np.ones_like(grid)
@@ -79,7 +86,21 @@ def nucleation_vs_temperature(result, growth, programme: TemperatureProgramme, *
     exposure_min, _ = np.histogram(temp, bins=edges, weights=melt * dt / 60.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         rate = np.where(exposure_min > 0, counts / (exposure_min * area_mm2), np.nan)
-    order = np.argsort(-edges[:-1])  # hottest first: the order a cooling film meets them
+    order = _passage_order(edges, grid, temp, births, born_t)
     centres = 0.5 * (edges[:-1] + edges[1:])[order]
     counts, rate = counts[order], rate[order]
-    return RampNucleation(centres, counts, np.cumsum(counts) / area_mm2, rate, born_t, float(bin_k))
+    steps = np.diff(centres)
+    direction = "cooling" if np.all(steps < 0) else "heating" if np.all(steps > 0) else "mixed"
+    return RampNucleation(centres, counts, np.cumsum(counts) / area_mm2, rate, born_t, float(bin_k), direction)
+
+
+def _passage_order(edges, grid, temp, births, born_t) -> np.ndarray:
+    """Bin indices sorted by the first time the film is in each bin (on the exposure grid,
+    or at the first birth in it); bins never reached go last, hottest first."""
+    n_bins = edges.size - 1
+    first = np.full(n_bins, np.inf)
+    where = np.clip(np.searchsorted(edges, temp, side="right") - 1, 0, n_bins - 1)
+    np.minimum.at(first, where, grid)
+    if births.size:
+        np.minimum.at(first, np.clip(np.searchsorted(edges, born_t, side="right") - 1, 0, n_bins - 1), births)
+    return np.lexsort((-edges[:-1], first))

@@ -35,7 +35,7 @@ from analysis.errors import InputError
 from analysis.textio import check_field_count, excerpt, read_text, split_fields
 
 __all__ = ["TemperatureProgramme", "ProgrammeSegment", "parse_programme", "programme_from_segments",
-           "programme_of_source",
+           "programme_of_source", "LogPreview", "sniff_temperature_log", "format_programme",
            "read_temperature_log", "apply_sensor_lag", "MAX_GAP_FACTOR"]
 
 #: A gap longer than this many median sampling intervals (and longer than 10 s) is refused:
@@ -173,6 +173,11 @@ def _dense(times, temps, lag_s):
     return grid, np.interp(grid, times, temps)
 
 
+def format_programme(start_c: float, segments) -> str:
+    """The text :func:`parse_programme` reads back: "START, RATE:END, hold:SECONDS, ..."."""
+    return ", ".join([f"{start_c:g}"] + [seg.describe() for seg in segments])
+
+
 def parse_programme(text: str) -> tuple[float, tuple[ProgrammeSegment, ...]]:
     """Parse "START, RATE:END, hold:SECONDS, ..." (°C, K/min, °C, s).
 
@@ -275,6 +280,62 @@ def _temperature_offset(unit: str | None, given: str | None, path) -> float:
     raise InputError(f"unknown temperature unit {given or unit!r} (°C or K)", path)
 
 
+def _table(path):
+    """(delimiter, header row index or None, data lines, width, column names) of a log."""
+    lines = [(no, text) for no, text in enumerate(read_text(path, "temperature log").splitlines(), start=1)
+             if text.strip() and not text.lstrip().startswith("#")]
+    if not lines:
+        raise InputError("temperature log is empty", path)
+    delimiter, header_at = _layout(lines, path)
+    body = lines[(header_at + 1) if header_at is not None else 0:]
+    width = len(_split(body[0][1], delimiter))
+    header = (_split(lines[header_at][1], delimiter) if header_at is not None
+              else [f"column {i}" for i in range(width)])
+    return delimiter, header_at, body, width, header
+
+
+@dataclass(frozen=True)
+class LogPreview:
+    """The first rows of a temperature log as :func:`read_temperature_log` splits them, for
+    a column-mapping form: column names (``"column i"`` without a header row), rows of
+    text, the delimiter, and the guessed time / temperature columns (None: no guess) with
+    the units their names carry (None: none given)."""
+
+    path: str
+    columns: tuple[str, ...]
+    rows: tuple[tuple[str, ...], ...]
+    delimiter: str
+    has_header: bool
+    time_col: int | None
+    temperature_col: int | None
+    time_unit: str | None
+    temperature_unit: str | None
+    n_rows: int
+
+
+def sniff_temperature_log(path, *, max_rows: int = 10) -> LogPreview:
+    """Layout and guessed columns of a log (InputError for a file that holds no table)."""
+    path = Path(path)
+    delimiter, header_at, body, width, header = _table(path)
+
+    def guess(keywords, role, exclude=-1):
+        try:
+            return _column(None, header, keywords, role, path, exclude=exclude)
+        except InputError:
+            return None
+
+    if header_at is None:
+        t_index, c_index = 0, (1 if width > 1 else None)
+    else:
+        t_index = guess(("time", "t"), "time")
+        c_index = guess(("temp", "sample", "stage", "block", "t"), "temperature",
+                        -1 if t_index is None else t_index)
+    rows = tuple(tuple(_split(text, delimiter)) for _, text in body[:max_rows])
+    return LogPreview(str(path), tuple(header), rows, delimiter, header_at is not None, t_index, c_index,
+                      _unit(header[t_index]) if t_index is not None else None,
+                      _unit(header[c_index]) if c_index is not None else None, len(body))
+
+
 def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit: str | None = None,
                          temperature_unit: str | None = None, clock_offset_s: float = 0.0,
                          lag_s: float = 0.0) -> TemperatureProgramme:
@@ -297,15 +358,7 @@ def read_temperature_log(path, *, time_col=None, temperature_col=None, time_unit
     path = Path(path)
     if not (math.isfinite(clock_offset_s) and math.isfinite(lag_s) and lag_s >= 0):
         raise InputError("clock offset must be finite and the sensor lag non-negative", path)
-    lines = [(no, text) for no, text in enumerate(read_text(path, "temperature log").splitlines(), start=1)
-             if text.strip() and not text.lstrip().startswith("#")]
-    if not lines:
-        raise InputError("temperature log is empty", path)
-    delimiter, header_at = _layout(lines, path)
-    body = lines[(header_at + 1) if header_at is not None else 0:]
-    width = len(_split(body[0][1], delimiter))
-    header = (_split(lines[header_at][1], delimiter) if header_at is not None
-              else [f"column {i}" for i in range(width)])
+    delimiter, header_at, body, width, header = _table(path)
     if header_at is None and time_col is None and temperature_col is None:
         time_col, temperature_col = 0, 1
     t_index = _column(time_col, header, ("time", "t"), "time", path)

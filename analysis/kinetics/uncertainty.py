@@ -37,6 +37,7 @@ from analysis.intervals import (
 )
 from analysis.kinetics.avrami import predict_avrami
 from analysis.kinetics.prediction import predict_model_from_result, prediction_inputs
+from analysis.progress import Progress, run_to_completion
 from analysis.results import ExperimentResult
 from analysis.spherulites.growth import random_effects_mean
 
@@ -105,16 +106,16 @@ def _draw(inputs: _Inputs, geometry: str, rng: np.random.Generator):
     return model.n, model.k_per_min_n, model.t_half_min
 
 
-def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
-                         mode: str | None = None, *, seed: int = DEFAULT_SEED,
-                         resamples: int = DEFAULT_RESAMPLES,
-                         thickness_um: float | None = None) -> PredictionIntervals | None:
-    """Bootstrap intervals of the predicted n, k and t_half; None without a prediction.
+#: Draws between two progress reports of :func:`prediction_intervals_steps`.
+PROGRESS_EVERY = 50
 
-    The point values are the prediction from the result itself
-    (:func:`analysis.kinetics.prediction.predict_model_from_result`); only the intervals
-    come from the draws.
-    """
+
+def prediction_intervals_steps(result: ExperimentResult, geometry: str = "bulk-3d",
+                               mode: str | None = None, *, seed: int = DEFAULT_SEED,
+                               resamples: int = DEFAULT_RESAMPLES,
+                               thickness_um: float | None = None):
+    """:func:`prediction_intervals` as a generator: yields ``Progress`` every
+    PROGRESS_EVERY draws and returns the intervals (so a worker can report and stop)."""
     try:
         model = predict_model_from_result(result, geometry, mode, thickness_um=thickness_um)
     except InputError:
@@ -125,6 +126,8 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
     rng = np.random.default_rng(seed)
     draws = np.full((resamples, 3), np.nan)
     for i in range(resamples):
+        if i % PROGRESS_EVERY == 0:
+            yield Progress("resampling", i / resamples, f"draw {i} of {resamples}")
         try:
             draws[i] = _draw(inputs, geometry, rng)
         except (ValueError, ZeroDivisionError):
@@ -134,6 +137,20 @@ def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
     if model.mode != "mixed":  # the exponent is fixed by the model, not estimated
         parts[0] = Estimate(model.n, model.n, model.n)
     return PredictionIntervals(geometry, model.mode, *parts, seed=seed, resamples=resamples)
+
+
+def prediction_intervals(result: ExperimentResult, geometry: str = "bulk-3d",
+                         mode: str | None = None, *, seed: int = DEFAULT_SEED,
+                         resamples: int = DEFAULT_RESAMPLES,
+                         thickness_um: float | None = None) -> PredictionIntervals | None:
+    """Bootstrap intervals of the predicted n, k and t_half; None without a prediction.
+
+    The point values are the prediction from the result itself
+    (:func:`analysis.kinetics.prediction.predict_model_from_result`); only the intervals
+    come from the draws.
+    """
+    return run_to_completion(prediction_intervals_steps(
+        result, geometry, mode, seed=seed, resamples=resamples, thickness_um=thickness_um))
 
 
 def _delta_method(result: ExperimentResult, model, seed: int) -> PredictionIntervals:

@@ -17,7 +17,8 @@ from analysis.units import write_json_atomic
 __all__ = ["GROWTH_COLUMNS", "NUCLEATION_COLUMNS", "growth_table", "nucleation_table", "ramp_summary",
            "radii_figure", "growth_figure", "write_ramp_outputs"]
 
-GROWTH_COLUMNS = ["temperature_c", "growth_rate_um_per_min", "ci95_low", "ci95_high", "n_spherulites"]
+GROWTH_COLUMNS = ["temperature_c", "growth_rate_um_per_min", "growth_rate_um_per_min_ci95_low",
+                  "growth_rate_um_per_min_ci95_high", "n_spherulites"]
 NUCLEATION_COLUMNS = ["temperature_c", "n_nuclei", "cumulative_per_mm2", "rate_per_mm2_per_min"]
 
 
@@ -40,7 +41,8 @@ def ramp_summary(ramp) -> dict:
     g, p = ramp.growth, ramp.programme
     out = {"schema": 1, "temperature_source": p.source, "temperature_log": p.path,
            "sensor_lag_s": p.lag_s, "clock_offset_s": p.clock_offset_s,
-           "frame_temperature_c": [float(v) for v in ramp.frame_temperature_c]}
+           "frame_temperature_c": [float(v) for v in ramp.frame_temperature_c],
+           "nucleation_bins": {"order": ramp.nucleation.direction, "bin_k": ramp.nucleation.bin_k}}
     if not g:
         out["growth"] = {"failure": g.reason}
         return out
@@ -69,11 +71,14 @@ def radii_figure(growth, programme):
         ax.plot(track.time_s, track.radius_um, "o", ms=2.0, color=colour, alpha=0.7)
         ok = np.isfinite(track.fitted_um)
         ax.plot(track.time_s[ok], track.fitted_um[ok], "-", lw=0.8, color=colour)
-    top = ax.secondary_xaxis("top", functions=(
-        lambda t: np.interp(t, programme.time_s, programme.temperature_c),
-        lambda c: np.interp(c, programme.temperature_c[::-1], programme.time_s[::-1])))
-    top.set_xlabel("Film temperature (°C)", fontsize=7)
-    top.tick_params(labelsize=6)
+    # the film temperature on a second axis: any programme (cooling, heating, holds)
+    first = min(float(t.time_s.min()) for t in growth.tracks)
+    last = max(float(t.time_s.max()) for t in growth.tracks)
+    times = np.linspace(first, last, 400)
+    twin = ax.twinx()
+    twin.plot(times, programme.temperature_at(times), "--", lw=0.8, color="0.45")
+    twin.set_ylabel("Film temperature (°C), dashed", fontsize=7)
+    twin.tick_params(labelsize=6)
     ax.text(0.02, 0.97, "points: measured; lines: joint G(T) fit", transform=ax.transAxes,
             fontsize=6, va="top", color="0.35")
     return fig
@@ -97,7 +102,6 @@ def growth_figure(growth, isothermal=None):
     ax.set_yscale("log")
     ax.legend(fontsize=6, frameon=False)
     return fig
-
 
 
 def write_ramp_outputs(ramp, out_dir, *, prefix: str = "") -> list[str]:

@@ -11,6 +11,7 @@ import os
 from collections import OrderedDict
 
 from analysis.errors import InputError
+from analysis.intervals import DEFAULT_SEED
 from analysis.kinetics.calorimetry import analyze_source
 
 
@@ -24,14 +25,17 @@ class CalorimetryCache:
         self._results: OrderedDict = OrderedDict()
         self._size = size
 
-    def analyze(self, source):
+    def analyze(self, source, seed: int = DEFAULT_SEED, intervals: bool = True):
+        """``analyze_source(source, seed=seed, intervals=intervals)``, cached (``seed``: of
+        the intervals' resampling, the project's stored one so that the pages agree with
+        the report; ``intervals`` False: the point values only, at once)."""
         try:
             stamp = os.stat(source.file).st_mtime_ns
         except OSError as error:
             raise InputError(f"cannot read calorimetry file ({error.strerror})", source.file) from None
-        key = (source, stamp)
+        key = (source, stamp, seed, intervals)
         if key not in self._results:
-            self._results[key] = analyze_source(source)
+            self._results[key] = analyze_source(source, seed=seed, intervals=intervals)
             _trim(self._results, self._size)
         self._results.move_to_end(key)
         return self._results[key]

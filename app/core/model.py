@@ -31,7 +31,9 @@ if TYPE_CHECKING:
     from analysis.spherulites.pipeline import Analysis
 
 #: Experiment fields that do not change what the frame pass computes.
-_NON_RECIPE_FIELDS = {"name", "notes", "edits", "calorimetry", "mode_override"}
+#: (The kind and temperature source only feed the ramp fit, redone from the cached analysis.)
+_NON_RECIPE_FIELDS = {"name", "notes", "edits", "calorimetry", "mode_override", "stage_uncertainty_k",
+                      "kind", "temperature_source"}
 #: Project fields that commands may change (everything but the experiments and file data).
 PROJECT_FIELDS = ("material", "series")
 

@@ -17,15 +17,19 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
+from analysis.kinetics.calorimetry import source_interval_steps
 from analysis.outputs import file_stem
+from analysis.project.model import resampling_seed
 from analysis.reporting.entries import calorimetry_source
 from analysis.settings import DEFAULT_FIT_WINDOW
 from app.core.kinetics_inputs import CalorimetryCache
 from app.kinetics import logic
 from app.kinetics.calorimetry_dialog import CalorimetryMappingDialog
+from app.kinetics.intervals_job import IntervalsJob, intervals_key
 from app.kinetics.panels import CalorimetryPanel, ComparisonTable, PredictionPanel
 from app.kinetics.plots import KineticsPlots
 from app.widgets.formatting import DASH, fmt, fmt_estimate, k_unit
+from app.widgets.background import BackgroundResults
 from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import help_button, show_help
 from app.widgets.plotting import export_plots
@@ -55,6 +59,11 @@ class KineticsView(LazyPage):
         self.calorimetry = CalorimetryCache()
         self._reported: set[str] = set()
         self._preview: dict = {}  # live values during a drag, cleared when it ends
+        self.intervals_job = IntervalsJob(self)
+        self.intervals_job.ready.connect(self._intervals_ready)
+        self.calorimetry_job = BackgroundResults(self, "calorimetry 95 % intervals",
+                                                 object_name="calorimetry_intervals_bar")
+        self.calorimetry_job.ready.connect(lambda _key: self.refresh())
         self._build()
         for signal in (model.project_replaced, model.project_fields_changed):
             signal.connect(self._rebuild)
@@ -86,6 +95,8 @@ class KineticsView(LazyPage):
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
         layout.addWidget(toolbar)
+        layout.addWidget(self.intervals_job.bar_widget)
+        layout.addWidget(self.calorimetry_job.bar_widget)
         layout.addWidget(split, 1)
 
     def _build_bar(self) -> tuple[QtWidgets.QHBoxLayout, QtWidgets.QToolBar]:
@@ -196,20 +207,43 @@ class KineticsView(LazyPage):
         combo.setCurrentIndex(max(0, index))
         combo.blockSignals(False)
 
+    def _seed(self) -> int:
+        return resampling_seed(self.model.project)
+
+    def _intervals(self, experiment):
+        """The prediction's (own geometry, bulk) intervals if known; else they are being
+        computed in the worker (or were cancelled) and this is None."""
+        result = self.model.result(self.index())
+        if result is None:
+            return None
+        return self.intervals_job.request_for(result, experiment, self._seed())
+
+    def _intervals_ready(self, key) -> None:
+        experiment = self.experiment()
+        result = self.model.result(self.index())
+        if experiment is not None and result is not None and key == intervals_key(result, experiment, self._seed()):
+            self.refresh()
+
     def _show_prediction(self, experiment):
         result = self.model.result(self.index())
         if result is None:
             self.prediction.clear(f"Microscopy analysis: {self.model.status(self.index())}. Run it "
                                   "to see N, G and the predicted kinetics.")
             return None
-        entry = logic.entry(result, experiment)
+        entry = logic.entry(result, experiment, seed=self._seed())
         self.prediction.show_inputs(entry)
         if entry.prediction is None:
             self.prediction.show_problem(entry.prediction_problem, experiment.geometry,
                                          entry.prediction_inputs().mode)
             return None
+        intervals = self._intervals(experiment)
         self.prediction.show_prediction(entry.prediction, experiment.geometry,
-                                        entry.prediction_intervals)
+                                        None if intervals is None else intervals[0])
+        if intervals is None:
+            self.prediction.problem.setText(
+                "95 % intervals cancelled: “Compute” above resamples them."
+                if self.intervals_job.cancelled(intervals_key(result, experiment, self._seed()))
+                else "95 % intervals: resampling (progress above)…")
         return entry.prediction
 
     # ---------------------------------------------------------------- calorimetry
@@ -232,7 +266,8 @@ class KineticsView(LazyPage):
             self.plots.set_regions(None, None)
             return None
         try:
-            result = self.calorimetry.analyze(source)
+            result = self._with_calorimetry_intervals(
+                source, self.calorimetry.analyze(source, seed=self._seed(), intervals=False))
         except InputError as error:
             if self._preview:  # mid-drag: say why, but leave the plots and the band alone
                 self.calorimetry_panel.problem.setText(f"Not usable: {error}")
@@ -246,6 +281,16 @@ class KineticsView(LazyPage):
         self.plots.show_calorimetry(result, result.heat_flow_unit)
         self.plots.set_regions((result.baseline_start_min, result.baseline_end_min), result.window)
         return result
+
+    def _with_calorimetry_intervals(self, source, result):
+        """``result`` with its intervals when known; otherwise they are computed in the
+        worker (not during a drag: the numbers follow the hand at once)."""
+        if self._preview:
+            return result
+        seed = self._seed()
+        intervals = self.calorimetry_job.request(
+            (id(result), seed), lambda: source_interval_steps(source, result, seed=seed), keep=result)
+        return result if intervals is None else dataclasses.replace(result, intervals=intervals)
 
     def _fill_calorimetry_panel(self, source, result) -> None:
         form, fit = self.calorimetry_panel.form, result.avrami
@@ -263,7 +308,8 @@ class KineticsView(LazyPage):
         t_half = fmt_estimate(ci.t_half_min, "min") if ci else fmt(fit.t_half_min if fit else None, "min")
         form.set("t_half", f"{t_half} / {fmt(result.t_half_measured_min, 'min')}")
         form.set("r2", f"{fit.r2:.5f}" if fit else DASH)
-        self.calorimetry_panel.problem.setText("; ".join(result.warnings))
+        waiting = [] if ci or not fit else ["95 % intervals: re-analysing (progress above)…"]
+        self.calorimetry_panel.problem.setText("; ".join([*waiting, *result.warnings]))
 
     def _report_once(self, title: str, message: str) -> None:
         if message not in self._reported and self.isVisible():
@@ -273,7 +319,11 @@ class KineticsView(LazyPage):
     # ---------------------------------------------------------------- comparison
     def _show_comparison(self, experiment, prediction, calorimetry) -> None:
         result = self.model.result(self.index())
-        comparison = logic.compare(result, experiment, calorimetry)
+        intervals = None if result is None or logic.safe_prediction(result, experiment) is None \
+            else self.intervals_job.result(intervals_key(result, experiment, self._seed()))
+        if calorimetry is not None and calorimetry.avrami and calorimetry.intervals is None:
+            intervals = None  # the verdict waits for both sides' intervals
+        comparison = logic.compare(result, experiment, calorimetry, seed=self._seed(), intervals=intervals)
         self.comparison.clear(comparison.note)
         for row, cells in enumerate(comparison.rows):
             self.comparison.set_row(row, cells)
@@ -311,7 +361,8 @@ class KineticsView(LazyPage):
         source = dataclasses.replace(experiment.calorimetry, **changes)
         try:  # never store a baseline or window the analysis refuses
             self.calorimetry.analyze(calorimetry_source(
-                dataclasses.replace(experiment, calorimetry=source), self.model.project.material))
+                dataclasses.replace(experiment, calorimetry=source), self.model.project.material),
+                seed=self._seed(), intervals=False)
         except InputError as error:
             QtWidgets.QMessageBox.warning(self, "Change not applied", str(error))
             self.refresh()

@@ -39,17 +39,34 @@ DISPLAY_NAMES = {
     "predicted_t_half_min": "predicted t½ (min)", "dsc_avrami_n": "DSC n",
     "dsc_k_per_min_n": "DSC k (min⁻ⁿ)", "dsc_t_half_min": "DSC t½ fit (min)",
     "dsc_t_half_measured_min": "DSC t½ read (min)", "dsc_induction_time_min": "DSC t₀ (min)",
-    "dsc_r2": "DSC R²",
+    "dsc_r2": "DSC R²", "stage_uncertainty_k": "stage u_T (K)",
+    "growth_rate_with_temperature_ci95_low_um_per_min": "G 95 % CI low with u_T (µm/min)",
+    "growth_rate_with_temperature_ci95_high_um_per_min": "G 95 % CI high with u_T (µm/min)",
+    "resampling_seed": "resampling seed",
 }
+
+
+def display_name(name: str) -> str:
+    """The table's column title for a file column name; an interval column takes its
+    quantity's title with "95 % CI low/high" before the unit."""
+    if name in DISPLAY_NAMES:
+        return DISPLAY_NAMES[name]
+    for tag, words in (("_ci95_low", "95 % CI low"), ("_ci95_high", "95 % CI high")):
+        if tag in name:
+            base = DISPLAY_NAMES.get(name.replace(tag, ""), name.replace(tag, ""))
+            title, bracket, unit = base.partition(" (")
+            return f"{title} {words}{bracket}{unit}"
+    return name
 
 
 def report_entries(model, cache) -> list:
     """One ``ReportEntry`` per analysed isothermal experiment (``analysis.reporting.entries.
     report_entry``, the calorimetry through the page's cache); ramps: :func:`ramp_entries`."""
     project = model.project
-    return [report_entry(experiment, model.result(i), project.material, cache.analyze,
-                         stage_uncertainty_k=stage_uncertainty_k(project, experiment),
-                         seed=resampling_seed(project))
+    seed = resampling_seed(project)
+    return [report_entry(experiment, model.result(i), project.material,
+                         lambda source: cache.analyze(source, seed=seed),
+                         stage_uncertainty_k=stage_uncertainty_k(project, experiment), seed=seed)
             for i, experiment in enumerate(model.experiments())
             if model.result(i) is not None and experiment.kind != "ramp"]
 
@@ -76,7 +93,7 @@ def ramp_entries(model) -> tuple[list, list[str]]:
 def table_rows(entries) -> tuple[list[str], list[list]]:
     """Display header and rows of the growth-rate-versus-temperature table of ``entries``."""
     table = growth_vs_temperature_table(entries)
-    return [DISPLAY_NAMES.get(name, name) for name in table.header], table.rows
+    return [display_name(name) for name in table.header], table.rows
 
 
 def write_table(model, cache, path: str, kind: str) -> str:

@@ -13,8 +13,15 @@ from PySide6 import QtCore, QtWidgets
 
 from analysis.kinetics.materials import list_materials
 from analysis.reporting.report import HW_PAIRS_KEY
-from analysis.settings import DEFAULT_U_STAR_J_PER_MOL, T_INF_BELOW_TG_K, t_inf_default_c
-from app.widgets.formatting import DASH, fmt, fmt_pm
+from analysis.settings import (
+    DEFAULT_STAGE_UNCERTAINTY_K,
+    DEFAULT_U_STAR_J_PER_MOL,
+    MAX_STAGE_UNCERTAINTY_K,
+    STAGE_UNCERTAINTY_KEY,
+    T_INF_BELOW_TG_K,
+    t_inf_default_c,
+)
+from app.widgets.formatting import DASH, fmt, fmt_estimate, fmt_pm
 from app.widgets.forms import FormPanel
 from app.widgets.help_panel import help_button
 
@@ -24,7 +31,8 @@ TRANSPORT_SETS = {
     "WLF": (17238.0, 51.6),
 }
 HW_KEY = HW_PAIRS_KEY  # the series key the report reads
-_SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞"}
+_SYMBOLS = {"tm0_c": "Tm0", "tg_c": "Tg", "u_star_j_per_mol": "U*", "t_inf_c": "T∞",
+            STAGE_UNCERTAINTY_KEY: "stage-temperature uncertainty"}
 
 
 def _spin(name: str, suffix: str, low: float, high: float, decimals: int = 1) -> QtWidgets.QDoubleSpinBox:
@@ -70,8 +78,18 @@ class ConstantsForm(QtWidgets.QGroupBox):
         self.transport.activated.connect(self._transport_chosen)
         self.transport.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
         self.transport.setMinimumContentsLength(10)
+        self.stage_u = QtWidgets.QDoubleSpinBox(objectName=STAGE_UNCERTAINTY_KEY)
+        self.stage_u.setRange(0.0, MAX_STAGE_UNCERTAINTY_K)
+        self.stage_u.setDecimals(2)
+        self.stage_u.setSingleStep(0.1)
+        self.stage_u.setPrefix("± ")
+        self.stage_u.setSuffix(" K")
+        self.stage_u.setKeyboardTracking(False)
+        self.stage_u.setToolTip(f"Standard uncertainty of every Tc of the project (default ±"
+                                f"{DEFAULT_STAGE_UNCERTAINTY_K:g} K, common practice for a calibrated "
+                                "stage); an experiment's Properties can override it")
         for key, spin in (("tm0_c", self.tm0), ("tg_c", self.tg), ("u_star_j_per_mol", self.u_star),
-                          ("t_inf_c", self.t_inf)):
+                          ("t_inf_c", self.t_inf), (STAGE_UNCERTAINTY_KEY, self.stage_u)):
             spin.editingFinished.connect(lambda key=key, spin=spin: self._spin_done(key, spin))
         self.t_inf_auto.toggled.connect(self._auto_toggled)
         form = QtWidgets.QFormLayout(self)
@@ -84,6 +102,7 @@ class ConstantsForm(QtWidgets.QGroupBox):
         t_inf_row.addWidget(self.t_inf_auto)
         form.addRow("T∞", t_inf_row)
         form.addRow("", self.transport)
+        form.addRow("Stage uncertainty", self._with_help(self.stage_u, "intervals"))
         self.series: dict = {}
 
     def _with_help(self, widget, key) -> QtWidgets.QWidget:
@@ -104,6 +123,8 @@ class ConstantsForm(QtWidgets.QGroupBox):
                 value = series.get(key)
                 spin.setValue(NOT_SET if value is None else float(value))
             self.u_star.setValue(float(series.get("u_star_j_per_mol", DEFAULT_U_STAR_J_PER_MOL)))
+            stage_u = series.get(STAGE_UNCERTAINTY_KEY)
+            self.stage_u.setValue(DEFAULT_STAGE_UNCERTAINTY_K if stage_u is None else float(stage_u))
             auto = series.get("t_inf_c") is None
             self.t_inf_auto.setChecked(auto)
             self.t_inf.setEnabled(not auto)
@@ -121,6 +142,10 @@ class ConstantsForm(QtWidgets.QGroupBox):
 
     def _spin_done(self, key: str, spin: QtWidgets.QDoubleSpinBox) -> None:
         value = None if spin.value() <= NOT_SET else round(spin.value(), spin.decimals())
+        if key == STAGE_UNCERTAINTY_KEY:
+            current = self.series.get(key)
+            if value == (DEFAULT_STAGE_UNCERTAINTY_K if current is None else current):
+                return  # the default shown, not changed: nothing to store
         if key == "t_inf_c" and self.t_inf_auto.isChecked():
             return
         if self.series.get(key) != value:
@@ -163,24 +188,52 @@ class LHResults(FormPanel):
         self.message = self.problem
         self.add_full_row(self.problem)
 
-    def show_fit(self, fit) -> None:
-        """``fit``: ``analysis.kinetics.lauritzen_hoffman.LHAnalysis``."""
+    def show_fit(self, fit, intervals=None) -> None:
+        """``fit``: ``analysis.kinetics.lauritzen_hoffman.LHAnalysis``; ``intervals``: its
+        ``analysis.kinetics.lh_intervals.LHIntervals`` (None: not known yet, point values
+        only). The intervals are those of the one-line fit; with regimes each regime's Kg
+        keeps the ± of its own line."""
         overall = fit.overall
-        kg = [f"{_kg(r)} ({r.name}, {r.t_low_c:.1f}-{r.t_high_c:.1f} °C)" for r in fit.regimes]
-        self.form.set("kg", "\n".join(kg) if len(fit.regimes) > 1 else _kg(overall))
-        self.form.set("g0", "; ".join(fmt(r.g0_um_per_min, "µm/min") for r in fit.regimes))
-        self.form.set("regimes", "one line suffices" if fit.break_c is None
-                      else f"break at {fit.break_c:.1f} °C")
+        one_line_kg = _kg(overall) if intervals is None else fmt_estimate(intervals.kg_k2, "K²")
+        one_line_g0 = (fmt(overall.g0_um_per_min, "µm/min") if intervals is None
+                       else fmt_estimate(intervals.g0_um_per_min, "µm/min"))
+        if len(fit.regimes) > 1:
+            kg = [f"{_kg(r)} ({r.name}, {r.t_low_c:.1f}-{r.t_high_c:.1f} °C)" for r in fit.regimes]
+            self.form.set("kg", "\n".join(kg + [f"one line: {one_line_kg}"]))
+            g0 = "; ".join(fmt(r.g0_um_per_min, "µm/min") for r in fit.regimes)
+            self.form.set("g0", f"{g0}\none line: {one_line_g0}")
+        else:
+            self.form.set("kg", one_line_kg)
+            self.form.set("g0", one_line_g0)
+        self.form.set("regimes", _regimes_text(fit, intervals))
         self.form.set("ratio", DASH if fit.regime_ratio is None else f"{fit.regime_ratio:.2f}")
-        self.form.set("sigma_sigma_e", fmt(fit.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
-        sigma = DASH if fit.sigma_j_m2 is None else f"{fit.sigma_j_m2 * 1e3:.3g} mJ/m²"
-        sigma_e = DASH if fit.sigma_e_j_m2 is None else f"{fit.sigma_e_j_m2 * 1e3:.3g} mJ/m²"
-        self.form.set("sigma", f"{sigma}, {sigma_e}")
+        if intervals is None:
+            self.form.set("sigma_sigma_e", fmt(fit.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
+            sigma_e = fmt(None if fit.sigma_e_j_m2 is None else fit.sigma_e_j_m2 * 1e3, "mJ/m²")
+        else:
+            self.form.set("sigma_sigma_e", fmt_estimate(intervals.sigma_sigma_e_j2_per_m4, "J²/m⁴"))
+            sigma_e = (DASH if fit.sigma_e_j_m2 is None
+                       else fmt_estimate(intervals.sigma_e_j_m2.scaled(1e3), "mJ/m²"))
+        sigma = fmt(None if fit.sigma_j_m2 is None else fit.sigma_j_m2 * 1e3, "mJ/m²")
+        self.form.set("sigma", f"σ {sigma} (from the material), σe {sigma_e}")
         self.message.setText("; ".join(fit.warnings))
 
 
 def _kg(regime) -> str:
     return fmt_pm(regime.kg_k2, regime.kg_ci95, "K²")
+
+
+def _regimes_text(fit, intervals) -> str:
+    """The break temperature with its interval and how often the draws find a break."""
+    if fit.break_c is None:
+        text = "one line suffices"
+    elif intervals is None:
+        text = f"break at {fmt(fit.break_c, '°C')}"
+    else:
+        text = f"break at {fmt_estimate(intervals.break_c, '°C')}"
+    if intervals is not None and intervals.break_fraction is not None:
+        text += f"\na break in {intervals.break_fraction:.0%} of the resampled series"
+    return text
 
 
 class HoffmanWeeksHelper(QtWidgets.QGroupBox):

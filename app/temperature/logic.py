@@ -11,7 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.errors import InputError
-from analysis.kinetics.lh_intervals import fit_with_temperature
+from analysis.kinetics.lh_intervals import fit_with_temperature, lh_intervals_steps
 from analysis.kinetics.lauritzen_hoffman import (
     hoffman_weeks,
     lh_coordinates,
@@ -78,6 +78,27 @@ def lh_fit(entries, series: dict, material: str | None):
     fit = fit_with_temperature(tc, g, ci, stage_uncertainties(entries, include_ramps=include),
                                constants=constants, material=material)
     return fit, note, sources
+
+
+def _lh_interval_inputs(entries, series: dict):
+    include = bool(series.get(RAMPS_IN_LH_KEY, False))
+    _tc, _g, ci = lauritzen_hoffman_inputs(entries, include_ramps=include)
+    return ci, stage_uncertainties(entries, include_ramps=include)
+
+
+def lh_intervals_key(fit, entries, series: dict, seed: int) -> tuple:
+    """What the intervals of ``fit`` (from :func:`lh_fit`) depend on, as a hashable key."""
+    ci, u_t = _lh_interval_inputs(entries, series)
+    return (tuple(fit.tc_c), tuple(fit.g_um_per_min), None if ci is None else tuple(ci),
+            tuple(u_t), fit.constants, fit.material, fit.aicc_one is None, seed)
+
+
+def lh_interval_steps(fit, entries, series: dict, seed: int):
+    """Generator of the intervals on Kg, G0, σσe, σe and the regime break of ``fit`` (from
+    :func:`lh_fit`), as the report computes them
+    (``analysis.kinetics.lh_intervals.lh_intervals``: same inputs, same seed)."""
+    ci, u_t = _lh_interval_inputs(entries, series)
+    return lh_intervals_steps(fit, ci, u_t, seed=seed)
 
 
 def lh_display(fit, points: int = 60):

@@ -16,6 +16,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
 from analysis.outputs import file_stem
+from analysis.project.model import resampling_seed
 from app.core.kinetics_inputs import CalorimetryCache
 from app.temperature import export as temperature_export
 from app.temperature import logic
@@ -27,6 +28,7 @@ from app.temperature.lauritzen_hoffman import (
 )
 from app.temperature.plots import TemperaturePlots
 from app.temperature.table import GrowthTable
+from app.widgets.background import BackgroundResults
 from app.widgets.forms import LazyPage, scroll_column
 from app.widgets.help_panel import show_help
 from app.widgets.plotting import export_plots
@@ -44,6 +46,8 @@ class TemperatureView(LazyPage):
         self.ramps: list = []  # entries of ramp experiments with their G(T)
         self.fit = None
         self.report_job = temperature_export.ReportJob(self)
+        self.lh_job = BackgroundResults(self, "Lauritzen-Hoffman 95 % intervals", object_name="lh_intervals_bar")
+        self.lh_job.ready.connect(lambda _key: self._show_lh())
         self._build()
         for signal in (model.project_replaced, model.project_fields_changed):
             signal.connect(self._rebuild)
@@ -102,6 +106,7 @@ class TemperatureView(LazyPage):
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
         layout.addWidget(split, 1)
+        layout.addWidget(self.lh_job.bar_widget)
         layout.addWidget(self.report_job.bar_widget)
         self.report_status = QtWidgets.QLabel("", objectName="report_status")
         self.report_status.setWordWrap(True)
@@ -182,9 +187,16 @@ class TemperatureView(LazyPage):
             self.plots.clear_lh()
             self.plots.show_growth_fit(None, None)
             return
-        self.lh_results.show_fit(self.fit)
-        if "material table" in note:  # say where constants not set by the user came from
-            self.lh_results.message.setText("; ".join([note, *self.fit.warnings]))
+        entries, series, seed = self.entries + self.ramps, project.series, resampling_seed(project)
+        fit = self.fit
+        key = logic.lh_intervals_key(fit, entries, series, seed)
+        intervals = self.lh_job.request(key, lambda: logic.lh_interval_steps(fit, entries, series, seed))
+        self.lh_results.show_fit(fit, intervals)
+        lines = [note] if "material table" in note else []  # where constants not set by the user came from
+        if intervals is None:
+            lines.append("95 % intervals cancelled: “Compute” below resamples them" if self.lh_job.cancelled(key)
+                         else "95 % intervals: resampling (progress below)…")
+        self.lh_results.message.setText("; ".join([*lines, *fit.warnings]))
         self.plots.show_lh(*logic.lh_display(self.fit), [s.startswith("ramp") for s in sources])
         self.plots.show_growth_fit(*logic.growth_curve(self.fit))
 

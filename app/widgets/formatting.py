@@ -6,7 +6,8 @@ ten, uncertainties, units and unknown values.
 - An uncertainty is always the half-width of the 95 % confidence interval, written
   ``value ± half-width unit (95 % CI)``; with a power of ten both share it:
   ``(4.60 ± 0.03) × 10⁵ mm⁻² (95 % CI)``. An interval that is not symmetric is written
-  ``value unit (95 % CI low – high)``.
+  ``value unit (95 % CI low – high)``, with as many more figures as it takes (up to six)
+  for the limits to differ from the value: ``1.258 min (95 % CI 1.255 – 1.262)``.
 - Units follow the value after a space, with superscript exponents (µm/min, mm⁻², K²);
   the Avrami rate constant is in ``min⁻ⁿ`` with its n stated beside it.
 - Unknown values are a dash.
@@ -17,6 +18,8 @@ from __future__ import annotations
 import math
 
 DASH = "—"
+#: Most significant figures an interval is written with (see fmt_interval).
+MAX_DIGITS = 6
 CI = "95 % CI"
 _SUPERSCRIPT = str.maketrans("0123456789-+", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺")
 
@@ -79,6 +82,11 @@ def fmt_interval(value, low, high, unit: str = "", digits: int = 3) -> str:
         return DASH
     if not (_known(low) and _known(high)):
         return fmt(value, unit, digits)
+    shown = fmt(value, "", digits)
+    while digits < MAX_DIGITS and (low != value and fmt(low, "", digits) == shown
+                                   or high != value and fmt(high, "", digits) == shown):
+        digits += 1  # a narrow interval: more figures, or it would read "1.26 – 1.26"
+        shown = fmt(value, "", digits)
     return f"{fmt(value, unit, digits)} ({CI} {fmt(low, '', digits)} – {fmt(high, '', digits)})"
 
 

@@ -55,8 +55,10 @@ TOPICS: tuple[HelpTopic, ...] = (
         "ramp_growth", "Growth rate over a temperature range (ramp or step run)",
         "While the stage cools, heats or steps through holds, every front advances at the rate of "
         "the film's current temperature. One joint fit of all spherulites' radii gives G(T) as a "
-        "smooth curve (a penalised spline of ln G in T) with a 95 % band, Kg and G0 fitted directly "
-        "to all radii, and nuclei counted against the temperature of their birth.",
+        "smooth curve (a penalised spline of ln G in T) with a 95 % band (it allows for errors a "
+        "frame's radii share and for the choice of smoothing), Kg and G0 fitted directly to all "
+        "radii, and nuclei counted against the temperature of their birth. Choose the kind and the "
+        "stage log or typed programme in Edit → Experiment kind and temperature….",
         "R(t) = ∫ G(T(t')) dt' from the birth;   film: τ·dT_film/dt = T_sensor − T_film",
         "The log's clock offset and the film's lag behind the stage sensor must be right: at "
         "10 K/min a 1 s error shifts T by 0.17 K, several per cent of G where G is steep. Only "
@@ -276,14 +278,21 @@ TOPICS: tuple[HelpTopic, ...] = (
         "per-spherulite fits alone would claim far less. N_A, N_V and the nucleation rate: exact "
         "Poisson intervals on the counts. Predicted n, k, t½ and the calorimetry/microscopy "
         "ratio: a bootstrap over spherulites and over nuclei (Poisson counts), 1000 draws with "
-        "the seed stored in the outputs. Calorimetry n, k, t½: the spread over two baseline end "
-        "anchors, lag corrections of 4 s and 8 s and four fit windows, plus the noise. Kg, G0, σσe, σe and the regime "
+        "the seed stored in the outputs (series settings, resampling_seed); on the Kinetics and "
+        "Tc-series pages the resampled intervals are computed in the background with a "
+        "progress bar and Cancel. Calorimetry n, k, t½: each analysis choice "
+        "varied on its own (lag corrections of 4 s and 8 s, a later baseline end, four fit "
+        "windows, three onset-fit ranges) counts as a rectangular distribution about the middle "
+        "of its range, combined in quadrature with the noise (the record re-analysed with its "
+        "own noise level added) and the induction-time error. Kg, G0, σσe, σe and the regime "
         "break: a bootstrap that moves each G by its error and each temperature by the stage "
-        "uncertainty.",
+        "uncertainty (basic interval, which undoes the flattening of Kg by temperature errors).",
         "half-width = √(statistical² + shared²);  N_A interval = Garwood limits / area;  "
-        "bootstrap interval = 2.5 and 97.5 percentiles of the draws",
+        "bootstrap interval = 2.5 and 97.5 percentiles of the draws;  a choice spanning a..b: "
+        "centre (a+b)/2, u = (b−a)/(2√3)",
         "Stage-temperature uncertainty: ±0.5 K by default (common practice for a calibrated hot "
-        "stage), set per project in the series settings or per experiment; it widens G(Tc) by "
+        "stage), set for the project on the Tc-series page (Lauritzen-Hoffman constants) or "
+        "for one experiment in its Properties (empty: the project's value); it widens G(Tc) by "
         "1.96·|d ln G/dT|·G·u_T in the tables and weights the Lauritzen-Hoffman fit. The shared "
         "timing constants were set on simulated recordings (README, Uncertainty); a real clock or "
         "stage may be worse. Only the errors named here are included.",

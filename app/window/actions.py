@@ -53,6 +53,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("redo", "&Redo", "redo", "Edit", "Ctrl+Shift+Z"),
     ActionSpec("properties", "Experiment &properties…", "edit_properties", "Edit", "Ctrl+P",
                tip="Tc, µm per pixel, frame times, isothermal start, thickness, notes"),
+    ActionSpec("temperature_source", "Experiment &kind and temperature…", "edit_temperature_source", "Edit",
+               tip="Isothermal or ramp; for a ramp, the stage temperature log or a typed programme"),
     ActionSpec("calibrate", "&Calibrate from a stage micrometer…", "calibrate", "Edit", "Ctrl+K"),
     ActionSpec("remove_experiment", "Remove e&xperiment", "remove_experiment", "Edit"),
     ActionSpec("run", "&Analyse this experiment", "run_current", "Analysis", "F5", "analysis",

@@ -18,6 +18,7 @@ from app.core.project_lock import ProjectLock, live_lock_owner
 from app.core.errors import one_line
 from app.microscopy.calibration import CalibrationDialog
 from app.window.properties_dialog import PropertiesDialog, stack_note
+from app.window.temperature_source_dialog import TemperatureSourceDialog, frame_span
 from app.window.settings_dialog import AnalysisSettingsDialog
 from app.window.stack_import import experiments_from_paths, is_stack_path
 
@@ -258,6 +259,33 @@ class WindowFilesMixin:
             if changes:
                 self.model.set_experiment_properties(
                     index, f"Edit properties of {experiment.name}", **changes)
+
+    def edit_temperature_source(self) -> None:
+        self.edit_temperature_source_of(self.model.current_index)
+
+    def edit_temperature_source_of(self, index: int) -> None:
+        """Kind and temperature source of one experiment (one undo step); the ramp fit is
+        redone from the analysis, or the experiment is analysed if it never was."""
+        if index < 0:
+            return
+        values = self.ask_temperature_source(index)
+        if not values:
+            return
+        experiment = self.model.experiment(index)
+        changes = {k: v for k, v in values.items() if getattr(experiment, k) != v}
+        if changes:
+            self.model.set_experiment_properties(index, f"Temperature of {experiment.name}", **changes)
+            if self.model.analysis(index) is None and values["kind"] == "ramp":
+                self.runner.run([index])
+
+    def ask_temperature_source(self, index: int):
+        """The dialog's ``{"kind", "temperature_source"}``, or None when cancelled (tests replace this)."""
+        try:
+            span = frame_span(self.model.frame_stack(index))
+        except InputError:
+            span = None
+        dialog = TemperatureSourceDialog(self.model.experiment(index), span, self)
+        return dialog.result_values() if dialog.exec() else None
 
     def calibrate(self) -> None:
         """Measure the scale on the current frame or on a stage-micrometer image file."""

@@ -104,7 +104,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
         self._build_status_bar()
         self._add_view_menus()
         self.experiments_panel.setContextMenuPolicy(Qt.ActionsContextMenu)
-        for key in ("run", "properties", "analysis_settings", "calibrate", "remove_experiment"):
+        for key in ("run", "properties", "temperature_source", "analysis_settings", "calibrate",
+                    "remove_experiment"):
             self.experiments_panel.addAction(self.actions_by_id[key])
         self.build_recent_menu()
         self._connect()
@@ -303,8 +304,8 @@ class MainWindow(WindowFilesMixin, QMainWindow):
 
     def _refresh_actions(self) -> None:
         has_experiment = self.model.current_index >= 0
-        for key in ("properties", "analysis_settings", "calibrate", "remove_experiment", "run",
-                    "ignore_frames"):
+        for key in ("properties", "temperature_source", "analysis_settings", "calibrate", "remove_experiment",
+                    "run", "ignore_frames"):
             self.actions_by_id[key].setEnabled(has_experiment)
         self.actions_by_id["run_all"].setEnabled(self.model.experiment_count() > 0)
         self.actions_by_id["cancel"].setEnabled(self.runner.is_busy())

@@ -1,5 +1,5 @@
-"""Editor of one experiment's properties: Tc, scale, frame times, isothermal start,
-film thickness, notes. OK applies every change as one undo entry.
+"""Editor of one experiment's properties: Tc and its stage-temperature uncertainty (empty:
+the project's), scale, frame times, isothermal start, film thickness, notes. OK applies every change as one undo entry.
 
 Empty optional fields mean "not set": the scale and the frame interval then come from the
 stack file, if it has them; the viewer warns when a stack ends up without a scale.
@@ -24,15 +24,21 @@ from PySide6.QtWidgets import (
 )
 
 from analysis.errors import InputError
+from analysis.settings import MAX_STAGE_UNCERTAINTY_K
 
 NUMBER_FIELDS = (
     # field, label, positive, may be empty
     ("temperature_c", "Crystallization temperature Tc (°C)", False, True),
+    ("stage_uncertainty_k", "Stage-temperature uncertainty ± (K)", False, True),
     ("um_per_px", "Scale (µm per pixel)", True, True),
     ("interval_s", "Frame interval (s)", True, True),
     ("isothermal_start_s", "Isothermal start (s on the recording clock)", False, False),
     ("thickness_um", "Film thickness (µm)", True, True),
 )
+
+
+PLACEHOLDERS = {"um_per_px": "from the file",
+                "stage_uncertainty_k": "the project's value (Tc-series page)"}
 
 
 def parse_optional_number(text: str, what: str, *, positive: bool, optional: bool) -> float | None:
@@ -85,7 +91,7 @@ class PropertiesDialog(QDialog):
         for field, label, _positive, optional in NUMBER_FIELDS:
             edit = QLineEdit(_format(getattr(experiment, field)))
             if optional:
-                edit.setPlaceholderText("not set" if field != "um_per_px" else "from the file")
+                edit.setPlaceholderText(PLACEHOLDERS.get(field, "not set"))
             self.numbers[field] = edit
             form.addRow(label, edit)
         self.times = QLineEdit(" ".join(f"{t:g}" for t in experiment.times_s or ()))
@@ -112,6 +118,10 @@ class PropertiesDialog(QDialog):
         for field, label, positive, optional in NUMBER_FIELDS:
             values[field] = parse_optional_number(self.numbers[field].text(), label,
                                                   positive=positive, optional=optional)
+        u_t = values["stage_uncertainty_k"]
+        if u_t is not None and not 0 <= u_t <= MAX_STAGE_UNCERTAINTY_K:
+            raise InputError(f"Stage-temperature uncertainty must be between 0 and "
+                             f"{MAX_STAGE_UNCERTAINTY_K:g} K, got {u_t:g}")
         values["times_s"] = parse_times(self.times.text())
         return {k: v for k, v in values.items() if v != getattr(self._experiment, k)}
 

@@ -1,6 +1,7 @@
 """Interval formulas against textbook cases, and intervals that widen with the noise."""
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -8,14 +9,14 @@ import pytest
 from analysis.errors import InputError
 from analysis.intervals import (
     Estimate,
-    expanded_basic_interval,
+    basic_interval,
     percentile_interval,
     poisson_count_interval,
     poisson_resample,
     quadrature,
     rate_estimate,
 )
-from analysis.kinetics.calorimetry import _noise_sigma, analyze_isotherm
+from analysis.kinetics.calorimetry import _ar1_inflation, analyze_isotherm, white_noise_sigma
 from analysis.kinetics.calorimetry_import import Isotherm
 from analysis.kinetics.calorimetry_intervals import calorimetry_intervals
 from analysis.kinetics.lauritzen_hoffman import LHConstants, lh_growth_rate
@@ -82,15 +83,26 @@ def test_poisson_resample_carries_the_counting_error():
     assert np.var(sizes) == pytest.approx(50, rel=0.1)
 
 
-def test_expanded_basic_interval_reflects_and_expands():
-    # basic interval 2 t - q(0.975) .. 2 t - q(0.025) (Efron & Tibshirani 1993, ch. 13)
+def test_basic_interval_reflects_the_draws_about_the_estimate():
+    # basic interval 2 t - q(0.975) .. 2 t - q(0.025) (Davison & Hinkley 1997, Bootstrap
+    # Methods and their Application, eq. 5.6; from memory)
     draws = np.linspace(11.0, 13.0, 1001)  # biased up by 2 around a point of 10
-    low, high = expanded_basic_interval(10.0, draws, n_points=6, n_params=2)
-    f = math.sqrt(6 / 4)
+    low, high = basic_interval(10.0, draws)
     q_lo, q_hi = np.quantile(draws, [0.025, 0.975])
-    assert low == pytest.approx(10 - f * (10 - (20 - q_hi)))
-    assert high == pytest.approx(10 + f * ((20 - q_lo) - 10))
-    assert expanded_basic_interval(10.0, draws, 2, 2) == (None, None)
+    assert (low, high) == pytest.approx((20 - q_hi, 20 - q_lo))
+    assert high < 10.0  # the bias the draws repeat is taken out
+    assert basic_interval(10.0, [1.0, 2.0]) == (None, None)  # too few draws
+
+
+def test_basic_interval_of_a_mean_is_the_normal_interval():
+    # unbiased, symmetric statistic: basic = percentile = xbar +- 1.96 s / sqrt(n)
+    # (Efron & Tibshirani 1993, ch. 13)
+    rng = np.random.default_rng(4)
+    x = rng.normal(5.0, 1.0, 400)
+    means = np.array([x[rng.integers(0, x.size, x.size)].mean() for _ in range(4000)])
+    low, high = basic_interval(x.mean(), means)
+    half = 1.96 * x.std(ddof=1) / math.sqrt(x.size)
+    assert (low, high) == pytest.approx((x.mean() - half, x.mean() + half), abs=0.1 * half)
 
 
 def test_quadrature_and_ratio_on_the_log_scale():
@@ -202,19 +214,96 @@ def _calorimetry(noise_mw):
     iso = Isotherm("run.csv", dsc.time_s / 60.0, dsc.heat_flow_mw, "mW", "t", "q", mass_mg=5.0)
     result = analyze_isotherm(iso)
     ci = calorimetry_intervals(iso, result, {}, analyze_isotherm=analyze_isotherm,
-                               noise_sigma=_noise_sigma(iso.heat_flow), seed=3)
+                               noise_sigma=white_noise_sigma(iso.heat_flow), seed=3)
     return dsc, result, ci
 
 
 def test_calorimetry_interval_reflects_choices_and_noise():
     dsc, result, ci = _calorimetry(0.01)
-    assert ci.variants >= 9 and ci.noise_draws == 8  # 4 windows x 2 lag choices + the chosen one
+    # the chosen analysis, 2 more lags, a later baseline end, 3 more windows, 2 more onset ranges
+    assert ci.variants == 9 and ci.noise_draws == 16
     assert ci.n.low < result.avrami.n < ci.n.high
     # far wider than the scatter of the points about the Avrami line (the old "± 0.0003")
     assert ci.n.half_width > 20 * result.avrami.n_ci95
     _, _, doubled = _calorimetry(0.02)
     assert doubled.n.half_width > ci.n.half_width
     assert doubled.t_half_min.half_width > ci.t_half_min.half_width
+
+
+class _Fit:
+    def __init__(self, n, k, t_half):
+        self.n, self.k_per_min_n, self.t_half_min = n, k, t_half
+
+
+class _Analysis:
+    def __init__(self, fit):
+        self.avrami = fit
+
+
+def test_a_choice_counts_as_a_rectangular_distribution_about_its_middle():
+    # a quantity known only to lie in [a-, a+]: midpoint, u = half-range / sqrt(3)
+    # (JCGM 100:2008, GUM 4.3.7). Only the lag choice moves t_half here: 1.00, 0.98, 0.96.
+    dsc = simulate_dsc_isotherm(noise_mw=0.0, seed=4)
+    iso = Isotherm("run.csv", dsc.time_s / 60.0, dsc.heat_flow_mw, "mW", "t", "q", mass_mg=5.0)
+    result = replace(analyze_isotherm(iso), induction_time_se_min=0.0)
+    t_half_by_lag = {0.0: 1.00, 4.0: 0.98, 8.0: 0.96}
+
+    def fake_analysis(_iso, lag_s=0.0, **_options):
+        return _Analysis(_Fit(3.0, math.log(2.0) / t_half_by_lag[lag_s] ** 3, t_half_by_lag[lag_s]))
+
+    chosen = fake_analysis(iso)
+    result = replace(result, avrami=chosen.avrami)
+    ci = calorimetry_intervals(iso, result, {}, analyze_isotherm=fake_analysis, noise_sigma=1e-9)
+    half = 1.96 * 0.02 / math.sqrt(3.0)
+    assert ci.t_half_min.value == 1.00  # the reported value stays the user's analysis
+    assert (ci.t_half_min.low, ci.t_half_min.high) == pytest.approx((0.98 - half, 0.98 + half))
+    assert ci.n.low == ci.n.high == 3.0  # no choice moves n
+    # a choice given by the user (here the lag) is not varied
+    fixed = calorimetry_intervals(iso, result, {"lag_s": 4.0}, analyze_isotherm=fake_analysis,
+                                  noise_sigma=1e-9)
+    assert fixed.variants == 7
+
+
+def test_doubled_noise_doubles_the_noise_part_of_the_calorimetry_interval():
+    # the noise part is 1.96 x the spread of the estimate over records with added noise of
+    # the given level (parametric bootstrap, Efron & Tibshirani 1993, ch. 6): for a statistic
+    # linear in the heat flow, twice the level gives exactly twice the half-width
+    dsc = simulate_dsc_isotherm(noise_mw=0.0, seed=4)
+    iso = Isotherm("run.csv", dsc.time_s / 60.0, dsc.heat_flow_mw, "mW", "t", "q", mass_mg=5.0)
+    result = replace(analyze_isotherm(iso), induction_time_se_min=0.0)
+
+    def linear_analysis(record, **_options):  # no choice moves it; the noise does
+        t_half = 1.0 + float(np.mean(record.heat_flow))
+        return _Analysis(_Fit(3.0, math.log(2.0) / t_half ** 3, t_half))
+
+    result = replace(result, avrami=linear_analysis(iso).avrami)
+    one, two = (calorimetry_intervals(iso, result, {}, analyze_isotherm=linear_analysis,
+                                      noise_sigma=level, seed=5) for level in (0.01, 0.02))
+    assert one.t_half_min.half_width > 0
+    assert two.t_half_min.half_width == pytest.approx(2 * one.t_half_min.half_width, rel=1e-9)
+
+
+def test_white_noise_level_ignores_the_slope_of_a_steep_signal():
+    # second differences of white noise have variance 6 sigma^2; a smooth steep peak
+    # hardly contributes (robust MAD scale, Hampel 1974, J. Am. Stat. Assoc. 69, 383;
+    # from memory)
+    rng = np.random.default_rng(9)
+    t = np.linspace(0.0, 10.0, 3000)
+    y = 8.0 * np.exp(-((t - 5.0) / 1.0) ** 2) + 0.003 * rng.standard_normal(t.size)
+    assert white_noise_sigma(y) == pytest.approx(0.003, rel=0.1)
+    assert white_noise_sigma(2 * y) == pytest.approx(2 * white_noise_sigma(y), rel=1e-9)
+
+
+def test_ar1_inflation_of_the_onset_standard_error():
+    # variance of a mean of an AR(1) series is (1 + r)/(1 - r) times the white-noise one
+    # (Bayley & Hammersley 1946, Suppl. J. R. Stat. Soc. 8, 184; from memory)
+    rng = np.random.default_rng(2)
+    e = np.empty(20000)
+    e[0] = 0.0
+    for i in range(1, e.size):
+        e[i] = 0.8 * e[i - 1] + rng.standard_normal()
+    assert _ar1_inflation(e) == pytest.approx(math.sqrt(1.8 / 0.2), rel=0.05)
+    assert _ar1_inflation(rng.standard_normal(5000)) == pytest.approx(1.0, abs=0.05)
 
 
 # ---------------------------------------------------------------- prediction

@@ -20,6 +20,9 @@ def test_uncertainty_is_the_95_ci_half_width_and_shares_the_power_of_ten():
     assert fmt_pm(4.6e5, 3.4e2, "mm⁻²") == "(4.6 ± 0.0034) × 10⁵ mm⁻² (95 % CI)"
     assert fmt_pm(2.5, None) == "2.5"
     assert fmt_interval(12.0, 11.0, 13.5, "µm/min") == "12 µm/min (95 % CI 11 – 13.5)"
+    # a narrow interval gets the figures that tell its limits from the value
+    assert fmt_interval(1.2581, 1.2553, 1.2619, "min") == "1.258 min (95 % CI 1.255 – 1.262)"
+    assert fmt_interval(3.0, 3.0, 3.0) == "3 (95 % CI 3 – 3)"  # an exact value stays short
 
 
 def test_avrami_k_states_its_n():

@@ -152,9 +152,20 @@ def test_baseline_drag_is_one_undo_entry(view, isotherm_csv):
     assert view.calorimetry_panel.form.text("enthalpy") == enthalpy
 
 
-def test_comparison_agrees_for_matching_kinetics(view, isotherm_csv):
+def _settle(view, qtbot):
+    """Wait until the intervals computed in the worker have arrived."""
+    qtbot.waitUntil(lambda: not (view.intervals_job.running or view.calorimetry_job.running),
+                    timeout=60_000)
+
+
+def test_comparison_agrees_for_matching_kinetics(view, isotherm_csv, qtbot):
     path, _run = isotherm_csv
     _import(view, path)
+    # the calorimetry intervals come from the worker; the verdict waits for them
+    assert view.calorimetry_job.running and "waiting" in view.comparison.note.text()
+    assert "95 % CI" not in view.calorimetry_panel.form.text("n")
+    _settle(view, qtbot)
+    assert "95 % CI" in view.calorimetry_panel.form.text("n")
     assert view.comparison.note.text().startswith("Agree.")
     assert "volume basis" in view.comparison.note.text()
     ratio = float(view.comparison.cell(2, 2).split()[0])
@@ -170,6 +181,7 @@ def test_comparison_flags_a_tenfold_density(qtbot, tmp_path, isotherm_csv):
     qtbot.addWidget(view)
     view.show()
     _import(view, path)
+    _settle(view, qtbot)
     note = view.comparison.note.text()
     assert "beyond the uncertainty" in note and "slower than predicted" in note
 
@@ -186,16 +198,17 @@ def test_live_drag_updates_numbers_without_an_undo_entry(view, isotherm_csv):
 
     _import(view, isotherm_csv[0])
     model, panel = view.model, view.calorimetry_panel.form
-    before = panel.text("n")
+    shown = lambda: (panel.text("window"), panel.text("k"))  # noqa: E731
+    before = shown()
     region = view.plots.window_region
     region.setRegion((x_to_avrami_y(0.3), x_to_avrami_y(0.8)))  # a finished gesture
-    after = panel.text("n")
+    after = shown()
     model.undo_stack.undo()
     # mid-gesture: the drag reports positions before it ends; only the end pushes a command
     view.plots.window_dragging.emit(0.3, 0.8)
-    assert panel.text("n") == after and model.undo_stack.count() == 2 and model.undo_stack.index() == 1
+    assert shown() == after and model.undo_stack.count() == 2 and model.undo_stack.index() == 1
     view.plots.window_dragged.emit(0.3, 0.8)
-    assert model.undo_stack.index() == 2 and panel.text("n") == after != before
+    assert model.undo_stack.index() == 2 and shown() == after != before
 
 
 def test_baseline_not_bracketing_the_peak_is_refused(view, isotherm_csv, monkeypatch):
@@ -250,3 +263,80 @@ def test_default_window_action_restores_the_guideline_window(view, isotherm_csv)
     assert view.model.experiment(0).calorimetry.window == (0.03, 0.20)
     assert view.calorimetry_panel.form.text("n") == default_n
     assert view.model.undo_stack.count() == 3
+
+
+# ---------------------------------------------------------------- intervals in the worker
+def resampled_result(count=40, spherulites=25, seed=0):
+    """A result with per-spherulite fits and a field area: its prediction's intervals come
+    from the bootstrap (analysis.kinetics.uncertainty), not from a formula."""
+    from analysis.results import Spherulite
+
+    rng = np.random.default_rng(seed)
+    rates = G_UM_PER_MIN * (1 + 0.03 * rng.standard_normal(spherulites))
+    fits = tuple(Spherulite(i, 0.0, 0.0, 0.0, 1.0, float(r), 0.1, 0.99, 10, "ok",
+                            growth_rate_se_um_per_min=0.03 * G_UM_PER_MIN) for i, r in enumerate(rates))
+    base = hand_made_result(count=count)
+    area = count / N_A_PER_MM2
+    nucleation = dataclasses.replace(base.nucleation, burst_density_per_mm2=N_A_PER_MM2, field_area_mm2=area)
+    return dataclasses.replace(base, spherulites=fits, nucleation=nucleation)
+
+
+def _seeded_view(qtbot, tmp_path, seed):
+    model = model_with([resampled_result()], tmp_path)
+    model.set_project_fields(text="seed", series={**model.project.series, "resampling_seed": seed})
+    view = KineticsView(model)
+    qtbot.addWidget(view)
+    view.show()
+    return view
+
+
+def test_prediction_intervals_resample_in_the_worker_with_the_stored_seed(qtbot, tmp_path):
+    from analysis.kinetics.uncertainty import prediction_intervals
+    from app.widgets.formatting import fmt_estimate, k_unit
+
+    view = _seeded_view(qtbot, tmp_path, 7)
+    job = view.intervals_job
+    assert job.running  # started in the worker, not computed on the GUI thread
+    assert "resampling" in view.prediction.problem.text()
+    assert "95 % CI" not in view.prediction.form.text("k")
+    qtbot.waitUntil(lambda: not job.running, timeout=60_000)
+    shown = view.prediction.form.text("k")
+    # the same numbers as the report's resampling with the project's stored seed
+    expected = prediction_intervals(view.model.result(0), "bulk-3d", seed=7, thickness_um=THICKNESS_UM)
+    assert shown == fmt_estimate(expected.k_per_min_n, k_unit(3.0)) and "95 % CI" in shown
+    assert view.prediction.problem.text() == ""
+    again = _seeded_view(qtbot, tmp_path, 7)  # a re-run repeats them
+    qtbot.waitUntil(lambda: not again.intervals_job.running, timeout=60_000)
+    assert again.prediction.form.text("k") == shown
+    other = _seeded_view(qtbot, tmp_path, 8)  # another seed, other draws
+    qtbot.waitUntil(lambda: not other.intervals_job.running, timeout=60_000)
+    assert other.prediction.form.text("k") != shown
+
+
+def test_cancel_stops_the_resampling_and_compute_restarts_it(qtbot, tmp_path, monkeypatch):
+    import time
+
+    from analysis.kinetics import uncertainty
+    from analysis.progress import Progress
+    from app.kinetics import logic
+
+    def slow_steps(*args, **kwargs):  # the real resampling, after a long stretch of progress
+        for i in range(400):
+            time.sleep(0.005)
+            yield Progress("resampling", i / 800)
+        return (yield from uncertainty.prediction_intervals_steps(*args, **kwargs))
+
+    monkeypatch.setattr(logic, "prediction_intervals_steps", slow_steps)
+    view = _seeded_view(qtbot, tmp_path, 3)
+    job = view.intervals_job
+    assert job.running and job.button.text() == "Cancel"
+    job.button.click()
+    qtbot.waitUntil(lambda: not job.running, timeout=30_000)
+    assert "cancelled" in view.prediction.problem.text()
+    assert "95 % CI" not in view.prediction.form.text("k")
+    view.refresh()  # a redraw does not start it again behind the user's back
+    assert not job.running and job.button.text() == "Compute"
+    job.button.click()
+    assert job.running
+    qtbot.waitUntil(lambda: not job.running, timeout=60_000)
+    assert "95 % CI" in view.prediction.form.text("k") and view.prediction.problem.text() == ""

@@ -42,6 +42,7 @@ def test_table_sorts_and_copies_tsv(view):
     assert table.proxy.rowCount() == len(FIXTURE_A)
     header = table.header()
     assert "Tc (°C)" in header and "G (µm/min)" in header and "G 95 % CI low (µm/min)" in header
+    assert "predicted t½ (min) 95 % CI high" not in header and "predicted t½ 95 % CI high (min)" in header
     tc_col, g_col = header.index("Tc (°C)"), header.index("G (µm/min)")
     table.view.sortByColumn(g_col, QtCore.Qt.SortOrder.AscendingOrder)
     rows = table.shown_rows()
@@ -185,3 +186,45 @@ def test_double_click_selects_the_experiment_and_undo_text_names_the_constant(vi
     assert view.model.experiment(view.model.current_index).temperature_c == 145.0
     _set_spin(view.constants.tm0, 185.0)
     assert view.model.undo_stack.undoText() == "Set Tm0 = 185 °C"
+
+
+def test_lh_intervals_resample_in_the_worker_with_the_stored_seed(qtbot, tmp_path):
+    from analysis.reporting.entries import lauritzen_hoffman_series, series_constants
+    from app.widgets.formatting import fmt_estimate
+
+    results = [hand_made_result(temperature_c=tc, g=g) for tc, g in FIXTURE_A.items()]
+    model = model_with(results, tmp_path)
+    series = {"tm0_c": 185.0, "tg_c": -10.0, "resampling_seed": 5}
+    model.set_project_fields(series=series)
+    view = TemperatureView(model)
+    qtbot.addWidget(view)
+    view.show()
+    assert view.lh_job.running  # in the worker, not on the GUI thread
+    assert "resampling" in view.lh_results.message.text()
+    qtbot.waitUntil(lambda: not view.lh_job.running, timeout=60_000)
+    # the report's numbers: same function, same inputs, the project's stored seed
+    constants, _ = series_constants(series, model.project.material)
+    report = lauritzen_hoffman_series(view.entries, constants, model.project.material, seed=5).intervals
+    form = view.lh_results.form
+    assert form.text("kg") == fmt_estimate(report.kg_k2, "K²") and "95 % CI" in form.text("kg")
+    assert form.text("g0") == fmt_estimate(report.g0_um_per_min, "µm/min")
+    assert form.text("sigma_sigma_e") == fmt_estimate(report.sigma_sigma_e_j2_per_m4, "J²/m⁴")
+    assert fmt_estimate(report.sigma_e_j_m2.scaled(1e3), "mJ/m²") in form.text("sigma")
+    assert "resampled series" in form.text("regimes")  # how often the draws find a break
+    assert "resampling" not in view.lh_results.message.text()
+
+
+def test_stage_uncertainty_of_the_project_is_one_undo_step(view):
+    model, spin = view.model, view.constants.stage_u
+    header = view.table.header()
+    column = header.index("stage u_T (K)")
+    assert spin.value() == 0.5 and "stage_uncertainty_k" not in model.project.series  # the default
+    assert {row[column] for row in view.table.shown_rows()} == {"0.5"}
+    _set_spin(spin, 0.5)  # the default confirmed: nothing to undo
+    assert model.undo_stack.count() == 0
+    _set_spin(spin, 1.2)
+    assert model.undo_stack.count() == 1 and model.project.series["stage_uncertainty_k"] == 1.2
+    assert model.undo_stack.undoText() == "Set stage-temperature uncertainty = 1.2 K"
+    assert {row[column] for row in view.table.shown_rows()} == {"1.2"}  # every experiment follows
+    model.undo_stack.undo()
+    assert "stage_uncertainty_k" not in model.project.series and spin.value() == 0.5

@@ -68,6 +68,24 @@ def test_properties_dialog_changes_are_one_undo_entry(window):
     assert window.model.experiment(0).temperature_c == 128.0
 
 
+def test_stage_uncertainty_override_is_one_undo_entry_and_keeps_the_analysis(window):
+    dialog = PropertiesDialog(window.model.experiment(0))
+    assert dialog.numbers["stage_uncertainty_k"].text() == ""  # empty: the project's value
+    dialog.numbers["stage_uncertainty_k"].setText("0,8")
+    changes = dialog.changes()
+    assert changes == {"stage_uncertainty_k": 0.8}
+    window.model.set_experiment_properties(0, "Edit properties", **changes)
+    assert window.model.undo_stack.count() == 1
+    assert window.model.experiment(0).stage_uncertainty_k == 0.8
+    assert window.model.status(0) != m.STATUS_STALE  # the frame pass does not depend on it
+    window.undo()
+    assert window.model.experiment(0).stage_uncertainty_k is None
+    for bad in ("-0.1", "25"):
+        dialog.numbers["stage_uncertainty_k"].setText(bad)
+        with pytest.raises(InputError, match="Stage-temperature uncertainty"):
+            dialog.changes()
+
+
 def test_calibration_line_gives_scale_and_applies_to_all_in_one_step(window, qtbot):
     dialog = CalibrationDialog(np.zeros((120, 160), np.uint8))
     qtbot.addWidget(dialog)
