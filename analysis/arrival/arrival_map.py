@@ -263,6 +263,9 @@ def _set_up(first, second, last, settings, mode, *, integer_data, full_scale):
         float(np.mean(noise)), crystal_noise or 0.0)
     model = segment.MeltModel(level=first.copy(), noise=noise, blind=np.zeros(first.shape[:2], bool),
                               smoothing_px=quality.smoothing_for(snr, settings.smoothing_px))
+    if contrast is not None:  # dim parts of the field get the smoothing their own contrast needs
+        brightness = quality.local_brightness(last[1], first, noise, crystal_last)
+        model = segment.with_local_smoothing(model, quality.smoothing_map(snr, brightness, model.smoothing_px))
     probe = _QualityProbe(contrast, crystal_noise, full_scale)
     ones = np.ones(model.channels, np.float32)
     trial = segment.evidence(second, model, ones)
@@ -342,7 +345,7 @@ def _frame_shift(state, drift, diff, model, at_start, k):
     if drift.ever_measured and k % state.settings.register_every_frames:
         return drift.coast()
     camera = WindowedImage(diff.shape[:2], lambda rows, cols: segment.evidence_from_difference(
-        diff[rows, cols], model))  # only the registration window, most frames
+        diff[rows, cols], model, local=False))  # only the registration window, most frames
     shift = drift.update(camera, _settled_in_camera(state, at_start, k, state.shifts[k - 1]))
     state.measured[k] = drift.measured
     return shift
@@ -398,7 +401,8 @@ def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised
     if probe.front_evidence is not None:
         measured = np.where(filled, np.nan, arrival)
         blur = quality.edge_blur_px(probe.front_evidence.reshape(arrival.shape), plateau, measured,
-                                    float(times[probe.front_frame]), slowness, model.smoothing_px)
+                                    float(times[probe.front_frame]), slowness, _applied_smoothing(model),
+                                    interval_s=float(np.median(np.diff(times))))
     noise_dn = float(np.mean(model.noise))
     level = model.level if model.level.ndim == 2 else model.level.sum(axis=2)
     # The melt shows the lamp directly (block means beat its noise even when it is dim);
@@ -408,7 +412,16 @@ def _image_quality(probe, model, arrival, plateau, times, slowness, crystallised
     return quality.measure(noise_dn=noise_dn, crystal_noise_dn=probe.crystal_noise, full_scale=probe.full_scale,
                            contrast_noise_units=probe.contrast,
                            smoothing_px=model.smoothing_px, crystallised=crystallised, inferred=filled,
-                           blur_px=blur, illumination_unevenness=uneven)
+                           blur_px=blur, illumination_unevenness=uneven,
+                           widest_smoothing_px=model.wide_smoothing_px or None)
+
+
+def _applied_smoothing(model):
+    """The evidence smoothing sigma, px: one number, or per pixel where a wider smoothing
+    is blended in for the dim parts of the field (the sigma each pixel's blend matches)."""
+    if model.wide_weight is None:
+        return model.smoothing_px
+    return (model.smoothing_px * model.wide_gain).astype(np.float32)  # noise sd ∝ 1/σ
 
 
 def _extrapolated_before_start(arrival, reliable, at_start, slowness):

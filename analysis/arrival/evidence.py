@@ -40,7 +40,7 @@ from analysis.settings import CHANNEL_MODES  # described once with the other set
 
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
-    "blind_pixels", "sample_step", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
+    "blind_pixels", "sample_step", "with_local_smoothing", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
     "estimate_slowness", "complete_wedges",
 ]
 
@@ -60,12 +60,21 @@ class MeltModel:
         Camera pixels covered by dense dust (no usable light).
     smoothing_px : float
         Gaussian sigma applied to the difference before its magnitude, px.
+    wide_smoothing_px : float
+        Second, wider Gaussian sigma for the dimly lit parts of the field, px (0: none;
+        see :func:`with_local_smoothing`).
+    wide_weight, wide_gain : ndarray, float32, (H, W), or None
+        Per-pixel share of the wide smoothing in the blend, and the factor that brings
+        the blend's noise back to that of ``smoothing_px`` (camera coordinates).
     """
 
     level: np.ndarray
     noise: np.ndarray
     blind: np.ndarray
     smoothing_px: float = 1.0
+    wide_smoothing_px: float = 0.0
+    wide_weight: np.ndarray | None = None
+    wide_gain: np.ndarray | None = None
 
     @property
     def any_blind(self) -> bool:
@@ -177,24 +186,66 @@ def melt_difference(image: np.ndarray, model: MeltModel, gain: np.ndarray) -> np
     return diff
 
 
-def evidence_from_difference(diff: np.ndarray, model: MeltModel, shift_yx=(0.0, 0.0)) -> np.ndarray:
+def with_local_smoothing(model: MeltModel, needed_px: np.ndarray | None) -> MeltModel:
+    """The model with a second, wider smoothing blended in where the light is dim.
+
+    ``needed_px`` (H, W) is the Gaussian sigma each part of the field needs for its own
+    crystal to stand out of the noise (:func:`analysis.arrival.quality.smoothing_map`).
+    The evidence becomes ``g(p)·[(1 − w) G_σ0 + w G_σ1] * diff`` with σ0 the model's
+    smoothing and σ1 the largest sigma needed. The blend of two Gaussians of white noise
+    has variance (1 − w)²v0 + w²v1 + 2w(1 − w)c01, v_k = 1/(4πσ_k²) and
+    c01 = 1/(2π(σ0² + σ1²)); w is chosen so that this equals the variance of G_σ(p)
+    (σ(p) the sigma needed there) and g(p) scales the blend's noise back to G_σ0's. Melt
+    noise therefore looks the same everywhere, one detection threshold serves the whole
+    field, and a dim crystal reaches it as a bright one does: each part of the field is
+    judged on its own signal-to-noise ratio. With less than a quarter pixel between σ0
+    and σ1 the model is returned unchanged (no second filter, no cost).
+    """
+    s0 = float(model.smoothing_px)
+    if needed_px is None:
+        return model
+    s1 = float(np.max(needed_px))
+    if s1 - s0 < 0.25:
+        return model
+    v0, v1, c01 = (1.0 / (4 * np.pi * s0 ** 2), 1.0 / (4 * np.pi * s1 ** 2), 1.0 / (2 * np.pi * (s0 ** 2 + s1 ** 2)))
+    w = np.linspace(0.0, 1.0, 201)
+    blend_sd = np.sqrt((1 - w) ** 2 * v0 + w ** 2 * v1 + 2 * w * (1 - w) * c01)  # decreasing in w
+    target_sd = 1.0 / (2.0 * np.sqrt(np.pi) * np.clip(needed_px, s0, s1))
+    weight = np.interp(target_sd, blend_sd[::-1], w[::-1]).astype(np.float32)
+    gain = (np.sqrt(v0) / np.interp(weight, w, blend_sd)).astype(np.float32)
+    return MeltModel(level=model.level, noise=model.noise, blind=model.blind, smoothing_px=s0,
+                     wide_smoothing_px=s1, wide_weight=weight, wide_gain=gain)
+
+
+def _gaussian(diff, sigma, dy, dx, whole_y, whole_x):
+    radius = int(round(2.0 * sigma))  # ±2σ is plenty, and faster than ±4σ
+    if dy == whole_y and dx == whole_x:
+        return cv2.GaussianBlur(diff, (2 * radius + 1, 2 * radius + 1), sigma, borderType=cv2.BORDER_REPLICATE)
+    kernel_y = _shifted_gaussian(sigma, radius, dy - whole_y)
+    kernel_x = _shifted_gaussian(sigma, radius, dx - whole_x)
+    return cv2.sepFilter2D(diff, cv2.CV_32F, kernel_x, kernel_y, borderType=cv2.BORDER_REPLICATE)
+
+
+def evidence_from_difference(diff: np.ndarray, model: MeltModel, shift_yx=(0.0, 0.0), *,
+                             local: bool = True) -> np.ndarray:
     """Smoothed magnitude of a melt difference, optionally resampled onto frame 0's grid.
 
     ``out(p) = |G_σ * diff|(p + shift)`` summed over channels: the Gaussian and the
     bilinear sub-pixel shift are one separable filter, the whole-pixel part a slice, so
     registering costs no extra pass over the frame. Pixels that were outside the camera
-    field get 0.
+    field get 0. When the model blends in a wider smoothing for dim parts of the field
+    (:func:`with_local_smoothing`), the blend replaces G_σ; ``local=False`` skips it
+    (a window of the frame, for registration).
     """
     dy, dx = float(shift_yx[0]), float(shift_yx[1])
     whole_y, whole_x = int(np.floor(dy)), int(np.floor(dx))
-    radius = int(round(2.0 * model.smoothing_px))  # ±2σ is plenty, and faster than ±4σ
-    if dy == whole_y and dx == whole_x:
-        smooth = cv2.GaussianBlur(diff, (2 * radius + 1, 2 * radius + 1), model.smoothing_px,
-                                  borderType=cv2.BORDER_REPLICATE)
-    else:
-        kernel_y = _shifted_gaussian(model.smoothing_px, radius, dy - whole_y)
-        kernel_x = _shifted_gaussian(model.smoothing_px, radius, dx - whole_x)
-        smooth = cv2.sepFilter2D(diff, cv2.CV_32F, kernel_x, kernel_y, borderType=cv2.BORDER_REPLICATE)
+    smooth = _gaussian(diff, model.smoothing_px, dy, dx, whole_y, whole_x)
+    if local and model.wide_weight is not None:
+        wide = _gaussian(diff, model.wide_smoothing_px, dy, dx, whole_y, whole_x)
+        weight, gain = model.wide_weight, model.wide_gain
+        if smooth.ndim == 3:
+            weight, gain = weight[..., None], gain[..., None]
+        smooth = (smooth + weight * (wide - smooth)) * gain  # camera coordinates: the map is slow
     if model.channels == 1 and (whole_y or whole_x):
         return _slide(smooth, whole_y, whole_x, magnitude=True)  # one pass for both
     magnitude = np.abs(smooth, out=smooth)

@@ -21,11 +21,12 @@ import math
 
 import cv2
 import numpy as np
+from scipy import ndimage
 
 from analysis import heuristics
 from analysis.results import ImageQuality
 
-__all__ = ["crystal_contrast", "crystal_noise", "smoothing_for", "edge_blur_px", "unevenness", "measure"]
+__all__ = ["crystal_contrast", "crystal_noise", "smoothing_for", "local_brightness", "smoothing_map", "edge_blur_px", "unevenness", "measure"]
 
 _PROBE_SIGMA_PX = 2.0  # smoothing used to find crystalline pixels in the last frame
 
@@ -83,6 +84,62 @@ def smoothing_for(snr: float | None, minimum_px: float) -> float:
     return float(min(max(sigma, minimum_px), max(rules.max_adaptive_smoothing_px, minimum_px)))
 
 
+def _probe_evidence(last, level, noise):
+    diff = (np.asarray(last, np.float32) - level) / noise.reshape((1, 1, -1) if level.ndim == 3 else ())
+    smooth = np.abs(cv2.GaussianBlur(diff, (0, 0), _PROBE_SIGMA_PX))
+    return smooth.sum(axis=2) if smooth.ndim == 3 else smooth
+
+
+def local_brightness(last: np.ndarray, level: np.ndarray, noise: np.ndarray, crystal: np.ndarray,
+                     block_px: int = 64) -> np.ndarray | None:
+    """How bright the crystal is in each part of the field relative to the whole field's
+    bright crystal (H, W float32, about 1 where the light is full, lower where it is dim).
+
+    The bright crystal of a block is the 90th percentile of its crystalline pixels (as in
+    :func:`crystal_contrast`); the largest over the block and its eight neighbours is the
+    level a bright quadrant reaches there (a block may lie in one dark extinction arm),
+    then blocks without crystal take the nearest block's value and the map is
+    interpolated smoothly. It follows uneven illumination (a lamp off centre, vignetting)
+    because the light a crystal transmits is proportional to the light it receives.
+    None when fewer than 4 blocks hold enough crystal.
+    """
+    smooth = _probe_evidence(last, level, noise)
+    height, width = crystal.shape
+    rows, cols = max(height // block_px, 1), max(width // block_px, 1)
+    grid = np.full((rows, cols), np.nan, np.float32)
+    for i in range(rows):
+        for j in range(cols):
+            r = slice(i * height // rows, (i + 1) * height // rows)
+            c = slice(j * width // cols, (j + 1) * width // cols)
+            mask = crystal[r, c]
+            if mask.mean() >= 0.1:
+                grid[i, j] = np.percentile(smooth[r, c][mask], 90)
+    known = np.isfinite(grid)
+    if np.count_nonzero(known) < 4:
+        return None
+    _, (iy, ix) = ndimage.distance_transform_edt(~known, return_indices=True)
+    grid = grid[iy, ix]
+    grid = ndimage.maximum_filter(grid, size=3, mode="nearest")
+    overall = float(np.percentile(smooth[crystal], 90))
+    if overall <= 0:
+        return None
+    # Block centres → pixels, linear in between and constant beyond the outer centres.
+    smooth_map = cv2.resize(grid, (width, height), interpolation=cv2.INTER_LINEAR)
+    return np.clip(smooth_map / overall, 0.0, None).astype(np.float32)
+
+
+def smoothing_map(snr: float | None, brightness: np.ndarray | None, minimum_px: float) -> np.ndarray | None:
+    """Gaussian sigma (px) each part of the field needs, :func:`smoothing_for` applied to the
+    local signal-to-noise ratio ``snr × brightness`` (continuous, not in quarter pixels);
+    None without a brightness map."""
+    if brightness is None or snr is None or not math.isfinite(snr) or snr <= 0:
+        return None
+    rules = heuristics.current()
+    local = snr * np.maximum(brightness, 1e-3)
+    needed = rules.target_smoothed_snr / (2.0 * math.sqrt(math.pi) * 0.5 * local)
+    return np.clip(needed, minimum_px, max(rules.max_adaptive_smoothing_px, minimum_px)).astype(np.float32)
+
+
 def unevenness(image: np.ndarray, mask: np.ndarray | None = None) -> float | None:
     """1 − (5th / 95th percentile) of the slowly varying level of ``image`` over ``mask``.
 
@@ -105,20 +162,40 @@ def unevenness(image: np.ndarray, mask: np.ndarray | None = None) -> float | Non
     return float(np.clip(1.0 - low / high, 0.0, 1.0)) if high > 0 else None
 
 
+def _smoothed_arrival(arrival_s: np.ndarray, sigma_px: float) -> np.ndarray:
+    """Normalised Gaussian average of the finite arrival times (NaN where fewer than half
+    the weight is finite). Along a growth cone the time is linear in the distance, so the
+    average keeps it while the pixel-to-pixel timing scatter averages out."""
+    valid = np.isfinite(arrival_s)
+    weight = cv2.GaussianBlur(valid.astype(np.float32), (0, 0), sigma_px)
+    total = cv2.GaussianBlur(np.where(valid, arrival_s, 0.0).astype(np.float32), (0, 0), sigma_px)
+    out = np.full(arrival_s.shape, np.nan, np.float32)
+    np.divide(total, weight, out=out, where=(weight >= 0.5) & valid)
+    return out
+
+
 def edge_blur_px(evidence_frame: np.ndarray, plateau: np.ndarray, arrival_s: np.ndarray,
-                 frame_time_s: float, slowness_s_per_px: float, smoothing_px: float) -> float | None:
-    """Gaussian sigma (px) of the crystal/melt edge beyond the applied smoothing: defocus,
-    the softness of the front and the scatter of the arrival times together.
+                 frame_time_s: float, slowness_s_per_px: float, smoothing_px,
+                 interval_s: float | None = None) -> float | None:
+    """Gaussian sigma (px) of the crystal/melt edge beyond the applied smoothing: defocus
+    and the softness of the front.
 
     Pixels near the front of one frame are placed by their signed distance to it,
     ``(frame time − arrival) / slowness``, and their evidence relative to their own
     plateau is a smoothed step of that distance: the spread between its 25 % and 75 %
-    points is 1.349 σ for a Gaussian edge. The smoothing applied is removed in
-    quadrature. None when fewer than 200 pixels lie within 8 px of the front.
+    points is 1.349 σ for a Gaussian edge. The arrival times are first averaged over a
+    Gaussian of half a frame step (``interval_s / slowness``, at least 1.5 px): single
+    pixels' times scatter with the noise and, between frames, with where the front
+    stood at each frame; left in, that scatter would be read as blur (an upward bias).
+    The smoothing applied is removed in quadrature (``smoothing_px``: a number, or the
+    per-pixel sigma of a locally adapted smoothing). None when fewer than 200 pixels lie
+    within 8 px of the front.
     """
     if not (math.isfinite(slowness_s_per_px) and slowness_s_per_px > 0):
         return None
-    distance = (frame_time_s - arrival_s) / slowness_s_per_px
+    step_px = (interval_s / slowness_s_per_px) if interval_s else 0.0
+    arrival = _smoothed_arrival(arrival_s, max(1.5, 0.5 * step_px))
+    distance = (frame_time_s - arrival) / slowness_s_per_px
     near = np.isfinite(distance) & (np.abs(distance) <= 8.0) & (plateau > 0)
     if np.count_nonzero(near) < 200:
         return None
@@ -140,14 +217,17 @@ def edge_blur_px(evidence_frame: np.ndarray, plateau: np.ndarray, arrival_s: np.
     quarter = np.interp(0.25 * top, profile, centre)
     three = np.interp(0.75 * top, profile, centre)
     sigma_edge = (three - quarter) / 1.349
-    return float(math.sqrt(max(sigma_edge ** 2 - smoothing_px ** 2, 0.0)))
+    applied = float(np.sqrt(np.mean(np.square(smoothing_px[near])))) if np.ndim(smoothing_px) else float(smoothing_px)
+    return float(math.sqrt(max(sigma_edge ** 2 - applied ** 2, 0.0)))
 
 
 def measure(*, noise_dn: float, crystal_noise_dn: float | None, full_scale: float,
             contrast_noise_units: float | None,
             smoothing_px: float, crystallised: np.ndarray, inferred: np.ndarray,
-            blur_px: float | None, illumination_unevenness: float | None) -> ImageQuality:
-    """The image-quality block of one recording (see :class:`analysis.results.ImageQuality`)."""
+            blur_px: float | None, illumination_unevenness: float | None,
+            widest_smoothing_px: float | None = None) -> ImageQuality:
+    """The image-quality block of one recording (see :class:`analysis.results.ImageQuality`);
+    ``widest_smoothing_px``: the sigma used where the light is dimmest, when wider."""
     rules = heuristics.current()
     noise = noise_dn / full_scale
     contrast = None if contrast_noise_units is None else contrast_noise_units * noise
@@ -168,7 +248,11 @@ def measure(*, noise_dn: float, crystal_noise_dn: float | None, full_scale: floa
                    ". Count by hand, or record with more light, a longer exposure or frame averaging.")
     else:
         verdict = f"Good enough for automatic counting (signal-to-noise {snr:.1f} per pixel"
-        verdict += f", smoothing {smoothing_px:.2g} px)." if smoothing_px > 1.0 else ")."
+        if widest_smoothing_px and widest_smoothing_px > smoothing_px:
+            verdict += (f", smoothing {smoothing_px:.2g} px, up to {widest_smoothing_px:.2g} px where the "
+                        "light is dim).")
+        else:
+            verdict += f", smoothing {smoothing_px:.2g} px)." if smoothing_px > 1.0 else ")."
         if illumination_unevenness is not None and illumination_unevenness > rules.uneven_illumination:
             verdict += (f" The illumination falls by {illumination_unevenness:.0%} across the field;"
                         " centring the lamp would help.")

@@ -119,6 +119,6 @@ def _ramp_outputs(analysis, programme, constants, args, time_offset_s: float) ->
     print(f"{len(growth.tracks)} spherulites in G(T) over {growth.temperature_c.min():.1f}-"
           f"{growth.temperature_c.max():.1f} °C (G {growth.growth_rate_um_per_min.min():.3g}-"
           f"{growth.growth_rate_um_per_min.max():.3g} µm/min){kg}; outputs in {args.out}")
-    for warning in growth.warnings:
+    for warning in ramp.warnings():
         print(f"warning: {warning}", file=sys.stderr)
     return 0

@@ -18,14 +18,17 @@ __all__ = ["GROWTH_COLUMNS", "NUCLEATION_COLUMNS", "growth_table", "nucleation_t
            "radii_figure", "growth_figure", "write_ramp_outputs"]
 
 GROWTH_COLUMNS = ["temperature_c", "growth_rate_um_per_min", "growth_rate_um_per_min_ci95_low",
-                  "growth_rate_um_per_min_ci95_high", "n_spherulites"]
+                  "growth_rate_um_per_min_ci95_high", "n_spherulites", "front_advance_px_per_frame"]
 NUCLEATION_COLUMNS = ["temperature_c", "n_nuclei", "cumulative_per_mm2", "rate_per_mm2_per_min"]
 
 
-def growth_table(growth) -> Table:
-    rows = [[float(t), float(g), float(lo), float(hi), int(n)] for t, g, lo, hi, n in zip(
+def growth_table(ramp) -> Table:
+    """G(T) with its band, the spherulites behind each temperature and the front's advance
+    per frame (px) of a ramp analysis whose G(T) did not fail."""
+    growth = ramp.growth
+    rows = [[float(t), float(g), float(lo), float(hi), int(n), float(a)] for t, g, lo, hi, n, a in zip(
         growth.temperature_c, growth.growth_rate_um_per_min, growth.ci95_low, growth.ci95_high,
-        growth.n_spherulites)]
+        growth.n_spherulites, ramp.front_advance_px_per_frame)]
     return Table(list(GROWTH_COLUMNS), rows)
 
 
@@ -50,7 +53,7 @@ def ramp_summary(ramp) -> dict:
     out["growth"] = {"n_spherulites": len(g.tracks), "n_points": g.n_points,
                      "residual_um": g.residual_um, "smoothing": g.smoothing,
                      "temperature_range_c": [float(g.temperature_c.min()), float(g.temperature_c.max())],
-                     "warnings": list(g.warnings)}
+                     "warnings": ramp.warnings()}
     out["lauritzen_hoffman"] = ({"failure": lh.reason} if not lh else {
         "kg_k2": lh.kg_k2, "kg_ci95": lh.kg_ci95, "g0_um_per_min": lh.g0_um_per_min,
         "tm0_c": lh.constants.tm0_c, "tg_c": lh.constants.tg_c, "t_inf_c": lh.constants.t_inf,
@@ -112,7 +115,7 @@ def write_ramp_outputs(ramp, out_dir, *, prefix: str = "") -> list[str]:
         written = []
         tables = {"nucleation_vs_temperature": nucleation_table(ramp.nucleation)}
         if ramp.growth:
-            tables = {"growth_vs_temperature": growth_table(ramp.growth), **tables}
+            tables = {"growth_vs_temperature": growth_table(ramp), **tables}
         for name, table in tables.items():
             written.append(write_csv(table, out / f"{prefix}{name}.csv").name)
         written.append(write_xlsx(tables, out / f"{prefix}growth_vs_temperature.xlsx").name)

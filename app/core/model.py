@@ -209,6 +209,13 @@ class ProjectModel(QObject):
         new = dataclasses.replace(experiment, edits=tuple(experiment.edits) + (edit,))
         self.replace_experiment(index, new, text or describe_edit(edit))
 
+    def push_edits(self, index: int, edits: Iterable[Any], text: str) -> None:
+        """Append several ``analysis.edits`` records to experiment ``index`` as ONE undo
+        entry (a split: the first centre moved and the second nucleus added)."""
+        experiment = self.experiment(index)
+        new = dataclasses.replace(experiment, edits=tuple(experiment.edits) + tuple(edits))
+        self.replace_experiment(index, new, text)
+
     def remove_edit(self, index: int, position: int) -> None:
         """Remove the edit at ``position`` of experiment ``index``'s edit list."""
         experiment = self.experiment(index)

@@ -8,7 +8,11 @@ and split each push exactly one edit, so each is one undo step:
 
 - accept: an ``include`` edit (counts it, and promotes a rejected candidate);
 - reject: a ``delete`` edit (a false detection: dust, a bubble, noise);
-- split: switches to the add-nucleus tool; the next click places the second nucleus.
+- split: the detection becomes two spherulites at the nuclei of the best two-cone fit to
+  its arrival times (:func:`analysis.spherulites.pipeline.split_nuclei`): its centre
+  moves to the first, a nucleus is added at the second; both edits are one undo step,
+  kept in the project and replayed after every re-analysis. When its pixels cannot
+  support two cones, the add-nucleus tool is offered so the second nucleus can be clicked.
 """
 
 from __future__ import annotations
@@ -17,8 +21,9 @@ from typing import Any
 
 from PySide6.QtCore import QObject, Signal
 
-from analysis.edits import DeleteDetection, IncludeSpherulite
+from analysis.edits import AddNucleus, DeleteDetection, IncludeSpherulite, MoveCentre
 from analysis.spherulites.evidence_checks import best_frame, nearest_other_px, review_order
+from analysis.spherulites.pipeline import split_nuclei
 
 
 class ReviewQueue(QObject):
@@ -59,12 +64,22 @@ class ReviewQueue(QObject):
         self._edit(DeleteDetection, "rejected")
 
     def split(self) -> None:
-        target = self._model.selected_spherulite()
-        if target is None:
+        index, target = self._model.current_index, self._model.selected_spherulite()
+        if index < 0 or target is None:
             self.message.emit("Select a detection first (next doubtful: J).")
             return
-        self._tools.set_tool("add")
-        self.message.emit(f"Click the second nucleus inside #{target.id} (S: back to select).")
+        analysis = self._model.analysis(index)
+        pair = split_nuclei(analysis, target.id) if analysis is not None else None
+        if pair is None:
+            self._tools.set_tool("add")
+            self.message.emit(f"#{target.id} shows one growing front only; click the second nucleus "
+                              "yourself (S: back to select).")
+            return
+        (ax, ay), (bx, by) = pair
+        self._model.push_edits(index, (MoveCentre(target.x_px, target.y_px, ax, ay, id=target.id),
+                                       AddNucleus(bx, by)),
+                               f"Split #{target.id} into nuclei at ({ax:.1f}, {ay:.1f}) and ({bx:.1f}, {by:.1f}) px")
+        self.message.emit(f"#{target.id} split in two; J for the next doubtful detection.")
 
     # ---------------------------------------------------------------- internals
     def _edit(self, kind, word: str) -> None:

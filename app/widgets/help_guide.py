@@ -36,7 +36,8 @@ _VIEWER = (
     "Review queue: J and K go to the next and previous doubtful detection (lowest confidence "
     "first), zoomed, in the frame where its front is half-way to its nearest neighbour. A "
     "accepts it (counts it; promotes a rejected candidate), X rejects it (deletes it as "
-    "false), Shift+N splits it (click the second nucleus). Each is one undo step.",
+    "false), Shift+N splits it into two spherulites at the two nuclei that fit its growth "
+    "best (when its growth shows one front only, click the second nucleus). Each is one undo step.",
 )
 
 _TOOLS = (

@@ -48,6 +48,16 @@ class ExportedFigure:
 class DecadeAxis(pg.AxisItem):
     """Logarithmic axis labelled at 1, 2 and 5 times a power of ten only (no crowding)."""
 
+    def tickValues(self, minVal, maxVal, size):  # noqa: N802,N803 - pyqtgraph override
+        """The decades once: pyqtgraph's minor level repeats the major level's values, and
+        their labels, drawn twice a hair apart, overlapped."""
+        levels = super().tickValues(minVal, maxVal, size)
+        if not self.logMode or len(levels) < 2:
+            return levels
+        major = {round(float(v), 6) for v in levels[0][1]}
+        return [levels[0], *[(spacing, [v for v in values if round(float(v), 6) not in major])
+                             for spacing, values in levels[1:]]]
+
     def logTickStrings(self, values, scale, spacing):
         """Labels written by the application's one number rule (``20``, ``5 × 10⁴``)."""
         keep = []

@@ -89,7 +89,7 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("reject_detection", "Re&ject the detection", "review_reject", "Tools", "X",
                tip="Delete the selected detection as false (dust, bubble, noise); one undo step"),
     ActionSpec("split_detection", "S&plit the detection", "review_split", "Tools", "Shift+N",
-               tip="Click the second nucleus inside the selected detection"),
+               tip="Split the selected detection into two spherulites at the nuclei its growth fits best; one undo step"),
     ActionSpec("show_rejected", "Show &rejected candidates", "set_show_rejected", "View", "Shift+R",
                checkable=True, tip="Show the candidates the analysis rejected, with their reasons"),
     ActionSpec("play", "&Play / pause", "toggle_playing", "View", "Space"),

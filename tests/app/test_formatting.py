@@ -36,3 +36,14 @@ def test_logarithmic_axes_use_the_same_rule(qapp):
     axis = DecadeAxis("left")
     assert axis.logTickStrings([0.0, 1.30103, 1.5, 3.69897, 4.69897, -3.69897], 1.0, 1.0) == [
         "1", "20", "", "5 × 10³", "5 × 10⁴", "2 × 10⁻⁴"]
+
+
+def test_a_logarithmic_axis_labels_each_decade_once(qapp):
+    from app.widgets.plotting import DecadeAxis
+
+    axis = DecadeAxis("left")
+    axis.setLogMode(False, True)
+    labels = [text for spacing, values in axis.tickValues(1.8, 4.8, 300)
+              for text in axis.tickStrings(values, 1.0, spacing) if text]
+    assert sorted(labels) == sorted(["1 × 10²", "1 × 10³", "1 × 10⁴", "2 × 10²", "5 × 10²",
+                                     "2 × 10³", "5 × 10³", "2 × 10⁴", "5 × 10⁴"])

@@ -82,12 +82,42 @@ def test_accept_and_reject_push_one_edit_each_naming_the_detection(queue):
     assert all(e.id == 3 for e in model.edits)
 
 
-def test_split_switches_to_the_add_nucleus_tool(queue):
-    review, model = queue
+def test_split_without_two_cones_offers_the_add_nucleus_tool(queue):
+    review, model = queue  # the stand-in analysis keeps no arrival times: no cones to fit
     messages = []
     review.message.connect(messages.append)
     review.split()
     assert review._tools.tool == "select" and "Select a detection" in messages[-1]
     review.step(+1)
     review.split()
-    assert review._tools.tool == "add" and "#3" in messages[-1]
+    assert review._tools.tool == "add" and "#3" in messages[-1] and model.edits == []
+
+
+def test_split_makes_two_spherulites_in_one_undo_step(qapp, tmp_path):
+    import dataclasses
+
+    from analysis.project.model import Experiment, new_project
+    from analysis.spherulites import pipeline
+    from app.core.model import ProjectModel
+    from tests.analysis.test_review_split import CENTRES, merged_analysis
+
+    analysis, _, merged_id = merged_analysis()
+    experiment = Experiment(name="pair", stack_path=str(tmp_path / "never-read.tif"), temperature_c=130.0,
+                            um_per_px=0.8, edits=analysis.edits)
+    model = ProjectModel(dataclasses.replace(new_project(), experiments=(experiment,)))
+    model.set_analysis(0, analysis, experiment)
+    model.select(0)
+    tools = SimpleNamespace(tool="select", set_tool=lambda name: setattr(tools, "tool", name))
+    review = ReviewQueue(model, _Viewer(), tools)
+    model.select_spherulite(merged_id)
+    before = model.result(0)
+    review.split()
+    after = model.result(0)
+    assert len(after.spherulites) == len(before.spherulites) + 1
+    for x, y in CENTRES[:2]:
+        assert min(np.hypot(s.x_px - x, s.y_px - y) for s in after.spherulites) <= 1.5
+    assert [e.kind for e in model.experiment(0).edits[-2:]] == ["move_centre", "add_nucleus"]
+    model.undo_stack.undo()  # one step takes the whole split back
+    assert model.experiment(0).edits == analysis.edits
+    assert len(model.result(0).spherulites) == len(before.spherulites)
+    assert pipeline.split_nuclei(model.analysis(0), merged_id) is not None
