@@ -68,7 +68,7 @@ def test_analyze_with_a_temperature_log_writes_g_of_t(ramp_folder, tmp_path, cap
     with open(out / "growth_vs_temperature.csv", encoding="utf-8") as fh:
         rows = list(csv.reader(fh))
     assert rows[0] == ["temperature_c", "growth_rate_um_per_min", "growth_rate_um_per_min_ci95_low",
-                       "growth_rate_um_per_min_ci95_high", "n_spherulites"]
+                       "growth_rate_um_per_min_ci95_high", "n_spherulites", "front_advance_px_per_frame"]
     table = np.array(rows[1:], float)
     truth = true_growth_rate(RAMP, table[:, 0])
     assert np.all(table[:, 2] <= table[:, 1]) and np.all(table[:, 1] <= table[:, 3])
