@@ -18,10 +18,8 @@ range of recordings, not one:
 The constants of the pooled-G timing term were set on seeds 0-99, the calorimetry choices
 and the LH interval type on seeds 0-199 (``--first 0 --seeds 200``); the table in the
 README is from seeds 3000-3199 (``--first 3000 --seeds 200``), used for nothing else.
-In the dsc and lh parts the interval's own resampling seed follows the case's seed, as a
-user's stored seed is arbitrary (one fixed seed would reuse the same few noise draws of
-the calorimetry interval in every case); the stack part's 1000-draw bootstrap keeps the
-default seed.
+In every part the interval's own resampling seed follows the case's seed, as a user's
+stored seed is arbitrary (one fixed seed would reuse the same draws in every case).
 
 Usage: nice -n 10 python tests/benchmarks/coverage.py [--seeds 200] [--first 3000]
        [--parts stack,dsc,lh]
@@ -72,7 +70,7 @@ def stack_case(seed: int, workdir: str) -> dict:
     t_half_true = (LN2 / k_true) ** (1.0 / 3.0)
     g = result.growth_rate
     low, high = result.nucleation.density_per_mm2_ci95 or (None, None)
-    pred = prediction_intervals(result, "bulk-3d")
+    pred = prediction_intervals(result, "bulk-3d", seed=seed)
     out = {"G pooled": (g.value, g.ci95_low, g.ci95_high, g_true),
            "N_A": (result.nucleation.density_per_mm2, low, high, n_true)}
     if pred is not None:
