@@ -48,7 +48,7 @@ from analysis.errors import InputError
 from analysis.progress import Progress, run_to_completion, scaled
 from analysis.results import ExperimentResult
 from analysis.settings import DEFAULT_GEOMETRY, GEOMETRIES, AnalysisSettings
-from analysis.spherulites import evidence_checks, growth, nuclei
+from analysis.spherulites import growth, nuclei
 from analysis.spherulites.evaluation import (
     automatic_fit_keys,
     evaluate,
@@ -350,7 +350,7 @@ def apply_edits(analysis: Analysis, edits: Sequence[Edit]) -> Analysis:
 def split_nuclei(analysis: Analysis, spherulite_id: int):
     """Where the two nuclei of one detection would be if it is two spherulites: ((x, y),
     (x, y)) px, the first the nearer to its present centre, from its territory's measured
-    arrival times (:func:`analysis.spherulites.evidence_checks.best_split`); None when
+    arrival times (:func:`analysis.spherulites.nuclei.best_split`); None when
     its pixels cannot support two cones or the analysis keeps no replay state."""
     ctx, result = getattr(analysis, "context", None), getattr(analysis, "result", None)
     if ctx is None or result is None:
@@ -363,7 +363,7 @@ def split_nuclei(analysis: Analysis, spherulite_id: int):
     usable = (np.isfinite(ctx.fit_arrival) & ~ctx.filled & ~ctx.near_start & (ctx.frame_index >= 0)).ravel()
     pix = pix[usable[pix]]
     rows, cols = np.divmod(pix, ctx.shape[1])
-    pair = evidence_checks.best_split(cols, rows, ctx.fit_arrival.ravel()[pix], ctx.slope_s_per_px,
+    pair = nuclei.best_split(cols, rows, ctx.fit_arrival.ravel()[pix], ctx.slope_s_per_px,
                                       f_scale_s=0.5 * ctx.interval_s)
     if pair is None:
         return None

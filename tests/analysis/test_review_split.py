@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from analysis import edits as e
-from analysis.spherulites import evidence_checks, growth, pipeline
+from analysis.spherulites import growth, nuclei, pipeline
 from tests.analysis.test_pipeline import G_PX_PER_S, G_UM_PER_MIN, arrival_from_truth
 
 SHAPE = (160, 200)
@@ -63,4 +63,4 @@ def test_one_cone_is_not_split():
     rng = np.random.default_rng(0)
     y, x = np.mgrid[0:60, 0:60]
     t = 10.0 + 4.0 * np.hypot(x - 30.2, y - 29.7) + rng.normal(0, 1.0, x.shape)
-    assert evidence_checks.best_split(x.ravel(), y.ravel(), t.ravel(), 4.0, f_scale_s=3.0) is None
+    assert nuclei.best_split(x.ravel(), y.ravel(), t.ravel(), 4.0, f_scale_s=3.0) is None
