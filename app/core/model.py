@@ -205,9 +205,7 @@ class ProjectModel(QObject):
 
     def push_edit(self, index: int, edit: Any, text: str | None = None) -> None:
         """Append one ``analysis.edits`` record to experiment ``index`` (one undo entry)."""
-        experiment = self.experiment(index)
-        new = dataclasses.replace(experiment, edits=tuple(experiment.edits) + (edit,))
-        self.replace_experiment(index, new, text or describe_edit(edit))
+        self.push_edits(index, (edit,), text or describe_edit(edit))
 
     def push_edits(self, index: int, edits: Iterable[Any], text: str) -> None:
         """Append several ``analysis.edits`` records to experiment ``index`` as ONE undo
