@@ -41,10 +41,7 @@ def crystal_contrast(last: np.ndarray, level: np.ndarray, noise: np.ndarray) -> 
     bright quadrants, which the dark extinction arms (left out of the mask) do not bias.
     Returns (None, empty mask) when less than 1 % of the field qualifies.
     """
-    diff = (np.asarray(last, np.float32) - level) / noise.reshape((1, 1, -1) if level.ndim == 3 else ())
-    smooth = np.abs(cv2.GaussianBlur(diff, (0, 0), _PROBE_SIGMA_PX))
-    if smooth.ndim == 3:
-        smooth = smooth.sum(axis=2)
+    smooth = _probe_evidence(last, level, noise)
     channels = 1 if level.ndim == 2 else level.shape[2]
     smoothed_noise = channels / (2.0 * math.sqrt(math.pi) * _PROBE_SIGMA_PX)
     crystal = smooth > 6.0 * smoothed_noise
@@ -68,6 +65,13 @@ def crystal_noise(before: np.ndarray, last: np.ndarray, crystal: np.ndarray | No
     return float(np.mean(np.maximum(1.4826 * mad / math.sqrt(2.0), floor)))
 
 
+def _sigma_needed_px(snr):
+    """Gaussian sigma (px, unrounded) that lifts the median crystal pixel, half the bright
+    crystal's ``snr`` (scalar or array), to the target: smoothing white noise with G_σ
+    divides its sd by 2σ√π."""
+    return heuristics.current().target_smoothed_snr / (2.0 * math.sqrt(math.pi) * 0.5 * snr)
+
+
 def smoothing_for(snr: float | None, minimum_px: float) -> float:
     """Gaussian sigma (px) for the evidence: the smallest, in quarter pixels, that lifts a
     typical crystal pixel to the target (never below ``minimum_px``).
@@ -79,8 +83,7 @@ def smoothing_for(snr: float | None, minimum_px: float) -> float:
     rules = heuristics.current()
     if snr is None or not math.isfinite(snr) or snr <= 0:
         return float(minimum_px)
-    needed = rules.target_smoothed_snr / (2.0 * math.sqrt(math.pi) * 0.5 * snr)
-    sigma = math.ceil(needed * 4.0) / 4.0
+    sigma = math.ceil(_sigma_needed_px(snr) * 4.0) / 4.0
     return float(min(max(sigma, minimum_px), max(rules.max_adaptive_smoothing_px, minimum_px)))
 
 
@@ -135,8 +138,7 @@ def smoothing_map(snr: float | None, brightness: np.ndarray | None, minimum_px: 
     if brightness is None or snr is None or not math.isfinite(snr) or snr <= 0:
         return None
     rules = heuristics.current()
-    local = snr * np.maximum(brightness, 1e-3)
-    needed = rules.target_smoothed_snr / (2.0 * math.sqrt(math.pi) * 0.5 * local)
+    needed = _sigma_needed_px(snr * np.maximum(brightness, 1e-3))
     return np.clip(needed, minimum_px, max(rules.max_adaptive_smoothing_px, minimum_px)).astype(np.float32)
 
 
