@@ -25,6 +25,7 @@ from analysis.reporting.tables import (
 )
 from analysis.results import COUNTS
 from app.core.ramp_inputs import RAMPS
+from app.widgets.background import progress_row
 
 #: Display names for the table's columns (the files keep the snake_case names).
 DISPLAY_NAMES = {
@@ -165,19 +166,10 @@ class ReportJob(QtCore.QObject):
         self.worker = None
         self._finished_workers: list = []  # kept alive: their pool thread may still be unwinding
         self.folder = ""
-        self.bar_widget = QtWidgets.QWidget(parent)
-        self.bar = QtWidgets.QProgressBar(self.bar_widget)
-        self.bar.setRange(0, 1000)
-        self.stage = QtWidgets.QLabel("", self.bar_widget)
-        self.cancel_button = QtWidgets.QPushButton("Cancel", self.bar_widget)
+        self.stage = QtWidgets.QLabel("")
+        self.bar_widget, self.bar, self.cancel_button = progress_row(
+            parent, [QtWidgets.QLabel("Report:"), self.stage])
         self.cancel_button.clicked.connect(self.cancel)
-        row = QtWidgets.QHBoxLayout(self.bar_widget)
-        row.setContentsMargins(0, 0, 0, 0)
-        row.addWidget(QtWidgets.QLabel("Report:", self.bar_widget))
-        row.addWidget(self.stage)
-        row.addWidget(self.bar, 1)
-        row.addWidget(self.cancel_button)
-        self.bar_widget.setVisible(False)
 
     @property
     def running(self) -> bool:

@@ -18,6 +18,23 @@ from shiboken6 import isValid
 from app.core.worker import GeneratorWorker
 
 
+def progress_row(parent: QtWidgets.QWidget, labels: list, *, object_name: str = ""):
+    """A hidden row of ``labels``, a progress bar (0-1000) and a Cancel button:
+    (row widget, bar, button)."""
+    widget = QtWidgets.QWidget(parent, objectName=object_name)
+    bar = QtWidgets.QProgressBar(widget)
+    bar.setRange(0, 1000)
+    button = QtWidgets.QPushButton("Cancel", widget)
+    row = QtWidgets.QHBoxLayout(widget)
+    row.setContentsMargins(0, 0, 0, 0)
+    for label in labels:
+        row.addWidget(label)
+    row.addWidget(bar, 1)
+    row.addWidget(button)
+    widget.setVisible(False)
+    return widget, bar, button
+
+
 class BackgroundResults(QtCore.QObject):
     """Keyed results of progress generators, computed one at a time in a worker."""
 
@@ -32,18 +49,9 @@ class BackgroundResults(QtCore.QObject):
         self.worker: GeneratorWorker | None = None
         self._retired: list = []  # finished workers whose pool thread may still be unwinding
         self.key = None
-        self.bar_widget = QtWidgets.QWidget(parent, objectName=object_name)
-        self.label = QtWidgets.QLabel(f"{title}:", self.bar_widget)
-        self.bar = QtWidgets.QProgressBar(self.bar_widget)
-        self.bar.setRange(0, 1000)
-        self.button = QtWidgets.QPushButton("Cancel", self.bar_widget)
+        self.label = QtWidgets.QLabel(f"{title}:")
+        self.bar_widget, self.bar, self.button = progress_row(parent, [self.label], object_name=object_name)
         self.button.clicked.connect(self._button_clicked)
-        row = QtWidgets.QHBoxLayout(self.bar_widget)
-        row.setContentsMargins(0, 0, 0, 0)
-        row.addWidget(self.label)
-        row.addWidget(self.bar, 1)
-        row.addWidget(self.button)
-        self.bar_widget.setVisible(False)
 
     @property
     def running(self) -> bool:
