@@ -62,12 +62,12 @@ def display_name(name: str) -> str:
 
 def report_entries(model, cache) -> list:
     """One ``ReportEntry`` per analysed isothermal experiment (``analysis.reporting.entries.
-    report_entry``, the calorimetry through the page's cache); ramps: :func:`ramp_entries`."""
+    report_entry``, through the page's ``app.core.kinetics_inputs.ReportEntryCache``); ramps:
+    :func:`ramp_entries`."""
     project = model.project
     seed = resampling_seed(project)
-    return [report_entry(experiment, model.result(i), project.material,
-                         lambda source: cache.analyze(source, seed=seed),
-                         stage_uncertainty_k=stage_uncertainty_k(project, experiment), seed=seed)
+    return [cache.entry(experiment, model.result(i), project.material,
+                        stage_uncertainty_k=stage_uncertainty_k(project, experiment), seed=seed)
             for i, experiment in enumerate(model.experiments())
             if model.result(i) is not None and experiment.kind != "ramp"]
 

@@ -17,7 +17,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from analysis.errors import InputError
 from analysis.outputs import file_stem
 from analysis.project.model import resampling_seed
-from app.core.kinetics_inputs import CalorimetryCache
+from app.core.kinetics_inputs import ReportEntryCache
 from app.temperature import export as temperature_export
 from app.temperature import logic
 from app.temperature.lauritzen_hoffman import (
@@ -40,7 +40,7 @@ class TemperatureView(LazyPage):
     def __init__(self, model, parent=None):
         super().__init__(parent)
         self.model = model
-        self.calorimetry = CalorimetryCache()
+        self.entry_cache = ReportEntryCache()
         self.points: list = []
         self.entries: list = []  # analysis.reporting.tables.ReportEntry, project order
         self.ramps: list = []  # entries of ramp experiments with their G(T)
@@ -153,7 +153,7 @@ class TemperatureView(LazyPage):
         self.constants.fill(project.material, project.series)
         self.hw.fill(logic.hw_pairs(project.series))
         self._show_hw()
-        self.entries = temperature_export.report_entries(self.model, self.calorimetry)
+        self.entries = temperature_export.report_entries(self.model, self.entry_cache)
         self.ramps, ramp_problems = temperature_export.ramp_entries(self.model)
         self.points = logic.points_from(self.entries)
         header, rows = temperature_export.table_rows(self.entries)
@@ -256,7 +256,7 @@ class TemperatureView(LazyPage):
             if not path:
                 return None
         try:
-            return temperature_export.write_table(self.model, self.calorimetry, path, kind)
+            return temperature_export.write_table(self.model, self.entry_cache, path, kind)
         except (InputError, OSError) as error:
             QtWidgets.QMessageBox.critical(self, "Table not exported", str(error))
             return None

@@ -8,7 +8,7 @@ import csv
 import openpyxl
 import pytest
 from PySide6 import QtCore, QtWidgets
-from test_kinetics_view import _collect_qt_garbage, hand_made_result, model_with  # noqa: F401 (autouse fixture)
+from test_kinetics_view import HandMadeAnalysis, _collect_qt_garbage, hand_made_result, model_with  # noqa: F401 (autouse fixture)
 
 from app.temperature.view import TemperatureView
 
@@ -236,3 +236,18 @@ def test_stage_uncertainty_of_the_project_is_one_undo_step(view):
     assert {row[column] for row in view.table.shown_rows()} == {"1.2"}  # every experiment follows
     model.undo_stack.undo()
     assert "stage_uncertainty_k" not in model.project.series and spin.value() == 0.5
+
+
+def test_refresh_reuses_entries_until_their_result_changes(view, monkeypatch):
+    """The bootstrap intervals of a prediction are cached on its entry: a refresh with the
+    same results must not resample them again; a new result of one experiment gets a new
+    entry (and so new intervals), the others keep theirs."""
+    before = list(view.entries)
+    assert all("prediction_intervals" in vars(e) for e in before)  # computed for the table
+    view.refresh()
+    assert all(a is b for a, b in zip(view.entries, before))
+    model = view.model
+    model.set_analysis(0, HandMadeAnalysis(hand_made_result(temperature_c=120.0, g=90.0)), model.experiment(0))
+    view.refresh()
+    assert view.entries[0] is not before[0] and view.entries[0].result.growth_rate.value == pytest.approx(90.0)
+    assert all(a is b for a, b in zip(view.entries[1:], before[1:]))
