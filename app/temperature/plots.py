@@ -8,8 +8,9 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6 import QtWidgets
+from PySide6 import QtCore, QtWidgets
 
+from analysis.kinetics.ramp import SUB_PIXEL_FRONT_PX
 from app.widgets.plotting import COLOURS, styled_plot, titled_plot
 
 LH_X_SCALE = 1e5  # the linearised plot's abscissa 1/(T ΔT f) is shown in units of 1e-5 K^-2
@@ -76,22 +77,31 @@ class TemperaturePlots(QtWidgets.QWidget):
         self.growth_errors.setData(x=tc, y=np.log10(g), top=high, bottom=low)
 
     def show_ramps(self, curves) -> None:
-        """Each ramp's G(T) as a line with its 95 % band; ``curves``: (name, RampGrowth) pairs."""
+        """Each ramp's G(T) as a line with its 95 % band; ``curves``: (name, RampAnalysis)
+        pairs. Where the fronts move less than a pixel per frame the line is dashed: G(T)
+        there rests on sub-pixel motion (``RampAnalysis.warnings``)."""
         item = self.growth.getPlotItem()
         for old in self._ramp_items:
             item.removeItem(old)
         self._ramp_items = []
-        for k, (name, g) in enumerate(curves):
-            colour = ("#b03a2e", "#7d3c98", "#117a65", "#a04000")[k % 4]
+        for k, (name, ramp) in enumerate(curves):
+            g, colour = ramp.growth, ("#b03a2e", "#7d3c98", "#117a65", "#a04000")[k % 4]
             low = item.plot(g.temperature_c, g.ci95_low, pen=pg.mkPen(colour, width=0.5))
             high = item.plot(g.temperature_c, g.ci95_high, pen=pg.mkPen(colour, width=0.5))
-            band = pg.FillBetweenItem(low, high, brush=pg.mkBrush(pg.mkColor(colour).red(),
-                                                                   pg.mkColor(colour).green(),
-                                                                   pg.mkColor(colour).blue(), 50))
+            rgb = pg.mkColor(colour)
+            band = pg.FillBetweenItem(low, high, brush=pg.mkBrush(rgb.red(), rgb.green(), rgb.blue(), 50))
             item.addItem(band)
+            resolved = ramp.front_advance_px_per_frame >= SUB_PIXEL_FRONT_PX
+            solid = np.append(resolved[:-1] & resolved[1:], False)  # segment i joins points i, i+1
             line = item.plot(g.temperature_c, g.growth_rate_um_per_min, pen=pg.mkPen(colour, width=2),
-                             name=f"{name} (ramp, 95 % band)")
+                             name=f"{name} (ramp, 95 % band)", connect=solid)
             self._ramp_items += [low, high, band, line]
+            if not resolved.all():
+                dashed = item.plot(g.temperature_c, g.growth_rate_um_per_min,
+                                   pen=pg.mkPen(colour, width=1.5, style=QtCore.Qt.PenStyle.DashLine),
+                                   name=f"ramp: fronts under {SUB_PIXEL_FRONT_PX:g} px per frame",
+                                   connect=np.append(~solid[:-1], False))
+                self._ramp_items.append(dashed)
 
     def show_growth_fit(self, tc_grid, g_fit) -> None:
         if tc_grid is None:

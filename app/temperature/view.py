@@ -170,7 +170,7 @@ class TemperatureView(LazyPage):
         self.empty_note.setText(" ".join(notes))
         tc = logic.column(self.points, "temperature_c")
         self.plots.show_growth(tc, logic.column(self.points, "growth_rate"), logic.column(self.points, "growth_ci95"))
-        self.plots.show_ramps([(e.name, e.ramp.growth) for e in self.ramps])
+        self.plots.show_ramps([(e.name, e.ramp) for e in self.ramps])
         self.plots.show_density(tc, logic.column(self.points, "density_areal"),
                                 logic.column(self.points, "density_volumetric"))
         self.plots.show_half_times(tc, logic.column(self.points, "predicted_t_half_min"),

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import csv
 
+import numpy as np
 import openpyxl
 import pytest
 from PySide6 import QtCore, QtWidgets
@@ -251,3 +252,28 @@ def test_refresh_reuses_entries_until_their_result_changes(view, monkeypatch):
     view.refresh()
     assert view.entries[0] is not before[0] and view.entries[0].result.growth_rate.value == pytest.approx(90.0)
     assert all(a is b for a, b in zip(view.entries[1:], before[1:]))
+
+
+def test_ramp_curve_is_dashed_where_fronts_move_under_a_pixel_per_frame(qtbot):
+    """G(T) of a ramp is drawn solid where the fronts move at least a pixel between frames
+    and dashed where it rests on sub-pixel motion (``RampAnalysis.warnings`` says so too)."""
+    from types import SimpleNamespace
+
+    from app.temperature.plots import TemperaturePlots
+
+    plots = TemperaturePlots()
+    qtbot.addWidget(plots)
+    tc = np.linspace(120.0, 132.0, 13)
+    g = 30.0 * np.exp(-(tc - 120.0) / 3.0)
+    ramp = SimpleNamespace(growth=SimpleNamespace(temperature_c=tc, growth_rate_um_per_min=g,
+                                                  ci95_low=0.95 * g, ci95_high=1.05 * g),
+                           front_advance_px_per_frame=g / 6.0)  # under 1 px per frame from 126 °C on
+    plots.show_ramps([("run A", ramp)])
+    solid, dashed = plots._ramp_items[3], plots._ramp_items[4]
+    assert dashed.opts["pen"].style() == QtCore.Qt.PenStyle.DashLine
+    assert solid.opts["pen"].style() == QtCore.Qt.PenStyle.SolidLine
+    fast = ramp.front_advance_px_per_frame >= 1.0
+    assert list(solid.opts["connect"][:-1]) == list(fast[:-1] & fast[1:])
+    assert list(dashed.opts["connect"][:-1]) == list(~(fast[:-1] & fast[1:]))
+    plots.show_ramps([("run A", SimpleNamespace(growth=ramp.growth, front_advance_px_per_frame=np.full_like(g, 5.0)))])
+    assert len(plots._ramp_items) == 4  # every front resolved: no dashed part, the old one removed
