@@ -372,7 +372,8 @@ def _finish(state, times, um_per_px, threshold, at_start, model, mode, probe) ->
     slowness = segment.estimate_slowness(arrival, reliable)
     before_start = _extrapolated_before_start(arrival, reliable, at_start, slowness)
     if state.settings.fill_wedges:
-        completed = segment.complete_wedges(np.where(reliable | at_start, arrival, np.inf), slowness)
+        completed = segment.complete_wedges_in_time(np.where(reliable | at_start, arrival, np.inf),
+                                                    reliable, slowness)
         gap = ~np.isfinite(arrival) & (completed <= times[-1])
         # Faint pixels seen late (threshold-limited timing): the geometry knows better.
         weak = np.isfinite(arrival) & ~reliable & ~at_start & (completed < arrival)

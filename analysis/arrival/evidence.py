@@ -41,7 +41,7 @@ from analysis.settings import CHANNEL_MODES  # described once with the other set
 __all__ = [
     "CHANNEL_MODES", "MeltModel", "resolve_channel_mode", "working_image", "temporal_noise",
     "blind_pixels", "sample_step", "with_local_smoothing", "frame_gain", "melt_difference", "evidence_from_difference", "evidence", "evidence_threshold", "initial_crystalline",
-    "estimate_slowness", "complete_wedges",
+    "estimate_slowness", "complete_wedges", "complete_wedges_in_time",
 ]
 
 
@@ -396,7 +396,7 @@ def _hull(mask: np.ndarray) -> np.ndarray:
 
 
 def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_px: int = 3,
-                      percentile: float = 70.0) -> float:
+                      percentile: float = 70.0, during_s: tuple[float, float] | None = None) -> float:
     """Typical |∇t| (s per px, i.e. 1/G) over pixels whose arrival time is reliable.
 
     Central differences over ±``baseline_px``. The true |∇t| of Johnson-Mehl growth is
@@ -404,13 +404,18 @@ def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_p
     timing noise and bands spread it both ways; the 70th percentile (rather than the
     median) lands on 1/G within about 1 % on simulated recordings, erring slow, which
     keeps wedge filling an upper bound. NaN when too few reliable pixels.
+    ``during_s`` = (start, end): only fronts that passed in that time span, s.
     """
     t = np.where(reliable, arrival_s, np.nan).astype(np.float64)
     b = int(baseline_px)
     gy = (t[2 * b:, b:-b] - t[:-2 * b, b:-b]) / (2 * b)
     gx = (t[b:-b, 2 * b:] - t[b:-b, :-2 * b]) / (2 * b)
     slope = np.hypot(gy, gx)
-    slope = slope[np.isfinite(slope) & (slope > 0)]
+    chosen = np.isfinite(slope) & (slope > 0)
+    if during_s is not None:
+        centre = t[b:-b, b:-b]
+        chosen &= (centre >= during_s[0]) & (centre < during_s[1])
+    slope = slope[chosen]
     return float(np.percentile(slope, percentile)) if slope.size >= 50 else float("nan")
 
 
@@ -433,6 +438,47 @@ def complete_wedges(arrival_s: np.ndarray, slowness_s_per_px: float) -> np.ndarr
         return t
     t = _chamfer_pass(t, slowness_s_per_px)
     return _chamfer_pass(t[::-1, ::-1], slowness_s_per_px)[::-1, ::-1].copy()
+
+
+def complete_wedges_in_time(arrival_s: np.ndarray, reliable: np.ndarray, slowness_s_per_px: float, *,
+                            spans: int = 8, tolerance: float = 0.15) -> np.ndarray:
+    """:func:`complete_wedges` for fronts whose speed changes during the record (a
+    temperature ramp: G follows T). With one speed for the whole record the fronts of
+    the slow part would be carried on at the speed of the fast part, and melt that never
+    crystallised would be filled in. The record's crystallisation is cut into ``spans``
+    equal time spans; where the slowness of the fronts of every span
+    (:func:`estimate_slowness`) stays within ``tolerance`` of ``slowness_s_per_px`` this is
+    :func:`complete_wedges` itself; otherwise each span's gaps are completed at its own
+    speed (a span with too few fronts to measure takes the slower of its neighbours'),
+    from the pixels known by its end (measured, or completed in an earlier span).
+    """
+    known = reliable & np.isfinite(arrival_s)
+    if known.sum() < 50:
+        return complete_wedges(arrival_s, slowness_s_per_px)
+    edges = np.linspace(arrival_s[known].min(), arrival_s[known].max(), spans + 1)
+    edges[-1] = np.inf
+    speeds = np.array([estimate_slowness(arrival_s, reliable, during_s=(a, b)) for a, b in zip(edges[:-1], edges[1:])])
+    measured = speeds[np.isfinite(speeds)]
+    if measured.size == 0 or np.all(np.abs(measured / slowness_s_per_px - 1) <= tolerance):
+        return complete_wedges(arrival_s, slowness_s_per_px)
+    speeds = _slower_neighbour_where_unknown(speeds)
+    current = np.where(np.isfinite(arrival_s), arrival_s, np.inf).astype(np.float64)
+    for end, speed in zip(edges[1:], speeds):
+        completed = complete_wedges(np.where(current < end, current, np.inf), speed)
+        current = np.where(~np.isfinite(current) & (completed < end), completed, current)
+    return current
+
+
+def _slower_neighbour_where_unknown(speeds: np.ndarray) -> np.ndarray:
+    """NaN entries replaced by the larger (slower) of the nearest known values on each side."""
+    out = speeds.copy()
+    known = np.flatnonzero(np.isfinite(speeds))
+    for i in np.flatnonzero(~np.isfinite(speeds)):
+        before, after = known[known < i], known[known > i]
+        sides = [speeds[before[-1]]] if before.size else []
+        sides += [speeds[after[0]]] if after.size else []
+        out[i] = max(sides)
+    return out
 
 
 def _chamfer_pass(t: np.ndarray, slowness: float) -> np.ndarray:
