@@ -448,9 +448,10 @@ def complete_wedges_in_time(arrival_s: np.ndarray, reliable: np.ndarray, slownes
     crystallised would be filled in. The record's crystallisation is cut into ``spans``
     equal time spans; where the slowness of the fronts of every span
     (:func:`estimate_slowness`) stays within ``tolerance`` of ``slowness_s_per_px`` this is
-    :func:`complete_wedges` itself; otherwise each span's gaps are completed at its own
-    speed (a span with too few fronts to measure takes the slower of its neighbours'),
-    from the pixels known by its end (measured, or completed in an earlier span).
+    :func:`complete_wedges` itself; otherwise the gaps of each span after the fastest are
+    completed at that span's own speed where it is slower than the record's (a span with
+    too few fronts to measure takes the slower of its neighbours'), from the pixels known
+    by its end (measured, or completed in an earlier span).
     """
     known = reliable & np.isfinite(arrival_s)
     if known.sum() < 50:
@@ -461,7 +462,14 @@ def complete_wedges_in_time(arrival_s: np.ndarray, reliable: np.ndarray, slownes
     measured = speeds[np.isfinite(speeds)]
     if measured.size == 0 or np.all(np.abs(measured / slowness_s_per_px - 1) <= tolerance):
         return complete_wedges(arrival_s, slowness_s_per_px)
-    speeds = _slower_neighbour_where_unknown(speeds)
+    # Only fronts slowing down need their own speed: where they speed up (cooling) a gap
+    # completed too early is overtaken by the real front a few frames later, but after the
+    # fastest span melt completed as crystal may never crystallise at all (heating).
+    after_fastest = np.arange(speeds.size) > np.nanargmin(speeds)
+    speeds = np.where(after_fastest, np.maximum(_slower_neighbour_where_unknown(speeds), slowness_s_per_px),
+                      slowness_s_per_px)
+    if np.all(speeds == slowness_s_per_px):
+        return complete_wedges(arrival_s, slowness_s_per_px)
     current = np.where(np.isfinite(arrival_s), arrival_s, np.inf).astype(np.float64)
     for end, speed in zip(edges[1:], speeds):
         completed = complete_wedges(np.where(current < end, current, np.inf), speed)
