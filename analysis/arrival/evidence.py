@@ -396,7 +396,7 @@ def _hull(mask: np.ndarray) -> np.ndarray:
 
 
 def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_px: int = 3,
-                      percentile: float = 70.0, during_s: tuple[float, float] | None = None) -> float:
+                      percentile: float = 70.0) -> float:
     """Typical |∇t| (s per px, i.e. 1/G) over pixels whose arrival time is reliable.
 
     Central differences over ±``baseline_px``. The true |∇t| of Johnson-Mehl growth is
@@ -404,18 +404,24 @@ def estimate_slowness(arrival_s: np.ndarray, reliable: np.ndarray, *, baseline_p
     timing noise and bands spread it both ways; the 70th percentile (rather than the
     median) lands on 1/G within about 1 % on simulated recordings, erring slow, which
     keeps wedge filling an upper bound. NaN when too few reliable pixels.
-    ``during_s`` = (start, end): only fronts that passed in that time span, s.
     """
+    slope, _ = _front_slopes(arrival_s, reliable, baseline_px)
+    return _typical_slope(slope, percentile)
+
+
+def _front_slopes(arrival_s, reliable, baseline_px: int = 3):
+    """|∇t| (s/px) at reliable pixels from central differences over ±``baseline_px``, and
+    the arrival time (s) at those pixels."""
     t = np.where(reliable, arrival_s, np.nan).astype(np.float64)
     b = int(baseline_px)
     gy = (t[2 * b:, b:-b] - t[:-2 * b, b:-b]) / (2 * b)
     gx = (t[b:-b, 2 * b:] - t[b:-b, :-2 * b]) / (2 * b)
     slope = np.hypot(gy, gx)
     chosen = np.isfinite(slope) & (slope > 0)
-    if during_s is not None:
-        centre = t[b:-b, b:-b]
-        chosen &= (centre >= during_s[0]) & (centre < during_s[1])
-    slope = slope[chosen]
+    return slope[chosen], t[b:-b, b:-b][chosen]
+
+
+def _typical_slope(slope: np.ndarray, percentile: float = 70.0) -> float:
     return float(np.percentile(slope, percentile)) if slope.size >= 50 else float("nan")
 
 
@@ -446,19 +452,21 @@ def complete_wedges_in_time(arrival_s: np.ndarray, reliable: np.ndarray, slownes
     temperature ramp: G follows T). With one speed for the whole record the fronts of
     the slow part would be carried on at the speed of the fast part, and melt that never
     crystallised would be filled in. The record's crystallisation is cut into ``spans``
-    equal time spans; where the slowness of the fronts of every span
-    (:func:`estimate_slowness`) stays within ``tolerance`` of ``slowness_s_per_px`` this is
-    :func:`complete_wedges` itself; otherwise the gaps of each span after the fastest are
-    completed at that span's own speed where it is slower than the record's (a span with
-    too few fronts to measure takes the slower of its neighbours'), from the pixels known
-    by its end (measured, or completed in an earlier span).
+    equal time spans; where the slowness of the fronts of every span (as
+    :func:`estimate_slowness`, over the pixels the fronts passed in that span) stays
+    within ``tolerance`` of ``slowness_s_per_px`` this is :func:`complete_wedges` itself;
+    otherwise the gaps of each span after the fastest are completed at that span's own
+    speed where it is slower than the record's (a span with too few fronts to measure
+    takes the slower of its neighbours'), from the pixels known by its end (measured, or
+    completed in an earlier span).
     """
     known = reliable & np.isfinite(arrival_s)
     if known.sum() < 50:
         return complete_wedges(arrival_s, slowness_s_per_px)
     edges = np.linspace(arrival_s[known].min(), arrival_s[known].max(), spans + 1)
     edges[-1] = np.inf
-    speeds = np.array([estimate_slowness(arrival_s, reliable, during_s=(a, b)) for a, b in zip(edges[:-1], edges[1:])])
+    slope, when = _front_slopes(arrival_s, reliable)
+    speeds = np.array([_typical_slope(slope[(when >= a) & (when < b)]) for a, b in zip(edges[:-1], edges[1:])])
     measured = speeds[np.isfinite(speeds)]
     if measured.size == 0 or np.all(np.abs(measured / slowness_s_per_px - 1) <= tolerance):
         return complete_wedges(arrival_s, slowness_s_per_px)
