@@ -158,10 +158,6 @@ class DetectionHeuristics:
     edge_centre_floor_px: float = _h(
         5.0, "Smallest centre uncertainty always accepted for a spherulite entering from "
         "outside, px (a few pixels: the precision of an inside centre).")
-    phantom_margin_intervals: float = _h(
-        1.0, "A nucleus must have been in melt for at least this many frame intervals before "
-        "another front reached its centre to be told apart from that front (one timing "
-        "quantum; a nucleus born inside crystal is a phantom, Avrami 1939, J. Chem. Phys. 7, 1103).")
     same_centre_px: float = _h(
         2.0, "Two fitted centres closer than this are the same within pixel precision (a pair "
         "of real nuclei this close cannot be told apart), px.")

@@ -96,25 +96,79 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
     return ""
 
 
-def _phantom_check(k, sph, ev: Evidence, items, interval_s: float):
-    """A nucleus cannot be born inside crystal (the phantom nuclei of Avrami 1939, J.
-    Chem. Phys. 7, 1103), and one born as another front arrives cannot be told from that
-    front: when another detection's fitted front reaches this one's centre less than
-    ``phantom_margin_intervals`` frame intervals after its fitted nucleation time, its
-    'cone' is the seam where fronts met, not a nucleus."""
-    fit = ev.fit
-    if not fit.ok or sph.status in ("rejected", "nonlinear") or not ev.automatic or ev.user_included:
-        return sph
-    margin = heuristics.current().phantom_margin_intervals * interval_s
-    for j, (other, oe) in enumerate(items):
-        if j == k or not oe.fit.ok or other.status in ("rejected", "nonlinear"):
+def arrival_noise_s(typical_s: float, interval_s: float) -> float:
+    """Standard deviation of one measured arrival time about its front, s: the field's
+    typical robust residual scale, or without fits the spread of a time known only to
+    its frame interval, interval / sqrt(12) (uniform quantisation; Widrow & Kollar 2008,
+    Quantization Noise, Cambridge University Press)."""
+    return typical_s if math.isfinite(typical_s) and typical_s > 0 else interval_s / math.sqrt(12.0)
+
+
+def _competing_cones(fit: growth.ConeFit, reach_px: float, others: list) -> list:
+    """The cones among ``others`` that can arrive first somewhere within ``reach_px`` of
+    ``fit``'s centre: a cone whose earliest possible arrival there is later than another
+    cone's latest can never be the first front (exact pruning)."""
+    if not others:
+        return []
+    centres = np.array([[o.x_px, o.y_px] for o in others])
+    gap = np.hypot(*(centres - [fit.x_px, fit.y_px]).T)
+    t0 = np.array([o.t0_s for o in others])
+    slope = np.array([o.slope_s_per_px for o in others])
+    earliest = t0 + slope * np.maximum(gap - reach_px, 0.0)
+    latest = t0 + slope * (gap + reach_px)
+    return [o for o, e in zip(others, earliest) if e <= latest.min()]
+
+
+def nucleus_support(ev: Evidence, others: list, noise_s: float) -> float:
+    """Evidence for a nucleus of its own: the drop of the Bayesian information criterion
+    (Schwarz 1978, Ann. Stat. 6, 461) when this candidate's cone joins the other fronts.
+
+    Model 0: its pixels are reached first by the other fitted cones (Johnson-Mehl,
+    t = min over them), as on a seam where their fronts met. Model 1: the same plus its
+    own cone. -2 log-likelihood is the soft-L1 cost of the residuals in units of the
+    arrival noise ``noise_s`` (Gaussian at small residuals, robust to stray pixels);
+    pixels of one frame share that frame's timing error, so each frame counts as one
+    observation (the cost is scaled by frames / pixels, as the fit's errors are). Model 1
+    has the cone's parameters more (4, or 3 with the slope held at the field's), each
+    costing ln(frames). Positive: the data need the extra nucleus; a seam, a phantom born
+    inside crystal (Avrami 1939, J. Chem. Phys. 7, 1103) or a second piece of a known
+    front scores about zero or below. Without other fronts, +inf.
+    """
+    fit, x, y, t = ev.fit, ev.x, ev.y, ev.t
+    reach = float(np.max(np.hypot(x - fit.x_px, y - fit.y_px))) if x.size else 0.0
+    rivals = _competing_cones(fit, reach, others)
+    if not rivals or x.size == 0:
+        return math.inf
+    fronts = np.min([growth.cone_arrival_s(o, x, y) for o in rivals], axis=0)
+    with_own = np.minimum(fronts, growth.cone_arrival_s(fit, x, y))
+    per_frame = fit.n_levels / x.size
+    gain = 2.0 * (growth.soft_l1_cost(fronts - t, noise_s) - growth.soft_l1_cost(with_own - t, noise_s))
+    n_params = fit.n_levels - fit.dof
+    return gain / noise_s ** 2 * per_frame - n_params * math.log(fit.n_levels)
+
+
+def _seam_check(judged: list, evidence: list, noise_s: float) -> list:
+    """Reject the automatic candidates whose pixels the other fronts explain as well
+    (:func:`nucleus_support` not positive): one pass, weakest candidate (fewest fitted
+    pixels) first, each compared with the fronts still standing, so of two pieces of one
+    front the weaker goes and the stronger stays."""
+    out = list(judged)
+
+    def standing(s, e):
+        return e.fit.ok and s.status not in ("rejected", "nonlinear")
+
+    order = sorted(range(len(out)), key=lambda k: (evidence[k].x.size, out[k].id))
+    for k in order:
+        sph, ev = out[k], evidence[k]
+        if not standing(sph, ev) or not ev.automatic or ev.user_included:
             continue
-        reached = oe.fit.t0_s + oe.fit.slope_s_per_px * math.hypot(fit.x_px - oe.fit.x_px, fit.y_px - oe.fit.y_px)
-        if reached < fit.t0_s + margin:
-            return dataclasses.replace(sph, status="rejected", reason=(
-                f"#{other.id}'s front reached its centre {reached - fit.t0_s:+.0f} s from its nucleation "
-                "time: a seam between fronts, not a nucleus"))
-    return sph
+        others = [e.fit for j, (s, e) in enumerate(zip(out, evidence)) if j != k and standing(s, e)]
+        support = nucleus_support(ev, others, noise_s)
+        if support <= 0:
+            out[k] = dataclasses.replace(sph, status="rejected", reason=(
+                "the neighbouring fronts explain its arrival times as well as a nucleus of its own "
+                f"(information criterion {support:+.1f}): a seam between fronts or a piece of another front"))
+    return out
 
 
 def _duplicates(items, interval_s: float) -> dict[int, int]:
@@ -192,8 +246,7 @@ def judge(spherulites, evidence, *, interval_s: float, shape):
         reason = "" if ev.user_included or not ev.automatic or sph.status == "excluded" else \
             _rejection(sph, ev, slope, typical, interval_s, shape)
         judged.append(dataclasses.replace(sph, status="rejected", reason=reason) if reason else sph)
-    items = list(zip(judged, evidence))
-    judged = [_phantom_check(k, s, e, items, interval_s) for k, (s, e) in enumerate(items)]
+    judged = _seam_check(judged, evidence, arrival_noise_s(typical, interval_s))
     items = list(zip(judged, evidence))
     twins = _duplicates(items, interval_s)
     judged = [dataclasses.replace(s, status="rejected", reason=f"the same growing front as #{twins[s.id]}")

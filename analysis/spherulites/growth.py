@@ -437,10 +437,15 @@ def soft_l1_cost(resid: np.ndarray, f_scale_s: float) -> float:
     return float(0.5 * f_scale_s ** 2 * np.sum(2.0 * (np.sqrt(1.0 + z) - 1.0)))
 
 
+def cone_arrival_s(fit: ConeFit, x, y) -> np.ndarray:
+    """Arrival time (s) of one fitted cone's front at the given pixels."""
+    return fit.t0_s + fit.slope_s_per_px * np.hypot(np.asarray(x, float) - fit.x_px,
+                                                    np.asarray(y, float) - fit.y_px)
+
+
 def cone_residuals(fit: ConeFit, x, y, t) -> np.ndarray:
     """Model minus measured arrival time at the given pixels, s."""
-    return _residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), np.asarray(x, float),
-                      np.asarray(y, float), np.asarray(t, float))
+    return cone_arrival_s(fit, x, y) - np.asarray(t, float)
 
 
 def residual_scale_s(fit: ConeFit, x, y, t) -> float:
@@ -483,9 +488,7 @@ def _two_cone_jacobian(p, x, y, t, n_bound=0):
 def bound_violation_s(fit: ConeFit, x, y, limit_s: float) -> np.ndarray:
     """How far (s) a cone's arrival exceeds ``limit_s`` at pixels known to have
     crystallised by then (e.g. crystalline in the first frame); 0 where it does not."""
-    model = fit.t0_s + fit.slope_s_per_px * np.hypot(np.asarray(x, float) - fit.x_px,
-                                                     np.asarray(y, float) - fit.y_px)
-    return np.maximum(model - limit_s, 0.0)
+    return np.maximum(cone_arrival_s(fit, x, y) - limit_s, 0.0)
 
 
 def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s: float,
