@@ -140,7 +140,8 @@ class DetectionHeuristics:
     reject_min_levels: int = _h(
         5, "A candidate whose cone is fitted on fewer distinct frames than this has no growth "
         "history of its own: a four-parameter cone needs at least one more level than "
-        "parameters to leave a residual at all.")
+        "parameters to leave a residual at all (one fewer when its slope is held at the "
+        "field's: three parameters).")
     reject_max_slope_deviation: float = _h(
         0.5, "A candidate whose growth rate differs from the field's by more than this relative "
         "amount does not grow like a spherulite at this temperature (one growth rate per "

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from analysis.results import Spherulite
@@ -123,3 +125,17 @@ def test_a_phantom_born_inside_crystal_has_no_support():
     phantom = checks.Evidence(cone, 0.5, xx[near].astype(float), yy[near].astype(float), t[near],
                               user_included=False, automatic=True)
     assert checks.nucleus_support(phantom, [host.fit], 0.5) <= 0
+
+
+def test_a_piece_of_a_front_stays_explained_when_that_front_is_placed_within_its_uncertainty():
+    # Pixels far out on one front, and that front's fitted cone 1.5 s late there: a shift
+    # of 1.5 standard errors of its t0 still explains them (Schwarz 1978, Ann. Stat. 6,
+    # 461: the penalised likelihood); a cone claimed exact would not.
+    xx, yy, t, _ = _johnson_mehl_field([(60.0, 100.0, 0.0, 2.0)], noise_s=0.5)
+    piece = _fitted(2, xx, yy, t, (xx >= 140) & (xx < 175) & (yy >= 80) & (yy < 140))[1]
+    host = _fitted(1, xx, yy, t, xx < 120)[1].fit
+    late = dataclasses.replace(host, t0_s=host.t0_s + 1.5, se_t0_s=1.0, se_slope_s_per_px=0.0,
+                               se_x_px=0.0, se_y_px=0.0)
+    assert checks.nucleus_support(piece, [late], 0.5) <= 0
+    exact = dataclasses.replace(late, se_t0_s=0.0)
+    assert checks.nucleus_support(piece, [exact], 0.5) > 0
