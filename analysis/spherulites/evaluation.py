@@ -221,12 +221,15 @@ def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evid
 
 
 def _too_short_for_own_cone(ctx, det, fit, ev) -> bool:
-    """An automatic detection whose own four-parameter cone could not be fitted (a late
-    nucleus hemmed in after a few frames, a crystal present at the start that grew for
-    only a few): it is fitted again with the field's slope held, since an isothermal
-    field grows at one rate. Not for a marker on the border (an arc that needs its own
-    slope to place its centre) or a centre the user holds."""
-    return (not fit.ok and det.source == "auto" and det.fixed_xy is None and not det.held
+    """An automatic detection with too few frames for its own four-parameter cone
+    (fewer than ``reject_min_levels``: a late nucleus hemmed in after a few frames, a
+    crystal present at the start that grew for only a few): it is fitted again with the
+    field's slope held, since an isothermal field grows at one rate. Not when its own
+    cone failed on enough frames (its pixels do not follow a cone), for a marker on the
+    border (an arc that needs its own slope to place its centre) or a centre the user
+    holds."""
+    return (not fit.ok and fit.n_levels < heuristics.current().reject_min_levels
+            and det.source == "auto" and det.fixed_xy is None and not det.held
             and not det.excluded and not bool(ctx.markers.on_border[det.id - 1]))
 
 
