@@ -4,7 +4,9 @@ A candidate (a minimum of the arrival map, a region that crystallised early, one
 a split) is a spherulite only when its pixels show one front growing at the field's
 rate. After the cone fits, each automatic candidate is checked against that evidence
 (thresholds in :mod:`analysis.heuristics`); one that fails becomes ``rejected`` with the
-reason in words. Rejected rows are kept (the viewer lists them on request and one
+reason in words. Whether a candidate is a nucleus or the seam where other fronts met is a
+model comparison (:func:`nucleus_support`): do its arrival times need a cone of its own,
+or do the neighbouring fronts explain them? Rejected rows are kept (the viewer lists them on request and one
 ``include`` edit promotes one back), but they never count toward the nucleus density or
 the pooled growth rate.
 
@@ -117,19 +119,25 @@ def arrival_noise_s(typical_s: float, interval_s: float) -> float:
     return typical_s if math.isfinite(typical_s) and typical_s > 0 else interval_s / math.sqrt(12.0)
 
 
-def _competing_cones(fit: growth.ConeFit, reach_px: float, others: list) -> list:
-    """The cones among ``others`` that can arrive first somewhere within ``reach_px`` of
-    ``fit``'s centre: a cone whose earliest possible arrival there is later than another
-    cone's latest can never be the first front (exact pruning)."""
-    if not others:
-        return []
-    centres = np.array([[o.x_px, o.y_px] for o in others])
-    gap = np.hypot(*(centres - [fit.x_px, fit.y_px]).T)
-    t0 = np.array([o.t0_s for o in others])
-    slope = np.array([o.slope_s_per_px for o in others])
-    earliest = t0 + slope * np.maximum(gap - reach_px, 0.0)
-    latest = t0 + slope * (gap + reach_px)
-    return [o for o, e in zip(others, earliest) if e <= latest.min()]
+def _cone_table(cones: list) -> np.ndarray:
+    """(n, 4) array of the cones' x, y (px), t0 (s) and slope (s/px)."""
+    return np.array([[c.x_px, c.y_px, c.t0_s, c.slope_s_per_px] for c in cones], float).reshape(-1, 4)
+
+
+def _competing(fit: growth.ConeFit, reach_px: float, table: np.ndarray) -> np.ndarray:
+    """Indices of the cones (rows of a :func:`_cone_table`) that can arrive first somewhere
+    within ``reach_px`` of ``fit``'s centre: a cone whose earliest possible arrival there
+    is later than another cone's latest can never be the first front (exact pruning)."""
+    if table.shape[0] == 0:
+        return np.zeros(0, int)
+    gap = np.hypot(table[:, 0] - fit.x_px, table[:, 1] - fit.y_px)
+    earliest = table[:, 2] + table[:, 3] * np.maximum(gap - reach_px, 0.0)
+    latest = table[:, 2] + table[:, 3] * (gap + reach_px)
+    return np.flatnonzero(earliest <= latest.min())
+
+
+def _reach_px(ev: Evidence) -> float:
+    return float(np.max(np.hypot(ev.x - ev.fit.x_px, ev.y - ev.fit.y_px))) if ev.x.size else 0.0
 
 
 def _prediction_se_s(fit: growth.ConeFit, x: float, y: float) -> float:
@@ -150,9 +158,11 @@ def _offset_cost(model_s: np.ndarray, own_s: np.ndarray | None, t: np.ndarray, n
     uncertainty): min over b of the scaled soft-L1 cost plus (b / prior)²."""
     def cost(b):
         arrival = model_s + b if own_s is None else np.minimum(model_s + b, own_s)
-        return 2.0 * growth.soft_l1_cost(arrival - t, noise_s) / noise_s ** 2 * per_frame + (b / prior_s if b else 0.0) ** 2
+        penalty = (b / prior_s) ** 2 if b else 0.0
+        return 2.0 * growth.soft_l1_cost(arrival - t, noise_s) / noise_s ** 2 * per_frame + penalty
     if not prior_s > 0:
         return cost(0.0)
+    # Searched within four prior standard deviations: a larger shift of fitted fronts is implausible.
     best = optimize.minimize_scalar(cost, bounds=(-4.0 * prior_s, 4.0 * prior_s), method="bounded",
                                     options={"xatol": 0.01 * noise_s})
     return float(min(best.fun, cost(0.0)))
@@ -177,8 +187,7 @@ def nucleus_support(ev: Evidence, others: list, noise_s: float) -> float:
     scores about zero or below. Without other fronts, +inf.
     """
     fit, x, y, t = ev.fit, ev.x, ev.y, ev.t
-    reach = float(np.max(np.hypot(x - fit.x_px, y - fit.y_px))) if x.size else 0.0
-    rivals = _competing_cones(fit, reach, others)
+    rivals = [others[i] for i in _competing(fit, _reach_px(ev), _cone_table(others))]
     if not rivals or x.size == 0:
         return math.inf
     arrivals = np.array([growth.cone_arrival_s(o, x, y) for o in rivals])
@@ -204,17 +213,22 @@ def _seam_check(judged: list, evidence: list, noise_s: float) -> list:
     def standing(s, e):
         return e.fit.ok and s.status not in ("rejected", "nonlinear")
 
+    table = _cone_table([e.fit for e in evidence])
+    alive = np.array([standing(s, e) for s, e in zip(out, evidence)], bool)
     order = sorted(range(len(out)), key=lambda k: (evidence[k].x.size, out[k].id))
     for k in order:
         sph, ev = out[k], evidence[k]
-        if not standing(sph, ev) or not ev.automatic or ev.user_included:
+        if not alive[k] or not ev.automatic or ev.user_included:
             continue
-        others = [e.fit for j, (s, e) in enumerate(zip(out, evidence)) if j != k and standing(s, e)]
-        support = nucleus_support(ev, others, noise_s)
+        others = np.flatnonzero(alive)
+        others = others[others != k]
+        near = others[_competing(ev.fit, _reach_px(ev), table[others])]  # the same rivals, found once
+        support = nucleus_support(ev, [evidence[j].fit for j in near], noise_s)
         if support <= 0:
             out[k] = dataclasses.replace(sph, status="rejected", reason=(
                 "the neighbouring fronts explain its arrival times as well as a nucleus of its own "
                 f"(information criterion {support:+.1f}): a seam between fronts or a piece of another front"))
+            alive[k] = False
     return out
 
 
