@@ -227,9 +227,10 @@ def _too_short_for_own_cone(ctx, det, fit, ev) -> bool:
     field's slope held, since an isothermal field grows at one rate. Not when its own
     cone failed on enough frames (its pixels do not follow a cone), for a marker on the
     border (an arc that needs its own slope to place its centre) or a centre the user
-    holds."""
+    set. (A detection held at its automatic centre while edits are replayed is retried
+    too, so an edit elsewhere leaves it as the automatic result has it.)"""
     return (not fit.ok and fit.n_levels < heuristics.current().reject_min_levels
-            and det.source == "auto" and det.fixed_xy is None and not det.held
+            and det.source == "auto" and det.fixed_xy is None
             and not det.excluded and not bool(ctx.markers.on_border[det.id - 1]))
 
 

@@ -175,6 +175,13 @@ def test_a_late_nucleus_hemmed_in_after_four_frames_is_located_timed_and_counted
     assert late.growth_rate_um_per_min is None  # held at the field's, not measured
     area_mm2 = shape[0] * shape[1] * (UM_PER_PX * 1e-3) ** 2
     assert result.nucleation.density_per_mm2 == pytest.approx(7 / area_mm2)
+    # An edit elsewhere leaves it as it was (the field's G, from the ok fits, moves a hair).
+    other = max(result.spherulites, key=lambda s: np.hypot(s.x_px - 100, s.y_px - 80))
+    analysis = pipeline.analyze_arrival(arrival_from_truth(exact, times))
+    edited = pipeline.apply_edits(analysis, [e.ExcludeSpherulite(other.x_px, other.y_px)]).result
+    again = next(s for s in edited.spherulites if s.id == late.id)
+    assert again.status == "few-points" and again.nucleation_time_s == pytest.approx(late.nucleation_time_s, abs=0.1)
+    assert (again.x_px, again.y_px) == pytest.approx((late.x_px, late.y_px), abs=0.05)
 
 
 def test_isothermal_start_shifts_result_times():
