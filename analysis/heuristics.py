@@ -140,7 +140,8 @@ class DetectionHeuristics:
     reject_min_levels: int = _h(
         5, "A candidate whose cone is fitted on fewer distinct frames than this has no growth "
         "history of its own: a four-parameter cone needs at least one more level than "
-        "parameters to leave a residual at all.")
+        "parameters to leave a residual at all (one fewer when its slope is held at the "
+        "field's: three parameters).")
     reject_max_slope_deviation: float = _h(
         0.5, "A candidate whose growth rate differs from the field's by more than this relative "
         "amount does not grow like a spherulite at this temperature (one growth rate per "
@@ -158,10 +159,6 @@ class DetectionHeuristics:
     edge_centre_floor_px: float = _h(
         5.0, "Smallest centre uncertainty always accepted for a spherulite entering from "
         "outside, px (a few pixels: the precision of an inside centre).")
-    phantom_margin_intervals: float = _h(
-        1.0, "A nucleus must have been in melt for at least this many frame intervals before "
-        "another front reached its centre to be told apart from that front (one timing "
-        "quantum; a nucleus born inside crystal is a phantom, Avrami 1939, J. Chem. Phys. 7, 1103).")
     same_centre_px: float = _h(
         2.0, "Two fitted centres closer than this are the same within pixel precision (a pair "
         "of real nuclei this close cannot be told apart), px.")

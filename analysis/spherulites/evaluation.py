@@ -55,12 +55,13 @@ def fit_pixels(ctx, pix, band, spans, settings):
     return chosen[::step]
 
 
-def _cone_key(chosen, hold_xy, refine, warm) -> tuple:
+def _cone_key(chosen, hold_xy, refine, warm, held_slope=None) -> tuple:
     """Cache key of a cone fit: everything the fit depends on, so the cache is a pure
     memo (the same edits always give the same fits, whatever was computed before)."""
     start = None if warm is None or not warm.ok else (warm.x_px, warm.y_px, warm.t0_s,
                                                        warm.slope_s_per_px)
-    return ("cone", digest(chosen), hold_xy, refine, None if hold_xy is not None else start)
+    key = ("cone", digest(chosen), hold_xy, refine, None if hold_xy is not None else start)
+    return key if held_slope is None else key + (("held slope", held_slope),)
 
 
 def _held_centre(ctx, det, chosen, refine, warm) -> tuple[float, float] | None:
@@ -74,12 +75,13 @@ def _held_centre(ctx, det, chosen, refine, warm) -> tuple[float, float] | None:
 
 
 def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
-          warm: growth.ConeFit | None = None) -> growth.ConeFit:
+          warm: growth.ConeFit | None = None, held_slope: float | None = None) -> growth.ConeFit:
     """Cone fit of one territory (cached); ``refine`` adds the refit without the apex.
-    ``warm``: an earlier fit of nearly the same pixels to start from (fewer iterations)."""
+    ``warm``: an earlier fit of nearly the same pixels to start from (fewer iterations);
+    ``held_slope``: the slope to hold (s/px) instead of fitting it (the centre is free)."""
     chosen = fit_pixels(ctx, pix, band, spans, settings)
-    hold = _held_centre(ctx, det, chosen, refine, warm)
-    key = _cone_key(chosen, hold, refine, warm)
+    hold = None if held_slope is not None else _held_centre(ctx, det, chosen, refine, warm)
+    key = _cone_key(chosen, hold, refine, warm, held_slope)
     if ctx.fit_key_recorder is not None:
         ctx.fit_key_recorder.add(key)
     if key in ctx.cache:
@@ -95,7 +97,8 @@ def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
     t, levels = ctx.fit_arrival.ravel()[chosen], ctx.frame_index.ravel()[chosen]
     fixed = hold is not None
     fit = growth.fit_cone(x, y, t, levels, start_xy=start, f_scale_s=0.5 * ctx.interval_s,
-                          fixed_centre=fixed, field_shape=ctx.shape, start_t0_slope=guess)
+                          fixed_centre=fixed, field_shape=ctx.shape, start_t0_slope=guess,
+                          held_slope_s_per_px=held_slope)
     if refine and fit.ok and settings.apex_exclusion_px > 0:
         # Near the apex the measured front is a small, strongly curved disc whose
         # timing the segmentation blur delays; refit without it.
@@ -104,7 +107,8 @@ def _cone(ctx, det, pix, band, spans, settings, *, refine: bool = True,
             refit = growth.fit_cone(x[outer], y[outer], t[outer], levels[outer],
                                     start_xy=(fit.x_px, fit.y_px), f_scale_s=0.5 * ctx.interval_s,
                                     fixed_centre=fixed, field_shape=ctx.shape,
-                                    start_t0_slope=(fit.t0_s, fit.slope_s_per_px))
+                                    start_t0_slope=(fit.t0_s, fit.slope_s_per_px),
+                                    held_slope_s_per_px=held_slope)
             # Without the apex the centre of a cone cut by the border or a neighbour is
             # poorly pinned: keep the refit only when it confirms the centre.
             if refit.ok and np.hypot(refit.x_px - fit.x_px, refit.y_px - fit.y_px) <= 1.0:
@@ -166,14 +170,18 @@ def _verdict(ctx, det, fit, series, lin, settings) -> statuses.Verdict:
         free_radii=series.n_used(), min_points=settings.min_points,
         min_free_fraction=settings.min_free_fraction, nonlinear=lin.nonlinear,
         linearity=lin.description)
+    if fit.ok and fit.slope_held and verdict.status in ("ok", "nonlinear", "few-points"):
+        # Its own growth rate is not measured: never part of the pooled G.
+        verdict = statuses.Verdict("few-points", "too few frames of growth to measure its own G: "
+                                   "located and timed at the field's growth rate")
     note = statuses.early_nucleation_note(
         fit.t0_s - ctx.isothermal_start_s if fit.ok else None, fit.se_t0_s, fit.dof)
     return statuses.Verdict(verdict.status, statuses.with_note(verdict.reason, note))
 
 
-def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
+def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None, held_slope=None):
     spans = global_spans + det.ignored
-    fit = _cone(ctx, det, pix, band, spans, settings, warm=warm)
+    fit = _cone(ctx, det, pix, band, spans, settings, warm=warm, held_slope=held_slope)
     if fit.ok:
         cx, cy = fit.x_px, fit.y_px
     elif det.fixed_xy is not None or det.held:
@@ -186,7 +194,7 @@ def _spherulite(ctx, det, pix, labels, band, global_spans, settings, warm=None):
     verdict = _verdict(ctx, det, fit, series, lin, settings)
     frames = ctx.frame_index.ravel()[pix]
     seen = frames[frames >= 0]
-    g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok else None
+    g = growth.growth_rate_um_per_min(fit.g_px_per_s, ctx.um_per_px) if fit.ok and not fit.slope_held else None
     ci = fit.g_ci95_px_per_s()
     sph = Spherulite(
         id=det.id, x_px=float(cx), y_px=float(cy),
@@ -210,6 +218,20 @@ def _evidence(ctx, det, fit, pix, band, spans, settings) -> evidence_checks.Evid
     early = bool(seeds.size) and bool(ctx.at_start.ravel()[seeds].any())
     return evidence_checks.Evidence(fit, scale, x, y, t, user_included=det.excluded is False,
                                     automatic=det.source == "auto", in_first_frame=early)
+
+
+def _too_short_for_own_cone(ctx, det, fit, ev) -> bool:
+    """An automatic detection with too few frames for its own four-parameter cone
+    (fewer than ``reject_min_levels``: a late nucleus hemmed in after a few frames, a
+    crystal present at the start that grew for only a few): it is fitted again with the
+    field's slope held, since an isothermal field grows at one rate. Not when its own
+    cone failed on enough frames (its pixels do not follow a cone), for a marker on the
+    border (an arc that needs its own slope to place its centre) or a centre the user
+    set. (A detection held at its automatic centre while edits are replayed is retried
+    too, so an edit elsewhere leaves it as the automatic result has it.)"""
+    return (not fit.ok and fit.n_levels < heuristics.current().reject_min_levels
+            and det.source == "auto" and det.fixed_xy is None
+            and not det.excluded and not bool(ctx.markers.on_border[det.id - 1]))
 
 
 def _growth_se(fit, um_per_px) -> float | None:
@@ -275,16 +297,21 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
     band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
     empty = np.zeros(0, np.int64)
-    spherulites, radii, fits, evidence = [], [], [], []
-    for det in dets:
-        if det.deleted or det.merged:
+    live = [det for det in dets if not (det.deleted or det.merged)]
+    rows = [_spherulite(ctx, det, groups.get(det.id, empty), labels, band, global_spans, settings,
+                        provisional.get(det.id)) for det in live]
+    judged = [(sph, ev) for sph, _, _, ev in rows]
+    slope, typical = evidence_checks.field_slope(judged), evidence_checks.typical_residual(judged)
+    for k, det in enumerate(live):
+        if not (np.isfinite(slope) and _too_short_for_own_cone(ctx, det, rows[k][2], rows[k][3])):
             continue
-        sph, series, fit, ev = _spherulite(ctx, det, groups.get(det.id, empty), labels, band,
-                                           global_spans, settings, provisional.get(det.id))
-        spherulites.append(sph)
-        radii.append(series)
-        fits.append(fit)
-        evidence.append(ev)
+        again = _spherulite(ctx, det, groups.get(det.id, empty), labels, band, global_spans, settings,
+                            held_slope=slope)
+        # A crystal present at the start may hide its nucleus: without a cone that fits it
+        # stays as it was, for review (no evidence either way).
+        if not rows[k][3].in_first_frame or evidence_checks.follows_one_front(again[3], typical, ctx.interval_s):
+            rows[k] = again
+    spherulites, radii, fits, evidence = (list(column) for column in zip(*rows)) if rows else ([], [], [], [])
     spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
     pooled, pooled_text = _pooled(ctx, spherulites, fits, radii)
     time_s, fraction = _area_fraction(ctx, global_spans)
@@ -335,7 +362,10 @@ def _counted(spherulites, fits, shape) -> list:
     Nuclei count by their centre (docs/sources.md §1.6); edge spherulites never count. A
     ``few-points`` detection counts only when its cone fit grows within ``few_points_g_tolerance`` (30 %) of the
     field's median G (common practice): with fewer frames a real late nucleus still
-    grows like its neighbours, whereas dust or a segmentation artefact does not.
+    grows like its neighbours, whereas dust or a segmentation artefact does not. One
+    fitted with the field's slope held (too few frames for its own G) counts when the
+    evidence checks kept it: its cone at the field's rate fits its pixels and the
+    neighbouring fronts do not explain them (evidence_checks.nucleus_support).
     """
     h, w = shape
     tolerance = heuristics.current().few_points_g_tolerance
@@ -345,7 +375,7 @@ def _counted(spherulites, fits, shape) -> list:
     for s, f in zip(spherulites, fits):
         if s.status in ("edge", "rejected") or not (-0.5 <= s.x_px <= w - 0.5 and -0.5 <= s.y_px <= h - 0.5):
             continue
-        if s.status == "few-points" and (g_med is None or s.growth_rate_um_per_min is None or
+        if s.status == "few-points" and not f.slope_held and (g_med is None or s.growth_rate_um_per_min is None or
                                          abs(s.growth_rate_um_per_min / g_med - 1) > tolerance):
             continue
         out.append((s, f))

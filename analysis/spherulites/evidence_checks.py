@@ -4,7 +4,9 @@ A candidate (a minimum of the arrival map, a region that crystallised early, one
 a split) is a spherulite only when its pixels show one front growing at the field's
 rate. After the cone fits, each automatic candidate is checked against that evidence
 (thresholds in :mod:`analysis.heuristics`); one that fails becomes ``rejected`` with the
-reason in words. Rejected rows are kept (the viewer lists them on request and one
+reason in words. Whether a candidate is a nucleus or the seam where other fronts met is a
+model comparison (:func:`nucleus_support`): do its arrival times need a cone of its own,
+or do the neighbouring fronts explain them? Rejected rows are kept (the viewer lists them on request and one
 ``include`` edit promotes one back), but they never count toward the nucleus density or
 the pooled growth rate.
 
@@ -20,6 +22,7 @@ import dataclasses
 import math
 
 import numpy as np
+from scipy import optimize
 
 from analysis import heuristics
 from analysis.spherulites import growth
@@ -41,12 +44,14 @@ class Evidence:
     in_first_frame: bool = False  # its marker lies in crystal already present in the first frame
 
 
-def _field_slope(items) -> float:
+def field_slope(items) -> float:
+    """Median fitted slope (s/px, 1/G) of the ``ok`` (spherulite, evidence) pairs; nan without any."""
     slopes = [e.fit.slope_s_per_px for s, e in items if e.fit.ok and s.status == "ok"]
     return float(np.median(slopes)) if slopes else float("nan")
 
 
-def _typical_residual(items) -> float:
+def typical_residual(items) -> float:
+    """Median robust residual scale (s) of the ``ok`` (spherulite, evidence) pairs' fits; nan without any."""
     scales = [e.residual_s for s, e in items if e.fit.ok and s.status == "ok" and math.isfinite(e.residual_s)]
     return float(np.median(scales)) if scales else float("nan")
 
@@ -81,40 +86,150 @@ def _rejection(sph, ev: Evidence, slope: float, typical: float, interval_s: floa
     if outside == 0 and uncertainty > rules.edge_centre_floor_px and uncertainty > inside_margin:
         return (f"its centre, {inside_margin:.0f} px inside the edge of the field, is uncertain by "
                 f"±{uncertainty:.0f} px: it cannot be placed inside or outside")
-    if fit.n_levels < rules.reject_min_levels:
-        return f"grows over only {fit.n_levels} frames (at least {rules.reject_min_levels} needed)"
+    needed = rules.reject_min_levels - (1 if fit.slope_held else 0)  # one parameter fewer
+    if fit.n_levels < needed:
+        return f"grows over only {fit.n_levels} frames (at least {needed} needed)"
     if sph.status == "nonlinear":
         return ""  # its radius is not linear in time (a ramp, diffusion): the cone's slope is no G
     if math.isfinite(slope) and abs(slope / fit.slope_s_per_px - 1) > rules.reject_max_slope_deviation:
         return (f"grows at {100 * (slope / fit.slope_s_per_px - 1):+.0f} % of the field's growth rate: "
                 "not a spherulite at this temperature (dust, a bubble or noise)")
-    floor = max(typical, 0.25 * interval_s) if math.isfinite(typical) else 0.25 * interval_s
     short_lived = fit.n_levels < 2 * rules.reject_min_levels
-    if short_lived and ev.residual_s > rules.reject_residual_ratio * floor:
-        return (f"its pixels do not follow one growing front (residuals {ev.residual_s / floor:.1f}× "
-                "the field's typical)")
+    if short_lived and not follows_one_front(ev, typical, interval_s):
+        return (f"its pixels do not follow one growing front (residuals "
+                f"{ev.residual_s / _residual_floor(typical, interval_s):.1f}× the field's typical)")
     return ""
 
 
-def _phantom_check(k, sph, ev: Evidence, items, interval_s: float):
-    """A nucleus cannot be born inside crystal (the phantom nuclei of Avrami 1939, J.
-    Chem. Phys. 7, 1103), and one born as another front arrives cannot be told from that
-    front: when another detection's fitted front reaches this one's centre less than
-    ``phantom_margin_intervals`` frame intervals after its fitted nucleation time, its
-    'cone' is the seam where fronts met, not a nucleus."""
-    fit = ev.fit
-    if not fit.ok or sph.status in ("rejected", "nonlinear") or not ev.automatic or ev.user_included:
-        return sph
-    margin = heuristics.current().phantom_margin_intervals * interval_s
-    for j, (other, oe) in enumerate(items):
-        if j == k or not oe.fit.ok or other.status in ("rejected", "nonlinear"):
+def _residual_floor(typical: float, interval_s: float) -> float:
+    return max(typical, 0.25 * interval_s) if math.isfinite(typical) else 0.25 * interval_s
+
+
+def follows_one_front(ev: Evidence, typical: float, interval_s: float) -> bool:
+    """The fit's robust residual scale is within ``reject_residual_ratio`` of the field's
+    typical one (at least a quarter frame interval): its pixels follow one growing front."""
+    return ev.residual_s <= heuristics.current().reject_residual_ratio * _residual_floor(typical, interval_s)
+
+
+def arrival_noise_s(typical_s: float, interval_s: float) -> float:
+    """Standard deviation of one measured arrival time about its front, s: the field's
+    typical robust residual scale, or without fits the spread of a time known only to
+    its frame interval, interval / sqrt(12) (uniform quantisation; Widrow & Kollar 2008,
+    Quantization Noise, Cambridge University Press)."""
+    return typical_s if math.isfinite(typical_s) and typical_s > 0 else interval_s / math.sqrt(12.0)
+
+
+def _cone_table(cones: list) -> np.ndarray:
+    """(n, 4) array of the cones' x, y (px), t0 (s) and slope (s/px)."""
+    return np.array([[c.x_px, c.y_px, c.t0_s, c.slope_s_per_px] for c in cones], float).reshape(-1, 4)
+
+
+def _competing(fit: growth.ConeFit, reach_px: float, table: np.ndarray) -> np.ndarray:
+    """Indices of the cones (rows of a :func:`_cone_table`) that can arrive first somewhere
+    within ``reach_px`` of ``fit``'s centre: a cone whose earliest possible arrival there
+    is later than another cone's latest can never be the first front (exact pruning)."""
+    if table.shape[0] == 0:
+        return np.zeros(0, int)
+    gap = np.hypot(table[:, 0] - fit.x_px, table[:, 1] - fit.y_px)
+    earliest = table[:, 2] + table[:, 3] * np.maximum(gap - reach_px, 0.0)
+    latest = table[:, 2] + table[:, 3] * (gap + reach_px)
+    return np.flatnonzero(earliest <= latest.min())
+
+
+def _reach_px(ev: Evidence) -> float:
+    return float(np.max(np.hypot(ev.x - ev.fit.x_px, ev.y - ev.fit.y_px))) if ev.x.size else 0.0
+
+
+def _prediction_se_s(fit: growth.ConeFit, x: float, y: float) -> float:
+    """Standard error (s) of a fitted cone's arrival time at (x, y) from the standard
+    errors of its t0, slope and centre, taken as independent (t0 and slope are
+    anticorrelated, so this is an upper bound)."""
+    d = math.hypot(x - fit.x_px, y - fit.y_px)
+    centre = fit.slope_s_per_px * math.hypot(fit.se_x_px, fit.se_y_px)
+    terms = [fit.se_t0_s, d * fit.se_slope_s_per_px, centre]
+    return math.sqrt(sum(v * v for v in terms if math.isfinite(v)))
+
+
+def _offset_cost(model_s: np.ndarray, own_s: np.ndarray | None, t: np.ndarray, noise_s: float,
+                 per_frame: float, prior_s: float) -> float:
+    """-2 log-likelihood of arrival times ``t`` under the other fronts ``model_s`` (and,
+    when given, a cone of its own, ``own_s``), the fronts' common timing offset b
+    profiled out under its Gaussian prior of standard deviation ``prior_s`` (their fits'
+    uncertainty): min over b of the scaled soft-L1 cost plus (b / prior)²."""
+    def cost(b):
+        arrival = model_s + b if own_s is None else np.minimum(model_s + b, own_s)
+        penalty = (b / prior_s) ** 2 if b else 0.0
+        return 2.0 * growth.soft_l1_cost(arrival - t, noise_s) / noise_s ** 2 * per_frame + penalty
+    if not prior_s > 0:
+        return cost(0.0)
+    # Searched within four prior standard deviations: a larger shift of fitted fronts is implausible.
+    best = optimize.minimize_scalar(cost, bounds=(-4.0 * prior_s, 4.0 * prior_s), method="bounded",
+                                    options={"xatol": 0.01 * noise_s})
+    return float(min(best.fun, cost(0.0)))
+
+
+def nucleus_support(ev: Evidence, others: list, noise_s: float) -> float:
+    """Evidence for a nucleus of its own: the drop of the Bayesian information criterion
+    (Schwarz 1978, Ann. Stat. 6, 461) when this candidate's cone joins the other fronts.
+
+    Model 0: its pixels are reached first by the other fitted cones (Johnson-Mehl,
+    t = min over them), as on a seam where their fronts met. Model 1: the same plus its
+    own cone. -2 log-likelihood is the soft-L1 cost of the residuals in units of the
+    arrival noise ``noise_s`` (Gaussian at small residuals, robust to stray pixels);
+    pixels of one frame share that frame's timing error, so each frame counts as one
+    observation (the cost is scaled by frames / pixels, as the fit's errors are). The
+    other fronts are placed only as well as their fits allow: in both models they may
+    arrive earlier or later by a common offset, penalised by its prior (the standard
+    error of their predicted arrival at this candidate's centre). Model 1 has the cone's
+    parameters more (4, or 3 with the slope held at the field's), each costing
+    ln(frames). Positive: the data need the extra nucleus; a seam, a phantom born inside
+    crystal (Avrami 1939, J. Chem. Phys. 7, 1103) or a second piece of a known front
+    scores about zero or below. Without other fronts, +inf.
+    """
+    fit, x, y, t = ev.fit, ev.x, ev.y, ev.t
+    rivals = [others[i] for i in _competing(fit, _reach_px(ev), _cone_table(others))]
+    if not rivals or x.size == 0:
+        return math.inf
+    arrivals = np.array([growth.cone_arrival_s(o, x, y) for o in rivals])
+    first = np.argmin(arrivals, axis=0)
+    fronts = arrivals[first, np.arange(x.size)]
+    spread = np.array([_prediction_se_s(o, fit.x_px, fit.y_px) for o in rivals])
+    prior = float(np.sqrt(np.mean(spread[first] ** 2)))
+    per_frame = fit.n_levels / x.size
+    own = growth.cone_arrival_s(fit, x, y)
+    gain = _offset_cost(fronts, None, t, noise_s, per_frame, prior) - \
+        _offset_cost(fronts, own, t, noise_s, per_frame, prior)
+    n_params = fit.n_levels - fit.dof
+    return gain - n_params * math.log(fit.n_levels)
+
+
+def _seam_check(judged: list, evidence: list, noise_s: float) -> list:
+    """Reject the automatic candidates whose pixels the other fronts explain as well
+    (:func:`nucleus_support` not positive): one pass, weakest candidate (fewest fitted
+    pixels) first, each compared with the fronts still standing, so of two pieces of one
+    front the weaker goes and the stronger stays."""
+    out = list(judged)
+
+    def standing(s, e):
+        return e.fit.ok and s.status not in ("rejected", "nonlinear")
+
+    table = _cone_table([e.fit for e in evidence])
+    alive = np.array([standing(s, e) for s, e in zip(out, evidence)], bool)
+    order = sorted(range(len(out)), key=lambda k: (evidence[k].x.size, out[k].id))
+    for k in order:
+        sph, ev = out[k], evidence[k]
+        if not alive[k] or not ev.automatic or ev.user_included:
             continue
-        reached = oe.fit.t0_s + oe.fit.slope_s_per_px * math.hypot(fit.x_px - oe.fit.x_px, fit.y_px - oe.fit.y_px)
-        if reached < fit.t0_s + margin:
-            return dataclasses.replace(sph, status="rejected", reason=(
-                f"#{other.id}'s front reached its centre {reached - fit.t0_s:+.0f} s from its nucleation "
-                "time: a seam between fronts, not a nucleus"))
-    return sph
+        others = np.flatnonzero(alive)
+        others = others[others != k]
+        near = others[_competing(ev.fit, _reach_px(ev), table[others])]  # the same rivals, found once
+        support = nucleus_support(ev, [evidence[j].fit for j in near], noise_s)
+        if support <= 0:
+            out[k] = dataclasses.replace(sph, status="rejected", reason=(
+                "the neighbouring fronts explain its arrival times as well as a nucleus of its own "
+                f"(information criterion {support:+.1f}): a seam between fronts or a piece of another front"))
+            alive[k] = False
+    return out
 
 
 def _duplicates(items, interval_s: float) -> dict[int, int]:
@@ -186,14 +301,13 @@ def judge(spherulites, evidence, *, interval_s: float, shape):
     """The spherulites with evidence-based rejections (status ``rejected`` and a reason)
     and a confidence each; ``evidence`` is one :class:`Evidence` per spherulite."""
     items = list(zip(spherulites, evidence))
-    slope, typical = _field_slope(items), _typical_residual(items)
+    slope, typical = field_slope(items), typical_residual(items)
     judged = []
     for sph, ev in items:
         reason = "" if ev.user_included or not ev.automatic or sph.status == "excluded" else \
             _rejection(sph, ev, slope, typical, interval_s, shape)
         judged.append(dataclasses.replace(sph, status="rejected", reason=reason) if reason else sph)
-    items = list(zip(judged, evidence))
-    judged = [_phantom_check(k, s, e, items, interval_s) for k, (s, e) in enumerate(items)]
+    judged = _seam_check(judged, evidence, arrival_noise_s(typical, interval_s))
     items = list(zip(judged, evidence))
     twins = _duplicates(items, interval_s)
     judged = [dataclasses.replace(s, status="rejected", reason=f"the same growing front as #{twins[s.id]}")

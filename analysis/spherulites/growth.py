@@ -23,7 +23,7 @@ from scipy import optimize, special, stats
 class ConeFit:
     """Result of one cone fit (all uncertainties already inflated, see :func:`fit_cone`).
 
-    ``slope_s_per_px`` is 1/G. ``n_levels`` is the effective sample size (number of
+    ``slope_s_per_px`` is 1/G (not measured when ``slope_held``). ``n_levels`` is the effective sample size (number of
     distinct frames among the fitted pixels) used for the confidence intervals.
     ``ok`` is False when the fit could not be made; ``reason`` then says why.
     """
@@ -42,6 +42,7 @@ class ConeFit:
     n_levels: int
     ok: bool = True
     reason: str = ""
+    slope_held: bool = False  # the slope was held at a given value (the field's), not fitted
 
     @property
     def g_px_per_s(self) -> float:
@@ -135,7 +136,8 @@ def _covariance(jac: np.ndarray, resid: np.ndarray, n_params: int) -> np.ndarray
 
 def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool = False,
              field_shape: tuple[int, int] | None = None,
-             start_t0_slope: tuple[float, float] | None = None) -> ConeFit:
+             start_t0_slope: tuple[float, float] | None = None,
+             held_slope_s_per_px: float | None = None) -> ConeFit:
     """Robust least-squares fit of t = t0 + s |p - c| over one territory's pixels.
 
     Parameters
@@ -158,6 +160,11 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
         Starting t0 (s) and slope (s/px), e.g. from an earlier fit of nearly the same
         pixels (fewer iterations); by default a straight line of t against the distance
         from ``start_xy``.
+    held_slope_s_per_px : float, optional
+        Fit only the centre and t0 with the slope held at this value, s/px: all
+        spherulites of an isothermal field grow at one rate, so a nucleus with too few
+        frames of its own to measure G is still located and timed (three parameters).
+        Not with ``fixed_centre``.
 
     Notes
     -----
@@ -170,7 +177,10 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
     """
     x, y, t = (np.asarray(a, dtype=float) for a in (x, y, t))
     n_levels = int(np.unique(levels).size)
-    n_params = 2 if fixed_centre else 4
+    held = held_slope_s_per_px
+    if held is not None and fixed_centre:
+        raise ValueError("a cone with both its centre and its slope held has only t0 to fit")
+    n_params = 2 if fixed_centre else 3 if held is not None else 4
     if t.size < 3 * n_params or n_levels < n_params + 1:
         return failed_fit(f"{n_levels} frames of data are too few for a cone fit", t.size, n_levels)
     cx, cy = start_xy
@@ -179,6 +189,15 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
         q = _soft_l1_minimum(_cone_problem(x, y, t, (cx, cy)), np.array([t0, s]), f_scale_s)
         p = np.array([cx, cy, *q])
         jac = _jacobian(p, x, y, t)[:, 2:]
+    elif held is not None:
+        lo, hi = _centre_bounds(field_shape)
+        start = np.median(t - held * np.hypot(x - cx, y - cy))
+        q = _soft_l1_minimum(_cone_problem(x, y, t, slope=held),
+                             np.array([np.clip(cx, lo[0], hi[0]), np.clip(cy, lo[1], hi[1]), start]), f_scale_s)
+        p = np.array([*q, held])
+        if not (lo[0] <= p[0] <= hi[0] and lo[1] <= p[1] <= hi[1]):
+            return failed_fit("cone apex far outside the field", t.size, n_levels)
+        jac = _jacobian(p, x, y, t)[:, :3]
     else:
         lo, hi = _centre_bounds(field_shape)
         x0 = np.array([np.clip(cx, lo[0], hi[0]), np.clip(cy, lo[1], hi[1]), t0, s])
@@ -189,15 +208,21 @@ def fit_cone(x, y, t, levels, *, start_xy, f_scale_s: float, fixed_centre: bool 
         jac = _jacobian(p, x, y, t)
     if p[3] <= 0 or not np.all(np.isfinite(p)):
         return failed_fit("cone fit did not converge to a growing front", t.size, n_levels)
-    return _summarise(p, jac, _residuals(p, x, y, t), t, n_levels, n_params, fixed_centre)
+    return _summarise(p, jac, _residuals(p, x, y, t), t, n_levels, n_params, fixed_centre,
+                      slope_held=held is not None)
 
 
-def _cone_problem(x, y, t, centre=None):
+def _cone_problem(x, y, t, centre=None, slope=None):
     """Residuals of the cone (as :func:`_residuals`) with a deferred Jacobian (as
-    :func:`_jacobian`) sharing the distances: parameters (x, y, t0, s), or (t0, s)
-    around a fixed ``centre``."""
+    :func:`_jacobian`) sharing the distances: parameters (x, y, t0, s), (t0, s) around
+    a fixed ``centre``, or (x, y, t0) with a held ``slope``."""
     def evaluate(q):
-        cx, cy, t0, s = q if centre is None else (centre[0], centre[1], q[0], q[1])
+        if centre is not None:
+            cx, cy, t0, s = centre[0], centre[1], q[0], q[1]
+        elif slope is not None:
+            cx, cy, t0, s = q[0], q[1], q[2], slope
+        else:
+            cx, cy, t0, s = q
         dx, dy = x - cx, y - cy
         dist = np.hypot(dx, dy)
         resid = t0 + s * dist - t
@@ -206,7 +231,8 @@ def _cone_problem(x, y, t, centre=None):
             if centre is not None:
                 return np.column_stack([np.ones_like(dist), dist])
             safe = np.maximum(dist, 1e-9)
-            return np.column_stack([-s * dx / safe, -s * dy / safe, np.ones_like(dist), dist])
+            columns = [-s * dx / safe, -s * dy / safe, np.ones_like(dist)]
+            return np.column_stack(columns if slope is not None else columns + [dist])
         return resid, jacobian
     return evaluate
 
@@ -265,17 +291,19 @@ def _centre_bounds(field_shape):
     return [-float(w), -float(h)], [2.0 * w, 2.0 * h]
 
 
-def _summarise(p, jac, resid, t, n_levels, n_params, fixed_centre) -> ConeFit:
+def _summarise(p, jac, resid, t, n_levels, n_params, fixed_centre, *, slope_held=False) -> ConeFit:
     cov = _covariance(jac, resid, n_params)
     inflate = math.sqrt(max(t.size / n_levels, 1.0))
     se = np.sqrt(np.clip(np.diag(cov), 0, None)) * inflate
     if fixed_centre:
         se = np.concatenate([[0.0, 0.0], se])
+    if slope_held:
+        se = np.concatenate([se, [np.nan]])  # not measured: no uncertainty of G to report
     ss_tot = float(np.sum((t - t.mean()) ** 2))
     r2 = 1.0 - float(resid @ resid) / ss_tot if ss_tot > 0 else float("nan")
     return ConeFit(float(p[0]), float(p[1]), float(p[2]), float(p[3]), float(se[0]),
                    float(se[1]), float(se[2]), float(se[3]), n_levels - n_params, r2,
-                   int(t.size), n_levels)
+                   int(t.size), n_levels, slope_held=slope_held)
 
 
 @dataclass(frozen=True)
@@ -437,10 +465,15 @@ def soft_l1_cost(resid: np.ndarray, f_scale_s: float) -> float:
     return float(0.5 * f_scale_s ** 2 * np.sum(2.0 * (np.sqrt(1.0 + z) - 1.0)))
 
 
+def cone_arrival_s(fit: ConeFit, x, y) -> np.ndarray:
+    """Arrival time (s) of one fitted cone's front at the given pixels."""
+    return fit.t0_s + fit.slope_s_per_px * np.hypot(np.asarray(x, float) - fit.x_px,
+                                                    np.asarray(y, float) - fit.y_px)
+
+
 def cone_residuals(fit: ConeFit, x, y, t) -> np.ndarray:
     """Model minus measured arrival time at the given pixels, s."""
-    return _residuals((fit.x_px, fit.y_px, fit.t0_s, fit.slope_s_per_px), np.asarray(x, float),
-                      np.asarray(y, float), np.asarray(t, float))
+    return cone_arrival_s(fit, x, y) - np.asarray(t, float)
 
 
 def residual_scale_s(fit: ConeFit, x, y, t) -> float:
@@ -483,9 +516,7 @@ def _two_cone_jacobian(p, x, y, t, n_bound=0):
 def bound_violation_s(fit: ConeFit, x, y, limit_s: float) -> np.ndarray:
     """How far (s) a cone's arrival exceeds ``limit_s`` at pixels known to have
     crystallised by then (e.g. crystalline in the first frame); 0 where it does not."""
-    model = fit.t0_s + fit.slope_s_per_px * np.hypot(np.asarray(x, float) - fit.x_px,
-                                                     np.asarray(y, float) - fit.y_px)
-    return np.maximum(model - limit_s, 0.0)
+    return np.maximum(cone_arrival_s(fit, x, y) - limit_s, 0.0)
 
 
 def fit_two_cones(x, y, t, start_a, start_b, slope_s_per_px: float, *, f_scale_s: float,

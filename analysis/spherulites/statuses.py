@@ -36,7 +36,8 @@ STATUSES: dict[str, Status] = {s.name: s for s in (
            "marker on the border without a fit): its centre and t0 are extrapolated, so it "
            "enters neither the pooled G nor the nucleation count", "the image border"),
     Status("few-points", "too little free growth for a rate of its own: fewer radii measured "
-           "while the front still grew freely than the minimum, or no cone fit at all",
+           "while the front still grew freely than the minimum, a cone fitted at the field's "
+           "growth rate (too few frames to measure its own), or no cone fit at all",
            "min_points radii with at least min_free_fraction of the directions free"),
     Status("nonlinear", "its radius does not grow linearly in time: the quadratic term of r(t) "
            "is significant and the slope changes by more than the minimum over the record",

@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from analysis.results import Spherulite
 from analysis.spherulites import evidence_checks as checks
-from analysis.spherulites.growth import fit_cone
+from analysis.spherulites.growth import ConeFit, fit_cone
 
 SHAPE = (200, 200)
 
@@ -62,3 +64,78 @@ def test_best_frame_shows_the_front_half_way_to_its_neighbour():
     sph = Spherulite(1, 50.0, 50.0, 100.0, 110.0, 30.0, 0.5, 0.99, 20, "ok")
     frame = checks.best_frame(sph, times, 0.0, nearest_px=80.0, slope_s_per_px=2.0)
     assert times[frame] == 180.0  # 100 s + 40 px × 2 s/px
+
+
+def _johnson_mehl_field(nuclei, *, shape=(200, 200), noise_s=0.5, interval_s=10.0, seed=0):
+    """Arrival times of fronts growing at one rate from (x, y, t0, slope) nuclei, with
+    Gaussian timing noise, and the index of the first front at each pixel."""
+    yy, xx = np.mgrid[:shape[0], :shape[1]]
+    cones = np.array([t0 + s * np.hypot(xx - x, yy - y) for x, y, t0, s in nuclei])
+    t = cones.min(axis=0) + np.random.default_rng(seed).normal(0, noise_s, shape)
+    return xx, yy, t, cones.argmin(axis=0)
+
+
+def _fitted(k, xx, yy, t, mask, interval_s=10.0):
+    x, y, tt = xx[mask].astype(float), yy[mask].astype(float), t[mask]
+    start = int(np.argmin(tt))
+    fit = fit_cone(x, y, tt, np.floor(tt / interval_s), start_xy=(x[start], y[start]),
+                   f_scale_s=0.5 * interval_s, field_shape=SHAPE)
+    resid = float(1.4826 * np.median(np.abs(tt - (fit.t0_s + fit.slope_s_per_px * np.hypot(x - fit.x_px, y - fit.y_px)))))
+    sph = Spherulite(k, fit.x_px, fit.y_px, fit.t0_s, 0.0, 60.0 / fit.slope_s_per_px, 0.1, fit.r2,
+                     fit.n_levels, "ok")
+    return sph, checks.Evidence(fit, resid, x, y, tt, user_included=False, automatic=True)
+
+
+def test_a_nucleus_born_just_before_a_front_arrives_is_kept():
+    # Two fronts at 2 s/px from t0 = 0; a third nucleus 72 px from the first, born 7 s (0.7
+    # frame interval) before that front reaches it (the Johnson-Mehl model of sporadic
+    # nucleation: Johnson & Mehl 1939, Trans. AIME 135, 416). Arrival noise 0.5 s, as the
+    # sub-frame timing of the arrival pass gives.
+    nuclei = [(60.0, 100.0, 0.0, 2.0), (140.0, 100.0, 0.0, 2.0), (100.0, 40.0, 2.0 * 72.11 - 7.0, 2.0)]
+    xx, yy, t, owner = _johnson_mehl_field(nuclei)
+    items = [_fitted(k + 1, xx, yy, t, owner == k) for k in range(3)]
+    judged = checks.judge([s for s, _ in items], [e for _, e in items], interval_s=10.0, shape=SHAPE)
+    assert [s.status for s in judged] == ["ok", "ok", "ok"], [s.reason for s in judged]
+    late = items[2][1]
+    others = [e.fit for _, e in items[:2]]
+    assert checks.nucleus_support(late, others, 0.5) > 0
+
+
+def test_the_seam_where_two_fronts_met_is_rejected():
+    # The strip along the line where two equal fronts met: its arrival times rise away from
+    # the meeting point like a cone's, but they are the two fronts' own (Johnson & Mehl 1939).
+    nuclei = [(60.0, 100.0, 0.0, 2.0), (140.0, 100.0, 0.0, 2.0)]
+    xx, yy, t, _ = _johnson_mehl_field(nuclei)
+    seam = np.abs(xx - 100) <= 4
+    items = [_fitted(1, xx, yy, t, xx < 96), _fitted(2, xx, yy, t, xx > 104), _fitted(3, xx, yy, t, seam)]
+    assert items[2][1].fit.ok and abs(items[2][1].fit.slope_s_per_px / 2.0 - 1) < 0.5  # passes the rate check
+    judged = checks.judge([s for s, _ in items], [e for _, e in items], interval_s=10.0, shape=SHAPE)
+    assert [s.status for s in judged] == ["ok", "ok", "rejected"]
+    assert "seam" in judged[2].reason
+
+
+def test_a_phantom_born_inside_crystal_has_no_support():
+    # A cone born 20 s after the neighbour's front passed its centre never arrives first at
+    # the same growth rate: the phantom nuclei of Avrami 1939 (J. Chem. Phys. 7, 1103).
+    nuclei = [(60.0, 100.0, 0.0, 2.0)]
+    xx, yy, t, _ = _johnson_mehl_field(nuclei)
+    near = np.hypot(xx - 100, yy - 100) <= 15
+    host = _fitted(1, xx, yy, t, ~near)[1]
+    cone = ConeFit(100.0, 100.0, 2.0 * 40.0 + 20.0, 2.0, 0.1, 0.1, 1.0, 0.01, 10, 0.99, int(near.sum()), 14)
+    phantom = checks.Evidence(cone, 0.5, xx[near].astype(float), yy[near].astype(float), t[near],
+                              user_included=False, automatic=True)
+    assert checks.nucleus_support(phantom, [host.fit], 0.5) <= 0
+
+
+def test_a_piece_of_a_front_stays_explained_when_that_front_is_placed_within_its_uncertainty():
+    # Pixels far out on one front, and that front's fitted cone 1.5 s late there: a shift
+    # of 1.5 standard errors of its t0 still explains them (Schwarz 1978, Ann. Stat. 6,
+    # 461: the penalised likelihood); a cone claimed exact would not.
+    xx, yy, t, _ = _johnson_mehl_field([(60.0, 100.0, 0.0, 2.0)], noise_s=0.5)
+    piece = _fitted(2, xx, yy, t, (xx >= 140) & (xx < 175) & (yy >= 80) & (yy < 140))[1]
+    host = _fitted(1, xx, yy, t, xx < 120)[1].fit
+    late = dataclasses.replace(host, t0_s=host.t0_s + 1.5, se_t0_s=1.0, se_slope_s_per_px=0.0,
+                               se_x_px=0.0, se_y_px=0.0)
+    assert checks.nucleus_support(piece, [late], 0.5) <= 0
+    exact = dataclasses.replace(late, se_t0_s=0.0)
+    assert checks.nucleus_support(piece, [exact], 0.5) > 0

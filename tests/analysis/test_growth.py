@@ -52,6 +52,20 @@ def test_fixed_centre_fits_only_birth_and_rate():
     assert fit.g_px_per_s == pytest.approx(0.8, rel=0.01)
 
 
+def test_a_cone_of_four_frames_is_fitted_with_the_slope_held_at_the_field_s():
+    # One growth rate for every spherulite of an isothermal field (Lauritzen & Hoffman 1960,
+    # J. Res. Natl. Bur. Stand. 64A, 73): with G known, centre and t0 need only three levels.
+    rng = np.random.default_rng(3)
+    x, y, t, frames = _cone_pixels(rng, radius=5.0, noise=0.2)
+    assert np.unique(frames).size == 4
+    free = growth.fit_cone(x, y, t, frames, start_xy=(30.0, 30.0), f_scale_s=1.0)
+    held = growth.fit_cone(x, y, t, frames, start_xy=(30.0, 30.0), f_scale_s=1.0, held_slope_s_per_px=1 / 0.8)
+    assert not free.ok and "too few" in free.reason
+    assert held.ok and held.slope_held and held.dof == 1
+    assert abs(held.x_px - 31.3) < 0.5 and abs(held.y_px - 28.7) < 0.5 and abs(held.t0_s - 5.0) < 1.0
+    assert held.slope_s_per_px == 1 / 0.8 and held.g_ci95_px_per_s() is None  # G is not measured
+
+
 def test_too_few_frames_is_a_failed_fit_not_an_exception():
     fit = growth.fit_cone([1, 2, 3], [1, 2, 3], [1.0, 2.0, 3.0], [1, 1, 1], start_xy=(0, 0), f_scale_s=1)
     assert not fit.ok and "too few" in fit.reason

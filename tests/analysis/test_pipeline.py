@@ -155,6 +155,35 @@ def test_clusters_already_merged_in_the_first_frame_are_all_found(centres, birth
         assert np.min(np.hypot(*(found - [cx, cy]).T)) < 3.0
 
 
+def test_a_late_nucleus_hemmed_in_after_four_frames_is_located_timed_and_counted():
+    # A nucleus born in the melt pocket between three fronts 60 s before they close it
+    # grows for four frames only: too few for its own four-parameter cone, enough for a
+    # cone at the field's growth rate (one G per temperature: Lauritzen & Hoffman 1960,
+    # J. Res. Natl. Bur. Stand. 64A, 73; Johnson-Mehl cells: Johnson & Mehl 1939).
+    shape = (160, 200)
+    ring = [(100 + 45 * np.cos(a), 80 + 45 * np.sin(a)) for a in np.deg2rad([90, 210, 330])]
+    centres = np.array(ring + [(40.0, 20.0), (160.0, 20.0), (100.0, 150.0), (100.0, 80.0)])
+    late_birth = 45 / G_PX_PER_S - 60.0
+    births = np.append(np.zeros(6), late_birth)
+    times = np.arange(0.0, 400.0, 10.0)
+    exact = growth.model_arrival_map(shape, centres, births, G_PX_PER_S)
+    result = pipeline.analyze_arrival(arrival_from_truth(exact, times)).result
+    late = min(result.spherulites, key=lambda s: np.hypot(s.x_px - 100, s.y_px - 80))
+    assert late.status == "few-points" and late.n_points == 4
+    assert np.hypot(late.x_px - 100, late.y_px - 80) < 1.5
+    assert abs(late.nucleation_time_s - late_birth) < 10.0  # within one frame interval
+    assert late.growth_rate_um_per_min is None  # held at the field's, not measured
+    area_mm2 = shape[0] * shape[1] * (UM_PER_PX * 1e-3) ** 2
+    assert result.nucleation.density_per_mm2 == pytest.approx(7 / area_mm2)
+    # An edit elsewhere leaves it as it was (the field's G, from the ok fits, moves a hair).
+    other = max(result.spherulites, key=lambda s: np.hypot(s.x_px - 100, s.y_px - 80))
+    analysis = pipeline.analyze_arrival(arrival_from_truth(exact, times))
+    edited = pipeline.apply_edits(analysis, [e.ExcludeSpherulite(other.x_px, other.y_px)]).result
+    again = next(s for s in edited.spherulites if s.id == late.id)
+    assert again.status == "few-points" and again.nucleation_time_s == pytest.approx(late.nucleation_time_s, abs=0.1)
+    assert (again.x_px, again.y_px) == pytest.approx((late.x_px, late.y_px), abs=0.05)
+
+
 def test_isothermal_start_shifts_result_times():
     times = np.arange(0.0, 300.0, 3.0)
     exact = growth.model_arrival_map((120, 120), [[60.0, 60.0]], [30.0], G_PX_PER_S)
