@@ -285,7 +285,8 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
         radii.append(series)
         fits.append(fit)
         evidence.append(ev)
-    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
+    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape,
+                                        correlation_px=ctx.correlation_px)
     pooled, pooled_text = _pooled(ctx, spherulites, fits, radii)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation = _nucleation(ctx, spherulites, fits, time_s, fraction)

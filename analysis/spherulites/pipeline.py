@@ -35,6 +35,7 @@ changes its pixels, its cone is refitted with the centre held (t0 and G only).
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass, field
 from typing import Any, Generator, Sequence
 
@@ -103,7 +104,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start),
-                   registered_drift_px=_largest_shift_px(arrival))
+                   registered_drift_px=_largest_shift_px(arrival),
+                   correlation_px=_correlation_px(arrival))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
     for _ in range(4):  # further rounds separate clusters of three or four
@@ -119,6 +121,15 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                                                                     settings))
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
+
+
+def _correlation_px(arrival) -> float:
+    """Gaussian sigma (px) over which arrival-time errors are shared: the evidence
+    smoothing and the measured edge blur, both Gaussian, added in quadrature."""
+    quality = getattr(arrival, "image_quality", None)
+    if quality is None:
+        return 0.0
+    return float(math.hypot(quality.smoothing_px or 0.0, quality.blur_px or 0.0))
 
 
 def _largest_shift_px(arrival) -> float:
@@ -176,10 +187,13 @@ def _with_missed_nuclei(ctx: Context, settings) -> Context:
                                auto_lookup_xy=markers.xy_px.copy())
 
 
-def _split_pixels(ctx, result, fits, groups, settings) -> dict:
-    """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
-    scale above 1.5 times the field's typical one, non-linear growth, or a slope more
-    than 25 % off the field's mean. A crystal present in the first frame must also lie
+def _split_pixels(ctx, result, fits, groups, settings) -> tuple[dict, float]:
+    """Fit pixels (x, y, t, fit, status, axis start) of the detections worth a
+    two-nucleus test, and the field's arrival-time noise (median robust residual scale,
+    s). Worth the test: residual scale above 1.5 times the field's typical one,
+    non-linear growth, a slope more than 25 % off the field's mean, or residuals
+    elongated along one axis by more than noise explains (nuclei.elongation, whose axis
+    gives two more starting apexes). A crystal present in the first frame must also lie
     inside the cone's disc at that time: its outline's excess arrival joins the residuals
     (nuclei.split_cones)."""
     band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
@@ -202,13 +216,16 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
             excess = growth.bound_violation_s(fit, ox, oy, float(ctx.times_s[0]))
             scales[sph.id] = max(scales[sph.id], float(1.4826 * np.median(excess)))
     if not scales:
-        return {}
+        return {}, float("nan")
     rules = heuristics.current()
     typical = float(np.median(list(scales.values())))
-    odd_slope = {k for k, v in data.items()
-                 if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance}
-    return {k: v for k, v in data.items()
-            if scales[k] > rules.split_residual_ratio * typical or v[4] == "nonlinear" or k in odd_slope}
+    chosen = {}
+    for k, (x, y, t, fit, status) in data.items():
+        evidence, axis = nuclei.elongation(fit, x, y, t, noise_s=typical, correlation_px=ctx.correlation_px)
+        if (scales[k] > rules.split_residual_ratio * typical or status == "nonlinear" or evidence > 0
+                or abs(fit.slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance):
+            chosen[k] = (x, y, t, fit, status, axis)
+    return chosen, typical
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
@@ -221,16 +238,19 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     boundaries between them, which a later round can split again. A fitted cone on
     another detection's apex is that detection and gets no marker. A
     split inside such a crystal is undone when either half then has no cone fit: its
-    apex was placed where no measured front can confirm it. Any split is undone when a
-    half's own fit lands on another detection's apex (within the split separation): the
-    extra cone was explaining a neighbour's pixels, not a nucleus of its own.
+    apex was placed where no measured front can confirm it; so is one whose unfitted half
+    has its apex outside the field (only an arc could have confirmed it). Any split is undone when a
+    half's own fit lands on another detection's apex (within the split separation; onto
+    its sibling's within their uncertainty, see _duplicates): the extra cone was
+    explaining a neighbour's pixels, not a nucleus of its own.
     """
     result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
     work = ctx.work.copy()
     next_id = ctx.markers.xy_px.shape[0] + 1
     splits = []  # (spots, marker values replaced, relief pixels redrawn) per split
-    for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
+    candidates, noise_s = _split_pixels(ctx, result, fits, groups, settings)
+    for det_id, (x, y, t, fit, _, axis) in candidates.items():
         rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         frame_0 = ctx.at_start[rows, cols]
         start_region = (cols[frame_0], rows[frame_0])
@@ -241,7 +261,8 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         else:
             cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
                                        f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
-                                       start_time_s=float(ctx.times_s[0]))
+                                       start_time_s=float(ctx.times_s[0]), noise_s=noise_s,
+                                       correlation_px=ctx.correlation_px, axis_start=axis)
         if cones is None:
             continue
         apexes = np.asarray(cones[:-1]).reshape(-1, 3)[:, :2]
@@ -265,18 +286,21 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         redrawn = (rows[frame_0], cols[frame_0])
         work[redrawn] = np.minimum(nuclei.cones_arrival(cones, redrawn[1], redrawn[0]),
                                    ctx.times_s[0])
-        splits.append((spots, [det_id, *others], redrawn))
+        splits.append((spots, [det_id, *others], redrawn, new))
     if not splits:
         return ctx
     split_ctx = _with_marker_labels(dataclasses.replace(ctx, work=work), labels)
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
-    apexes = {k: (f.x_px, f.y_px) for k, f in split_fits.items() if f.ok}
-    for spots, replaced, redrawn in splits:
+    apexes = {k: f for k, f in split_fits.items() if f.ok}
+    h, w = ctx.shape
+    for spots, replaced, redrawn, placed in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
-        duplicate = any(_duplicates(apexes, k) for k in ids)
-        if not duplicate and (all(split_fits[k].ok for k in ids)
-                              or not any(ctx.at_start[spot] for spot in spots)):
+        duplicate = any(_duplicates(apexes, k, siblings=ids) for k in ids)
+        unfitted_outside = any(not split_fits[k].ok and not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5)
+                               for k, (x, y) in zip(ids, placed))
+        if not duplicate and not unfitted_outside and (all(split_fits[k].ok for k in ids)
+                                                       or not any(ctx.at_start[spot] for spot in spots)):
             continue
         for spot in spots:
             labels[spot] = 0
@@ -287,13 +311,28 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     return _with_marker_labels(dataclasses.replace(ctx, work=work), labels) if undone else split_ctx
 
 
-def _duplicates(apexes: dict, label: int) -> bool:
-    """The fitted apex of ``label`` lies within the split separation of another's."""
-    if label not in apexes:
+def _duplicates(fits: dict, label: int, siblings=()) -> bool:
+    """The fitted apex of ``label`` lies within the split separation of another's. Its
+    ``siblings``, the other halves of its own split, may come closer (a close pair) but
+    must stay ``pair_min_separation_px`` apart and farther than the 95 % uncertainty of
+    the two fitted apexes: two cones that land on one point within their precision were
+    one nucleus."""
+    if label not in fits:
         return False
-    here = np.asarray(apexes[label])
-    near = heuristics.current().split_min_separation_px
-    return any(np.hypot(*(here - xy)) < near for k, xy in apexes.items() if k != label)
+    here = fits[label]
+    rules = heuristics.current()
+    for k, other in fits.items():
+        if k == label:
+            continue
+        apart = math.hypot(here.x_px - other.x_px, here.y_px - other.y_px)
+        if k not in siblings:
+            if apart < rules.split_min_separation_px:
+                return True
+            continue
+        spread = 1.96 * math.sqrt(here.se_x_px ** 2 + here.se_y_px ** 2 + other.se_x_px ** 2 + other.se_y_px ** 2)
+        if apart < max(rules.pair_min_separation_px, spread):
+            return True
+    return False
 
 
 def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
