@@ -437,12 +437,23 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     large_gain = cost2 < rules.split_cost_ratio * cost1 and apart >= rules.split_min_separation_px
     preferred = (noise_s is not None and apart >= rules.pair_min_separation_px
                  and rules.split_min_share <= share <= 1.0 - rules.split_min_share
+                 and _adequate(params, x, y, t, noise_s)
                  and pair_evidence(cost1, cost2, noise_s=noise_s, n_pixels=x.size,
                                    correlation_px=correlation_px) > rules.split_evidence_bic)
     if ((large_gain and balanced or preferred)
             and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
         return np.asarray(params, float)
     return None
+
+
+def _adequate(params, x, y, t, noise_s: float) -> bool:
+    """The two cones leave residuals (robust scale, 1.4826 MAD) within
+    ``split_residual_ratio`` times the field's noise: a model comparison only chooses
+    between models that fit. Structure two cones cannot absorb either (a front cut by
+    the field's edge, banding) is something else than a second nucleus."""
+    resid = cones_arrival(params, x, y) - np.asarray(t, float)
+    scale = 1.4826 * float(np.median(np.abs(resid - np.median(resid))))
+    return scale <= heuristics.current().split_residual_ratio * noise_s
 
 
 def best_split(x, y, t, slope_s_per_px: float, *, f_scale_s: float):

@@ -238,8 +238,9 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     boundaries between them, which a later round can split again. A fitted cone on
     another detection's apex is that detection and gets no marker. A
     split inside such a crystal is undone when either half then has no cone fit: its
-    apex was placed where no measured front can confirm it; so is one whose unfitted half
-    has its apex outside the field (only an arc could have confirmed it). Any split is undone when a
+    apex was placed where no measured front can confirm it. A half with no cone fit whose
+    apex lies outside the field is dropped (only an arc could have confirmed it; its
+    pixels go to its neighbours). Any split is undone when a
     half's own fit lands on another detection's apex (within the split separation; onto
     its sibling's within their uncertainty, see _duplicates): the extra cone was
     explaining a neighbour's pixels, not a nucleus of its own.
@@ -297,10 +298,13 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     for spots, replaced, redrawn, placed in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
         duplicate = any(_duplicates(apexes, k, siblings=ids) for k in ids)
-        unfitted_outside = any(not split_fits[k].ok and not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5)
-                               for k, (x, y) in zip(ids, placed))
-        if not duplicate and not unfitted_outside and (all(split_fits[k].ok for k in ids)
-                                                       or not any(ctx.at_start[spot] for spot in spots)):
+        unseen = [spot for k, spot, (x, y) in zip(ids, spots, placed)
+                  if not split_fits[k].ok and not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5)]
+        if not duplicate and (all(split_fits[k].ok for k in ids)
+                              or not any(ctx.at_start[spot] for spot in spots)):
+            for spot in unseen:  # only an arc could confirm it, and none did
+                labels[spot] = 0
+            undone = undone or bool(unseen)
             continue
         for spot in spots:
             labels[spot] = 0
