@@ -394,9 +394,10 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     With ``noise_s`` (the field's arrival-time noise, s) two cones are also accepted on a
     model comparison: their Schwarz criterion beats the single cone's by
     ``split_evidence_bic`` (:func:`pair_evidence`, ``correlation_px`` the smoothing
-    sigma), with apexes at least ``pair_min_separation_px`` apart and each cone first
-    over ``split_min_share`` of the pixels. This resolves pairs too close for a large
-    cost ratio. ``axis_start``: two more starting apexes (e.g. from :func:`elongation`).
+    sigma), with apexes at least ``pair_min_separation_px`` apart, each cone first over
+    ``split_min_share`` of the pixels and residuals that fit (:func:`_adequate`). This
+    resolves pairs too close for a large cost ratio. ``axis_start``: two more starting
+    apexes (e.g. from :func:`elongation`).
     """
     from analysis.spherulites.growth import (
         bound_violation_s,

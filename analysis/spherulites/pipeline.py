@@ -294,15 +294,14 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
     apexes = {k: f for k, f in split_fits.items() if f.ok}
-    h, w = ctx.shape
     for spots, replaced, redrawn, placed in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
-        duplicate = any(_duplicates(apexes, k, siblings=ids) for k in ids)
-        unseen = [spot for k, spot, (x, y) in zip(ids, spots, placed)
-                  if not split_fits[k].ok and not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5)]
+        duplicate = any(_duplicates(apexes, k, siblings=ids, shape=ctx.shape) for k in ids)
         if not duplicate and (all(split_fits[k].ok for k in ids)
                               or not any(ctx.at_start[spot] for spot in spots)):
-            for spot in unseen:  # only an arc could confirm it, and none did
+            unseen = [spot for k, spot, (x, y) in zip(ids, spots, placed)
+                      if not split_fits[k].ok and not _in_field(x, y, ctx.shape)]
+            for spot in unseen:  # only an arc could confirm it, and no cone fits it
                 labels[spot] = 0
             undone = undone or bool(unseen)
             continue
@@ -315,12 +314,13 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     return _with_marker_labels(dataclasses.replace(ctx, work=work), labels) if undone else split_ctx
 
 
-def _duplicates(fits: dict, label: int, siblings=()) -> bool:
+def _duplicates(fits: dict, label: int, siblings=(), shape=None) -> bool:
     """The fitted apex of ``label`` lies within the split separation of another's. Its
     ``siblings``, the other halves of its own split, may come closer (a close pair) but
     must stay ``pair_min_separation_px`` apart and farther than the 95 % uncertainty of
     the two fitted apexes: two cones that land on one point within their precision were
-    one nucleus."""
+    one nucleus. A sibling whose apex lies outside the field (of ``shape``) is only an
+    arc, located too poorly for that test; the edge rule judges it instead."""
     if label not in fits:
         return False
     here = fits[label]
@@ -333,10 +333,19 @@ def _duplicates(fits: dict, label: int, siblings=()) -> bool:
             if apart < rules.split_min_separation_px:
                 return True
             continue
+        if shape is not None and not (_in_field(here.x_px, here.y_px, shape)
+                                      and _in_field(other.x_px, other.y_px, shape)):
+            continue
         spread = 1.96 * math.sqrt(here.se_x_px ** 2 + here.se_y_px ** 2 + other.se_x_px ** 2 + other.se_y_px ** 2)
         if apart < max(rules.pair_min_separation_px, spread):
             return True
     return False
+
+
+def _in_field(x_px: float, y_px: float, shape) -> bool:
+    """The point (px) lies on the field's pixels (edges at -0.5 and size - 0.5)."""
+    h, w = shape
+    return -0.5 <= x_px <= w - 0.5 and -0.5 <= y_px <= h - 0.5
 
 
 def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:
