@@ -326,8 +326,8 @@ def elongation(fit, x, y, t, *, noise_s: float, correlation_px: float):
     (a shifted centre absorbs the first) is the second, of amplitude 4 / (3 pi) of
     s d / 2. The residuals are regressed on cos 2 theta and sin 2 theta about the fitted
     centre. Returns (Schwarz criterion gain of the two harmonic terms, see
-    :func:`pair_evidence`; the two starting apexes (x, y) at the estimated d, at least
-    1 px, either side of the centre along phi).
+    :func:`pair_evidence`; the separation d it implies, px; the two starting apexes
+    (x, y) d / 2 (between 0.5 and 5 px) either side of the centre along phi).
     """
     from analysis.spherulites.growth import cone_residuals
 
@@ -340,11 +340,10 @@ def elongation(fit, x, y, t, *, noise_s: float, correlation_px: float):
     evidence = pair_evidence(0.5 * explained, 0.0, noise_s=noise_s, n_pixels=resid.size,
                              correlation_px=correlation_px, extra_parameters=2)
     phi = 0.5 * math.atan2(coef[2], coef[1])
-    half = max(math.hypot(coef[1], coef[2]) / (4.0 / (3.0 * math.pi)) / max(fit.slope_s_per_px, 1e-12), 0.5)
-    half = min(half, 5.0)
-    offset = half * np.array([math.cos(phi), math.sin(phi)])
+    half = math.hypot(coef[1], coef[2]) / (4.0 / (3.0 * math.pi)) / max(fit.slope_s_per_px, 1e-12)
+    offset = min(max(half, 0.5), 5.0) * np.array([math.cos(phi), math.sin(phi)])
     centre = np.array([fit.x_px, fit.y_px])
-    return evidence, (centre - offset, centre + offset)
+    return evidence, 2.0 * half, (centre - offset, centre + offset)
 
 
 def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
@@ -396,8 +395,8 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     ``split_evidence_bic`` (:func:`pair_evidence`, ``correlation_px`` the smoothing
     sigma), with apexes at least ``pair_min_separation_px`` apart, each cone first over
     ``split_min_share`` of the pixels and residuals that fit (:func:`_adequate`). This
-    resolves pairs too close for a large cost ratio. ``axis_start``: two more starting
-    apexes (e.g. from :func:`elongation`).
+    resolves pairs too close for a large cost ratio. ``axis_start``: two starting apexes
+    used instead of the earliest pixels' axis (e.g. from :func:`elongation`).
     """
     from analysis.spherulites.growth import (
         bound_violation_s,
@@ -411,11 +410,10 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     early = t <= np.percentile(t, 15)
     if np.count_nonzero(early) < 5:
         return None
-    starts = [_axis_ends(x[early], y[early])]
+    starts = [_axis_ends(x[early], y[early])] if axis_start is None else \
+        [tuple(np.asarray(a, float) for a in axis_start)]
     if start_region is not None and len(start_region[0]) >= 5:
         starts.append(_axis_ends(*start_region))
-    if axis_start is not None:
-        starts.append(tuple(np.asarray(a, float) for a in axis_start))
     bound = None
     if start_time_s is not None and start_region is not None and len(start_region[0]):
         bound = (*region_outline(*start_region), float(start_time_s))

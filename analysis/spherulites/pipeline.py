@@ -192,8 +192,9 @@ def _split_pixels(ctx, result, fits, groups, settings) -> tuple[dict, float]:
     two-nucleus test, and the field's arrival-time noise (median robust residual scale,
     s). Worth the test: residual scale above 1.5 times the field's typical one,
     non-linear growth, a slope more than 25 % off the field's mean, or residuals
-    elongated along one axis by more than noise explains (nuclei.elongation, whose axis
-    gives two more starting apexes). A crystal present in the first frame must also lie
+    elongated along one axis (nuclei.elongation, whose axis then gives the starting
+    apexes) with strong evidence (split_evidence_bic) and by as much as two apexes
+    pair_min_separation_px apart would make. A crystal present in the first frame must also lie
     inside the cone's disc at that time: its outline's excess arrival joins the residuals
     (nuclei.split_cones)."""
     band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
@@ -221,10 +222,12 @@ def _split_pixels(ctx, result, fits, groups, settings) -> tuple[dict, float]:
     typical = float(np.median(list(scales.values())))
     chosen = {}
     for k, (x, y, t, fit, status) in data.items():
-        evidence, axis = nuclei.elongation(fit, x, y, t, noise_s=typical, correlation_px=ctx.correlation_px)
-        if (scales[k] > rules.split_residual_ratio * typical or status == "nonlinear" or evidence > 0
-                or abs(fit.slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance):
-            chosen[k] = (x, y, t, fit, status, axis)
+        evidence, apart, axis = nuclei.elongation(fit, x, y, t, noise_s=typical, correlation_px=ctx.correlation_px)
+        elongated = evidence > rules.split_evidence_bic and apart >= rules.pair_min_separation_px
+        misfit = (scales[k] > rules.split_residual_ratio * typical or status == "nonlinear"
+                  or abs(fit.slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance)
+        if misfit or elongated:  # elongated only: the harmonic's axis is the one start needed
+            chosen[k] = (x, y, t, fit, status, None if misfit else axis)
     return chosen, typical
 
 
@@ -259,11 +262,12 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
             cones = nuclei.cluster_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
                                          f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
                                          start_time_s=float(ctx.times_s[0]))
-        else:
-            cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
-                                       f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
-                                       start_time_s=float(ctx.times_s[0]), noise_s=noise_s,
-                                       correlation_px=ctx.correlation_px, axis_start=axis)
+        else:  # memoised: later rounds ask again about every territory they left unchanged
+            key = ("two cones", digest(x, y, t, start_region[0], start_region[1]), round(noise_s, 3))
+            cones = cached(ctx, key, lambda: nuclei.split_cones(
+                x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px, f_scale_s=0.5 * ctx.interval_s,
+                start_region=start_region, start_time_s=float(ctx.times_s[0]), noise_s=noise_s,
+                correlation_px=ctx.correlation_px, axis_start=axis))
         if cones is None:
             continue
         apexes = np.asarray(cones[:-1]).reshape(-1, 3)[:, :2]

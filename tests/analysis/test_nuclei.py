@@ -189,7 +189,7 @@ def _frame_timed_pair(apexes, *, slope=12.0, noise_s=3.0, seed=0):
 
 
 def _compared_split(xx, yy, t, fit, noise_s=3.0, correlation_px=1.0):
-    evidence, axis = nuclei.elongation(fit, xx, yy, t, noise_s=noise_s, correlation_px=correlation_px)
+    evidence, _, axis = nuclei.elongation(fit, xx, yy, t, noise_s=noise_s, correlation_px=correlation_px)
     return evidence, nuclei.split_cones(xx, yy, t, fit, slope_s_per_px=12.0, f_scale_s=5.0, noise_s=noise_s,
                                         correlation_px=correlation_px, axis_start=axis)
 
