@@ -241,9 +241,9 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     boundaries between them, which a later round can split again. A fitted cone on
     another detection's apex is that detection and gets no marker. A
     split inside such a crystal is undone when either half then has no cone fit: its
-    apex was placed where no measured front can confirm it. A half with no cone fit whose
-    apex lies outside the field is dropped (only an arc could have confirmed it; its
-    pixels go to its neighbours). Any split is undone when a
+    apex was placed where no measured front can confirm it. Elsewhere such a half stays,
+    as a rejected row: its territory keeps the other nucleus's pixels out of this one's
+    fit (an arc entering from outside beside a nucleus at the edge). Any split is undone when a
     half's own fit lands on another detection's apex (within the split separation; onto
     its sibling's within their uncertainty, see _duplicates): the extra cone was
     explaining a neighbour's pixels, not a nucleus of its own.
@@ -291,23 +291,18 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
         redrawn = (rows[frame_0], cols[frame_0])
         work[redrawn] = np.minimum(nuclei.cones_arrival(cones, redrawn[1], redrawn[0]),
                                    ctx.times_s[0])
-        splits.append((spots, [det_id, *others], redrawn, new))
+        splits.append((spots, [det_id, *others], redrawn))
     if not splits:
         return ctx
     split_ctx = _with_marker_labels(dataclasses.replace(ctx, work=work), labels)
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
     apexes = {k: f for k, f in split_fits.items() if f.ok}
-    for spots, replaced, redrawn, placed in splits:
+    for spots, replaced, redrawn in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
         duplicate = any(_duplicates(apexes, k, siblings=ids, shape=ctx.shape) for k in ids)
         if not duplicate and (all(split_fits[k].ok for k in ids)
                               or not any(ctx.at_start[spot] for spot in spots)):
-            unseen = [spot for k, spot, (x, y) in zip(ids, spots, placed)
-                      if not split_fits[k].ok and not _in_field(x, y, ctx.shape)]
-            for spot in unseen:  # only an arc could confirm it, and no cone fits it
-                labels[spot] = 0
-            undone = undone or bool(unseen)
             continue
         for spot in spots:
             labels[spot] = 0
