@@ -263,7 +263,8 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
                                          f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
                                          start_time_s=float(ctx.times_s[0]))
         else:  # memoised: later rounds ask again about every territory they left unchanged
-            key = ("two cones", digest(x, y, t, start_region[0], start_region[1]), round(noise_s, 3))
+            key = ("two cones", digest(x, y, t, start_region[0], start_region[1]), round(noise_s, 3),
+                   axis is None)
             cones = cached(ctx, key, lambda: nuclei.split_cones(
                 x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px, f_scale_s=0.5 * ctx.interval_s,
                 start_region=start_region, start_time_s=float(ctx.times_s[0]), noise_s=noise_s,
