@@ -125,6 +125,14 @@ class DetectionHeuristics:
         "split_lopsided_cost_ratio).")
     split_min_separation_px: float = _h(
         3.0, "Apexes of a split must be at least this far apart, px (pixel-scale fit precision).")
+    split_evidence_bic: float = _h(
+        6.0, "Two cones replace one when their Schwarz criterion (Schwarz 1978, Ann. Stat. 6, "
+        "461), counted on independent samples with the measured arrival-time noise, is lower "
+        "by more than this: 'strong' evidence on the scale of Kass & Raftery 1995, J. Am. "
+        "Stat. Assoc. 90, 773.")
+    pair_min_separation_px: float = _h(
+        1.0, "Apexes of a split accepted on the model comparison must be at least this far "
+        "apart, px: closer than one pixel the grid itself cannot place them apart.")
     split_slope_tolerance: float = _h(
         0.25, "The common slope of a split must be within this relative difference of the "
         "field's mean slope (one growth rate per temperature, see missed_slope_tolerance).")

@@ -312,7 +312,8 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
         if not rows[k][3].in_first_frame or evidence_checks.follows_one_front(again[3], typical, ctx.interval_s):
             rows[k] = again
     spherulites, radii, fits, evidence = (list(column) for column in zip(*rows)) if rows else ([], [], [], [])
-    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape)
+    spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape,
+                                        correlation_px=ctx.correlation_px)
     pooled, pooled_text = _pooled(ctx, spherulites, fits, radii)
     time_s, fraction = _area_fraction(ctx, global_spans)
     nucleation = _nucleation(ctx, spherulites, fits, time_s, fraction)

@@ -25,7 +25,7 @@ import numpy as np
 from scipy import optimize
 
 from analysis import heuristics
-from analysis.spherulites import growth
+from analysis.spherulites import growth, nuclei
 
 __all__ = ["Evidence", "judge", "confidence", "best_frame", "review_order", "nearest_other_px"]
 
@@ -232,10 +232,12 @@ def _seam_check(judged: list, evidence: list, noise_s: float) -> list:
     return out
 
 
-def _duplicates(items, interval_s: float) -> dict[int, int]:
-    """{id: id of the stronger twin} for fitted detections describing the same front."""
+def _duplicates(items, interval_s: float, noise_s: float = float("nan"),
+                correlation_px: float = 0.0) -> dict[int, int]:
+    """{id: id of the stronger twin} for fitted detections describing the same front
+    (``noise_s``, ``correlation_px``: see :func:`_one_front`)."""
     rules = heuristics.current()
-    fitted = [(s, e) for s, e in items if e.fit.ok and s.status not in ("rejected", "nonlinear") and e.x.size]
+    fitted = [(s, e) for s, e in items if e.fit.ok and s.status != "rejected" and e.x.size]
     twin = {}
     for i, (a, ea) in enumerate(fitted):
         for b, eb in fitted[i + 1:]:
@@ -245,19 +247,25 @@ def _duplicates(items, interval_s: float) -> dict[int, int]:
                                       eb.fit.se_y_px ** 2)
             if apart > max(spread, rules.same_centre_px):
                 continue
-            if _one_front(ea, eb, interval_s, rules.duplicate_agreement_intervals):
+            if _one_front(ea, eb, interval_s, rules.duplicate_agreement_intervals, noise_s, correlation_px):
                 weak, strong = (a, b) if ea.x.size < eb.x.size else (b, a)
                 if weak.id not in twin and not (weak is a and ea.user_included or weak is b and eb.user_included):
                     twin[weak.id] = strong.id
     return twin
 
 
-def _one_front(ea: Evidence, eb: Evidence, interval_s: float, agreement: float) -> bool:
+def _one_front(ea: Evidence, eb: Evidence, interval_s: float, agreement: float,
+               noise_s: float = float("nan"), correlation_px: float = 0.0) -> bool:
     """One cone fitted to both detections' pixels explains them as well as their own
     cones do (robust residual scale within a quarter of ``agreement`` frame intervals of
     the worse of the two, and the same growth rate within 10 %): the two are pieces of
     one front, typically an arc entering the field split by its extinction arms. Only
-    asked of pairs whose centres agree within their uncertainty (see _duplicates)."""
+    asked of pairs whose centres agree within their uncertainty (see _duplicates).
+
+    Not one front when the two cones are strongly preferred on the model comparison
+    with the field's arrival-time noise ``noise_s`` (nuclei.pair_evidence above
+    ``split_evidence_bic``): a close pair of nuclei, whose joint cone is only a little
+    worse pixel by pixel but over every pixel."""
     x, y, t = (np.concatenate([a, b]) for a, b in ((ea.x, eb.x), (ea.y, eb.y), (ea.t, eb.t)))
     strong = ea if ea.x.size >= eb.x.size else eb
     levels = np.round(t / interval_s).astype(np.int64)
@@ -267,8 +275,16 @@ def _one_front(ea: Evidence, eb: Evidence, interval_s: float, agreement: float) 
         return False
     scale = growth.residual_scale_s(joint, x, y, t)
     worse = max(ea.residual_s, eb.residual_s)
-    return scale <= worse + 0.25 * agreement * interval_s and \
-        abs(joint.slope_s_per_px / strong.fit.slope_s_per_px - 1) <= 0.1
+    if scale > worse + 0.25 * agreement * interval_s or \
+            abs(joint.slope_s_per_px / strong.fit.slope_s_per_px - 1) > 0.1:
+        return False
+    if not math.isfinite(noise_s):
+        return True
+    f_scale = 0.5 * interval_s
+    own = sum(growth.soft_l1_cost(growth.cone_residuals(e.fit, e.x, e.y, e.t), f_scale) for e in (ea, eb))
+    shared = growth.soft_l1_cost(growth.cone_residuals(joint, x, y, t), f_scale)
+    return nuclei.pair_evidence(shared, own, noise_s=noise_s, n_pixels=x.size,
+                                correlation_px=correlation_px) <= heuristics.current().split_evidence_bic
 
 
 def confidence(sph, ev: Evidence, *, slope: float, typical: float, interval_s: float,
@@ -297,9 +313,10 @@ def confidence(sph, ev: Evidence, *, slope: float, typical: float, interval_s: f
     return float(np.clip(value, 0.0, 1.0))
 
 
-def judge(spherulites, evidence, *, interval_s: float, shape):
+def judge(spherulites, evidence, *, interval_s: float, shape, correlation_px: float = 0.0):
     """The spherulites with evidence-based rejections (status ``rejected`` and a reason)
-    and a confidence each; ``evidence`` is one :class:`Evidence` per spherulite."""
+    and a confidence each; ``evidence`` is one :class:`Evidence` per spherulite;
+    ``correlation_px``: Gaussian sigma (px) shared by neighbouring arrival times."""
     items = list(zip(spherulites, evidence))
     slope, typical = field_slope(items), typical_residual(items)
     judged = []
@@ -309,7 +326,7 @@ def judge(spherulites, evidence, *, interval_s: float, shape):
         judged.append(dataclasses.replace(sph, status="rejected", reason=reason) if reason else sph)
     judged = _seam_check(judged, evidence, arrival_noise_s(typical, interval_s))
     items = list(zip(judged, evidence))
-    twins = _duplicates(items, interval_s)
+    twins = _duplicates(items, interval_s, typical, correlation_px)
     judged = [dataclasses.replace(s, status="rejected", reason=f"the same growing front as #{twins[s.id]}")
               if s.id in twins and e.automatic else s for s, e in items]
     centres = np.array([[s.x_px, s.y_px] for s in judged]).reshape(-1, 2)

@@ -285,6 +285,67 @@ def _axis_ends(x, y, reach: float = 1.0) -> tuple[np.ndarray, np.ndarray]:
     return centre - axis, centre + axis
 
 
+def independent_samples(n_pixels: int, correlation_px: float) -> float:
+    """How many independent arrival-time errors ``n_pixels`` pixels hold, when the image
+    was smoothed (or blurred) by a Gaussian of sigma ``correlation_px`` (px).
+
+    White noise smoothed by a Gaussian of sigma s has a Gaussian autocorrelation of
+    variance 2 s^2, whose integral over the plane, 4 pi s^2, is the area one independent
+    sample covers. At least one sample and at most one per pixel.
+    """
+    area = max(4.0 * math.pi * float(correlation_px) ** 2, 1.0)
+    return float(min(max(n_pixels / area, 1.0), max(n_pixels, 1)))
+
+
+def pair_evidence(cost_one: float, cost_two: float, *, noise_s: float, n_pixels: int,
+                  correlation_px: float, extra_parameters: int = 3) -> float:
+    """Schwarz criterion of the one-cone model minus that of the model with
+    ``extra_parameters`` more (two cones: a second apex and nucleation time), from their
+    soft-L1 costs over the same ``n_pixels`` pixels.
+
+    BIC = chi^2 + k ln n (Schwarz 1978, Ann. Stat. 6, 461), with chi^2 = 2 cost / noise^2
+    (the soft-L1 cost is half the sum of squares for residuals within the noise) and n
+    the number of independent samples (:func:`independent_samples`): neighbouring pixels
+    share the smoothing, so each pixel's chi^2 counts n / n_pixels. Positive values
+    favour two cones; above 6 the evidence is strong (Kass & Raftery 1995, J. Am. Stat.
+    Assoc. 90, 773).
+    """
+    if not (noise_s > 0 and n_pixels > 0):
+        return float("-inf")
+    n = independent_samples(n_pixels, correlation_px)
+    gain = 2.0 * (cost_one - cost_two) / noise_s ** 2 * (n / n_pixels)
+    return float(gain - extra_parameters * math.log(n))
+
+
+def elongation(fit, x, y, t, *, noise_s: float, correlation_px: float):
+    """Evidence that a cone fit hides two apexes, and where they would be.
+
+    Two nuclei born together d px apart make one front elongated along their axis: about
+    a single cone through their midpoint the arrival is earlier by s d / 2 |cos(theta -
+    phi)| (s the slope, phi the axis), whose lowest angular harmonic left after the fit
+    (a shifted centre absorbs the first) is the second, of amplitude 4 / (3 pi) of
+    s d / 2. The residuals are regressed on cos 2 theta and sin 2 theta about the fitted
+    centre. Returns (Schwarz criterion gain of the two harmonic terms, see
+    :func:`pair_evidence`; the separation d it implies, px; the two starting apexes
+    (x, y) d / 2 (between 0.5 and 5 px) either side of the centre along phi).
+    """
+    from analysis.spherulites.growth import cone_residuals
+
+    resid = cone_residuals(fit, x, y, t)
+    theta = np.arctan2(np.asarray(y, float) - fit.y_px, np.asarray(x, float) - fit.x_px)
+    design = np.column_stack([np.ones_like(theta), np.cos(2 * theta), np.sin(2 * theta)])
+    coef, *_ = np.linalg.lstsq(design, resid, rcond=None)
+    centred = resid - resid.mean()
+    explained = float(centred @ centred - np.sum((resid - design @ coef) ** 2))
+    evidence = pair_evidence(0.5 * explained, 0.0, noise_s=noise_s, n_pixels=resid.size,
+                             correlation_px=correlation_px, extra_parameters=2)
+    phi = 0.5 * math.atan2(coef[2], coef[1])
+    half = math.hypot(coef[1], coef[2]) / (4.0 / (3.0 * math.pi)) / max(fit.slope_s_per_px, 1e-12)
+    offset = min(max(half, 0.5), 5.0) * np.array([math.cos(phi), math.sin(phi)])
+    centre = np.array([fit.x_px, fit.y_px])
+    return evidence, 2.0 * half, (centre - offset, centre + offset)
+
+
 def split_candidates(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float,
                      start_region=None, start_time_s: float | None = None):
     """Two apexes (x, y) when one territory's pixels are better explained by two cones
@@ -310,7 +371,8 @@ def region_outline(x, y) -> tuple[np.ndarray, np.ndarray]:
 
 
 def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_region=None,
-                start_time_s: float | None = None):
+                start_time_s: float | None = None, noise_s: float | None = None,
+                correlation_px: float = 0.0, axis_start=None):
     """Parameters [xa, ya, t0a, xb, yb, t0b, s] of two cones (px, s, s/px) when one
     territory's pixels are better explained by two cones than by ``fit``, else None.
 
@@ -327,6 +389,14 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     both costs as a bound: each of its pixels had crystallised by then, so a model that
     reaches it later pays the delay. The shape of a crystal present at the start is
     evidence too: a single cone predicts a disc, two merged nuclei a lobed outline.
+
+    With ``noise_s`` (the field's arrival-time noise, s) two cones are also accepted on a
+    model comparison: their Schwarz criterion beats the single cone's by
+    ``split_evidence_bic`` (:func:`pair_evidence`, ``correlation_px`` the smoothing
+    sigma), with apexes at least ``pair_min_separation_px`` apart, each cone first over
+    ``split_min_share`` of the pixels and residuals that fit (:func:`_adequate`). This
+    resolves pairs too close for a large cost ratio. ``axis_start``: two starting apexes
+    used instead of the earliest pixels' axis (e.g. from :func:`elongation`).
     """
     from analysis.spherulites.growth import (
         bound_violation_s,
@@ -340,7 +410,8 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     early = t <= np.percentile(t, 15)
     if np.count_nonzero(early) < 5:
         return None
-    starts = [_axis_ends(x[early], y[early])]
+    starts = [_axis_ends(x[early], y[early])] if axis_start is None else \
+        [tuple(np.asarray(a, float) for a in axis_start)]
     if start_region is not None and len(start_region[0]) >= 5:
         starts.append(_axis_ends(*start_region))
     bound = None
@@ -361,10 +432,27 @@ def split_cones(x, y, t, fit, *, slope_s_per_px: float, f_scale_s: float, start_
     least = rules.split_min_share if cost2 >= rules.split_lopsided_cost_ratio * cost1 \
         else rules.split_min_share_lopsided
     balanced = least <= share <= 1.0 - least
-    if (cost2 < rules.split_cost_ratio * cost1 and np.hypot(*(a - b)) >= rules.split_min_separation_px
-            and balanced and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
+    apart = float(np.hypot(*(a - b)))
+    large_gain = cost2 < rules.split_cost_ratio * cost1 and apart >= rules.split_min_separation_px
+    preferred = (noise_s is not None and apart >= rules.pair_min_separation_px
+                 and rules.split_min_share <= share <= 1.0 - rules.split_min_share
+                 and _adequate(params, x, y, t, noise_s)
+                 and pair_evidence(cost1, cost2, noise_s=noise_s, n_pixels=x.size,
+                                   correlation_px=correlation_px) > rules.split_evidence_bic)
+    if ((large_gain and balanced or preferred)
+            and abs(params[6] / slope_s_per_px - 1) <= rules.split_slope_tolerance):
         return np.asarray(params, float)
     return None
+
+
+def _adequate(params, x, y, t, noise_s: float) -> bool:
+    """The two cones leave residuals (robust scale, 1.4826 MAD) within
+    ``split_residual_ratio`` times the field's noise: a model comparison only chooses
+    between models that fit. Structure two cones cannot absorb either (a front cut by
+    the field's edge, banding) is something else than a second nucleus."""
+    resid = cones_arrival(params, x, y) - np.asarray(t, float)
+    scale = 1.4826 * float(np.median(np.abs(resid - np.median(resid))))
+    return scale <= heuristics.current().split_residual_ratio * noise_s
 
 
 def best_split(x, y, t, slope_s_per_px: float, *, f_scale_s: float):

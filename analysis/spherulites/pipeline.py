@@ -35,6 +35,7 @@ changes its pixels, its cone is refitted with the centre held (t0 and G only).
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass, field
 from typing import Any, Generator, Sequence
 
@@ -103,7 +104,8 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                    arrival_s=arrival_s, markers=markers, base_territories=base,
                    auto_lookup_xy=markers.xy_px.copy(),
                    slope_s_per_px=nuclei.mean_slope_s_per_px(arrival_s, np.isfinite(arrival_s) & ~at_start),
-                   registered_drift_px=_largest_shift_px(arrival))
+                   registered_drift_px=_largest_shift_px(arrival),
+                   correlation_px=_correlation_px(arrival))
     yield Progress("fitting growth cones", 0.4)
     ctx = _with_missed_nuclei(ctx, settings)
     for _ in range(4):  # further rounds separate clusters of three or four
@@ -119,6 +121,15 @@ def _context_from_arrival(arrival, settings, *, stack, isothermal_start_s, tempe
                                                                     settings))
     ctx.cache[_AUTOMATIC] = automatic  # the result without edits: no need to evaluate it twice
     return ctx
+
+
+def _correlation_px(arrival) -> float:
+    """Gaussian sigma (px) over which arrival-time errors are shared: the evidence
+    smoothing and the measured edge blur, both Gaussian, added in quadrature."""
+    quality = getattr(arrival, "image_quality", None)
+    if quality is None:
+        return 0.0
+    return float(math.hypot(quality.smoothing_px or 0.0, quality.blur_px or 0.0))
 
 
 def _largest_shift_px(arrival) -> float:
@@ -176,10 +187,14 @@ def _with_missed_nuclei(ctx: Context, settings) -> Context:
                                auto_lookup_xy=markers.xy_px.copy())
 
 
-def _split_pixels(ctx, result, fits, groups, settings) -> dict:
-    """Fit pixels (x, y, t, fit) of the detections worth a two-nucleus test: residual
-    scale above 1.5 times the field's typical one, non-linear growth, or a slope more
-    than 25 % off the field's mean. A crystal present in the first frame must also lie
+def _split_pixels(ctx, result, fits, groups, settings) -> tuple[dict, float]:
+    """Fit pixels (x, y, t, fit, status, axis start) of the detections worth a
+    two-nucleus test, and the field's arrival-time noise (median robust residual scale,
+    s). Worth the test: residual scale above 1.5 times the field's typical one,
+    non-linear growth, a slope more than 25 % off the field's mean, or residuals
+    elongated along one axis (nuclei.elongation, whose axis then gives the starting
+    apexes) with strong evidence (split_evidence_bic) and by as much as two apexes
+    pair_min_separation_px apart would make. A crystal present in the first frame must also lie
     inside the cone's disc at that time: its outline's excess arrival joins the residuals
     (nuclei.split_cones)."""
     band = nuclei.boundary_band(result.extra["territories"], settings.boundary_band_px)
@@ -202,13 +217,18 @@ def _split_pixels(ctx, result, fits, groups, settings) -> dict:
             excess = growth.bound_violation_s(fit, ox, oy, float(ctx.times_s[0]))
             scales[sph.id] = max(scales[sph.id], float(1.4826 * np.median(excess)))
     if not scales:
-        return {}
+        return {}, float("nan")
     rules = heuristics.current()
     typical = float(np.median(list(scales.values())))
-    odd_slope = {k for k, v in data.items()
-                 if abs(v[3].slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance}
-    return {k: v for k, v in data.items()
-            if scales[k] > rules.split_residual_ratio * typical or v[4] == "nonlinear" or k in odd_slope}
+    chosen = {}
+    for k, (x, y, t, fit, status) in data.items():
+        evidence, apart, axis = nuclei.elongation(fit, x, y, t, noise_s=typical, correlation_px=ctx.correlation_px)
+        elongated = evidence > rules.split_evidence_bic and apart >= rules.pair_min_separation_px
+        misfit = (scales[k] > rules.split_residual_ratio * typical or status == "nonlinear"
+                  or abs(fit.slope_s_per_px / ctx.slope_s_per_px - 1) > rules.split_slope_tolerance)
+        if misfit or elongated:  # elongated only: the harmonic's axis is the one start needed
+            chosen[k] = (x, y, t, fit, status, None if misfit else axis)
+    return chosen, typical
 
 
 def _with_split_nuclei(ctx: Context, settings) -> Context:
@@ -221,16 +241,20 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     boundaries between them, which a later round can split again. A fitted cone on
     another detection's apex is that detection and gets no marker. A
     split inside such a crystal is undone when either half then has no cone fit: its
-    apex was placed where no measured front can confirm it. Any split is undone when a
-    half's own fit lands on another detection's apex (within the split separation): the
-    extra cone was explaining a neighbour's pixels, not a nucleus of its own.
+    apex was placed where no measured front can confirm it. Elsewhere such a half stays,
+    as a rejected row: its territory keeps the other nucleus's pixels out of this one's
+    fit (an arc entering from outside beside a nucleus at the edge). Any split is undone when a
+    half's own fit lands on another detection's apex (within the split separation; onto
+    its sibling's within their uncertainty, see _duplicates): the extra cone was
+    explaining a neighbour's pixels, not a nucleus of its own.
     """
     result, fits, groups = _automatic_evaluation(ctx, settings)
     labels = ctx.markers.labels.copy()
     work = ctx.work.copy()
     next_id = ctx.markers.xy_px.shape[0] + 1
     splits = []  # (spots, marker values replaced, relief pixels redrawn) per split
-    for det_id, (x, y, t, fit, _) in _split_pixels(ctx, result, fits, groups, settings).items():
+    candidates, noise_s = _split_pixels(ctx, result, fits, groups, settings)
+    for det_id, (x, y, t, fit, _, axis) in candidates.items():
         rows, cols = np.divmod(groups[det_id], ctx.shape[1])
         frame_0 = ctx.at_start[rows, cols]
         start_region = (cols[frame_0], rows[frame_0])
@@ -238,10 +262,13 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
             cones = nuclei.cluster_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
                                          f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
                                          start_time_s=float(ctx.times_s[0]))
-        else:
-            cones = nuclei.split_cones(x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px,
-                                       f_scale_s=0.5 * ctx.interval_s, start_region=start_region,
-                                       start_time_s=float(ctx.times_s[0]))
+        else:  # memoised: later rounds ask again about every territory they left unchanged
+            key = ("two cones", digest(x, y, t, start_region[0], start_region[1]), round(noise_s, 3),
+                   axis is None)
+            cones = cached(ctx, key, lambda: nuclei.split_cones(
+                x, y, t, fit, slope_s_per_px=ctx.slope_s_per_px, f_scale_s=0.5 * ctx.interval_s,
+                start_region=start_region, start_time_s=float(ctx.times_s[0]), noise_s=noise_s,
+                correlation_px=ctx.correlation_px, axis_start=axis))
         if cones is None:
             continue
         apexes = np.asarray(cones[:-1]).reshape(-1, 3)[:, :2]
@@ -271,10 +298,10 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     split_ctx = _with_marker_labels(dataclasses.replace(ctx, work=work), labels)
     _, split_fits, _ = _automatic_evaluation(split_ctx, settings)
     undone = False
-    apexes = {k: (f.x_px, f.y_px) for k, f in split_fits.items() if f.ok}
+    apexes = {k: f for k, f in split_fits.items() if f.ok}
     for spots, replaced, redrawn in splits:
         ids = [int(split_ctx.markers.labels[spot]) for spot in spots]
-        duplicate = any(_duplicates(apexes, k) for k in ids)
+        duplicate = any(_duplicates(apexes, k, siblings=ids, shape=ctx.shape) for k in ids)
         if not duplicate and (all(split_fits[k].ok for k in ids)
                               or not any(ctx.at_start[spot] for spot in spots)):
             continue
@@ -287,13 +314,38 @@ def _with_split_nuclei(ctx: Context, settings) -> Context:
     return _with_marker_labels(dataclasses.replace(ctx, work=work), labels) if undone else split_ctx
 
 
-def _duplicates(apexes: dict, label: int) -> bool:
-    """The fitted apex of ``label`` lies within the split separation of another's."""
-    if label not in apexes:
+def _duplicates(fits: dict, label: int, siblings=(), shape=None) -> bool:
+    """The fitted apex of ``label`` lies within the split separation of another's. Its
+    ``siblings``, the other halves of its own split, may come closer (a close pair) but
+    must stay ``pair_min_separation_px`` apart and farther than the 95 % uncertainty of
+    the two fitted apexes: two cones that land on one point within their precision were
+    one nucleus. A sibling whose apex lies outside the field (of ``shape``) is only an
+    arc, located too poorly for that test; the edge rule judges it instead."""
+    if label not in fits:
         return False
-    here = np.asarray(apexes[label])
-    near = heuristics.current().split_min_separation_px
-    return any(np.hypot(*(here - xy)) < near for k, xy in apexes.items() if k != label)
+    here = fits[label]
+    rules = heuristics.current()
+    for k, other in fits.items():
+        if k == label:
+            continue
+        apart = math.hypot(here.x_px - other.x_px, here.y_px - other.y_px)
+        if k not in siblings:
+            if apart < rules.split_min_separation_px:
+                return True
+            continue
+        if shape is not None and not (_in_field(here.x_px, here.y_px, shape)
+                                      and _in_field(other.x_px, other.y_px, shape)):
+            continue
+        spread = 1.96 * math.sqrt(here.se_x_px ** 2 + here.se_y_px ** 2 + other.se_x_px ** 2 + other.se_y_px ** 2)
+        if apart < max(rules.pair_min_separation_px, spread):
+            return True
+    return False
+
+
+def _in_field(x_px: float, y_px: float, shape) -> bool:
+    """The point (px) lies on the field's pixels (edges at -0.5 and size - 0.5)."""
+    h, w = shape
+    return -0.5 <= x_px <= w - 0.5 and -0.5 <= y_px <= h - 0.5
 
 
 def _with_marker_labels(ctx: Context, labels: np.ndarray) -> Context:

@@ -46,6 +46,9 @@ class Context:
     auto_lookup_xy: np.ndarray
     slope_s_per_px: float
     registered_drift_px: float = 0.0  # largest drift the registration removed, px
+    #: Gaussian sigma (px) shared by neighbouring arrival times: the evidence smoothing and
+    #: the edge blur of the recording (0 when unknown, e.g. an exact map).
+    correlation_px: float = 0.0
     cache: dict = field(default_factory=dict, compare=False, repr=False)
     #: Cache keys of the automatic result's cone fits: a held detection whose fit has
     #: one of these keys is unchanged and keeps its automatic fit exactly.

@@ -139,3 +139,34 @@ def test_a_piece_of_a_front_stays_explained_when_that_front_is_placed_within_its
     assert checks.nucleus_support(piece, [late], 0.5) <= 0
     exact = dataclasses.replace(late, se_t0_s=0.0)
     assert checks.nucleus_support(piece, [exact], 0.5) > 0
+
+
+def _half(k, own, other, *, slope=12.0, noise=3.0):
+    """One cell of two simultaneous nuclei (the Johnson-Mehl rule: each pixel goes to the
+    front that reaches it first; Johnson & Mehl 1939, Trans. AIME 135, 416), timed with
+    noise, fitted with its own cone."""
+    yy, xx = np.mgrid[70:130, 70:130]
+    x, y = xx.ravel().astype(float), yy.ravel().astype(float)
+    near = np.hypot(x - own[0], y - own[1])
+    keep = (near <= np.hypot(x - other[0], y - other[1])) & (near > 2.5)
+    x, y = x[keep], y[keep]
+    t = slope * near[keep] + np.random.default_rng(k).normal(0.0, noise, x.size)
+    fit = fit_cone(x, y, t, np.round(t / 10.0), start_xy=own, f_scale_s=5.0, field_shape=SHAPE)
+    resid = float(1.4826 * np.median(np.abs(t - (fit.t0_s + fit.slope_s_per_px * np.hypot(x - fit.x_px, y - fit.y_px)))))
+    sph = Spherulite(k, fit.x_px, fit.y_px, fit.t0_s, 0.0, 60.0 / fit.slope_s_per_px, 0.1, fit.r2, fit.n_levels, "ok")
+    return sph, checks.Evidence(fit, resid, x, y, t, user_included=False, automatic=True)
+
+
+def test_a_close_pair_is_two_fronts_but_two_pieces_of_one_front_are_one():
+    # Two nuclei 1.6 px apart: one joint cone is only a little worse per pixel (the
+    # residual-scale rule alone calls them one front), but over every pixel, and the
+    # Schwarz criterion (Schwarz 1978, Ann. Stat. 6, 461) keeps both.
+    a, b = (99.2, 100.0), (100.8, 100.0)
+    for seed in (1, 5):
+        pair = [_half(seed, a, b), _half(seed + 1, b, a)]
+        assert checks._duplicates(pair, 10.0) != {}
+        assert checks._duplicates(pair, 10.0, noise_s=3.0, correlation_px=1.0) == {}
+    # The same cone seen as two pieces (split by its extinction arms) is one front.
+    c = (100.0, 100.0)
+    pieces = [_half(3, c, (c[0] - 40.0, c[1])), _half(4, c, (c[0] + 40.0, c[1]))]
+    assert len(checks._duplicates(pieces, 10.0, noise_s=3.0, correlation_px=1.0)) == 1

@@ -175,3 +175,67 @@ def test_one_crystal_in_the_first_frame_stays_one_nucleus():
     sy, sx = np.nonzero(at_start)
     assert nuclei.cluster_cones(xx, yy, t, single, slope_s_per_px=2.0, f_scale_s=1.0,
                                 start_region=(sx, sy), start_time_s=float(times[0])) is None
+
+
+def _frame_timed_pair(apexes, *, slope=12.0, noise_s=3.0, seed=0):
+    """Pixels of a Johnson-Mehl map of nuclei born together (Johnson & Mehl 1939, Trans.
+    AIME 135, 416), timed with Gaussian noise, between 30 s and 300 s."""
+    exact = growth.model_arrival_map((90, 90), apexes, [0.0] * len(apexes), 1.0 / slope)
+    yy, xx = np.nonzero((exact > 30.0) & (exact < 300.0))
+    t = exact[yy, xx] + np.random.default_rng(seed).normal(0.0, noise_s, yy.size)
+    centre = np.mean(apexes, axis=0)
+    fit = growth.fit_cone(xx, yy, t, (t // 10).astype(int), start_xy=tuple(centre), f_scale_s=5.0)
+    return xx, yy, t, fit
+
+
+def _compared_split(xx, yy, t, fit, noise_s=3.0, correlation_px=1.0):
+    evidence, _, axis = nuclei.elongation(fit, xx, yy, t, noise_s=noise_s, correlation_px=correlation_px)
+    return evidence, nuclei.split_cones(xx, yy, t, fit, slope_s_per_px=12.0, f_scale_s=5.0, noise_s=noise_s,
+                                        correlation_px=correlation_px, axis_start=axis)
+
+
+def test_two_nuclei_six_px_apart_are_two_cones_on_the_model_comparison():
+    # Two simultaneous nuclei make the front elongated (Johnson & Mehl 1939); the
+    # Schwarz criterion (Schwarz 1978, Ann. Stat. 6, 461) must prefer two cones, and
+    # their apexes must land on the nuclei.
+    apexes = np.array([[42.0, 44.0], [48.0, 46.0]])
+    xx, yy, t, fit = _frame_timed_pair(apexes)
+    evidence, cones = _compared_split(xx, yy, t, fit)
+    assert evidence > 0 and cones is not None
+    got = np.asarray(cones[:-1]).reshape(2, 3)[:, :2]
+    got = got[np.argsort(got[:, 0])]
+    assert np.allclose(got, apexes, atol=0.5)
+    assert abs(cones[-1] / 12.0 - 1) < 0.02
+
+
+def test_a_pair_two_px_apart_is_resolved_but_one_cone_stays_one():
+    # 2 px apart, the midpoint cone is off by s d / 2 = 12 s along the axis: four
+    # times the timing noise, so the comparison resolves it; a single cone, timed
+    # with the same noise, gains nothing from a second apex (Schwarz 1978).
+    apexes = np.array([[44.0, 45.0], [46.0, 45.0]])
+    evidence, cones = _compared_split(*_frame_timed_pair(apexes, seed=1))
+    assert cones is not None
+    got = np.sort(np.asarray(cones[:-1]).reshape(2, 3)[:, 0])
+    assert np.allclose(got, apexes[:, 0], atol=0.6)
+    for seed in range(3):
+        evidence, cones = _compared_split(*_frame_timed_pair(np.array([[45.0, 45.0]]), seed=seed))
+        assert evidence <= 0 and cones is None
+
+
+def test_correlated_timing_errors_count_as_fewer_samples():
+    # The mean of white noise smoothed by a Gaussian of sigma s varies as if the area
+    # held area / (4 pi s^2) independent values: the integral of the smoothed field's
+    # autocorrelation (Vanmarcke 1983, Random Fields, MIT Press, ch. 5)  # from memory
+    import cv2
+
+    sigma, size, trials = 2.0, 64, 400
+    rng = np.random.default_rng(3)
+    means, single = [], []
+    for _ in range(trials):
+        field = cv2.GaussianBlur(rng.normal(0.0, 1.0, (size + 32, size + 32)).astype(np.float32), (0, 0), sigma)
+        inner = field[16:-16, 16:-16]
+        means.append(inner.mean())
+        single.append(inner.var())
+    n_eff = np.mean(single) / np.var(means)
+    assert abs(nuclei.independent_samples(size * size, sigma) / n_eff - 1) < 0.2
+    assert nuclei.independent_samples(10, 0.0) == 10  # unsmoothed: one sample per pixel

@@ -73,7 +73,10 @@ def test_field_of_simultaneous_nuclei_recovers_nuclei_rate_and_birth(field_analy
     inside = np.flatnonzero(_in_field(centres))
     found = {k for _, k in matched}
     assert len(found & set(inside)) / inside.size >= 0.9
-    in_field = [s for s in result.spherulites if 0 <= s.x_px <= 259 and 0 <= s.y_px <= 219]
+    # Precision over claims: a rejected candidate (e.g. the unconfirmed half of a split
+    # reaching outside the field) is listed for review but claims nothing.
+    in_field = [s for s in result.spherulites if 0 <= s.x_px <= 259 and 0 <= s.y_px <= 219
+                and s.status != "rejected"]
     assert sum(1 for s, _ in matched if s in in_field) / len(in_field) >= 0.9
     ok = [(s, k) for s, k in matched if s.status == "ok"]
     errors = [abs(s.growth_rate_um_per_min / G_UM_PER_MIN - 1) for s, _ in ok]
