@@ -19,8 +19,13 @@ _MIN_HISTORY = 4    # columns of evidence (pre-detection frame included) needed 
 # threshold_noise_widths), so this is 2.5 spreads of one frame, over 3 of a 3-frame mean
 # difference (common practice: a 3-sigma test).
 _RISE_THRESHOLDS = 0.25
-_MAX_WINDOWS = 4    # a pixel is followed for at most this many tracking windows
+# ... and a rise of more than this fraction of the plateau: a front passing a pixel at a
+# third of a pixel per frame, across a front and smoothing kernel about 5 px wide, still
+# adds some 20 % in three frames, while a crystal slowly brightening (or the kernel around
+# a young nucleus filling up) adds a few per cent and its half-way time is already right.
+_RISE_FRACTION = 0.1
 _NEARBY_PX = 3.0    # reach of the dated crystal a pixel cut short by the record's end is compared with, px
+_MAX_WINDOWS = 4    # a pixel is followed for at most this many tracking windows
 
 
 class _Cohort:
@@ -61,11 +66,12 @@ def _own_plateau(history, count):
 
 def _still_rising(history, count, threshold):
     """Pixels whose evidence still climbs: the mean of the last three columns exceeds that
-    of the three before by more than ``_RISE_THRESHOLDS`` detection thresholds."""
+    of the three before by more than ``_RISE_THRESHOLDS`` detection thresholds and by more
+    than ``_RISE_FRACTION`` of itself."""
     if count < 7:
         return np.ones(history.shape[0], bool)
     last, before = history[:, count - 3:count].mean(axis=1), history[:, count - 6:count - 3].mean(axis=1)
-    return last - before > _RISE_THRESHOLDS * threshold
+    return (last - before > _RISE_THRESHOLDS * threshold) & (last - before > _RISE_FRACTION * last)
 
 
 def _half_plateau_times(history, count, first, times, threshold, plateau_floor=None):
@@ -211,9 +217,9 @@ def _finished_plateau_at(state, index) -> np.ndarray:
     total, count = np.zeros(rows.size), np.zeros(rows.size)
     for dy in range(-reach, reach + 1):
         for dx in range(-reach, reach + 1):
-            r, c = np.clip(rows + dy, 0, h - 1), np.clip(cols + dx, 0, w - 1)
-            flat = r * w + c
+            flat = np.clip(rows + dy, 0, h - 1) * w + np.clip(cols + dx, 0, w - 1)
             dated = (state.status[flat] == DONE) & (state.contrast[flat] > 0)
             total += np.where(dated, state.contrast[flat], 0.0)
             count += dated
     return np.where(count > 0, total / np.maximum(count, 1), 0.0)
+
