@@ -292,7 +292,8 @@ def automatic_fit_keys(ctx, dets, settings) -> frozenset:
 
 
 def evaluate(ctx, dets, global_spans, unapplied, settings):
-    """The result, and the final fits by detection id and their pixel groups."""
+    """The result, and the final fits by detection id and their pixel groups (None when
+    ``ctx.fit_key_recorder`` is set: then only the cone fits are made, and recorded)."""
     labels, provisional = _partition(ctx, dets, global_spans, settings)
     band = nuclei.boundary_band(labels, settings.boundary_band_px)
     groups = _groups(ctx, labels)
@@ -311,6 +312,8 @@ def evaluate(ctx, dets, global_spans, unapplied, settings):
         # stays as it was, for review (no evidence either way).
         if not rows[k][3].in_first_frame or evidence_checks.follows_one_front(again[3], typical, ctx.interval_s):
             rows[k] = again
+    if ctx.fit_key_recorder is not None:
+        return None  # only the cone fits were asked for (automatic_fit_keys): they are all made
     spherulites, radii, fits, evidence = (list(column) for column in zip(*rows)) if rows else ([], [], [], [])
     spherulites = evidence_checks.judge(spherulites, evidence, interval_s=ctx.interval_s, shape=ctx.shape,
                                         correlation_px=ctx.correlation_px)
