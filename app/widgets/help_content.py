@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from analysis.results import COUNTS
+from analysis.spherulites.growth import INTERPOLATION_FRACTION, REGISTRATION_PX
 
 _AVRAMI_PAPERS = (
     "M. Avrami, J. Chem. Phys. 7, 1103 (1939); 8, 212 (1940); 9, 177 (1941) (from memory)",
@@ -273,8 +274,9 @@ TOPICS: tuple[HelpTopic, ...] = (
         "Every number is written as value (95 % CI low–high) unit. Pooled G: the scatter between "
         "spherulites (random effects) and, added in quadrature, the timing error every spherulite "
         "of the recording shares: irregular frame times, the residual of the sub-frame "
-        "interpolation of arrival times (3.5 % of a frame interval over the growth span) and the "
-        "residual of the drift registration (0.03 px over the span, when drift was found); the "
+        f"interpolation of arrival times ({100 * INTERPOLATION_FRACTION:.3g} % of a frame interval over "
+        f"the growth span) and the residual of the drift registration ({REGISTRATION_PX:g} px over the "
+        "span, when drift was found); the "
         "per-spherulite fits alone would claim far less. N_A, N_V and the nucleation rate: exact "
         "Poisson intervals on the counts. Predicted n, k, t½ and the calorimetry/microscopy "
         "ratio: a bootstrap over spherulites and over nuclei (Poisson counts), 1000 draws with "
