@@ -81,6 +81,21 @@ class DetectionHeuristics:
         0.5, "Brightness falling by more than this fraction across the field is reported as "
         "uneven illumination worth correcting at the microscope (common practice).")
     # ---- timing and registration (analysis.arrival.arrival_map)
+    rise_thresholds: float = _h(
+        0.25, "A pixel whose mean evidence over its last three tracked frames exceeds that of "
+        "the three before by more than this many detection thresholds is still rising and is "
+        "followed for another window: the threshold is ten robust spreads of the melt's "
+        "evidence, so this is 2.5 spreads of one frame, over 3 of a three-frame mean "
+        "difference (common practice: a 3-sigma test).")
+    rise_fraction: float = _h(
+        0.1, "... and by more than this fraction of its level: a front passing a pixel at a "
+        "third of a pixel per frame, across a front and smoothing kernel about 5 px wide, still "
+        "adds some 20 % in three frames, while a crystal slowly brightening (or the kernel "
+        "around a young nucleus filling up) adds a few per cent and its half-way time is "
+        "already right (set on heating-run seeds 3-8 and sporadic accuracy seed 12).")
+    max_tracking_windows: int = _h(
+        4, "A pixel is followed for at most this many tracking windows: enough for fronts down "
+        "to about a tenth of a pixel per frame, where G(T) is unusable anyway (common practice).")
     reliable_contrast_thresholds: float = _h(
         2.5, "A pixel whose plateau evidence exceeds this many thresholds was detected "
         "after its half-plateau crossing, so its time does not depend on the threshold "

@@ -12,20 +12,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from analysis import heuristics
+
 MELT, TRACKING, DONE = 0, 1, 2
 _MIN_HISTORY = 4    # columns of evidence (pre-detection frame included) needed to judge a plateau
-# A rise of the mean evidence over three frames of more than this many detection thresholds
-# is no noise: the threshold is ten robust spreads of the melt's evidence (heuristics.
-# threshold_noise_widths), so this is 2.5 spreads of one frame, over 3 of a 3-frame mean
-# difference (common practice: a 3-sigma test).
-_RISE_THRESHOLDS = 0.25
-# ... and a rise of more than this fraction of the plateau: a front passing a pixel at a
-# third of a pixel per frame, across a front and smoothing kernel about 5 px wide, still
-# adds some 20 % in three frames, while a crystal slowly brightening (or the kernel around
-# a young nucleus filling up) adds a few per cent and its half-way time is already right.
-_RISE_FRACTION = 0.1
 _NEARBY_PX = 3.0    # reach of the dated crystal a pixel cut short by the record's end is compared with, px
-_MAX_WINDOWS = 4    # a pixel is followed for at most this many tracking windows
 
 
 class _Cohort:
@@ -66,12 +57,13 @@ def _own_plateau(history, count):
 
 def _still_rising(history, count, threshold):
     """Pixels whose evidence still climbs: the mean of the last three columns exceeds that
-    of the three before by more than ``_RISE_THRESHOLDS`` detection thresholds and by more
-    than ``_RISE_FRACTION`` of itself."""
+    of the three before by more than ``rise_thresholds`` detection thresholds and by more
+    than ``rise_fraction`` of itself (:mod:`analysis.heuristics`)."""
     if count < 7:
         return np.ones(history.shape[0], bool)
+    rules = heuristics.current()
     last, before = history[:, count - 3:count].mean(axis=1), history[:, count - 6:count - 3].mean(axis=1)
-    return (last - before > _RISE_THRESHOLDS * threshold) & (last - before > _RISE_FRACTION * last)
+    return (last - before > rules.rise_thresholds * threshold) & (last - before > rules.rise_fraction * last)
 
 
 def _half_plateau_times(history, count, first, times, threshold, plateau_floor=None):
@@ -158,9 +150,9 @@ def _release(state, index, threshold):
 
 def _retire(state, cohort, times):
     """Date the cohort's pixels; those still rising are followed for another window
-    (up to ``_MAX_WINDOWS`` in all): a front that takes longer to pass a pixel than one
+    (up to ``max_tracking_windows`` in all): a front that takes longer to pass a pixel than one
     window would have its plateau, and so its half-way time, read too early."""
-    if cohort.history.shape[1] < _MAX_WINDOWS * state.width:
+    if cohort.history.shape[1] < heuristics.current().max_tracking_windows * state.width:
         rising = _still_rising(cohort.history, cohort.count, state.threshold)
         if rising.any():
             state.extended.append(cohort.extended(rising, state.width - 1))
